@@ -1,0 +1,23 @@
+//! Progress and cancellation. Long work reports through a [`Progress`] observer; returning
+//! [`Flow::Stop`] from `step` asks the work to stop as soon as it safely can.
+
+/// Whether the work should go on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Flow {
+    Continue,
+    Stop,
+}
+
+/// Receives progress reports. The default methods do nothing, so an observer implements only
+/// what it needs.
+pub trait Progress {
+    /// `done` out of `total` units of the stage called `stage` are finished.
+    fn step(&mut self, _stage: &str, _done: u64, _total: u64) -> Flow {
+        Flow::Continue
+    }
+}
+
+/// An observer that ignores everything and never stops the work.
+pub struct Silent;
+
+impl Progress for Silent {}
