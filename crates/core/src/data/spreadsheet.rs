@@ -101,7 +101,9 @@ pub(crate) fn read(
             builder.push(cell, missing);
         }
         n += 1;
-        if n.is_multiple_of(4096) && progress.step("reading sheet", n as u64, height as u64) == Flow::Stop {
+        if n.is_multiple_of(4096)
+            && progress.step("reading sheet", n as u64, height as u64) == Flow::Stop
+        {
             return Err(ErrorKind::Cancelled.into());
         }
     }
