@@ -185,7 +185,7 @@ fn print_table(out: &mut impl Write, report: &data::TableReport) -> anyhow::Resu
                 .collect();
             (top.join(", "), String::new(), String::new())
         };
-        let kind = match c.unit {
+        let kind = match &c.unit {
             Some(unit) => format!("{} [{unit}]", c.kind.label()),
             None => c.kind.label().to_string(),
         };

@@ -8,18 +8,18 @@ use super::summary::{summarise, ColumnSummary};
 /// Bumped on any change that breaks readers of the JSON form.
 pub const REPORT_VERSION: u32 = 1;
 
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
 pub struct SourceReport {
     /// "delimited" or "spreadsheet".
-    pub kind: &'static str,
+    pub kind: String,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub delimiter: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub encoding: Option<&'static str>,
+    pub encoding: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub decimal: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub format: Option<&'static str>,
+    pub format: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub sheet: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -28,9 +28,9 @@ pub struct SourceReport {
     pub description: String,
 }
 
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
 pub struct TableReport {
-    pub format: &'static str,
+    pub format: String,
     pub version: u32,
     pub file: String,
     pub bytes: u64,
@@ -49,9 +49,9 @@ pub fn report(loaded: &Loaded, file: &str) -> TableReport {
             encoding,
             decimal,
         } => SourceReport {
-            kind: "delimited",
+            kind: "delimited".into(),
             delimiter: Some((*delimiter as char).to_string()),
-            encoding: Some(encoding.label()),
+            encoding: Some(encoding.label().into()),
             decimal: Some((*decimal as char).to_string()),
             format: None,
             sheet: None,
@@ -63,18 +63,18 @@ pub fn report(loaded: &Loaded, file: &str) -> TableReport {
             sheet,
             sheets,
         } => SourceReport {
-            kind: "spreadsheet",
+            kind: "spreadsheet".into(),
             delimiter: None,
             encoding: None,
             decimal: None,
-            format: Some(format),
+            format: Some(format.to_string()),
             sheet: Some(sheet.clone()),
             sheets: Some(sheets.clone()),
             description: loaded.source.describe(),
         },
     };
     TableReport {
-        format: "spinney-inspect",
+        format: "spinney-inspect".into(),
         version: REPORT_VERSION,
         file: file.to_string(),
         bytes: loaded.bytes,

@@ -5,7 +5,7 @@
 use super::{Column, Kind, Table, Values, MISSING_CODE};
 
 /// Something about a column the user should look at before modelling.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub enum Flag {
     /// Every value is different: a record number, code or name, not a predictor.
     #[serde(rename = "identifier")]
@@ -47,14 +47,14 @@ impl Flag {
 pub const MOSTLY_MISSING: f64 = 0.9;
 
 /// One value and how often it occurs.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct TopValue {
     pub value: String,
     pub count: usize,
 }
 
 /// What the user sees about one column.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct ColumnSummary {
     pub name: String,
     pub kind: Kind,
@@ -66,7 +66,7 @@ pub struct ColumnSummary {
     pub max: Option<f64>,
     /// The most frequent values (labels, or yes/no words), most frequent first.
     pub top: Vec<TopValue>,
-    pub unit: Option<&'static str>,
+    pub unit: Option<String>,
     pub flags: Vec<Flag>,
 }
 
@@ -108,7 +108,7 @@ pub fn summarise_column(column: &Column, rows: usize) -> ColumnSummary {
         median: None,
         max: None,
         top: Vec::new(),
-        unit: column.unit,
+        unit: column.unit.map(str::to_string),
         flags: Vec::new(),
     };
     match &column.values {

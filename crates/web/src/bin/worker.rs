@@ -1,1 +1,162 @@
-fn main() {}
+//! The Web Worker: holds the current file's bytes and table, and answers the page's requests
+//! (see spinney_web::protocol). It posts `Ready` first; messages sent before its wasm loaded
+//! would be lost, so the page waits for it.
+
+use std::cell::RefCell;
+use std::rc::Rc;
+
+use js_sys::{Object, Reflect, Uint8Array};
+use spinney_core::data::{self, read_table, Kind, Loaded, ReadOptions};
+use spinney_core::progress::{Flow, Progress};
+use spinney_web::protocol::{
+    Preview, ReadSettings, Reply, Request, PREVIEW_ROWS, PROTOCOL_VERSION,
+};
+use wasm_bindgen::prelude::*;
+use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
+
+/// Files above this size are refused in the page (the CLI has no limit).
+const MAX_BYTES: u64 = 1_500_000_000;
+
+#[derive(Default)]
+struct Held {
+    name: String,
+    bytes: Vec<u8>,
+    loaded: Option<Loaded>,
+}
+
+fn scope() -> DedicatedWorkerGlobalScope {
+    js_sys::global().unchecked_into()
+}
+
+fn post(reply: &Reply) {
+    let msg = match serde_wasm_bindgen::to_value(reply) {
+        Ok(m) => m,
+        Err(e) => JsValue::from_str(&format!("internal error: {e}")),
+    };
+    let envelope = Object::new();
+    let _ = Reflect::set(&envelope, &"msg".into(), &msg);
+    let _ = scope().post_message(&envelope);
+}
+
+/// Reports reading progress to the page.
+struct Reporter {
+    id: u32,
+}
+
+impl Progress for Reporter {
+    fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
+        post(&Reply::Progress {
+            id: self.id,
+            stage: stage.to_string(),
+            done,
+            total,
+        });
+        Flow::Continue
+    }
+}
+
+fn options(name: &str, settings: &ReadSettings) -> Result<ReadOptions, String> {
+    let mut kinds = Vec::new();
+    for (column, label) in &settings.kinds {
+        let kind = Kind::from_label(label)
+            .ok_or_else(|| format!("unknown kind '{label}' for column '{column}'"))?;
+        kinds.push((column.clone(), kind));
+    }
+    Ok(ReadOptions {
+        file_name: Some(name.to_string()),
+        sheet: settings.sheet.clone(),
+        missing_tokens: settings
+            .missing
+            .iter()
+            .filter(|t| !t.trim().is_empty())
+            .cloned()
+            .collect(),
+        kinds,
+        max_bytes: Some(MAX_BYTES),
+    })
+}
+
+fn preview(loaded: &Loaded) -> Preview {
+    let table = &loaded.table;
+    let rows = (0..table.rows.min(PREVIEW_ROWS))
+        .map(|r| table.columns.iter().map(|c| c.display(r)).collect())
+        .collect();
+    Preview { rows }
+}
+
+fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>) {
+    let (id, name, settings, new_bytes) = match request {
+        Request::Read {
+            id, name, settings, ..
+        } => (id, name, settings, bytes),
+        Request::Reread { id, settings, .. } => (id, held.name.clone(), settings, None),
+    };
+    let fail = |held: &Held, message: String| {
+        post(&Reply::Failed {
+            id,
+            message,
+            kept_previous: held.loaded.is_some(),
+        });
+    };
+    let options = match options(&name, &settings) {
+        Ok(o) => o,
+        Err(message) => return fail(held, message),
+    };
+    let source: &[u8] = match &new_bytes {
+        Some(b) => b,
+        None if held.loaded.is_some() => &held.bytes,
+        None => return fail(held, "no file is loaded yet; choose a file first".into()),
+    };
+    match read_table(source, &options, &mut Reporter { id }) {
+        Ok(loaded) => {
+            let report = data::report(&loaded, &name);
+            let preview = preview(&loaded);
+            if let Some(b) = new_bytes {
+                held.bytes = b;
+                held.name = name.clone();
+            }
+            held.loaded = Some(loaded);
+            post(&Reply::Table {
+                id,
+                name,
+                report: Box::new(report),
+                preview,
+                settings,
+            });
+        }
+        Err(e) => fail(held, format!("{name}: {e}")),
+    }
+}
+
+fn main() {
+    let held = Rc::new(RefCell::new(Held::default()));
+    let on_message = Closure::<dyn FnMut(MessageEvent)>::new(move |event: MessageEvent| {
+        let data = event.data();
+        let msg = Reflect::get(&data, &"msg".into()).unwrap_or(JsValue::UNDEFINED);
+        let bytes = Reflect::get(&data, &"bytes".into())
+            .ok()
+            .filter(|b| b.is_instance_of::<Uint8Array>())
+            .map(|b| b.unchecked_into::<Uint8Array>().to_vec());
+        match serde_wasm_bindgen::from_value::<Request>(msg) {
+            Ok(request) if request.version() > PROTOCOL_VERSION => post(&Reply::Failed {
+                id: 0,
+                message: format!(
+                    "the page speaks protocol version {} but this worker only knows {PROTOCOL_VERSION}; reload the page",
+                    request.version()
+                ),
+                kept_previous: true,
+            }),
+            Ok(request) => handle(&mut held.borrow_mut(), request, bytes),
+            Err(e) => post(&Reply::Failed {
+                id: 0,
+                message: format!("the worker could not understand a message ({e}); reload the page"),
+                kept_previous: true,
+            }),
+        }
+    });
+    scope().set_onmessage(Some(on_message.as_ref().unchecked_ref()));
+    on_message.forget();
+    post(&Reply::Ready {
+        v: PROTOCOL_VERSION,
+    });
+}

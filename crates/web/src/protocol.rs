@@ -1,0 +1,84 @@
+//! Messages between the page and its worker. Explicit, versioned structs (ARCHITECTURE.md,
+//! invariant 5); a side that receives a newer major version refuses it with a message.
+//!
+//! A message is a JS object `{ msg, bytes? }`: `msg` is one of the enums below converted by
+//! serde-wasm-bindgen, `bytes` an optional `Uint8Array` (the file, transferred, not copied).
+
+use serde::{Deserialize, Serialize};
+use spinney_core::data::TableReport;
+
+/// Bumped when a message changes incompatibly.
+pub const PROTOCOL_VERSION: u32 = 1;
+
+/// Rows of the preview table.
+pub const PREVIEW_ROWS: usize = 20;
+
+/// Settings for reading a file, as the page lets the user choose them.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+pub struct ReadSettings {
+    pub sheet: Option<String>,
+    pub missing: Vec<String>,
+    /// (column, kind label) pairs chosen by the user.
+    pub kinds: Vec<(String, String)>,
+}
+
+/// From the page to the worker.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Request {
+    /// Read the file whose bytes come with the message.
+    Read {
+        v: u32,
+        id: u32,
+        name: String,
+        settings: ReadSettings,
+    },
+    /// Read the file held by the worker again with other settings (a chosen kind, sheet or
+    /// missing-value token).
+    Reread {
+        v: u32,
+        id: u32,
+        settings: ReadSettings,
+    },
+}
+
+/// The first rows of a table, as text (`None` = missing).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Preview {
+    pub rows: Vec<Vec<Option<String>>>,
+}
+
+/// From the worker to the page.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Reply {
+    /// Sent once when the worker's wasm has loaded; the page sends nothing before it.
+    Ready { v: u32 },
+    Progress {
+        id: u32,
+        stage: String,
+        done: u64,
+        total: u64,
+    },
+    Table {
+        id: u32,
+        name: String,
+        report: Box<TableReport>,
+        preview: Preview,
+        settings: ReadSettings,
+    },
+    /// The request failed; the worker still holds the table it had before, if any.
+    Failed {
+        id: u32,
+        message: String,
+        kept_previous: bool,
+    },
+}
+
+impl Request {
+    pub fn version(&self) -> u32 {
+        match self {
+            Request::Read { v, .. } | Request::Reread { v, .. } => *v,
+        }
+    }
+}

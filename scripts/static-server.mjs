@@ -1,0 +1,43 @@
+// A tiny static file server for dist/ on 127.0.0.1 only (Node's standard library, no
+// dependencies). Used by scripts/serve and by the browser tests.
+//   node scripts/static-server.mjs DIR [PORT]     (PORT 0 = any free port)
+// Prints "serving DIR at http://127.0.0.1:PORT/" once listening.
+import { createServer } from 'node:http';
+import { readFile, stat } from 'node:fs/promises';
+import { extname, join, normalize, resolve } from 'node:path';
+
+const TYPES = {
+  '.html': 'text/html; charset=utf-8', '.js': 'text/javascript; charset=utf-8',
+  '.mjs': 'text/javascript; charset=utf-8', '.css': 'text/css; charset=utf-8',
+  '.wasm': 'application/wasm', '.json': 'application/json', '.csv': 'text/csv; charset=utf-8',
+  '.md': 'text/markdown; charset=utf-8', '.png': 'image/png', '.svg': 'image/svg+xml',
+  '.ico': 'image/x-icon', '.webmanifest': 'application/manifest+json',
+};
+
+export function serve(dir, port = 0) {
+  const root = resolve(dir);
+  const server = createServer(async (req, res) => {
+    try {
+      const url = new URL(req.url, 'http://127.0.0.1');
+      let path = normalize(join(root, decodeURIComponent(url.pathname)));
+      if (!path.startsWith(root)) { res.writeHead(403).end(); return; }
+      if ((await stat(path).catch(() => null))?.isDirectory()) path = join(path, 'index.html');
+      const body = await readFile(path);
+      res.writeHead(200, {
+        'content-type': TYPES[extname(path)] ?? 'application/octet-stream',
+        'cache-control': 'no-cache',
+        'x-content-type-options': 'nosniff',
+      });
+      res.end(body);
+    } catch {
+      res.writeHead(404, { 'content-type': 'text/plain' }).end('not found');
+    }
+  });
+  return new Promise((ok) => server.listen(port, '127.0.0.1', () => ok(server)));
+}
+
+if (import.meta.url === `file://${process.argv[1]}`) {
+  const [dir = 'dist', port = '8080'] = process.argv.slice(2);
+  const server = await serve(dir, Number(port));
+  console.log(`serving ${dir} at http://127.0.0.1:${server.address().port}/`);
+}

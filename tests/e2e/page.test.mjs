@@ -1,0 +1,162 @@
+// Browser test of the page (issue 2): open the built page from dist/, read a fixture through
+// the file input, check the column kinds against tests/fixtures/manifest.json, choose an
+// outcome, read a broken file and see its message while the earlier table stays, try the
+// demo records, override a kind, read a large file while the page stays responsive, and
+// check that the page asked nothing of any other origin. Screenshots go to tests/out/e2e/.
+//
+// Runs with playwright-core and Debian's Chromium (/usr/bin/chromium); no browser download.
+//   node tests/e2e/page.test.mjs        (after `trunk build`; scripts/test does both)
+import { chromium } from 'playwright-core';
+import { mkdirSync, readFileSync } from 'node:fs';
+import { dirname, join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { serve } from '../../scripts/static-server.mjs';
+
+const here = dirname(fileURLToPath(import.meta.url));
+const root = join(here, '..', '..');
+const fixtures = join(root, 'tests', 'fixtures');
+const out = join(root, 'tests', 'out', 'e2e');
+mkdirSync(out, { recursive: true });
+const manifest = JSON.parse(readFileSync(join(fixtures, 'manifest.json'), 'utf8'));
+
+let passed = 0, failed = 0;
+async function check(name, body) {
+  try {
+    await body();
+    passed++;
+    console.log(`PASS ${name}`);
+  } catch (e) {
+    failed++;
+    console.log(`FAIL ${name}: ${String(e?.message ?? e).split('\n')[0]}`);
+  }
+}
+function expect(cond, what) { if (!cond) throw new Error(what); }
+
+const server = await serve(join(root, 'dist'), 0);
+const origin = `http://127.0.0.1:${server.address().port}`;
+const browser = await chromium.launch({
+  executablePath: process.env.CHROMIUM ?? '/usr/bin/chromium',
+  args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run',
+    '--disable-background-networking', '--disable-component-update', '--disable-sync'],
+  // playwright gives every launch a fresh temporary profile (the --user-data-dir of toolchain.md).
+});
+const context = await browser.newContext({ viewport: { width: 1400, height: 1000 } });
+const page = await context.newPage();
+const requests = [];
+const consoleErrors = [];
+context.on('request', (r) => requests.push(r.url()));
+page.on('request', (r) => requests.push(r.url()));
+page.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
+page.on('pageerror', (e) => consoleErrors.push(String(e)));
+
+const kindsShown = () => page.$$eval('select[data-field=kind]', (s) => s.map((x) => x.value));
+const namesShown = () => page.$$eval('table.columns tbody th[scope=row]', (s) => s.map((x) => x.textContent));
+
+try {
+  await check('page loads and its wasm starts', async () => {
+    await page.goto(`${origin}/index.html`);
+    await page.waitForSelector('#app[data-ready=yes]', { timeout: 30000 });
+    const caution = await page.textContent('#caution');
+    expect(/research use/i.test(caution) && /external validation/i.test(caution), 'caution line missing');
+  });
+
+  const plain = manifest.find((e) => e.file === 'plain_comma.csv');
+  await check('a fixture read through the file input shows the right kinds', async () => {
+    await page.setInputFiles('#file-input', join(fixtures, plain.file));
+    await page.waitForSelector('table.columns');
+    expect(JSON.stringify(await namesShown()) === JSON.stringify(plain.columns.map((c) => c.name)), 'column names differ');
+    const kinds = await kindsShown();
+    expect(JSON.stringify(kinds) === JSON.stringify(plain.columns.map((c) => c.kind)), `kinds ${kinds}`);
+    const facts = await page.textContent('.facts');
+    expect(facts.includes(`${plain.rows} rows`), `facts: ${facts}`);
+    await page.screenshot({ path: join(out, 'fixture-loaded.png'), fullPage: true });
+  });
+
+  await check('choosing an outcome describes it', async () => {
+    await page.selectOption('select[data-field=role][data-col="4"]', 'outcome');
+    await page.waitForFunction(() => document.querySelector('#roles-summary').textContent.includes('Outcome:'));
+    const text = await page.textContent('#roles-summary');
+    expect(text.includes('flowering') && text.includes('2 classes'), text);
+  });
+
+  const ragged = manifest.find((e) => e.file === 'ragged_too_few.csv');
+  await check('a broken file shows where it is broken and keeps the earlier table', async () => {
+    await page.setInputFiles('#file-input', join(fixtures, ragged.file));
+    await page.waitForSelector('#message.error:not([hidden])');
+    const msg = await page.textContent('#message');
+    for (const s of ragged.message_contains) expect(msg.includes(s), `message lacks "${s}": ${msg}`);
+    expect(/still the one you loaded before/.test(msg), 'does not say the old table was kept');
+    expect(JSON.stringify(await namesShown()) === JSON.stringify(plain.columns.map((c) => c.name)), 'earlier table lost');
+    await page.screenshot({ path: join(out, 'broken-file.png'), fullPage: true });
+  });
+
+  await check('a binary file renamed .csv gives a message, not a crash', async () => {
+    await page.setInputFiles('#file-input', join(fixtures, 'binary_png_renamed.csv'));
+    await page.waitForFunction(() => /PNG/.test(document.querySelector('#message').textContent));
+  });
+
+  await check('the demo records are one click away', async () => {
+    await page.click('#demo-surgery');
+    await page.waitForFunction(() => document.querySelector('.facts')?.textContent.includes('surgery-complications.csv'));
+    const names = await namesShown();
+    expect(names.includes('complication_30d') && names.includes('patient_id'), `names ${names}`);
+    const idRow = await page.$eval('select[data-field=role][data-col="0"]', (s) => s.value);
+    expect(idRow === 'group', `patient_id role ${idRow}`);
+    const flags = await page.textContent('table.columns tbody tr:first-child');
+    expect(flags.includes('identifier'), 'patient_id not flagged');
+    const col = names.indexOf('complication_30d');
+    await page.selectOption(`select[data-field=role][data-col="${col}"]`, 'outcome');
+    await page.waitForFunction(() => document.querySelector('#roles-summary').textContent.includes('complication_30d'));
+    await page.screenshot({ path: join(out, 'demo-loaded.png'), fullPage: true });
+  });
+
+  await check('overriding a kind reads the column again', async () => {
+    const names = await namesShown();
+    const col = names.indexOf('fitness_grade');
+    await page.selectOption(`select[data-field=kind][data-col="${col}"]`, 'category');
+    await page.waitForFunction((c) => document.querySelector(`select[data-field=kind][data-col="${c}"]`)?.value === 'category', col);
+    const summary = await page.textContent('#roles-summary');
+    expect(summary.includes('complication_30d'), 'outcome choice lost after the re-read');
+  });
+
+  await check('a 30 MB file is read with progress while the page stays responsive', async () => {
+    const header = 'a,b,c,d,e,f,g,h,group\n';
+    const lines = [header];
+    let size = header.length;
+    for (let i = 0; size < 30e6; i++) {
+      const line = `${i},${(i * 0.37) % 101},${(i * 7) % 13},${i % 2},${(i * 1.1).toFixed(2)},${i % 97},${(i * 3.3) % 7},${i % 5},g${i % 40}\n`;
+      lines.push(line);
+      size += line.length;
+    }
+    await page.setInputFiles('#file-input', { name: 'big.csv', mimeType: 'text/csv', buffer: Buffer.from(lines.join('')) });
+    let sawProgress = false, answered = 0;
+    for (let k = 0; k < 600; k++) {
+      const state = await page.evaluate(() => ({
+        busy: !document.querySelector('#read-status').hidden,
+        done: document.querySelector('.facts')?.textContent.includes('big.csv'),
+      }));
+      answered++;
+      if (state.busy) sawProgress = true;
+      if (state.done) break;
+      await page.waitForTimeout(50);
+    }
+    expect(await page.$eval('.facts', (f) => f.textContent.includes('big.csv')), 'big file never finished');
+    expect(sawProgress, 'no progress shown');
+    expect(answered > 1, 'page did not answer while reading');
+  });
+
+  await check('no request left the page\'s own origin', async () => {
+    const foreign = requests.filter((u) => !u.startsWith(origin) && !u.startsWith('data:') && !u.startsWith('blob:'));
+    expect(foreign.length === 0, `foreign requests: ${foreign.slice(0, 3)}`);
+    expect(requests.length > 0, 'no requests recorded at all');
+  });
+
+  await check('no console errors (Content-Security-Policy violations among them)', async () => {
+    expect(consoleErrors.length === 0, consoleErrors.slice(0, 3).join(' | '));
+  });
+} finally {
+  await browser.close();
+  server.close();
+}
+console.log(`${passed} passed, ${failed} failed`);
+process.exit(failed ? 1 : 0);
