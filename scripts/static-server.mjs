@@ -33,7 +33,14 @@ export function serve(dir, port = 0) {
       res.writeHead(404, { 'content-type': 'text/plain' }).end('not found');
     }
   });
-  return new Promise((ok) => server.listen(port, '127.0.0.1', () => ok(server)));
+  return new Promise((ok, fail) => {
+    server.once('error', (e) => {
+      // The chosen port is taken: take any free one rather than fail.
+      if (e.code === 'EADDRINUSE' && port !== 0) server.listen(0, '127.0.0.1', () => ok(server));
+      else fail(e);
+    });
+    server.listen(port, '127.0.0.1', () => ok(server));
+  });
 }
 
 if (import.meta.url === `file://${process.argv[1]}`) {
