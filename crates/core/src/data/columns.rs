@@ -5,8 +5,12 @@
 //! pass over that column only.
 
 use std::collections::HashMap;
+use std::hash::{BuildHasherDefault, Hasher};
 
-use super::values::{parse_date, parse_number, yes_no_word, DayMonth, MissingTokens, NumberStyle};
+use super::values::{
+    parse_date, parse_number, parse_trimmed_number, trim, yes_no_word, DayMonth, MissingTokens,
+    NumberStyle,
+};
 use super::{format_date, format_number, Column, Kind, Values, DATE_UNIT, MISSING_CODE};
 
 /// One cell as a reader delivers it.
@@ -40,6 +44,30 @@ pub enum Plan {
 /// category (common practice, no source).
 pub const CATEGORY_MAX_LEVELS: usize = 50;
 
+/// FNV-1a: a fast, simple hash for interning labels (no denial-of-service concern: the data
+/// is the user's own).
+#[derive(Default)]
+pub struct Fnv(u64);
+
+impl Hasher for Fnv {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        let mut h = if self.0 == 0 {
+            0xcbf2_9ce4_8422_2325
+        } else {
+            self.0
+        };
+        for &b in bytes {
+            h = (h ^ b as u64).wrapping_mul(0x0100_0000_01b3);
+        }
+        self.0 = h;
+    }
+}
+
+type LabelIndex = HashMap<String, u32, BuildHasherDefault<Fnv>>;
+
 enum State {
     Undecided,
     Numbers(Vec<f64>),
@@ -49,7 +77,7 @@ enum State {
     },
     Levels {
         codes: Vec<u32>,
-        index: HashMap<String, u32>,
+        index: LabelIndex,
         levels: Vec<String>,
     },
     /// Inference changed its mind; the column must be read again with `second_plan`.
@@ -110,7 +138,14 @@ impl Builder {
         let row = self.rows;
         self.rows += 1;
         let cell = match cell {
-            Cell::Text(s) if missing.is_missing(s) => Cell::Empty,
+            Cell::Text(s) => {
+                let s = trim(s);
+                if missing.is_missing_trimmed(s) {
+                    Cell::Empty
+                } else {
+                    Cell::Text(s)
+                }
+            }
             Cell::Bool(b) => Cell::Text(if b { "true" } else { "false" }),
             other => other,
         };
@@ -126,7 +161,7 @@ impl Builder {
             State::Numbers(values) => {
                 let x = match cell {
                     Cell::Number(x) => Some(x),
-                    Cell::Text(s) => parse_number(s, self.style),
+                    Cell::Text(s) => parse_trimmed_number(s, self.style),
                     _ => None,
                 };
                 match x {
@@ -193,7 +228,7 @@ impl Builder {
             } => {
                 let owned;
                 let text: &str = match cell {
-                    Cell::Text(s) => s.trim(),
+                    Cell::Text(s) => s,
                     Cell::Number(x) => {
                         owned = format_number(x);
                         &owned
@@ -204,10 +239,12 @@ impl Builder {
                     }
                     Cell::Bool(_) | Cell::Empty => "",
                 };
-                if parse_number(text, self.style).is_some() {
-                    self.numeric_labels += 1;
-                } else if self.first_text.is_none() {
-                    self.first_text = Some((row, text.to_string()));
+                if self.plan == Plan::Labels {
+                    if parse_number(text, self.style).is_some() {
+                        self.numeric_labels += 1;
+                    } else if self.first_text.is_none() {
+                        self.first_text = Some((row, text.to_string()));
+                    }
                 }
                 let code = match index.get(text) {
                     Some(&c) => c,
@@ -280,7 +317,7 @@ impl Builder {
             codes.resize(self.leading_missing, MISSING_CODE);
             State::Levels {
                 codes,
-                index: HashMap::new(),
+                index: LabelIndex::default(),
                 levels: Vec::new(),
             }
         } else if as_numbers {

@@ -44,16 +44,23 @@ pub struct Splitter<'a> {
     pos: usize,
     line: u64,
     delimiter: u8,
+    /// Bytes that end an unquoted run: the delimiter, CR, LF and NUL.
+    stop: [bool; 256],
 }
 
 impl<'a> Splitter<'a> {
     pub fn new(text: &'a str, delimiter: u8) -> Self {
         debug_assert!(delimiter.is_ascii() && delimiter != b'"');
+        let mut stop = [false; 256];
+        for b in [delimiter, b'\n', b'\r', 0] {
+            stop[b as usize] = true;
+        }
         Splitter {
             data: text.as_bytes(),
             pos: 0,
             line: 1,
             delimiter,
+            stop,
         }
     }
 
@@ -86,6 +93,7 @@ impl<'a> Splitter<'a> {
         let mut buf = std::mem::take(&mut record.text).into_bytes();
         buf.clear();
         let mut i = self.pos;
+        let stop = &self.stop;
         loop {
             // Start of a field.
             if i < data.len() && data[i] == b'"' {
@@ -116,16 +124,19 @@ impl<'a> Splitter<'a> {
                 // Text after the closing quote and before the delimiter is kept as it is
                 // (lenient, like most readers) rather than refused.
             }
-            // Unquoted part of the field.
-            while i < data.len() {
-                let b = data[i];
-                if b == delim || b == b'\n' || b == b'\r' {
-                    break;
+            // Unquoted part of the field: copy whole runs up to the next stop byte.
+            loop {
+                let run = data[i..]
+                    .iter()
+                    .position(|&b| stop[b as usize])
+                    .unwrap_or(data.len() - i);
+                buf.extend_from_slice(&data[i..i + run]);
+                i += run;
+                if i < data.len() && data[i] == 0 {
+                    i += 1; // NUL bytes are dropped
+                    continue;
                 }
-                if b != 0 {
-                    buf.push(b);
-                }
-                i += 1;
+                break;
             }
             record.ends.push(buf.len());
             if i >= data.len() {

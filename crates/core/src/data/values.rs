@@ -37,7 +37,53 @@ const POW10: [f64; 23] = [
 /// assert_eq!(parse_number("12 apples", NumberStyle::POINT), None);
 /// ```
 pub fn parse_number(text: &str, style: NumberStyle) -> Option<f64> {
-    let s = text.trim().as_bytes();
+    parse_trimmed_number(trim(text), style)
+}
+
+/// Trims spaces, fast for ASCII and correct for any Unicode white space (such as the
+/// no-break spaces spreadsheet exports leave around numbers).
+pub fn trim(text: &str) -> &str {
+    let t = text.trim_ascii();
+    match (t.as_bytes().first(), t.as_bytes().last()) {
+        (Some(a), Some(b)) if !a.is_ascii() || !b.is_ascii() => t.trim(),
+        _ => t,
+    }
+}
+
+/// [`parse_number`] for text already trimmed with [`trim`].
+pub fn parse_trimmed_number(s: &str, style: NumberStyle) -> Option<f64> {
+    let s = s.as_bytes();
+    // Fast path for the common form: optional minus, digits, optional decimal mark and
+    // digits; at most 15 significant digits, so the result is exact (Clinger 1990).
+    let (neg, body) = match s.first() {
+        Some(b'-') => (true, &s[1..]),
+        _ => (false, s),
+    };
+    let mut m: u64 = 0;
+    let mut i = 0;
+    while i < body.len() && body[i].is_ascii_digit() {
+        m = m.wrapping_mul(10).wrapping_add((body[i] - b'0') as u64);
+        i += 1;
+    }
+    let int_digits = i;
+    let mut frac = 0;
+    if i < body.len() && body[i] == style.decimal {
+        i += 1;
+        let start = i;
+        while i < body.len() && body[i].is_ascii_digit() {
+            m = m.wrapping_mul(10).wrapping_add((body[i] - b'0') as u64);
+            i += 1;
+        }
+        frac = i - start;
+    }
+    if i == body.len() && int_digits + frac > 0 && int_digits + frac <= 15 {
+        let v = m as f64 / POW10[frac];
+        return Some(if neg { -v } else { v });
+    }
+    parse_general(s, style)
+}
+
+fn parse_general(s: &[u8], style: NumberStyle) -> Option<f64> {
     let (negative, body) = match s.first()? {
         b'-' => (true, &s[1..]),
         b'+' => (false, &s[1..]),
@@ -310,7 +356,11 @@ impl MissingTokens {
     }
 
     pub fn is_missing(&self, text: &str) -> bool {
-        let t = text.trim();
+        self.is_missing_trimmed(trim(text))
+    }
+
+    /// [`MissingTokens::is_missing`] for text already trimmed with [`trim`].
+    pub fn is_missing_trimmed(&self, t: &str) -> bool {
         if t.len() <= 4 && DEFAULT_MISSING.iter().any(|m| t.eq_ignore_ascii_case(m)) {
             return true;
         }
