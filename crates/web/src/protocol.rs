@@ -66,6 +66,10 @@ pub enum Reply {
         report: Box<TableReport>,
         preview: Preview,
         settings: ReadSettings,
+        /// Seconds the worker spent reading, and the size of its wasm memory afterwards
+        /// (wasm memory never shrinks, so this is its peak).
+        read_seconds: f64,
+        worker_memory_bytes: u64,
     },
     /// The request failed; the worker still holds the table it had before, if any.
     Failed {

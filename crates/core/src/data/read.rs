@@ -237,31 +237,34 @@ fn read_delimited(
     if !splitter.next_record(&mut record)? {
         return Err(ErrorKind::EmptyFile.into());
     }
-    let header_bytes = splitter.position().max(1);
     let names = clean_names(record.fields().map(str::to_string).collect(), &mut notices);
     let ncols = names.len();
     let plans = plans(&names, options, &mut notices);
-    // Reserve for the expected number of rows, judged from the header's length, so the
-    // column vectors do not repeatedly grow and copy.
-    let estimate = (text.len() / header_bytes.max(ncols * 2)).min(1 << 26);
-
+    // Reserve for the expected number of rows, judged from the length of the first data
+    // records, so the column vectors neither grow and copy nor hold much unused room (in
+    // wasm, reserved room is real memory).
+    let body_start = splitter.position();
+    let estimate = estimate_rows(&text[body_start..], delimiter);
     let mut builders: Vec<Builder> = plans
         .iter()
         .map(|&p| Builder::new(p, style, estimate))
         .collect();
-    let body_start = splitter.position();
     let mut rows = 0usize;
     let mut trailing_extra = 0usize;
     let total = text.len() as u64;
-    while splitter.next_record(&mut record)? {
-        check_width(&record, ncols, &mut trailing_extra)?;
-        for (b, builder) in builders.iter_mut().enumerate() {
-            builder.push(Cell::Text(record.field(b)), missing);
+    loop {
+        let batch = read_batch(
+            &mut splitter,
+            &mut record,
+            &mut builders,
+            missing,
+            &mut trailing_extra,
+        )?;
+        rows += batch;
+        if batch < BATCH {
+            break;
         }
-        rows += 1;
-        if rows.is_multiple_of(8192)
-            && progress.step("reading", splitter.position() as u64, total) == Flow::Stop
-        {
+        if progress.step("reading", splitter.position() as u64, total) == Flow::Stop {
             return Err(ErrorKind::Cancelled.into());
         }
     }
@@ -318,6 +321,49 @@ fn read_delimited(
         },
         notices,
     ))
+}
+
+/// Records read between two progress reports.
+const BATCH: usize = 8192;
+
+/// Reads up to [`BATCH`] records into the builders; returns how many it read. A function of
+/// its own, not inlined, so that a browser's wasm engine, which optimises a function only
+/// for its later calls, runs all but the first batch in optimised code.
+#[inline(never)]
+fn read_batch(
+    splitter: &mut Splitter<'_>,
+    record: &mut Record,
+    builders: &mut [Builder],
+    missing: &MissingTokens,
+    trailing_extra: &mut usize,
+) -> Result<usize> {
+    let ncols = builders.len();
+    for n in 0..BATCH {
+        if !splitter.next_record(record)? {
+            return Ok(n);
+        }
+        check_width(record, ncols, trailing_extra)?;
+        for (b, builder) in builders.iter_mut().enumerate() {
+            builder.push(Cell::Text(record.field(b)), missing);
+        }
+    }
+    Ok(BATCH)
+}
+
+/// Expected number of records in `body`, from the mean length of its first records (5%
+/// spare).
+fn estimate_rows(body: &str, delimiter: u8) -> usize {
+    let mut splitter = Splitter::new(body, delimiter);
+    let mut record = Record::default();
+    let mut n = 0usize;
+    while n < 200 && matches!(splitter.next_record(&mut record), Ok(true)) {
+        n += 1;
+    }
+    if n == 0 {
+        return 0;
+    }
+    let mean = splitter.position().max(1) as f64 / n as f64;
+    ((body.len() as f64 / mean) * 1.05) as usize + 16
 }
 
 /// A record must have as many fields as the header; extra empty fields at the end (left by

@@ -248,6 +248,8 @@ fn on_reply(page: &Shared, reply: Reply) {
         Reply::Table {
             id,
             name,
+            read_seconds,
+            worker_memory_bytes,
             report,
             preview,
             settings,
@@ -298,6 +300,14 @@ fn on_reply(page: &Shared, reply: Reply) {
             }
             let _ = name;
             render_data(&p);
+            // Figures for the browser benchmark (tests/e2e/bench-read.mjs) and the curious.
+            let result = by_id(&p.doc, "data-result");
+            let _ = result.set_attribute("data-read-seconds", &format!("{read_seconds}"));
+            let _ = result.set_attribute("data-worker-memory", &format!("{worker_memory_bytes}"));
+            if let Some(facts) = p.doc.query_selector(".facts").ok().flatten() {
+                let _ = facts
+                    .insert_adjacent_html("beforeend", &format!(" · read in {read_seconds:.2} s"));
+            }
             render_columns(&p);
         }
         Reply::Failed {
