@@ -7,6 +7,7 @@
 // Runs with playwright-core and Debian's Chromium (/usr/bin/chromium); no browser download.
 //   node tests/e2e/page.test.mjs        (after `trunk build`; scripts/test does both)
 import { chromium } from 'playwright-core';
+import { createHash } from 'node:crypto';
 import { mkdirSync, readFileSync } from 'node:fs';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -69,6 +70,10 @@ try {
     expect(JSON.stringify(kinds) === JSON.stringify(plain.columns.map((c) => c.kind)), `kinds ${kinds}`);
     const facts = await page.textContent('.facts');
     expect(facts.includes(`${plain.rows} rows`), `facts: ${facts}`);
+    // Fingerprint against Node's own SHA-256 (OpenSSL; FIPS 180-4) of the same bytes.
+    const want = createHash('sha256').update(readFileSync(join(fixtures, plain.file))).digest('hex');
+    const shown = await page.textContent('.fingerprint code');
+    expect(shown === want, `fingerprint ${shown}, Node says ${want}`);
     await page.screenshot({ path: join(out, 'fixture-loaded.png'), fullPage: true });
   });
 

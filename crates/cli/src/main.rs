@@ -103,6 +103,7 @@ fn run(args: Args) -> anyhow::Result<()> {
                 missing_tokens: missing,
                 kinds,
                 max_bytes: None,
+                fingerprint: None,
             };
             let loaded = read_table(&bytes, &options, &mut Silent)
                 .map_err(|e| anyhow::anyhow!("{}: {e}", file.display()))?;

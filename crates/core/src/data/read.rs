@@ -26,6 +26,9 @@ pub struct ReadOptions {
     pub kinds: Vec<(String, Kind)>,
     /// Refuse files larger than this many bytes (`None`: no limit).
     pub max_bytes: Option<u64>,
+    /// The SHA-256 of the bytes when the caller already has it (the page uses the browser's
+    /// own, much faster than SHA-256 in wasm); computed here when `None`.
+    pub fingerprint: Option<String>,
 }
 
 /// How the file was read.
@@ -126,7 +129,10 @@ pub fn read_table(
             .into());
         }
     }
-    let fingerprint = fingerprint(bytes);
+    let fingerprint = match &options.fingerprint {
+        Some(known) => known.clone(),
+        None => fingerprint(bytes),
+    };
     let missing = MissingTokens::new(&options.missing_tokens);
     let (table, source, notices) = if spreadsheet::looks_like_workbook(bytes) {
         spreadsheet::read(bytes, options, &missing, progress)?

@@ -73,6 +73,7 @@ fn options(name: &str, settings: &ReadSettings) -> Result<ReadOptions, String> {
             .collect(),
         kinds,
         max_bytes: Some(MAX_BYTES),
+        fingerprint: None,
     })
 }
 
@@ -84,7 +85,21 @@ fn preview(loaded: &Loaded) -> Preview {
     Preview { rows }
 }
 
-fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>) {
+/// SHA-256 by the browser's Web Crypto (native speed); `None` where it is unavailable (pages
+/// served over plain http from another machine are not a secure context), and the core then
+/// computes it itself.
+async fn browser_sha256(bytes: &Uint8Array) -> Option<String> {
+    let scope: web_sys::WorkerGlobalScope = js_sys::global().unchecked_into();
+    let subtle = scope.crypto().ok()?.subtle();
+    let promise = subtle
+        .digest_with_str_and_buffer_source("SHA-256", bytes)
+        .ok()?;
+    let digest = wasm_bindgen_futures::JsFuture::from(promise).await.ok()?;
+    let digest = Uint8Array::new(&digest).to_vec();
+    Some(digest.iter().map(|b| format!("{b:02x}")).collect())
+}
+
+fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint: Option<String>) {
     let (id, name, settings, new_bytes) = match request {
         Request::Read {
             id, name, settings, ..
@@ -99,7 +114,13 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>) {
         });
     };
     let options = match options(&name, &settings) {
-        Ok(o) => o,
+        Ok(mut o) => {
+            o.fingerprint = match &new_bytes {
+                Some(_) => fingerprint,
+                None => held.loaded.as_ref().map(|l| l.fingerprint.clone()),
+            };
+            o
+        }
         Err(message) => return fail(held, message),
     };
     let source: &[u8] = match &new_bytes {
@@ -145,7 +166,7 @@ fn main() {
         let bytes = Reflect::get(&data, &"bytes".into())
             .ok()
             .filter(|b| b.is_instance_of::<Uint8Array>())
-            .map(|b| b.unchecked_into::<Uint8Array>().to_vec());
+            .map(|b| b.unchecked_into::<Uint8Array>());
         match serde_wasm_bindgen::from_value::<Request>(msg) {
             Ok(request) if request.version() > PROTOCOL_VERSION => post(&Reply::Failed {
                 id: 0,
@@ -155,7 +176,18 @@ fn main() {
                 ),
                 kept_previous: true,
             }),
-            Ok(request) => handle(&mut held.borrow_mut(), request, bytes),
+            Ok(request) => {
+                let held = held.clone();
+                wasm_bindgen_futures::spawn_local(async move {
+                    let fingerprint = match &bytes {
+                        Some(b) => browser_sha256(b).await,
+                        None => None,
+                    };
+                    let bytes = bytes.map(|b| b.to_vec());
+                    // Borrowed only after the await: no two requests overlap.
+                    handle(&mut held.borrow_mut(), request, bytes, fingerprint);
+                });
+            }
             Err(e) => post(&Reply::Failed {
                 id: 0,
                 message: format!("the worker could not understand a message ({e}); reload the page"),
