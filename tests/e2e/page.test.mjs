@@ -100,6 +100,31 @@ try {
     await page.waitForFunction(() => /PNG/.test(document.querySelector('#message').textContent));
   });
 
+  await check('every broken fixture gives a message in the page, and the page survives', async () => {
+    const broken = manifest.filter((e) => e.expect === 'error' && !e.sheet);
+    expect(broken.length >= 8, `only ${broken.length} error fixtures`);
+    for (const e of broken) {
+      await page.evaluate(() => { document.querySelector('#message').textContent = ''; });
+      await page.setInputFiles('#file-input', join(fixtures, e.file));
+      await page.waitForFunction(() => document.querySelector('#message').textContent.length > 0, null, { timeout: 20000 });
+      const msg = await page.textContent('#message');
+      for (const s of e.message_contains) expect(msg.includes(s), `${e.file}: message lacks "${s}": ${msg}`);
+      expect(!/internal error/i.test(msg), `${e.file}: ${msg}`);
+    }
+    expect(JSON.stringify(await namesShown()) === JSON.stringify(plain.columns.map((c) => c.name)), 'earlier table lost');
+  });
+
+  await check('a workbook offers its sheets, and another sheet can be chosen', async () => {
+    const book = manifest.find((e) => e.file === 'two_sheets.xlsx' && e.sheet && e.expect === 'table');
+    await page.setInputFiles('#file-input', join(fixtures, 'two_sheets.xlsx'));
+    await page.waitForSelector('#sheet-choice');
+    await page.selectOption('#sheet-choice', book.sheet);
+    await page.waitForFunction((n) => {
+      const names = [...document.querySelectorAll('table.columns tbody th[scope=row]')].map((x) => x.textContent);
+      return JSON.stringify(names) === n;
+    }, JSON.stringify(book.columns.map((c) => c.name)), { timeout: 20000 });
+  });
+
   await check('the demo records are one click away', async () => {
     await page.click('#demo-surgery');
     await page.waitForFunction(() => document.querySelector('.facts')?.textContent.includes('surgery-complications.csv'));
@@ -124,11 +149,11 @@ try {
     expect(summary.includes('complication_30d'), 'outcome choice lost after the re-read');
   });
 
-  await check('a 30 MB file is read with progress while the page stays responsive', async () => {
+  await check('a 50 MB file is read with progress while the page stays responsive', async () => {
     const header = 'a,b,c,d,e,f,g,h,group\n';
     const lines = [header];
     let size = header.length;
-    for (let i = 0; size < 30e6; i++) {
+    for (let i = 0; size < 50e6; i++) {
       const line = `${i},${(i * 0.37) % 101},${(i * 7) % 13},${i % 2},${(i * 1.1).toFixed(2)},${i % 97},${(i * 3.3) % 7},${i % 5},g${i % 40}\n`;
       lines.push(line);
       size += line.length;
