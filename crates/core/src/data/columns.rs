@@ -463,6 +463,29 @@ impl Builder {
     }
 }
 
+/// The columns that must be read again, with fresh builders for them (empty when none).
+pub fn second_pass(
+    builders: &[Builder],
+    style: NumberStyle,
+    rows: usize,
+) -> (Vec<usize>, Vec<Builder>) {
+    builders
+        .iter()
+        .enumerate()
+        .filter_map(|(i, b)| {
+            b.needs_second_pass()
+                .map(|plan| (i, Builder::new(plan, style, rows)))
+        })
+        .unzip()
+}
+
+/// Puts the second-pass builders in place of the first ones.
+pub fn replace(builders: &mut [Builder], columns: Vec<usize>, second: Vec<Builder>) {
+    for (col, builder) in columns.into_iter().zip(second) {
+        builders[col] = builder;
+    }
+}
+
 /// Maps a two-label column to 0/1: yes-words to 1 when the labels are such words, otherwise
 /// the labels in sorted order (first = 0).
 fn yes_no_codes(

@@ -4,7 +4,7 @@
 
 use sha2::{Digest, Sha256};
 
-use super::columns::{Builder, Cell, Plan};
+use super::columns::{self, Builder, Cell, Plan};
 use super::decode::{decode, Encoding};
 use super::delimited::{sniff_decimal_comma, sniff_delimiter, Record, Splitter, CANDIDATES};
 use super::spreadsheet;
@@ -285,24 +285,16 @@ fn read_delimited(
     }
 
     // Second pass for the columns whose first guess was wrong.
-    let again: Vec<(usize, Plan)> = builders
-        .iter()
-        .enumerate()
-        .filter_map(|(i, b)| b.needs_second_pass().map(|p| (i, p)))
-        .collect();
+    let (again, mut second) = columns::second_pass(&builders, style, rows);
     if !again.is_empty() {
-        let mut second: Vec<Builder> = again
-            .iter()
-            .map(|&(_, plan)| Builder::new(plan, style, rows))
-            .collect();
         let mut splitter = Splitter::new(&text[body_start..], delimiter);
         let mut done = 0usize;
         while splitter.next_record(&mut record)? {
-            for (k, &(col, _)) in again.iter().enumerate() {
-                second[k].push(Cell::Text(record.field(col)), missing);
+            for (builder, &col) in second.iter_mut().zip(&again) {
+                builder.push(Cell::Text(record.field(col)), missing);
             }
             done += 1;
-            if done.is_multiple_of(8192)
+            if done.is_multiple_of(BATCH)
                 && progress.step(
                     "reading mixed columns again",
                     splitter.position() as u64,
@@ -312,9 +304,7 @@ fn read_delimited(
                 return Err(ErrorKind::Cancelled.into());
             }
         }
-        for ((col, _), builder) in again.into_iter().zip(second) {
-            builders[col] = builder;
-        }
+        columns::replace(&mut builders, again, second);
     }
     progress.step("reading", total, total);
     let table = finish(builders, names, rows, &mut notices);

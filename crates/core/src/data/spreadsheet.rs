@@ -6,7 +6,7 @@ use std::io::Cursor;
 
 use calamine::{open_workbook_auto_from_rs, Data, Reader, Sheets};
 
-use super::columns::{Builder, Cell, Plan};
+use super::columns::{self, Builder, Cell};
 use super::read::{clean_names, finish, plans, ReadOptions, Source};
 use super::values::{days_from_civil, MissingTokens, NumberStyle};
 use super::Table;
@@ -115,27 +115,17 @@ pub(crate) fn read(
             "{skipped_blank} empty row(s) in the sheet were skipped"
         ));
     }
-    let again: Vec<(usize, Plan)> = builders
-        .iter()
-        .enumerate()
-        .filter_map(|(i, b)| b.needs_second_pass().map(|p| (i, p)))
-        .collect();
+    let (again, mut second) = columns::second_pass(&builders, NumberStyle::POINT, n);
     if !again.is_empty() {
-        let mut second: Vec<Builder> = again
-            .iter()
-            .map(|&(_, plan)| Builder::new(plan, NumberStyle::POINT, n))
-            .collect();
         for row in range.rows().skip(1) {
             if row.iter().all(|c| matches!(c, Data::Empty)) {
                 continue;
             }
-            for (k, &(col, _)) in again.iter().enumerate() {
-                second[k].push(row.get(col).map_or(Cell::Empty, to_cell), missing);
+            for (builder, &col) in second.iter_mut().zip(&again) {
+                builder.push(row.get(col).map_or(Cell::Empty, to_cell), missing);
             }
         }
-        for ((col, _), builder) in again.into_iter().zip(second) {
-            builders[col] = builder;
-        }
+        columns::replace(&mut builders, again, second);
     }
     progress.step("reading sheet", height as u64, height as u64);
     let table = finish(builders, names, n, &mut notices);

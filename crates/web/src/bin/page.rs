@@ -870,32 +870,20 @@ fn main() {
         input.set_value("");
     });
     let drop_zone = by_id(&doc, "drop");
+    let zone = drop_zone.clone();
     on(&drop_zone, "dragover", move |e: DragEvent| {
         e.prevent_default();
-        if let Some(t) = e
-            .current_target()
-            .and_then(|t| t.dyn_into::<Element>().ok())
-        {
-            let _ = t.class_list().add_1("over");
-        }
+        let _ = zone.class_list().add_1("over");
     });
-    on(&drop_zone, "dragleave", move |e: DragEvent| {
-        if let Some(t) = e
-            .current_target()
-            .and_then(|t| t.dyn_into::<Element>().ok())
-        {
-            let _ = t.class_list().remove_1("over");
-        }
+    let zone = drop_zone.clone();
+    on(&drop_zone, "dragleave", move |_: DragEvent| {
+        let _ = zone.class_list().remove_1("over");
     });
     let pg = page.clone();
+    let zone = drop_zone.clone();
     on(&drop_zone, "drop", move |e: DragEvent| {
         e.prevent_default();
-        if let Some(t) = e
-            .current_target()
-            .and_then(|t| t.dyn_into::<Element>().ok())
-        {
-            let _ = t.class_list().remove_1("over");
-        }
+        let _ = zone.class_list().remove_1("over");
         if let Some(file) = e
             .data_transfer()
             .and_then(|d| d.files())
