@@ -291,7 +291,7 @@ fn read_delimited(
         let mut done = 0usize;
         while splitter.next_record(&mut record)? {
             for (builder, &col) in second.iter_mut().zip(&again) {
-                builder.push(Cell::Text(record.field(col)), missing);
+                builder.push_text(record.field(col), missing);
             }
             done += 1;
             if done.is_multiple_of(BATCH)
@@ -340,7 +340,7 @@ fn read_batch(
         }
         check_width(record, ncols, trailing_extra)?;
         for (b, builder) in builders.iter_mut().enumerate() {
-            builder.push(Cell::Text(record.field(b)), missing);
+            builder.push_text(record.field(b), missing);
         }
     }
     Ok(BATCH)

@@ -355,6 +355,11 @@ impl MissingTokens {
         }
     }
 
+    /// Whether the user gave codes of their own besides the defaults.
+    pub fn has_extra(&self) -> bool {
+        !self.extra.is_empty()
+    }
+
     pub fn is_missing(&self, text: &str) -> bool {
         self.is_missing_trimmed(trim(text))
     }
