@@ -4,7 +4,7 @@
 
 use sha2::{Digest, Sha256};
 
-use super::columns::{self, Builder, Cell, Plan};
+use super::columns::{self, Builder, Plan};
 use super::decode::{decode, Encoding};
 use super::delimited::{sniff_decimal_comma, sniff_delimiter, Record, Splitter, CANDIDATES};
 use super::spreadsheet;
