@@ -64,6 +64,13 @@ pub enum ErrorKind {
     BadSetting { setting: String, reason: String },
     /// The work was cancelled through the progress observer.
     Cancelled,
+    /// A column named in a setting does not exist.
+    NoSuchColumn {
+        name: String,
+        available: Vec<String>,
+    },
+    /// The chosen columns cannot make a model (one-class outcome, no predictors, ...).
+    BadDesign { reason: String },
 }
 
 /// The error type of spinney-core.
@@ -149,6 +156,17 @@ impl fmt::Display for Error {
                 write!(f, "the setting '{setting}' is not usable: {reason}")
             }
             ErrorKind::Cancelled => write!(f, "cancelled; nothing was changed"),
+            ErrorKind::NoSuchColumn { name, available } => {
+                let shown: Vec<&str> = available.iter().take(12).map(String::as_str).collect();
+                write!(
+                    f,
+                    "there is no column named '{name}'; the table has: {}{}. Check the spelling \
+                     (names are matched exactly)",
+                    shown.join(", "),
+                    if available.len() > 12 { ", ..." } else { "" }
+                )
+            }
+            ErrorKind::BadDesign { reason } => write!(f, "{reason}"),
         }
     }
 }

@@ -5,7 +5,9 @@
 //! Today it holds the data layer: reading delimited text and spreadsheets into a typed
 //! [`data::Table`], summarising its columns and fingerprinting the file.
 
+pub mod binning;
 pub mod data;
+pub mod design;
 pub mod error;
 pub mod progress;
 

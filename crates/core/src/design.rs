@@ -1,0 +1,370 @@
+//! The modelling design: which column is the outcome, which are predictors, and the optional
+//! row weights and groups, checked once against a [`Table`] and turned into plain arrays for
+//! the learners. Every way a choice of columns cannot make a model (a one-class outcome, no
+//! usable predictor, negative weights, ...) is an error saying what to change.
+
+use crate::data::{Column, Kind, Table, Values, MISSING_CODE};
+use crate::error::{Error, ErrorKind, Result};
+
+/// The user's choice of columns, by name.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct DesignSpec {
+    pub outcome: String,
+    pub predictors: Vec<String>,
+    pub weight: Option<String>,
+    pub group: Option<String>,
+}
+
+/// What is to be predicted.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Outcome {
+    /// Classes 0..labels.len(), one code per used row.
+    Classes {
+        codes: Vec<u32>,
+        labels: Vec<String>,
+    },
+    /// A number per used row (regression).
+    Numbers(Vec<f64>),
+}
+
+impl Outcome {
+    pub fn len(&self) -> usize {
+        match self {
+            Outcome::Classes { codes, .. } => codes.len(),
+            Outcome::Numbers(v) => v.len(),
+        }
+    }
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+}
+
+/// A predictor's values over the used rows.
+#[derive(Debug, Clone, PartialEq)]
+pub enum PredictorValues {
+    /// Numbers, with NaN for missing (dates as days, yes/no as 0/1).
+    Numbers(Vec<f64>),
+    /// Category codes into `levels`, [`MISSING_CODE`] for missing.
+    Levels {
+        codes: Vec<u32>,
+        levels: Vec<String>,
+    },
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Predictor {
+    pub name: String,
+    pub kind: Kind,
+    pub values: PredictorValues,
+}
+
+/// A checked design: every array has one entry per used row.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Design {
+    pub outcome_name: String,
+    pub outcome: Outcome,
+    pub predictors: Vec<Predictor>,
+    pub weights: Option<Vec<f64>>,
+    /// Group codes (patient, site) for grouped validation.
+    pub groups: Option<Vec<u32>>,
+    /// The table rows used, in order (rows with a missing outcome are left out).
+    pub rows: Vec<usize>,
+    pub notices: Vec<String>,
+}
+
+fn bad(reason: String) -> Error {
+    Error::new(ErrorKind::BadDesign { reason })
+}
+
+fn find<'t>(table: &'t Table, name: &str) -> Result<&'t Column> {
+    table.column(name).ok_or_else(|| {
+        Error::new(ErrorKind::NoSuchColumn {
+            name: name.to_string(),
+            available: table.columns.iter().map(|c| c.name.clone()).collect(),
+        })
+    })
+}
+
+/// Checks `spec` against `table` and builds the design.
+pub fn build_design(table: &Table, spec: &DesignSpec) -> Result<Design> {
+    let out = find(table, &spec.outcome)?;
+    let mut notices = Vec::new();
+    if out.kind == Kind::Text {
+        return Err(bad(format!(
+            "the outcome '{}' is free text; if its values are classes, set its kind to category",
+            out.name
+        )));
+    }
+    let rows: Vec<usize> = (0..table.rows)
+        .filter(|&r| !out.values.is_missing(r))
+        .collect();
+    let dropped = table.rows - rows.len();
+    if dropped > 0 {
+        notices.push(format!(
+            "{dropped} row(s) have no value for the outcome '{}' and are left out",
+            out.name
+        ));
+    }
+    if rows.is_empty() {
+        return Err(bad(format!(
+            "the outcome '{}' has no values at all",
+            out.name
+        )));
+    }
+    let outcome = match (&out.values, out.kind) {
+        (Values::Numbers(v), Kind::YesNo) => {
+            let labels = out
+                .yes_no_labels
+                .clone()
+                .unwrap_or_else(|| ["0".into(), "1".into()]);
+            Outcome::Classes {
+                codes: rows.iter().map(|&r| (v[r] != 0.0) as u32).collect(),
+                labels: labels.to_vec(),
+            }
+        }
+        (Values::Numbers(v), _) => Outcome::Numbers(rows.iter().map(|&r| v[r]).collect()),
+        (Values::Levels { codes, levels }, _) => {
+            // Renumber the classes that occur, in the order of their labels.
+            let mut used: Vec<u32> = rows.iter().map(|&r| codes[r]).collect();
+            used.sort_unstable();
+            used.dedup();
+            let mut order: Vec<u32> = used.clone();
+            order.sort_by(|&a, &b| levels[a as usize].cmp(&levels[b as usize]));
+            let mut map = vec![u32::MAX; levels.len()];
+            for (new, &old) in order.iter().enumerate() {
+                map[old as usize] = new as u32;
+            }
+            Outcome::Classes {
+                codes: rows.iter().map(|&r| map[codes[r] as usize]).collect(),
+                labels: order.iter().map(|&c| levels[c as usize].clone()).collect(),
+            }
+        }
+    };
+    match &outcome {
+        Outcome::Classes { codes, labels } => {
+            let mut counts = vec![0usize; labels.len()];
+            for &c in codes {
+                counts[c as usize] += 1;
+            }
+            let present = counts.iter().filter(|&&n| n > 0).count();
+            if present < 2 {
+                return Err(bad(format!(
+                    "the outcome '{}' has only one class ('{}') among the rows with a value: \
+                     there is nothing to tell apart. Choose another outcome or add records of \
+                     the other class(es)",
+                    out.name,
+                    labels.first().map_or("", String::as_str)
+                )));
+            }
+            if labels.len() > 2 && labels.len() * 2 > rows.len() {
+                return Err(bad(format!(
+                    "the outcome '{}' has {} classes for {} rows; most classes would have a \
+                     single record. Is it an identifier, or a number that should be a number?",
+                    out.name,
+                    labels.len(),
+                    rows.len()
+                )));
+            }
+        }
+        Outcome::Numbers(v) => {
+            if v.iter().all(|&x| x == v[0]) {
+                return Err(bad(format!(
+                    "the outcome '{}' has the same value ({}) in every row: there is nothing to predict",
+                    out.name, v[0]
+                )));
+            }
+        }
+    }
+
+    let mut predictors = Vec::with_capacity(spec.predictors.len());
+    for name in &spec.predictors {
+        let c = find(table, name)?;
+        if c.name == out.name {
+            return Err(bad(format!(
+                "'{name}' is the outcome; it cannot also be a predictor"
+            )));
+        }
+        if c.kind == Kind::Text {
+            return Err(bad(format!(
+                "the predictor '{name}' is free text or an identifier; set its kind to category \
+                 if its values are groups, or leave it out"
+            )));
+        }
+        let values = match &c.values {
+            Values::Numbers(v) => PredictorValues::Numbers(rows.iter().map(|&r| v[r]).collect()),
+            Values::Levels { codes, levels } => PredictorValues::Levels {
+                codes: rows.iter().map(|&r| codes[r]).collect(),
+                levels: levels.clone(),
+            },
+        };
+        let informative = match &values {
+            PredictorValues::Numbers(v) => {
+                let mut present = v.iter().filter(|x| !x.is_nan());
+                present
+                    .next()
+                    .is_some_and(|first| present.any(|x| x != first))
+            }
+            PredictorValues::Levels { codes, .. } => {
+                let mut present = codes.iter().filter(|&&x| x != MISSING_CODE);
+                present
+                    .next()
+                    .is_some_and(|first| present.any(|x| x != first))
+            }
+        };
+        if !informative {
+            notices.push(format!(
+                "the predictor '{name}' has one value (or none) in the rows used; it cannot help and is left out"
+            ));
+            continue;
+        }
+        predictors.push(Predictor {
+            name: c.name.clone(),
+            kind: c.kind,
+            values,
+        });
+    }
+    if predictors.is_empty() {
+        return Err(bad(
+            "there is no usable predictor: choose at least one column with more than one value \
+             besides the outcome"
+                .into(),
+        ));
+    }
+
+    let weights = match &spec.weight {
+        None => None,
+        Some(name) => {
+            let c = find(table, name)?;
+            let Values::Numbers(v) = &c.values else {
+                return Err(bad(format!(
+                    "the weight column '{name}' holds text; weights must be numbers"
+                )));
+            };
+            let w: Vec<f64> = rows.iter().map(|&r| v[r]).collect();
+            if let Some(i) = w
+                .iter()
+                .position(|x| x.is_nan() || *x < 0.0 || x.is_infinite())
+            {
+                return Err(bad(format!(
+                    "the weight column '{name}' has a missing, negative or infinite value ({}) \
+                     in data row {}; weights must be zero or more",
+                    w[i],
+                    rows[i] + 1
+                )));
+            }
+            if w.iter().all(|&x| x == 0.0) {
+                return Err(bad(format!(
+                    "every weight in '{name}' is zero; at least one row must count"
+                )));
+            }
+            Some(w)
+        }
+    };
+    let groups = match &spec.group {
+        None => None,
+        Some(name) => {
+            let c = find(table, name)?;
+            let mut index = std::collections::HashMap::new();
+            let mut codes = Vec::with_capacity(rows.len());
+            for &r in &rows {
+                let key = c.display(r).unwrap_or_default();
+                let next = index.len() as u32;
+                codes.push(*index.entry(key).or_insert(next));
+            }
+            Some(codes)
+        }
+    };
+    Ok(Design {
+        outcome_name: out.name.clone(),
+        outcome,
+        predictors,
+        weights,
+        groups,
+        rows,
+        notices,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::{read_table, ReadOptions};
+    use crate::progress::Silent;
+
+    fn table(text: &str) -> Table {
+        read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table
+    }
+
+    fn spec(outcome: &str, predictors: &[&str]) -> DesignSpec {
+        DesignSpec {
+            outcome: outcome.into(),
+            predictors: predictors.iter().map(|s| s.to_string()).collect(),
+            ..DesignSpec::default()
+        }
+    }
+
+    #[test]
+    fn a_binary_outcome_with_a_missing_value() {
+        let t = table("y,a,w\nyes,1,1\nno,2,1\n,3,1\nyes,4,2\n");
+        let d = build_design(&t, &spec("y", &["a"])).unwrap();
+        assert_eq!(d.rows, [0, 1, 3]);
+        assert_eq!(
+            d.outcome,
+            Outcome::Classes {
+                codes: vec![1, 0, 1],
+                labels: vec!["no".into(), "yes".into()]
+            }
+        );
+        assert!(d.notices[0].contains("1 row(s)"), "{:?}", d.notices);
+    }
+
+    #[test]
+    fn designs_that_cannot_make_a_model_are_refused() {
+        let t = table("y,a,c,w,txt\nyes,1,k,1,q1\nyes,2,k,-1,q2\nyes,3,k,1,q3\n");
+        let err = |s: DesignSpec| build_design(&t, &s).unwrap_err().to_string();
+        assert!(err(spec("y", &["a"])).contains("only one class"));
+        assert!(err(spec("a", &["c"])).contains("no usable predictor"));
+        assert!(err(spec("a", &["nope"])).contains("no column named 'nope'"));
+        let options = ReadOptions {
+            kinds: vec![("txt".into(), Kind::Text)],
+            ..ReadOptions::default()
+        };
+        let with_text = read_table(b"a,txt\n1,q1\n2,q2\n", &options, &mut Silent)
+            .unwrap()
+            .table;
+        assert!(build_design(&with_text, &spec("a", &["txt"]))
+            .unwrap_err()
+            .to_string()
+            .contains("free text"));
+        assert!(err(spec("a", &["a"])).contains("cannot also be a predictor"));
+        let t2 = table("y,a,w\n1.5,1,1\n2.5,2,-1\n3.5,3,1\n");
+        let s = DesignSpec {
+            weight: Some("w".into()),
+            ..spec("y", &["a"])
+        };
+        assert!(build_design(&t2, &s)
+            .unwrap_err()
+            .to_string()
+            .contains("data row 2"));
+    }
+
+    #[test]
+    fn categories_and_groups() {
+        let t = table(
+            "ward,x,pid\nCedar,1,p1\nBirch,2,p2\nCedar,3,p1\nAlder,4,p3\nBirch,5,p2\nAlder,6,p3\n",
+        );
+        let s = DesignSpec {
+            group: Some("pid".into()),
+            ..spec("ward", &["x"])
+        };
+        let d = build_design(&t, &s).unwrap();
+        let Outcome::Classes { codes, labels } = &d.outcome else {
+            panic!()
+        };
+        assert_eq!(labels, &["Alder", "Birch", "Cedar"]);
+        assert_eq!(codes, &[2, 1, 2, 0, 1, 0]);
+        assert_eq!(d.groups, Some(vec![0, 1, 0, 2, 1, 2]));
+    }
+}
