@@ -10,6 +10,7 @@ pub mod data;
 pub mod design;
 pub mod error;
 pub mod progress;
+pub mod tree;
 
 pub use error::{Error, ErrorKind, Where};
 
