@@ -7,6 +7,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 mod bench;
+mod fit;
 
 use anyhow::Context;
 use clap::{Parser, Subcommand};
@@ -47,6 +48,26 @@ enum Command {
         #[arg(long)]
         cells: bool,
     },
+    /// Fit a model on every row of a file and report it (today: a single tree).
+    Fit {
+        /// The file to read.
+        file: PathBuf,
+        /// The column to predict.
+        #[arg(long)]
+        outcome: String,
+        /// Predictors, comma-separated (default: every other column).
+        #[arg(long, value_delimiter = ',')]
+        predictors: Option<Vec<String>>,
+        /// The kind of model: tree.
+        #[arg(long, default_value = "tree")]
+        method: String,
+        /// A setting NAME=VALUE (repeatable): depth, leaf_size, split_size, bins, criterion, min_gain.
+        #[arg(long = "set", value_name = "NAME=VALUE")]
+        sets: Vec<String>,
+        /// Print the fitted tree as JSON.
+        #[arg(long)]
+        json: bool,
+    },
     /// Measure speed and memory on generated data, and print the figures.
     Bench {
         #[command(subcommand)]
@@ -83,6 +104,21 @@ fn run(args: Args) -> anyhow::Result<()> {
         Command::Bench {
             what: BenchWhat::Read { mb, repeats },
         } => bench::read(mb, repeats),
+        Command::Fit {
+            file,
+            outcome,
+            predictors,
+            method,
+            sets,
+            json,
+        } => fit::fit(fit::FitArgs {
+            file,
+            outcome,
+            predictors,
+            method,
+            sets,
+            json,
+        }),
         Command::Inspect {
             file,
             sheet,

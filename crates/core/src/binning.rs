@@ -38,8 +38,14 @@ impl Default for BinSettings {
 /// How one predictor's values map to bins.
 #[derive(Debug, Clone, PartialEq)]
 pub enum BinRule {
-    /// Bin = the number of thresholds below the value.
-    Numbers { thresholds: Vec<f64> },
+    /// Bin = the number of thresholds below the value. `low[b]` and `high[b]` are the
+    /// smallest and largest training values in bin `b` (a tree's threshold between two bins
+    /// is placed midway between the values on either side, as sort-based CART does).
+    Numbers {
+        thresholds: Vec<f64>,
+        low: Vec<f64>,
+        high: Vec<f64>,
+    },
     /// `bin_of_level[code]` for each level of the column; unseen levels go to `pooled_bin`.
     Levels {
         bin_of_level: Vec<u8>,
@@ -52,7 +58,7 @@ impl BinRule {
     pub fn bin_of_number(&self, x: f64) -> u8 {
         match self {
             _ if x.is_nan() => MISSING_BIN,
-            BinRule::Numbers { thresholds } => thresholds.partition_point(|&t| t < x) as u8,
+            BinRule::Numbers { thresholds, .. } => thresholds.partition_point(|&t| t < x) as u8,
             BinRule::Levels { .. } => MISSING_BIN,
         }
     }
@@ -149,14 +155,32 @@ pub fn bin_design(design: &Design, settings: BinSettings) -> Result<BinnedMatrix
         let rule = match &p.values {
             PredictorValues::Numbers(v) => BinRule::Numbers {
                 thresholds: number_thresholds(v, settings.max_bins),
+                low: Vec::new(),
+                high: Vec::new(),
             },
             PredictorValues::Levels { codes, levels } => level_rule(codes, levels.len(), settings),
         };
         let mut missing = 0;
+        let mut rule = rule;
         match &p.values {
             PredictorValues::Numbers(v) => {
                 for (o, &x) in out.iter_mut().zip(v) {
                     *o = rule.bin_of_number(x);
+                }
+                if let BinRule::Numbers {
+                    thresholds,
+                    low,
+                    high,
+                } = &mut rule
+                {
+                    *low = vec![f64::INFINITY; thresholds.len() + 1];
+                    *high = vec![f64::NEG_INFINITY; thresholds.len() + 1];
+                    for (&b, &x) in out.iter().zip(v) {
+                        if b != MISSING_BIN {
+                            low[b as usize] = low[b as usize].min(x);
+                            high[b as usize] = high[b as usize].max(x);
+                        }
+                    }
                 }
             }
             PredictorValues::Levels { codes, .. } => {
@@ -231,6 +255,8 @@ mod tests {
         );
         let rule = BinRule::Numbers {
             thresholds: vec![1.5, 2.5],
+            low: vec![],
+            high: vec![],
         };
         let bins: Vec<u8> = [1.0, 1.5, 2.0, 3.0, f64::NAN]
             .iter()
@@ -245,7 +271,11 @@ mod tests {
         let t = number_thresholds(&values, 4);
         // numpy.percentile(range(1000), [25, 50, 75], method="midpoint") = 249.5, 499.5, 749.5
         assert_eq!(t, [249.5, 499.5, 749.5]);
-        let rule = BinRule::Numbers { thresholds: t };
+        let rule = BinRule::Numbers {
+            thresholds: t,
+            low: vec![],
+            high: vec![],
+        };
         let mut counts = [0usize; 4];
         for &x in &values {
             counts[rule.bin_of_number(x) as usize] += 1;

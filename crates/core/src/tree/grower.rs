@@ -48,6 +48,8 @@ struct Best {
     feature: usize,
     left_bins: BinSet,
     threshold_bin: Option<u8>,
+    /// The first non-empty bin on the right of a number split.
+    next_bin: Option<u8>,
 }
 
 /// Grows a tree on `rows` of `binned`. `stats` holds `width` numbers per row of `binned`.
@@ -160,6 +162,18 @@ pub fn grow(
         node.feature = best.feature as u32;
         node.left_bins = best.left_bins;
         node.threshold_bin = best.threshold_bin;
+        node.threshold = match (
+            &binned.columns[best.feature].rule,
+            best.threshold_bin,
+            best.next_bin,
+        ) {
+            (BinRule::Numbers { low, high, .. }, Some(l), Some(r)) => {
+                let (a, b) = (high[l as usize], low[r as usize]);
+                let t = a / 2.0 + b / 2.0;
+                Some(if t == b || t.is_infinite() { a } else { t })
+            }
+            _ => None,
+        };
         node.left = left as u32;
         node.right = right as u32;
         node.gain = best.gain;
@@ -175,6 +189,7 @@ fn empty_node() -> Node {
         feature: 0,
         left_bins: BinSet::default(),
         threshold_bin: None,
+        threshold: None,
         left: 0,
         right: 0,
         weight: 0.0,
@@ -284,6 +299,10 @@ fn scan(
                     feature,
                     left_bins,
                     threshold_bin: numeric.then_some(b),
+                    next_bin: order[i + 1..]
+                        .iter()
+                        .copied()
+                        .find(|&nb| hist[nb as usize * stride + width] > 0.0),
                 });
             }
             if missing[width] == 0.0 {
@@ -413,14 +432,7 @@ mod tests {
         let rows: Vec<u32> = (0..40).collect();
         let tree = grow(&m, &stats, 2, &rows, &settings, None);
         let root = &tree.nodes[0];
-        let BinRule::Numbers { thresholds } = &m.columns[0].rule else {
-            panic!()
-        };
-        assert_eq!(
-            thresholds[root.threshold_bin.unwrap() as usize],
-            19.0,
-            "split midway between 18 and 20"
-        );
+        assert_eq!(root.threshold, Some(19.0), "split midway between 18 and 20");
         assert!(
             !super::super::missing_goes_left(root),
             "missing rows look like the high side"

@@ -40,8 +40,12 @@ pub struct Node {
     pub feature: u32,
     /// Bins sent left (the missing bin included when missing values go left).
     pub left_bins: BinSet,
-    /// For number splits: the highest bin sent left (the threshold is its upper edge).
+    /// For number splits: the highest bin sent left.
     pub threshold_bin: Option<u8>,
+    /// For number splits: values up to this go left. Midway between the largest training
+    /// value on the left and the smallest on the right, computed as `a/2 + b/2` (the rule of
+    /// scikit-learn's sort-based splitter, so exact-mode trees agree to the last digit).
+    pub threshold: Option<f64>,
     pub left: u32,
     pub right: u32,
     /// Rows (weighted) that reached the node in training.

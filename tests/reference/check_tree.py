@@ -1,0 +1,143 @@
+#!/usr/bin/env python3
+"""Single trees against scikit-learn (PyPI), node for node.
+
+Reference: scikit-learn's DecisionTreeClassifier / DecisionTreeRegressor (version printed
+below) on data sets shipped inside scikit-learn (no download): wine (178 x 13, 3 classes) and
+iris (150 x 4) for classification, the first 250 rows of diabetes for regression. Every
+predictor there has at most 255 distinct values, so Spinney's bins keep every split point and
+its search is exact. scikit-learn casts predictors to float32, so the files written here hold
+the float32 values exactly; thresholds are then the same float64 midpoints on both sides.
+scikit-learn visits predictors in a random order and breaks exact ties by it; depths are
+limited so that no tie arises (checked: a tie is reported, not hidden).
+
+Prints "PASS name" / "FAIL name: reason" per check and "N passed, N failed" last.
+"""
+import json
+import os
+import subprocess
+import sys
+import tempfile
+
+import numpy as np
+import sklearn
+from sklearn.datasets import load_diabetes, load_iris, load_wine
+from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
+
+BIN = os.environ.get("SPINNEY_BIN", os.path.join(os.path.dirname(__file__), "..", "..", "target", "debug", "spinney"))
+passed = failed = 0
+
+
+def report(name, problems):
+    global passed, failed
+    if problems:
+        failed += 1
+        print("FAIL %s: %s" % (name, "; ".join(problems[:3])))
+    else:
+        passed += 1
+        print("PASS %s" % name)
+
+
+def write_csv(path, X, y, names, y_is_class):
+    with open(path, "w") as f:
+        f.write(",".join(names + ["outcome"]) + "\n")
+        for row, target in zip(X, y):
+            # repr of the float32 value as a float64: read back exactly.
+            cells = [repr(float(v)) for v in row]
+            cells.append(("k%d" % target) if y_is_class else repr(float(target)))
+            f.write(",".join(cells) + "\n")
+
+
+def spinney_tree(path, depth, criterion):
+    out = subprocess.run([BIN, "fit", path, "--outcome", "outcome", "--method", "tree",
+                          "--set", "depth=%d" % depth, "--set", "criterion=" + criterion, "--json"],
+                         capture_output=True, text=True, timeout=120)
+    if out.returncode != 0:
+        raise RuntimeError(out.stderr.strip())
+    return json.loads(out.stdout)
+
+
+def differences(model, ours, classifier):
+    t = model.tree_
+    problems = []
+
+    def walk(sk, sp):
+        node = ours["nodes"][sp]
+        sk_leaf = t.children_left[sk] == -1
+        if sk_leaf != node["leaf"]:
+            problems.append("node %d: scikit-learn %s, Spinney %s" % (sk, "leaf" if sk_leaf else "split", "leaf" if node["leaf"] else "split"))
+            return
+        value = t.value[sk][0]
+        if classifier:
+            value = value / value.sum()  # fractions (recent versions store them already)
+        if not np.allclose(value, node["values"], rtol=0, atol=1e-12):
+            problems.append("node %d values %s vs %s" % (sk, list(value), node["values"]))
+        if abs(t.weighted_n_node_samples[sk] - node["weight"]) > 1e-9:
+            problems.append("node %d weight %s vs %s" % (sk, t.weighted_n_node_samples[sk], node["weight"]))
+        if sk_leaf:
+            return
+        if t.feature[sk] != node["feature"]:
+            problems.append("node %d splits on %d, Spinney on %d" % (sk, t.feature[sk], node["feature"]))
+            return
+        if abs(t.threshold[sk] - node["threshold"]) > 1e-12 * max(1.0, abs(t.threshold[sk])):
+            problems.append("node %d threshold %r vs %r" % (sk, t.threshold[sk], node["threshold"]))
+        walk(t.children_left[sk], node["left"])
+        walk(t.children_right[sk], node["right"])
+
+    walk(0, 0)
+    if t.node_count != len(ours["nodes"]):
+        problems.append("%d nodes vs %d" % (t.node_count, len(ours["nodes"])))
+    return problems
+
+
+def main():
+    print("reference: scikit-learn %s, numpy %s" % (sklearn.__version__, np.__version__))
+    if not os.path.exists(BIN):
+        report("spinney-binary", ["not found at %s (build it: cargo build -p spinney-cli)" % BIN])
+        print("%d passed, %d failed" % (passed, failed))
+        return 1
+    cases = [
+        ("wine gini depth 3", load_wine(), True, "gini", 3),
+        ("wine entropy depth 3", load_wine(), True, "entropy", 3),
+        # Petal length and width tie at iris's root (both isolate setosa); scikit-learn breaks
+        # the tie at random, so petal length (column 2) is left out.
+        ("iris (no petal length) gini depth 4", load_iris(), True, "gini", 4),
+        ("diabetes[:250] squared error depth 3", load_diabetes(), False, "squared_error", 3),
+    ]
+    with tempfile.TemporaryDirectory() as tmp:
+        for name, data, is_class, criterion, depth in cases:
+            X = data.data.astype(np.float32)
+            y = data.target
+            if name.startswith("iris"):
+                X = X[:, [0, 1, 3]]
+            if not is_class:
+                X, y = X[:250], y[:250].astype(np.float64)
+            names = ["x%d" % j for j in range(X.shape[1])]
+            path = os.path.join(tmp, "data.csv")
+            write_csv(path, X, y, names, is_class)
+            try:
+                ours = spinney_tree(path, depth, criterion)
+            except Exception as e:  # noqa: BLE001 - report any failure of the binary
+                report(name, ["spinney fit failed: %s" % e])
+                continue
+            # Spinney orders classes by label: k0, k1, k2 = scikit-learn's 0, 1, 2.
+            # Where two splits gain exactly the same, scikit-learn's choice depends on its
+            # random predictor order (random_state) and Spinney keeps the first predictor:
+            # the check passes when some random_state gives Spinney's tree exactly, and says
+            # which; a tree no random_state gives is a failure.
+            first = None
+            for seed in range(50):
+                kind = DecisionTreeClassifier if is_class else DecisionTreeRegressor
+                model = kind(criterion=criterion, max_depth=depth, random_state=seed).fit(X, y)
+                problems = differences(model, ours, is_class)
+                if first is None:
+                    first = problems
+                if not problems:
+                    break
+            label = name if seed == 0 or problems else "%s (a tie, broken as with random_state=%d)" % (name, seed)
+            report(label, first if problems else [])
+    print("%d passed, %d failed" % (passed, failed))
+    return 1 if failed else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
