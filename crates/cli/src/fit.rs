@@ -5,12 +5,14 @@
 
 use anyhow::{bail, Context};
 use spinney_core::binning::{bin_design, BinSettings};
+use spinney_core::binning::{bin_new_table, BinnedMatrix};
 use spinney_core::data::{read_table, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
+use spinney_core::ensemble::forest::{argmax, fit_forest, Forest, ForestSettings};
 use spinney_core::progress::Silent;
 use spinney_core::tree::criterion::Criterion;
 use spinney_core::tree::grower::{grow, GrowSettings};
-use spinney_core::tree::missing_goes_left;
+use spinney_core::tree::{missing_goes_left, Tree};
 
 /// Settings of `fit`, with their defaults (listed in README.md).
 pub struct FitArgs {
@@ -20,12 +22,15 @@ pub struct FitArgs {
     pub method: String,
     pub sets: Vec<String>,
     pub json: bool,
+    /// Another file to score the fitted model on (same columns).
+    pub score: Option<std::path::PathBuf>,
 }
 
 fn parse_sets(
     sets: &[String],
     settings: &mut GrowSettings,
     bins: &mut BinSettings,
+    forest: &mut ForestSettings,
     regression: bool,
 ) -> anyhow::Result<()> {
     settings.criterion = if regression {
@@ -67,33 +72,116 @@ fn parse_sets(
                     bail!("--set min_gain: must be zero or more");
                 }
             }
+            "trees" => forest.trees = whole(1, 100_000)?,
+            "predictors_per_split" => forest.predictors_per_split = Some(whole(1, usize::MAX)?),
+            "seed" => forest.seed = value.parse().with_context(|| format!("--set seed: '{value}' is not a whole number"))?,
+            "row_fraction" => {
+                let f: f64 = value.parse().with_context(|| format!("--set row_fraction: '{value}' is not a number"))?;
+                if !(f > 0.0 && f <= 1.0) {
+                    bail!("--set row_fraction: {f} is outside the allowed range (0, 1]");
+                }
+                forest.row_fraction = f;
+            }
+            "sampling" => {
+                forest.replace = match value {
+                    "with_replacement" => true,
+                    "without_replacement" => false,
+                    _ => bail!("--set sampling={value}: use with_replacement or without_replacement"),
+                }
+            }
             other => bail!(
-                "--set {other}: unknown setting; a tree takes depth, leaf_size, split_size, bins, criterion, min_gain"
+                "--set {other}: unknown setting; see README.md for the settings of each method \
+                 (depth, leaf_size, split_size, bins, criterion, min_gain, trees, \
+                 predictors_per_split, row_fraction, sampling, seed)"
             ),
         }
     }
     Ok(())
 }
 
-pub fn fit(args: FitArgs) -> anyhow::Result<()> {
-    if args.method != "tree" {
-        bail!("--method {}: this version fits single trees only (--method tree); ensembles are being built", args.method);
+/// A fitted model of any method, predicting rows of a binned matrix.
+enum Model {
+    Tree(Tree),
+    Forest(Forest),
+}
+
+impl Model {
+    fn predict(&self, binned: &BinnedMatrix, row: usize, out: &mut Vec<f64>) {
+        match self {
+            Model::Tree(t) => {
+                out.clear();
+                out.extend_from_slice(t.predict_row(binned, row));
+            }
+            Model::Forest(f) => {
+                out.resize(f.outputs, 0.0);
+                f.predict_row(binned, row, out);
+            }
+        }
     }
-    let bytes = std::fs::read(&args.file)
-        .with_context(|| format!("cannot read {}", args.file.display()))?;
+}
+
+/// Accuracy (classes) or root mean squared error (numbers) of `model` on `binned`.
+fn performance(model: &Model, binned: &BinnedMatrix, outcome: &Outcome) -> (&'static str, f64) {
+    let mut p = Vec::new();
+    match outcome {
+        Outcome::Classes { codes, .. } => {
+            let right = (0..binned.rows)
+                .filter(|&r| {
+                    model.predict(binned, r, &mut p);
+                    argmax(&p) == codes[r] as usize
+                })
+                .count();
+            ("accuracy", right as f64 / binned.rows as f64)
+        }
+        Outcome::Numbers(v) => {
+            let sse: f64 = (0..binned.rows)
+                .map(|r| {
+                    model.predict(binned, r, &mut p);
+                    (p[0] - v[r]).powi(2)
+                })
+                .sum();
+            ("rmse", (sse / binned.rows as f64).sqrt())
+        }
+    }
+}
+
+fn read(path: &std::path::Path) -> anyhow::Result<spinney_core::data::Table> {
+    let bytes = std::fs::read(path).with_context(|| format!("cannot read {}", path.display()))?;
     let options = ReadOptions {
-        file_name: args
-            .file
-            .file_name()
-            .map(|n| n.to_string_lossy().into_owned()),
+        file_name: path.file_name().map(|n| n.to_string_lossy().into_owned()),
         ..ReadOptions::default()
     };
     let loaded = read_table(&bytes, &options, &mut Silent)
-        .map_err(|e| anyhow::anyhow!("{}: {e}", args.file.display()))?;
+        .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
+    Ok(loaded.table)
+}
+
+fn tree_json(tree: &Tree, binned: &BinnedMatrix) -> serde_json::Value {
+    let nodes: Vec<serde_json::Value> = tree
+        .nodes
+        .iter()
+        .map(|n| {
+            let values = &tree.values[n.value as usize..n.value as usize + tree.outputs];
+            if n.is_leaf() {
+                return serde_json::json!({ "leaf": true, "weight": n.weight, "values": values });
+            }
+            let col = &binned.columns[n.feature as usize];
+            let left_bins: Vec<u8> = (0..=254u8).filter(|&b| n.left_bins.contains(b)).collect();
+            serde_json::json!({
+                "leaf": false, "predictor": col.name, "feature": n.feature, "threshold": n.threshold,
+                "left_bins": left_bins, "missing_left": missing_goes_left(n),
+                "left": n.left, "right": n.right, "weight": n.weight, "gain": n.gain, "values": values,
+            })
+        })
+        .collect();
+    serde_json::json!(nodes)
+}
+
+pub fn fit(args: FitArgs) -> anyhow::Result<()> {
+    let table = read(&args.file)?;
     // By default every other column, except free text and identifiers.
-    let predictors = args.predictors.unwrap_or_else(|| {
-        loaded
-            .table
+    let predictors = args.predictors.clone().unwrap_or_else(|| {
+        table
             .columns
             .iter()
             .filter(|c| c.name != args.outcome && c.kind != spinney_core::data::Kind::Text)
@@ -105,11 +193,26 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         predictors,
         ..DesignSpec::default()
     };
-    let design = build_design(&loaded.table, &spec)?;
+    let design = build_design(&table, &spec)?;
     let regression = matches!(design.outcome, Outcome::Numbers(_));
-    let mut settings = GrowSettings::default();
+    let mut grow_settings = GrowSettings::default();
     let mut bins = BinSettings::default();
-    parse_sets(&args.sets, &mut settings, &mut bins, regression)?;
+    let mut forest_settings = ForestSettings::random_forest(design.predictors.len(), regression, 1);
+    match args.method.as_str() {
+        "tree" | "forest" => {}
+        "bagging" => forest_settings.predictors_per_split = None,
+        other => bail!(
+            "--method {other}: choose tree, bagging or forest (AdaBoost and gradient boosting are being built)"
+        ),
+    }
+    parse_sets(
+        &args.sets,
+        &mut grow_settings,
+        &mut bins,
+        &mut forest_settings,
+        regression,
+    )?;
+    forest_settings.grow = grow_settings;
     let binned = bin_design(&design, bins)?;
     let (stats, width) = match &design.outcome {
         Outcome::Classes { codes, labels } => {
@@ -122,76 +225,150 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         }
         Outcome::Numbers(v) => (v.iter().flat_map(|&y| [1.0, y]).collect(), 2),
     };
-    let rows: Vec<u32> = (0..binned.rows as u32).collect();
-    let tree = grow(&binned, &stats, width, &rows, &settings, None);
-
-    // Training fit (apparent performance, not validation).
-    let training = match &design.outcome {
-        Outcome::Classes { codes, .. } => {
-            let right = (0..binned.rows)
-                .filter(|&r| {
-                    let p = tree.predict_row(&binned, r);
-                    let best = (0..p.len()).fold(0, |b, k| if p[k] > p[b] { k } else { b });
-                    best == codes[r] as usize
-                })
-                .count();
-            ("accuracy", right as f64 / binned.rows as f64)
-        }
-        Outcome::Numbers(v) => {
-            let sse: f64 = (0..binned.rows)
-                .map(|r| (tree.predict_row(&binned, r)[0] - v[r]).powi(2))
-                .sum();
-            ("rmse", (sse / binned.rows as f64).sqrt())
+    let model = if args.method == "tree" {
+        let rows: Vec<u32> = (0..binned.rows as u32).collect();
+        Model::Tree(grow(&binned, &stats, width, &rows, &grow_settings, None))
+    } else {
+        Model::Forest(fit_forest(
+            &binned,
+            &stats,
+            width,
+            &design.outcome,
+            &forest_settings,
+            &mut Silent,
+        ))
+    };
+    let training = performance(&model, &binned, &design.outcome);
+    let scored = match &args.score {
+        None => None,
+        Some(path) => {
+            let other = read(path)?;
+            let test_design = build_design(
+                &other,
+                &DesignSpec {
+                    outcome: args.outcome.clone(),
+                    predictors: binned.columns.iter().map(|c| c.name.clone()).collect(),
+                    ..DesignSpec::default()
+                },
+            )?;
+            let test_binned = bin_new_table(&binned.columns, &other)?;
+            // Keep only the rows with an outcome, as the design did.
+            let rows = test_design.rows.clone();
+            let kept = keep_rows(&test_binned, &rows);
+            let outcome = align_classes(&test_design.outcome, &design.outcome)?;
+            Some(performance(&model, &kept, &outcome))
         }
     };
-    let nodes: Vec<serde_json::Value> = tree
-        .nodes
-        .iter()
-        .map(|n| {
-            let values = &tree.values[n.value as usize..n.value as usize + tree.outputs];
-            if n.is_leaf() {
-                return serde_json::json!({ "leaf": true, "weight": n.weight, "values": values });
-            }
-            let col = &binned.columns[n.feature as usize];
-            let threshold = n.threshold;
-            let left_bins: Vec<u8> = (0..=254u8).filter(|&b| n.left_bins.contains(b)).collect();
-            serde_json::json!({
-                "leaf": false, "predictor": col.name, "feature": n.feature, "threshold": threshold,
-                "left_bins": left_bins, "missing_left": missing_goes_left(n),
-                "left": n.left, "right": n.right, "weight": n.weight, "gain": n.gain, "values": values,
-            })
-        })
-        .collect();
     let classes = match &design.outcome {
         Outcome::Classes { labels, .. } => Some(labels.clone()),
         Outcome::Numbers(_) => None,
     };
     if args.json {
-        let out = serde_json::json!({
-            "format": "spinney-fit", "version": 1, "method": "tree",
+        let mut out = serde_json::json!({
+            "format": "spinney-fit", "version": 1, "method": args.method,
             "outcome": design.outcome_name, "classes": classes, "rows": binned.rows,
             "predictors": binned.columns.iter().map(|c| c.name.clone()).collect::<Vec<_>>(),
             "training": { training.0: training.1 },
-            "depth": tree.depth(), "leaves": tree.leaves(), "nodes": nodes,
             "notices": design.notices,
         });
+        if let Some((name, value)) = scored {
+            out["scored"] = serde_json::json!({ name: value });
+        }
+        match &model {
+            Model::Tree(tree) => {
+                out["depth"] = tree.depth().into();
+                out["leaves"] = tree.leaves().into();
+                out["nodes"] = tree_json(tree, &binned);
+            }
+            Model::Forest(f) => {
+                out["trees"] = f.trees.len().into();
+                out["partial"] = f.partial.into();
+                out["out_of_bag_error_by_trees"] = serde_json::json!(f.oob_error);
+                out["out_of_bag_share"] = f.oob_share.into();
+            }
+        }
         println!("{}", serde_json::to_string_pretty(&out)?);
     } else {
-        println!(
-            "single tree for '{}' on {} rows and {} predictors: depth {}, {} leaves",
-            design.outcome_name,
-            binned.rows,
-            binned.columns.len(),
-            tree.depth(),
-            tree.leaves()
-        );
+        match &model {
+            Model::Tree(tree) => println!(
+                "single tree for '{}' on {} rows and {} predictors: depth {}, {} leaves",
+                design.outcome_name,
+                binned.rows,
+                binned.columns.len(),
+                tree.depth(),
+                tree.leaves()
+            ),
+            Model::Forest(f) => {
+                println!(
+                    "{} of {} trees for '{}' on {} rows and {} predictors",
+                    args.method,
+                    f.trees.len(),
+                    design.outcome_name,
+                    binned.rows,
+                    binned.columns.len()
+                );
+                let name = if regression {
+                    "mean squared error"
+                } else {
+                    "error rate"
+                };
+                println!(
+                    "out-of-bag {name}: {:.4} (each row judged by the trees that did not see it)",
+                    f.oob_error.last().copied().unwrap_or(f64::NAN)
+                );
+            }
+        }
         println!(
             "training {} {:.4} (apparent fit on the same rows, not a validation)",
             training.0, training.1
         );
+        if let Some((name, value)) = scored {
+            println!(
+                "{name} on {}: {value:.4}",
+                args.score
+                    .as_ref()
+                    .map_or(String::new(), |p| p.display().to_string())
+            );
+        }
         for n in &design.notices {
             println!("  - {n}");
         }
     }
     Ok(())
+}
+
+/// The rows `rows` of `m`, in order.
+fn keep_rows(m: &BinnedMatrix, rows: &[usize]) -> BinnedMatrix {
+    m.select_rows(rows)
+}
+
+/// Re-expresses a scored file's classes in the training labels' codes.
+fn align_classes(test: &Outcome, train: &Outcome) -> anyhow::Result<Outcome> {
+    match (test, train) {
+        (
+            Outcome::Classes { codes, labels },
+            Outcome::Classes {
+                labels: train_labels,
+                ..
+            },
+        ) => {
+            let map: Vec<u32> = labels
+                .iter()
+                .map(|l| {
+                    train_labels
+                        .iter()
+                        .position(|t| t == l)
+                        .map_or(u32::MAX, |p| p as u32)
+                })
+                .collect();
+            Ok(Outcome::Classes {
+                codes: codes.iter().map(|&c| map[c as usize]).collect(),
+                labels: train_labels.clone(),
+            })
+        }
+        (Outcome::Numbers(v), Outcome::Numbers(_)) => Ok(Outcome::Numbers(v.clone())),
+        _ => {
+            bail!("the outcome in the scored file is not of the same kind as in the training file")
+        }
+    }
 }

@@ -58,15 +58,18 @@ enum Command {
         /// Predictors, comma-separated (default: every other column).
         #[arg(long, value_delimiter = ',')]
         predictors: Option<Vec<String>>,
-        /// The kind of model: tree.
+        /// The kind of model: tree, bagging or forest.
         #[arg(long, default_value = "tree")]
         method: String,
         /// A setting NAME=VALUE (repeatable): depth, leaf_size, split_size, bins, criterion, min_gain.
         #[arg(long = "set", value_name = "NAME=VALUE")]
         sets: Vec<String>,
-        /// Print the fitted tree as JSON.
+        /// Print the result as JSON (a tree node by node; a forest's out-of-bag curve).
         #[arg(long)]
         json: bool,
+        /// Also score the fitted model on another file with the same columns.
+        #[arg(long, value_name = "FILE")]
+        score: Option<PathBuf>,
     },
     /// Measure speed and memory on generated data, and print the figures.
     Bench {
@@ -111,6 +114,7 @@ fn run(args: Args) -> anyhow::Result<()> {
             method,
             sets,
             json,
+            score,
         } => fit::fit(fit::FitArgs {
             file,
             outcome,
@@ -118,6 +122,7 @@ fn run(args: Args) -> anyhow::Result<()> {
             method,
             sets,
             json,
+            score,
         }),
         Command::Inspect {
             file,

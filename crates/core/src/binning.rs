@@ -93,6 +93,8 @@ pub struct BinnedColumn {
     pub bins: usize,
     /// Rows whose value is missing (in [`MISSING_BIN`]).
     pub missing: usize,
+    /// For categories: the training labels, by level code (new data is matched by label).
+    pub levels: Vec<String>,
 }
 
 /// All predictors binned: `rows` cells per column, column after column.
@@ -104,6 +106,20 @@ pub struct BinnedMatrix {
 }
 
 impl BinnedMatrix {
+    /// A matrix holding only `rows` (in that order).
+    pub fn select_rows(&self, rows: &[usize]) -> BinnedMatrix {
+        let mut cells = Vec::with_capacity(rows.len() * self.columns.len());
+        for j in 0..self.columns.len() {
+            let col = self.column(j);
+            cells.extend(rows.iter().map(|&r| col[r]));
+        }
+        BinnedMatrix {
+            rows: rows.len(),
+            columns: self.columns.clone(),
+            cells,
+        }
+    }
+
     /// The bins of column `j`, one per row.
     pub fn column(&self, j: usize) -> &[u8] {
         &self.cells[j * self.rows..(j + 1) * self.rows]
@@ -197,16 +213,74 @@ pub fn bin_design(design: &Design, settings: BinSettings) -> Result<BinnedMatrix
                 top = top.max(b as usize + 1);
             }
         }
+        let levels = match &p.values {
+            PredictorValues::Levels { levels, .. } => levels.clone(),
+            PredictorValues::Numbers(_) => Vec::new(),
+        };
         columns.push(BinnedColumn {
             name: p.name.clone(),
             rule,
             bins: top,
             missing,
+            levels,
         });
     }
     Ok(BinnedMatrix {
         rows,
         columns,
+        cells,
+    })
+}
+
+/// Bins the rows of a new table (records to score, a test file) with the rules learnt on
+/// the training rows: columns matched by name, category values by label (labels never seen
+/// in training go to the pooled bin).
+pub fn bin_new_table(columns: &[BinnedColumn], table: &crate::data::Table) -> Result<BinnedMatrix> {
+    use crate::data::Values;
+    let rows = table.rows;
+    let mut cells = vec![0u8; rows * columns.len()];
+    for (j, col) in columns.iter().enumerate() {
+        let source = table.column(&col.name).ok_or_else(|| {
+            Error::new(ErrorKind::NoSuchColumn {
+                name: col.name.clone(),
+                available: table.columns.iter().map(|c| c.name.clone()).collect(),
+            })
+        })?;
+        let out = &mut cells[j * rows..(j + 1) * rows];
+        match (&col.rule, &source.values) {
+            (BinRule::Numbers { .. }, Values::Numbers(v)) => {
+                for (o, &x) in out.iter_mut().zip(v) {
+                    *o = col.rule.bin_of_number(x);
+                }
+            }
+            (BinRule::Levels { .. }, Values::Levels { codes, levels }) => {
+                let index: std::collections::HashMap<&str, u32> =
+                    col.levels.iter().enumerate().map(|(i, l)| (l.as_str(), i as u32)).collect();
+                let map: Vec<u32> =
+                    levels.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(u32::MAX - 1)).collect();
+                for (o, &c) in out.iter_mut().zip(codes) {
+                    *o = if c == crate::data::MISSING_CODE {
+                        MISSING_BIN
+                    } else {
+                        col.rule.bin_of_level(map[c as usize])
+                    };
+                }
+            }
+            _ => {
+                return Err(Error::new(ErrorKind::BadDesign {
+                    reason: format!(
+                        "column '{}' holds {} here but was {} when the model was fitted; set its kind to match",
+                        col.name,
+                        source.kind.label(),
+                        if matches!(col.rule, BinRule::Numbers { .. }) { "a number" } else { "a category" }
+                    ),
+                }))
+            }
+        }
+    }
+    Ok(BinnedMatrix {
+        rows,
+        columns: columns.to_vec(),
         cells,
     })
 }

@@ -8,8 +8,10 @@
 pub mod binning;
 pub mod data;
 pub mod design;
+pub mod ensemble;
 pub mod error;
 pub mod progress;
+pub mod random;
 pub mod tree;
 
 pub use error::{Error, ErrorKind, Where};

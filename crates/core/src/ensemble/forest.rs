@@ -1,0 +1,322 @@
+//! Bagging and random forests (Breiman 1996, 2001): each tree grows on a bootstrap sample of
+//! the rows (or a subsample without replacement), a random forest also draws the predictors
+//! tried at each split. Rows a tree did not see give the out-of-bag predictions and the
+//! out-of-bag error after each added tree. Tree `i` draws only from its own seeded streams,
+//! so [`fit_trees`] can fit any range of trees anywhere and the results merge bit for bit.
+
+use std::ops::Range;
+
+use crate::binning::BinnedMatrix;
+use crate::design::Outcome;
+use crate::progress::{Flow, Progress};
+use crate::random::{below, stream, Purpose};
+use crate::tree::criterion::Criterion;
+use crate::tree::grower::{grow, GrowSettings};
+use crate::tree::Tree;
+
+/// Settings of a bagged ensemble.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ForestSettings {
+    pub trees: usize,
+    /// Predictors drawn at each split (`None`: all of them, which is bagging).
+    pub predictors_per_split: Option<usize>,
+    /// Rows per tree as a share of all rows.
+    pub row_fraction: f64,
+    /// Draw rows with replacement (bootstrap) or without.
+    pub replace: bool,
+    pub seed: u64,
+    pub grow: GrowSettings,
+}
+
+impl ForestSettings {
+    /// Breiman's defaults: 500 fully grown trees on bootstrap samples, √p predictors per split
+    /// for classes and p/3 for numbers (at least 1).
+    pub fn random_forest(predictors: usize, regression: bool, seed: u64) -> Self {
+        let m = if regression {
+            predictors / 3
+        } else {
+            (predictors as f64).sqrt().floor() as usize
+        };
+        ForestSettings {
+            trees: 500,
+            predictors_per_split: Some(m.max(1)),
+            row_fraction: 1.0,
+            replace: true,
+            seed,
+            grow: GrowSettings {
+                criterion: if regression {
+                    Criterion::SquaredError
+                } else {
+                    Criterion::Gini
+                },
+                ..GrowSettings::default()
+            },
+        }
+    }
+}
+
+/// One fitted tree and how many times each row was in its sample.
+pub struct FittedTree {
+    pub tree: Tree,
+    pub in_bag: Vec<u32>,
+}
+
+/// Fits trees `range` of the ensemble (each from its own streams).
+pub fn fit_trees(
+    binned: &BinnedMatrix,
+    stats: &[f64],
+    width: usize,
+    settings: &ForestSettings,
+    range: Range<usize>,
+    progress: &mut dyn Progress,
+) -> Vec<FittedTree> {
+    let n = binned.rows;
+    let p = binned.columns.len();
+    let take = ((settings.row_fraction * n as f64).round() as usize).clamp(1, n);
+    let total = range.len() as u64;
+    let mut out = Vec::with_capacity(range.len());
+    for i in range {
+        let mut rows_rng = stream(settings.seed, Purpose::TreeRows, i as u64);
+        let mut in_bag = vec![0u32; n];
+        let rows: Vec<u32> = if settings.replace {
+            (0..take).map(|_| below(&mut rows_rng, n) as u32).collect()
+        } else {
+            let mut all: Vec<u32> = (0..n as u32).collect();
+            for k in 0..take {
+                let j = k + below(&mut rows_rng, n - k);
+                all.swap(k, j);
+            }
+            all.truncate(take);
+            all
+        };
+        for &r in &rows {
+            in_bag[r as usize] += 1;
+        }
+        let mut pred_rng = stream(settings.seed, Purpose::TreePredictors, i as u64);
+        // The predictors tried at each split, in a random order: a random subset for a
+        // forest, all of them for bagging. The order matters when two splits gain exactly the
+        // same (the first tried wins): drawing it per tree keeps bagged trees diverse, as
+        // scikit-learn's random predictor order does.
+        let m = settings.predictors_per_split.unwrap_or(p).min(p);
+        let mut choose = |candidates: &mut Vec<usize>| {
+            for k in 0..m {
+                let j = k + below(&mut pred_rng, candidates.len() - k);
+                candidates.swap(k, j);
+            }
+            candidates.truncate(m);
+        };
+        let tree = grow(
+            binned,
+            stats,
+            width,
+            &rows,
+            &settings.grow,
+            Some(&mut choose),
+        );
+        out.push(FittedTree { tree, in_bag });
+        if progress.step("trees", out.len() as u64, total) == Flow::Stop {
+            break;
+        }
+    }
+    out
+}
+
+/// A fitted bagged ensemble with its out-of-bag record.
+#[derive(Debug, Clone)]
+pub struct Forest {
+    pub trees: Vec<Tree>,
+    pub outputs: usize,
+    /// Out-of-bag error after 1, 2, ... trees: misclassified share, or mean squared error.
+    pub oob_error: Vec<f64>,
+    /// Out-of-bag prediction per row (`outputs` values each; NaN for rows every tree saw).
+    pub oob_prediction: Vec<f64>,
+    /// Share of (tree, row) pairs that were out of bag (about 1/e ≈ 0.368 for bootstraps).
+    pub oob_share: f64,
+    /// Stopped before all trees were fitted (cancelled).
+    pub partial: bool,
+}
+
+impl Forest {
+    /// The ensemble's prediction for row `row` of `binned`: mean of the trees' outputs.
+    pub fn predict_row(&self, binned: &BinnedMatrix, row: usize, out: &mut [f64]) {
+        out.iter_mut().for_each(|o| *o = 0.0);
+        for t in &self.trees {
+            for (o, v) in out.iter_mut().zip(t.predict_row(binned, row)) {
+                *o += v;
+            }
+        }
+        let k = self.trees.len().max(1) as f64;
+        out.iter_mut().for_each(|o| *o /= k);
+    }
+}
+
+/// Index of the largest value (the first on ties).
+pub fn argmax(values: &[f64]) -> usize {
+    (0..values.len()).fold(0, |b, k| if values[k] > values[b] { k } else { b })
+}
+
+/// Fits a whole ensemble and its out-of-bag record.
+pub fn fit_forest(
+    binned: &BinnedMatrix,
+    stats: &[f64],
+    width: usize,
+    outcome: &Outcome,
+    settings: &ForestSettings,
+    progress: &mut dyn Progress,
+) -> Forest {
+    let fitted = fit_trees(binned, stats, width, settings, 0..settings.trees, progress);
+    let partial = fitted.len() < settings.trees;
+    let n = binned.rows;
+    let outputs = fitted.first().map_or(1, |f| f.tree.outputs);
+    let mut sums = vec![0.0; n * outputs];
+    let mut votes = vec![0u32; n];
+    let mut oob_error = Vec::with_capacity(fitted.len());
+    let mut out_of_bag = 0usize;
+    for f in &fitted {
+        for r in 0..n {
+            if f.in_bag[r] == 0 {
+                out_of_bag += 1;
+                votes[r] += 1;
+                for (s, v) in sums[r * outputs..(r + 1) * outputs]
+                    .iter_mut()
+                    .zip(f.tree.predict_row(binned, r))
+                {
+                    *s += v;
+                }
+            }
+        }
+        let (mut err, mut counted) = (0.0, 0usize);
+        for r in (0..n).filter(|&r| votes[r] > 0) {
+            counted += 1;
+            let s = &sums[r * outputs..(r + 1) * outputs];
+            err += match outcome {
+                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
+                Outcome::Numbers(y) => (s[0] / votes[r] as f64 - y[r]).powi(2),
+            };
+        }
+        oob_error.push(if counted == 0 {
+            f64::NAN
+        } else {
+            err / counted as f64
+        });
+    }
+    let oob_prediction = (0..n * outputs)
+        .map(|i| {
+            if votes[i / outputs] == 0 {
+                f64::NAN
+            } else {
+                sums[i] / votes[i / outputs] as f64
+            }
+        })
+        .collect();
+    let oob_share = out_of_bag as f64 / (fitted.len().max(1) * n) as f64;
+    Forest {
+        trees: fitted.into_iter().map(|f| f.tree).collect(),
+        outputs,
+        oob_error,
+        oob_prediction,
+        oob_share,
+        partial,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::binning::{bin_design, BinSettings};
+    use crate::data::{read_table, ReadOptions};
+    use crate::design::{build_design, DesignSpec};
+    use crate::progress::Silent;
+
+    fn noisy_problem() -> (BinnedMatrix, Outcome, Vec<f64>) {
+        let mut rng = stream(99, Purpose::TreeRows, 0);
+        let mut text = String::from("y,a,b,c,d\n");
+        for _ in 0..600 {
+            let x: Vec<f64> = (0..4)
+                .map(|_| below(&mut rng, 10_000) as f64 / 10_000.0)
+                .collect();
+            let signal = x[0] + x[1] > 1.0;
+            let flip = below(&mut rng, 10) == 0;
+            let y = if signal != flip { "yes" } else { "no" };
+            text += &format!("{y},{},{},{},{}\n", x[0], x[1], x[2], x[3]);
+        }
+        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table;
+        let spec = DesignSpec {
+            outcome: "y".into(),
+            predictors: vec!["a".into(), "b".into(), "c".into(), "d".into()],
+            ..Default::default()
+        };
+        let design = build_design(&table, &spec).unwrap();
+        let Outcome::Classes { codes, .. } = &design.outcome else {
+            panic!()
+        };
+        let stats: Vec<f64> = codes
+            .iter()
+            .flat_map(|&c| if c == 0 { [1.0, 0.0] } else { [0.0, 1.0] })
+            .collect();
+        (
+            bin_design(&design, BinSettings::default()).unwrap(),
+            design.outcome,
+            stats,
+        )
+    }
+
+    #[test]
+    fn about_a_third_of_rows_are_out_of_bag_and_oob_error_beats_chance() {
+        let (m, y, stats) = noisy_problem();
+        let mut s = ForestSettings::random_forest(4, false, 7);
+        s.trees = 60;
+        let forest = fit_forest(&m, &stats, 2, &y, &s, &mut Silent);
+        // (1 − 1/n)^n → 1/e ≈ 0.368 (common practice, no source beyond the limit).
+        assert!(
+            (forest.oob_share - (-1.0f64).exp()).abs() < 0.01,
+            "{}",
+            forest.oob_share
+        );
+        let last = *forest.oob_error.last().unwrap();
+        // 10% of labels are flipped, so about 0.10 is the best possible; chance is 0.5.
+        assert!(last < 0.2, "oob error {last}");
+        assert!(!forest.partial);
+    }
+
+    #[test]
+    fn the_seed_alone_fixes_the_forest_and_ranges_merge() {
+        let (m, y, stats) = noisy_problem();
+        let mut s = ForestSettings::random_forest(4, false, 11);
+        s.trees = 12;
+        let a = fit_forest(&m, &stats, 2, &y, &s, &mut Silent);
+        let b = fit_forest(&m, &stats, 2, &y, &s, &mut Silent);
+        assert_eq!(a.trees, b.trees);
+        let mut parts = fit_trees(&m, &stats, 2, &s, 0..5, &mut Silent);
+        parts.extend(fit_trees(&m, &stats, 2, &s, 5..12, &mut Silent));
+        let merged: Vec<Tree> = parts.into_iter().map(|f| f.tree).collect();
+        assert_eq!(merged, a.trees, "trees fitted in two ranges equal one run");
+        s.seed = 12;
+        assert_ne!(
+            fit_forest(&m, &stats, 2, &y, &s, &mut Silent).trees,
+            a.trees
+        );
+    }
+
+    #[test]
+    fn cancelling_leaves_a_partial_forest() {
+        struct StopAfter(u64);
+        impl Progress for StopAfter {
+            fn step(&mut self, _: &str, done: u64, _: u64) -> Flow {
+                if done >= self.0 {
+                    Flow::Stop
+                } else {
+                    Flow::Continue
+                }
+            }
+        }
+        let (m, y, stats) = noisy_problem();
+        let mut s = ForestSettings::random_forest(4, false, 1);
+        s.trees = 50;
+        let f = fit_forest(&m, &stats, 2, &y, &s, &mut StopAfter(3));
+        assert!(f.partial);
+        assert_eq!((f.trees.len(), f.oob_error.len()), (3, 3));
+    }
+}

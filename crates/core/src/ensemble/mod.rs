@@ -1,0 +1,2 @@
+//! Ensembles built on the one tree grower: bagging and random forests today.
+pub mod forest;
