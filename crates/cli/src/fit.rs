@@ -8,6 +8,7 @@ use spinney_core::binning::{bin_design, BinSettings};
 use spinney_core::binning::{bin_new_table, BinnedMatrix};
 use spinney_core::data::{read_table, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
+use spinney_core::ensemble::adaboost::{fit_adaboost, AdaBoost, BoostSettings, Stop};
 use spinney_core::ensemble::forest::{argmax, fit_forest, Forest, ForestSettings};
 use spinney_core::progress::Silent;
 use spinney_core::tree::criterion::Criterion;
@@ -31,6 +32,7 @@ fn parse_sets(
     settings: &mut GrowSettings,
     bins: &mut BinSettings,
     forest: &mut ForestSettings,
+    boost: &mut BoostSettings,
     regression: bool,
 ) -> anyhow::Result<()> {
     settings.criterion = if regression {
@@ -73,6 +75,14 @@ fn parse_sets(
                 }
             }
             "trees" => forest.trees = whole(1, 100_000)?,
+            "rounds" => boost.rounds = whole(1, 100_000)?,
+            "learning_rate" => {
+                let f: f64 = value.parse().with_context(|| format!("--set learning_rate: '{value}' is not a number"))?;
+                if !(f > 0.0 && f <= 10.0) {
+                    bail!("--set learning_rate: {f} is outside the allowed range (0, 10]");
+                }
+                boost.learning_rate = f;
+            }
             "predictors_per_split" => forest.predictors_per_split = Some(whole(1, usize::MAX)?),
             "seed" => forest.seed = value.parse().with_context(|| format!("--set seed: '{value}' is not a whole number"))?,
             "row_fraction" => {
@@ -103,6 +113,7 @@ fn parse_sets(
 enum Model {
     Tree(Tree),
     Forest(Forest),
+    AdaBoost(AdaBoost),
 }
 
 impl Model {
@@ -116,6 +127,7 @@ impl Model {
                 out.resize(f.outputs, 0.0);
                 f.predict_row(binned, row, out);
             }
+            Model::AdaBoost(a) => *out = a.scores(binned, row, a.trees.len()),
         }
     }
 }
@@ -199,20 +211,27 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     let mut bins = BinSettings::default();
     let mut forest_settings = ForestSettings::random_forest(design.predictors.len(), regression, 1);
     match args.method.as_str() {
-        "tree" | "forest" => {}
+        "tree" | "forest" | "adaboost" => {}
         "bagging" => forest_settings.predictors_per_split = None,
-        other => bail!(
-            "--method {other}: choose tree, bagging or forest (AdaBoost and gradient boosting are being built)"
-        ),
+        other => bail!("--method {other}: choose tree, bagging, forest or adaboost (gradient boosting is being built)"),
+    }
+    let mut boost_settings = BoostSettings::default();
+    if args.method == "adaboost" {
+        if regression {
+            bail!("--method adaboost: this AdaBoost (SAMME) predicts classes; the outcome '{}' is a number", args.outcome);
+        }
+        grow_settings.max_depth = Some(1);
     }
     parse_sets(
         &args.sets,
         &mut grow_settings,
         &mut bins,
         &mut forest_settings,
+        &mut boost_settings,
         regression,
     )?;
     forest_settings.grow = grow_settings;
+    boost_settings.grow = grow_settings;
     let binned = bin_design(&design, bins)?;
     let (stats, width) = match &design.outcome {
         Outcome::Classes { codes, labels } => {
@@ -228,6 +247,18 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     let model = if args.method == "tree" {
         let rows: Vec<u32> = (0..binned.rows as u32).collect();
         Model::Tree(grow(&binned, &stats, width, &rows, &grow_settings, None))
+    } else if args.method == "adaboost" {
+        let Outcome::Classes { codes, labels } = &design.outcome else {
+            unreachable!("checked above")
+        };
+        Model::AdaBoost(fit_adaboost(
+            &binned,
+            codes,
+            labels.len(),
+            None,
+            &boost_settings,
+            &mut Silent,
+        ))
     } else {
         Model::Forest(fit_forest(
             &binned,
@@ -286,6 +317,12 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 out["out_of_bag_error_by_trees"] = serde_json::json!(f.oob_error);
                 out["out_of_bag_share"] = f.oob_share.into();
             }
+            Model::AdaBoost(a) => {
+                out["rounds"] = a.trees.len().into();
+                out["round_errors"] = serde_json::json!(a.errors);
+                out["round_weights"] = serde_json::json!(a.alphas);
+                out["stopped"] = stop_words(a.stop).into();
+            }
         }
         println!("{}", serde_json::to_string_pretty(&out)?);
     } else {
@@ -317,6 +354,16 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                     f.oob_error.last().copied().unwrap_or(f64::NAN)
                 );
             }
+            Model::AdaBoost(_) => {}
+        }
+        if let Model::AdaBoost(a) = &model {
+            println!(
+                "adaboost: {} rounds for '{}' on {} rows; {}",
+                a.trees.len(),
+                design.outcome_name,
+                binned.rows,
+                stop_words(a.stop)
+            );
         }
         println!(
             "training {} {:.4} (apparent fit on the same rows, not a validation)",
@@ -335,6 +382,15 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         }
     }
     Ok(())
+}
+
+fn stop_words(stop: Stop) -> &'static str {
+    match stop {
+        Stop::AllRounds => "ran every round",
+        Stop::Perfect => "stopped early: a round classified every training row correctly",
+        Stop::NoBetterThanChance => "stopped early: a round was no better than chance",
+        Stop::Cancelled => "cancelled before the last round",
+    }
 }
 
 /// The rows `rows` of `m`, in order.

@@ -1,2 +1,3 @@
-//! Ensembles built on the one tree grower: bagging and random forests today.
+//! Ensembles built on the one tree grower: bagging and random forests, AdaBoost.
+pub mod adaboost;
 pub mod forest;
