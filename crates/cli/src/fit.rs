@@ -25,6 +25,8 @@ pub struct FitArgs {
     pub json: bool,
     /// Another file to score the fitted model on (same columns).
     pub score: Option<std::path::PathBuf>,
+    /// A column of row weights.
+    pub weight: Option<String>,
 }
 
 fn parse_sets(
@@ -76,6 +78,14 @@ fn parse_sets(
             }
             "trees" => forest.trees = whole(1, 100_000)?,
             "rounds" => boost.rounds = whole(1, 100_000)?,
+            "class_weight" => {
+                if value != "balanced" && value != "none" {
+                    bail!("--set class_weight={value}: use balanced or none");
+                }
+                if regression {
+                    bail!("--set class_weight: only for class outcomes");
+                }
+            }
             "learning_rate" => {
                 let f: f64 = value.parse().with_context(|| format!("--set learning_rate: '{value}' is not a number"))?;
                 if !(f > 0.0 && f <= 10.0) {
@@ -202,9 +212,14 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     });
     let spec = DesignSpec {
         outcome: args.outcome.clone(),
-        predictors,
+        predictors: predictors
+            .into_iter()
+            .filter(|p| Some(p) != args.weight.as_ref())
+            .collect(),
+        weight: args.weight.clone(),
         ..DesignSpec::default()
     };
+    let balanced = args.sets.iter().any(|s| s == "class_weight=balanced");
     let design = build_design(&table, &spec)?;
     let regression = matches!(design.outcome, Outcome::Numbers(_));
     let mut grow_settings = GrowSettings::default();
@@ -233,17 +248,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     forest_settings.grow = grow_settings;
     boost_settings.grow = grow_settings;
     let binned = bin_design(&design, bins)?;
-    let (stats, width) = match &design.outcome {
-        Outcome::Classes { codes, labels } => {
-            let k = labels.len();
-            let mut s = vec![0.0; codes.len() * k];
-            for (r, &c) in codes.iter().enumerate() {
-                s[r * k + c as usize] = 1.0;
-            }
-            (s, k)
-        }
-        Outcome::Numbers(v) => (v.iter().flat_map(|&y| [1.0, y]).collect(), 2),
-    };
+    let (stats, width) = design.row_statistics(balanced);
     let model = if args.method == "tree" {
         let rows: Vec<u32> = (0..binned.rows as u32).collect();
         Model::Tree(grow(&binned, &stats, width, &rows, &grow_settings, None))
@@ -251,11 +256,15 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         let Outcome::Classes { codes, labels } = &design.outcome else {
             unreachable!("checked above")
         };
+        // Initial AdaBoost row weights: the row weights times the class weights.
+        let initial: Vec<f64> = (0..codes.len())
+            .map(|r| stats[r * width + codes[r] as usize])
+            .collect();
         Model::AdaBoost(fit_adaboost(
             &binned,
             codes,
             labels.len(),
-            None,
+            Some(&initial),
             &boost_settings,
             &mut Silent,
         ))
@@ -287,7 +296,10 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             let rows = test_design.rows.clone();
             let kept = keep_rows(&test_binned, &rows);
             let outcome = align_classes(&test_design.outcome, &design.outcome)?;
-            Some(performance(&model, &kept, &outcome))
+            Some((
+                performance(&model, &kept, &outcome),
+                staged_errors(&model, &kept, &outcome),
+            ))
         }
     };
     let classes = match &design.outcome {
@@ -302,8 +314,11 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             "training": { training.0: training.1 },
             "notices": design.notices,
         });
-        if let Some((name, value)) = scored {
-            out["scored"] = serde_json::json!({ name: value });
+        out["training_error_by_size"] =
+            serde_json::json!(staged_errors(&model, &binned, &design.outcome));
+        if let Some(((name, value), curve)) = &scored {
+            out["scored"] = serde_json::json!({ *name: value });
+            out["scored_error_by_size"] = serde_json::json!(curve);
         }
         match &model {
             Model::Tree(tree) => {
@@ -369,7 +384,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             "training {} {:.4} (apparent fit on the same rows, not a validation)",
             training.0, training.1
         );
-        if let Some((name, value)) = scored {
+        if let Some(((name, value), _)) = scored {
             println!(
                 "{name} on {}: {value:.4}",
                 args.score
@@ -382,6 +397,43 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         }
     }
     Ok(())
+}
+
+/// Error after 1, 2, ... members (trees or rounds), in one pass over the members: error
+/// rate for classes, mean squared error for numbers. `None` for a single tree.
+fn staged_errors(model: &Model, binned: &BinnedMatrix, outcome: &Outcome) -> Option<Vec<f64>> {
+    let n = binned.rows;
+    let (members, outputs): (Vec<(&Tree, f64)>, usize) = match model {
+        Model::Tree(_) => return None,
+        Model::Forest(f) => (f.trees.iter().map(|t| (t, 1.0)).collect(), f.outputs),
+        Model::AdaBoost(a) => (
+            a.trees.iter().zip(a.alphas.iter().copied()).collect(),
+            a.classes,
+        ),
+    };
+    let voting = matches!(model, Model::AdaBoost(_));
+    let mut sums = vec![0.0; n * outputs];
+    let mut curve = Vec::with_capacity(members.len());
+    for (t, (tree, alpha)) in members.iter().enumerate() {
+        let mut err = 0.0;
+        for r in 0..n {
+            let p = tree.predict_row(binned, r);
+            let s = &mut sums[r * outputs..(r + 1) * outputs];
+            if voting {
+                s[argmax(p)] += alpha;
+            } else {
+                for (a, b) in s.iter_mut().zip(p) {
+                    *a += b;
+                }
+            }
+            err += match outcome {
+                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
+                Outcome::Numbers(y) => (s[0] / (t + 1) as f64 - y[r]).powi(2),
+            };
+        }
+        curve.push(err / n as f64);
+    }
+    Some(curve)
 }
 
 fn stop_words(stop: Stop) -> &'static str {

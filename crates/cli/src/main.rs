@@ -70,6 +70,9 @@ enum Command {
         /// Also score the fitted model on another file with the same columns.
         #[arg(long, value_name = "FILE")]
         score: Option<PathBuf>,
+        /// A column of row weights (numbers, zero or more).
+        #[arg(long, value_name = "COLUMN")]
+        weight: Option<String>,
     },
     /// Measure speed and memory on generated data, and print the figures.
     Bench {
@@ -115,6 +118,7 @@ fn run(args: Args) -> anyhow::Result<()> {
             sets,
             json,
             score,
+            weight,
         } => fit::fit(fit::FitArgs {
             file,
             outcome,
@@ -123,6 +127,7 @@ fn run(args: Args) -> anyhow::Result<()> {
             sets,
             json,
             score,
+            weight,
         }),
         Command::Inspect {
             file,

@@ -72,6 +72,47 @@ pub struct Design {
     pub notices: Vec<String>,
 }
 
+impl Design {
+    /// The per-row statistics the tree grower sums: for classes, the row's weight in its
+    /// own class (times its class weight when `balanced`: n / (K · n_k), the usual
+    /// "balanced" rule, as in scikit-learn's documentation); for numbers `(w, w·y)`.
+    /// Returns the statistics and their number per row.
+    pub fn row_statistics(&self, balanced: bool) -> (Vec<f64>, usize) {
+        let weight = |r: usize| self.weights.as_ref().map_or(1.0, |w| w[r]);
+        match &self.outcome {
+            Outcome::Classes { codes, labels } => {
+                let k = labels.len();
+                let mut class_weight = vec![1.0; k];
+                if balanced {
+                    let mut counts = vec![0usize; k];
+                    for &c in codes {
+                        counts[c as usize] += 1;
+                    }
+                    for (cw, &n) in class_weight.iter_mut().zip(&counts) {
+                        *cw = if n == 0 {
+                            0.0
+                        } else {
+                            codes.len() as f64 / (k as f64 * n as f64)
+                        };
+                    }
+                }
+                let mut s = vec![0.0; codes.len() * k];
+                for (r, &c) in codes.iter().enumerate() {
+                    s[r * k + c as usize] = weight(r) * class_weight[c as usize];
+                }
+                (s, k)
+            }
+            Outcome::Numbers(v) => (
+                v.iter()
+                    .enumerate()
+                    .flat_map(|(r, &y)| [weight(r), weight(r) * y])
+                    .collect(),
+                2,
+            ),
+        }
+    }
+}
+
 fn bad(reason: String) -> Error {
     Error::new(ErrorKind::BadDesign { reason })
 }
@@ -348,6 +389,21 @@ mod tests {
             .unwrap_err()
             .to_string()
             .contains("data row 2"));
+    }
+
+    #[test]
+    fn balanced_class_weights_equalise_the_classes() {
+        let t = table("y,a\nyes,1\nno,2\nno,3\nno,4\n");
+        let d = build_design(&t, &spec("y", &["a"])).unwrap();
+        let (s, k) = d.row_statistics(true);
+        assert_eq!(k, 2);
+        // n / (K n_k): yes 4/(2·1) = 2, no 4/(2·3) = 2/3; each class then weighs 2 in all.
+        let yes: f64 = s.chunks(2).map(|c| c[1]).sum();
+        let no: f64 = s.chunks(2).map(|c| c[0]).sum();
+        assert!(
+            (yes - 2.0).abs() < 1e-12 && (no - 2.0).abs() < 1e-12,
+            "{yes} {no}"
+        );
     }
 
     #[test]
