@@ -15,17 +15,31 @@ use spinney_core::tree::criterion::Criterion;
 use spinney_core::tree::grower::{grow, GrowSettings};
 use spinney_core::tree::{missing_goes_left, Tree};
 
-/// Settings of `fit`, with their defaults (listed in README.md).
+/// The arguments of `spinney fit` (settings and their defaults are listed in README.md).
+#[derive(clap::Args)]
 pub struct FitArgs {
+    /// The file to read.
     pub file: std::path::PathBuf,
+    /// The column to predict.
+    #[arg(long)]
     pub outcome: String,
+    /// Predictors, comma-separated (default: every other column but text and identifiers).
+    #[arg(long, value_delimiter = ',')]
     pub predictors: Option<Vec<String>>,
+    /// The kind of model: tree, bagging, forest or adaboost.
+    #[arg(long, default_value = "tree")]
     pub method: String,
+    /// A setting NAME=VALUE (repeatable); see README.md for each method's settings.
+    #[arg(long = "set", value_name = "NAME=VALUE")]
     pub sets: Vec<String>,
+    /// Print the result as JSON (a tree node by node; error curves by ensemble size).
+    #[arg(long)]
     pub json: bool,
-    /// Another file to score the fitted model on (same columns).
+    /// Also score the fitted model on another file with the same columns.
+    #[arg(long, value_name = "FILE")]
     pub score: Option<std::path::PathBuf>,
-    /// A column of row weights.
+    /// A column of row weights (numbers, zero or more).
+    #[arg(long, value_name = "COLUMN")]
     pub weight: Option<String>,
 }
 

@@ -48,32 +48,8 @@ enum Command {
         #[arg(long)]
         cells: bool,
     },
-    /// Fit a model on every row of a file and report it (today: a single tree).
-    Fit {
-        /// The file to read.
-        file: PathBuf,
-        /// The column to predict.
-        #[arg(long)]
-        outcome: String,
-        /// Predictors, comma-separated (default: every other column).
-        #[arg(long, value_delimiter = ',')]
-        predictors: Option<Vec<String>>,
-        /// The kind of model: tree, bagging or forest.
-        #[arg(long, default_value = "tree")]
-        method: String,
-        /// A setting NAME=VALUE (repeatable): depth, leaf_size, split_size, bins, criterion, min_gain.
-        #[arg(long = "set", value_name = "NAME=VALUE")]
-        sets: Vec<String>,
-        /// Print the result as JSON (a tree node by node; a forest's out-of-bag curve).
-        #[arg(long)]
-        json: bool,
-        /// Also score the fitted model on another file with the same columns.
-        #[arg(long, value_name = "FILE")]
-        score: Option<PathBuf>,
-        /// A column of row weights (numbers, zero or more).
-        #[arg(long, value_name = "COLUMN")]
-        weight: Option<String>,
-    },
+    /// Fit a model (tree, bagging, forest, AdaBoost) on every row of a file and report it.
+    Fit(fit::FitArgs),
     /// Measure speed and memory on generated data, and print the figures.
     Bench {
         #[command(subcommand)]
@@ -110,25 +86,7 @@ fn run(args: Args) -> anyhow::Result<()> {
         Command::Bench {
             what: BenchWhat::Read { mb, repeats },
         } => bench::read(mb, repeats),
-        Command::Fit {
-            file,
-            outcome,
-            predictors,
-            method,
-            sets,
-            json,
-            score,
-            weight,
-        } => fit::fit(fit::FitArgs {
-            file,
-            outcome,
-            predictors,
-            method,
-            sets,
-            json,
-            score,
-            weight,
-        }),
+        Command::Fit(args) => fit::fit(args),
         Command::Inspect {
             file,
             sheet,
