@@ -133,6 +133,46 @@ fn parse_sets(
     Ok(())
 }
 
+/// A one-line progress bar on stderr, drawn only when stderr is a terminal.
+struct Bar {
+    tty: bool,
+    start: std::time::Instant,
+}
+
+impl Bar {
+    fn new() -> Self {
+        use std::io::IsTerminal;
+        Bar {
+            tty: std::io::stderr().is_terminal(),
+            start: std::time::Instant::now(),
+        }
+    }
+}
+
+impl spinney_core::progress::Progress for Bar {
+    fn step(&mut self, stage: &str, done: u64, total: u64) -> spinney_core::progress::Flow {
+        if self.tty {
+            let share = done as f64 / total.max(1) as f64;
+            let filled = (share * 30.0) as usize;
+            let elapsed = self.start.elapsed().as_secs_f64();
+            let left = if done > 0 {
+                elapsed / done as f64 * (total - done) as f64
+            } else {
+                0.0
+            };
+            eprint!(
+                "\r{stage} [{}{}] {done}/{total}  {elapsed:.0} s, about {left:.0} s left ",
+                "#".repeat(filled),
+                ".".repeat(30 - filled)
+            );
+            if done == total {
+                eprintln!();
+            }
+        }
+        spinney_core::progress::Flow::Continue
+    }
+}
+
 /// A fitted model of any method, predicting rows of a binned matrix.
 enum Model {
     Tree(Tree),
@@ -282,7 +322,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             labels.len(),
             Some(&initial),
             &boost_settings,
-            &mut Silent,
+            &mut Bar::new(),
         ))
     } else {
         Model::Forest(fit_forest(
@@ -291,7 +331,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             width,
             &design.outcome,
             &forest_settings,
-            &mut Silent,
+            &mut Bar::new(),
         ))
     };
     let fit_seconds = fit_start.elapsed().as_secs_f64();
