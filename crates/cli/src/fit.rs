@@ -120,7 +120,13 @@ fn parse_sets(
                 forest.replace = match value {
                     "with_replacement" => true,
                     "without_replacement" => false,
-                    _ => bail!("--set sampling={value}: use with_replacement or without_replacement"),
+                    "balanced" if !regression => {
+                        forest.balanced = true;
+                        true
+                    }
+                    _ => bail!(
+                        "--set sampling={value}: use with_replacement, without_replacement or balanced (classes only)"
+                    ),
                 }
             }
             other => bail!(

@@ -24,6 +24,11 @@ pub struct ForestSettings {
     pub row_fraction: f64,
     /// Draw rows with replacement (bootstrap) or without.
     pub replace: bool,
+    /// Class-balanced bootstrap (classes only): each tree draws the same number of rows
+    /// (the sample size over the number of classes), with replacement, from every class;
+    /// after the "balanced random forest" of Chen, Liaw & Breiman 2004 (UC Berkeley
+    /// technical report 666; from memory).
+    pub balanced: bool,
     pub seed: u64,
     pub grow: GrowSettings,
 }
@@ -42,6 +47,7 @@ impl ForestSettings {
             predictors_per_split: Some(m.max(1)),
             row_fraction: 1.0,
             replace: true,
+            balanced: false,
             seed,
             grow: GrowSettings {
                 criterion: if regression {
@@ -74,11 +80,34 @@ pub fn fit_trees(
     let p = binned.columns.len();
     let take = ((settings.row_fraction * n as f64).round() as usize).clamp(1, n);
     let total = range.len() as u64;
+    // For a class-balanced bootstrap: the rows of each class (a row's class is where its
+    // statistics put its weight).
+    let by_class: Vec<Vec<u32>> =
+        if settings.balanced && settings.grow.criterion != Criterion::SquaredError {
+            let mut groups = vec![Vec::new(); width];
+            for r in 0..n {
+                groups[argmax(&stats[r * width..(r + 1) * width])].push(r as u32);
+            }
+            groups.retain(|g| !g.is_empty());
+            groups
+        } else {
+            Vec::new()
+        };
     let mut out = Vec::with_capacity(range.len());
     for i in range {
         let mut rows_rng = stream(settings.seed, Purpose::TreeRows, i as u64);
         let mut in_bag = vec![0u32; n];
-        let rows: Vec<u32> = if settings.replace {
+        let rows: Vec<u32> = if !by_class.is_empty() {
+            let each = (take / by_class.len()).max(1);
+            by_class
+                .iter()
+                .flat_map(|g| {
+                    (0..each)
+                        .map(|_| g[below(&mut rows_rng, g.len())])
+                        .collect::<Vec<_>>()
+                })
+                .collect()
+        } else if settings.replace {
             (0..take).map(|_| below(&mut rows_rng, n) as u32).collect()
         } else {
             let mut all: Vec<u32> = (0..n as u32).collect();
@@ -298,6 +327,33 @@ mod tests {
             fit_forest(&m, &stats, 2, &y, &s, &mut Silent).trees,
             a.trees
         );
+    }
+
+    #[test]
+    fn a_balanced_bootstrap_draws_each_class_equally() {
+        // 90 rows of one class, 10 of the other.
+        let mut text = String::from("y,a\n");
+        for i in 0..100 {
+            text += &format!("{},{}\n", if i < 10 { "rare" } else { "common" }, i);
+        }
+        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table;
+        let spec = DesignSpec {
+            outcome: "y".into(),
+            predictors: vec!["a".into()],
+            ..Default::default()
+        };
+        let design = build_design(&table, &spec).unwrap();
+        let (stats, k) = design.row_statistics(false);
+        let m = bin_design(&design, BinSettings::default()).unwrap();
+        let mut s = ForestSettings::random_forest(1, false, 3);
+        s.trees = 1;
+        s.balanced = true;
+        let t = fit_trees(&m, &stats, k, &s, 0..1, &mut Silent).remove(0);
+        let rare: u32 = t.in_bag[..10].iter().sum();
+        let common: u32 = t.in_bag[10..].iter().sum();
+        assert_eq!((rare, common), (50, 50));
     }
 
     #[test]
