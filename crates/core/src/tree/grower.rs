@@ -76,7 +76,10 @@ pub fn grow(
     // (node index, start, end, depth)
     let mut stack: Vec<(usize, usize, usize, usize)> = vec![(0, 0, work.len(), 0)];
     tree.nodes.push(empty_node());
+    // Kept zeroed between uses: only the bins a node touches are filled and cleared again,
+    // so small nodes deep in a tree cost in proportion to their rows, not to 256 bins.
     let mut hist = vec![0.0f64; 256 * (width + 1)];
+    let mut touched: Vec<u8> = Vec::with_capacity(256);
     let mut totals = vec![0.0f64; width];
     let mut candidates: Vec<usize> = Vec::new();
     while let Some((id, start, end, depth)) = stack.pop() {
@@ -117,12 +120,24 @@ pub fn grow(
         }
         let mut best: Option<Best> = None;
         for &j in &candidates {
-            fill_histogram(&mut hist, binned.column(j), node_rows, stats, width);
+            fill_histogram(
+                &mut hist,
+                &mut touched,
+                binned.column(j),
+                node_rows,
+                stats,
+                width,
+            );
             let col = &binned.columns[j];
-            let order: Vec<u8> = match col.rule {
-                BinRule::Numbers { .. } => (0..col.bins as u8).collect(),
-                BinRule::Levels { .. } => level_order(&hist, col.bins, width, criterion),
-            };
+            let mut order: Vec<u8> = touched
+                .iter()
+                .copied()
+                .filter(|&b| b != MISSING_BIN)
+                .collect();
+            match col.rule {
+                BinRule::Numbers { .. } => order.sort_unstable(),
+                BinRule::Levels { .. } => order = level_order(&hist, &order, width, criterion),
+            }
             scan(
                 &hist,
                 &order,
@@ -133,6 +148,12 @@ pub fn grow(
                 settings,
                 &mut best,
             );
+            let stride = width + 1;
+            for &b in &touched {
+                hist[b as usize * stride..(b as usize + 1) * stride]
+                    .iter_mut()
+                    .for_each(|h| *h = 0.0);
+            }
         }
         // Like CART as usually implemented, a split that gains nothing is still made when no
         // better one exists (so XOR-like patterns can be found a level down); `min_gain`
@@ -199,12 +220,23 @@ fn empty_node() -> Node {
 }
 
 /// Sums statistics (and a row count) per bin of one predictor over the node's rows.
-fn fill_histogram(hist: &mut [f64], column: &[u8], rows: &[u32], stats: &[f64], width: usize) {
-    hist.iter_mut().for_each(|h| *h = 0.0);
+/// `hist` must be all zero on entry; `touched` receives the bins filled.
+fn fill_histogram(
+    hist: &mut [f64],
+    touched: &mut Vec<u8>,
+    column: &[u8],
+    rows: &[u32],
+    stats: &[f64],
+    width: usize,
+) {
+    touched.clear();
     let stride = width + 1;
     for &r in rows {
         let b = column[r as usize] as usize;
         let h = &mut hist[b * stride..(b + 1) * stride];
+        if h[width] == 0.0 {
+            touched.push(b as u8);
+        }
         let s = &stats[r as usize * width..(r as usize + 1) * width];
         for (a, v) in h.iter_mut().zip(s) {
             *a += v;
@@ -215,10 +247,11 @@ fn fill_histogram(hist: &mut [f64], column: &[u8], rows: &[u32], stats: &[f64], 
 
 /// Category bins in the order their splits are scanned: by mean response where it is
 /// defined (two classes, regression), otherwise by bin.
-fn level_order(hist: &[f64], bins: usize, width: usize, criterion: Criterion) -> Vec<u8> {
+fn level_order(hist: &[f64], bins: &[u8], width: usize, criterion: Criterion) -> Vec<u8> {
     let stride = width + 1;
-    let mut present: Vec<(u8, Option<f64>)> = (0..bins)
-        .filter(|&b| hist[b * stride + width] > 0.0)
+    let mut present: Vec<(u8, Option<f64>)> = bins
+        .iter()
+        .map(|&b| b as usize)
         .map(|b| {
             (
                 b as u8,
@@ -262,7 +295,7 @@ fn scan(
     let mut right = vec![0.0; stride];
     let mut l_miss = vec![0.0; stride];
     let mut r_miss = vec![0.0; stride];
-    for (i, &b) in order.iter().enumerate().take(order.len().saturating_sub(1)) {
+    for (i, &b) in order.iter().enumerate() {
         for (l, h) in left
             .iter_mut()
             .zip(&hist[b as usize * stride..(b as usize + 1) * stride])
@@ -287,9 +320,17 @@ fn scan(
             let gain =
                 parent_cost - criterion.cost(&l_miss[..width]) - criterion.cost(&r_miss[..width]);
             if best.as_ref().is_none_or(|b| gain > b.gain) {
-                let mut left_bins = BinSet::default();
-                for &lb in &order[..=i] {
-                    left_bins.insert(lb);
+                // Numbers: every bin up to this one, including bins this node has no rows in,
+                // so new values fall on the side their size says. Categories: the bins scanned.
+                let mut left_bins = if numeric {
+                    BinSet::up_to(b)
+                } else {
+                    BinSet::default()
+                };
+                if !numeric {
+                    for &lb in &order[..=i] {
+                        left_bins.insert(lb);
+                    }
                 }
                 if missing_left {
                     left_bins.insert(MISSING_BIN);
