@@ -317,9 +317,7 @@ fn level_rule(codes: &[u32], levels: usize, settings: BinSettings) -> BinRule {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::data::{read_table, ReadOptions};
-    use crate::design::{build_design, DesignSpec};
-    use crate::progress::Silent;
+    use crate::design::design_from_csv;
 
     #[test]
     fn few_distinct_values_get_midpoints() {
@@ -360,15 +358,7 @@ mod tests {
     #[test]
     fn a_design_binned_column_by_column() {
         let text = "y,x,ward\n1,0.5,Cedar\n0,NA,Birch\n1,2.5,Cedar\n0,1.0,Rare\n1,2.5,Birch\n";
-        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
-            .unwrap()
-            .table;
-        let spec = DesignSpec {
-            outcome: "y".into(),
-            predictors: vec!["x".into(), "ward".into()],
-            ..Default::default()
-        };
-        let design = build_design(&table, &spec).unwrap();
+        let design = design_from_csv(text, "y", &["x", "ward"]);
         let m = bin_design(
             &design,
             BinSettings {

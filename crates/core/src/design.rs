@@ -113,6 +113,25 @@ impl Design {
     }
 }
 
+/// For tests across the crate: the design of `outcome` from `predictors` in CSV `text`.
+#[cfg(test)]
+pub(crate) fn design_from_csv(text: &str, outcome: &str, predictors: &[&str]) -> Design {
+    use crate::data::{read_table, ReadOptions};
+    let table = read_table(
+        text.as_bytes(),
+        &ReadOptions::default(),
+        &mut crate::progress::Silent,
+    )
+    .unwrap()
+    .table;
+    let spec = DesignSpec {
+        outcome: outcome.into(),
+        predictors: predictors.iter().map(|s| s.to_string()).collect(),
+        ..DesignSpec::default()
+    };
+    build_design(&table, &spec).unwrap()
+}
+
 fn bad(reason: String) -> Error {
     Error::new(ErrorKind::BadDesign { reason })
 }

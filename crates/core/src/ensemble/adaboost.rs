@@ -140,8 +140,7 @@ pub fn fit_adaboost(
 mod tests {
     use super::*;
     use crate::binning::{bin_design, BinSettings};
-    use crate::data::{read_table, ReadOptions};
-    use crate::design::{build_design, DesignSpec, Outcome};
+    use crate::design::{design_from_csv, Outcome};
     use crate::progress::Silent;
     use crate::random::{below, stream, Purpose};
 
@@ -159,15 +158,7 @@ mod tests {
             };
             text += &format!("{y},{a},{b}\n");
         }
-        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
-            .unwrap()
-            .table;
-        let spec = DesignSpec {
-            outcome: "y".into(),
-            predictors: vec!["a".into(), "b".into()],
-            ..Default::default()
-        };
-        let design = build_design(&table, &spec).unwrap();
+        let design = design_from_csv(&text, "y", &["a", "b"]);
         let m = bin_design(&design, BinSettings::default()).unwrap();
         let Outcome::Classes { codes, .. } = &design.outcome else {
             panic!()

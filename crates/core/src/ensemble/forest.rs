@@ -253,8 +253,7 @@ pub fn fit_forest(
 mod tests {
     use super::*;
     use crate::binning::{bin_design, BinSettings};
-    use crate::data::{read_table, ReadOptions};
-    use crate::design::{build_design, DesignSpec};
+    use crate::design::design_from_csv;
     use crate::progress::Silent;
 
     fn noisy_problem() -> (BinnedMatrix, Outcome, Vec<f64>) {
@@ -269,22 +268,8 @@ mod tests {
             let y = if signal != flip { "yes" } else { "no" };
             text += &format!("{y},{},{},{},{}\n", x[0], x[1], x[2], x[3]);
         }
-        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
-            .unwrap()
-            .table;
-        let spec = DesignSpec {
-            outcome: "y".into(),
-            predictors: vec!["a".into(), "b".into(), "c".into(), "d".into()],
-            ..Default::default()
-        };
-        let design = build_design(&table, &spec).unwrap();
-        let Outcome::Classes { codes, .. } = &design.outcome else {
-            panic!()
-        };
-        let stats: Vec<f64> = codes
-            .iter()
-            .flat_map(|&c| if c == 0 { [1.0, 0.0] } else { [0.0, 1.0] })
-            .collect();
+        let design = design_from_csv(&text, "y", &["a", "b", "c", "d"]);
+        let (stats, _) = design.row_statistics(false);
         (
             bin_design(&design, BinSettings::default()).unwrap(),
             design.outcome,
@@ -336,15 +321,7 @@ mod tests {
         for i in 0..100 {
             text += &format!("{},{}\n", if i < 10 { "rare" } else { "common" }, i);
         }
-        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
-            .unwrap()
-            .table;
-        let spec = DesignSpec {
-            outcome: "y".into(),
-            predictors: vec!["a".into()],
-            ..Default::default()
-        };
-        let design = build_design(&table, &spec).unwrap();
+        let design = design_from_csv(&text, "y", &["a"]);
         let (stats, k) = design.row_statistics(false);
         let m = bin_design(&design, BinSettings::default()).unwrap();
         let mut s = ForestSettings::random_forest(1, false, 3);

@@ -357,44 +357,25 @@ fn scan(
 mod tests {
     use super::*;
     use crate::binning::{bin_design, BinSettings};
-    use crate::data::{read_table, ReadOptions};
-    use crate::design::{build_design, DesignSpec, Outcome};
-    use crate::progress::Silent;
+    use crate::design::{design_from_csv, Outcome};
 
     /// Class statistics: one weight per class per row.
-    fn class_stats(outcome: &Outcome) -> (Vec<f64>, usize) {
-        let Outcome::Classes { codes, labels } = outcome else {
-            panic!("classes expected")
-        };
-        let k = labels.len();
-        let mut s = vec![0.0; codes.len() * k];
-        for (r, &c) in codes.iter().enumerate() {
-            s[r * k + c as usize] = 1.0;
-        }
-        (s, k)
-    }
-
-    fn fixture(text: &str, outcome: &str, predictors: &[&str]) -> (BinnedMatrix, Outcome) {
-        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
-            .unwrap()
-            .table;
-        let spec = DesignSpec {
-            outcome: outcome.into(),
-            predictors: predictors.iter().map(|s| s.to_string()).collect(),
-            ..Default::default()
-        };
-        let design = build_design(&table, &spec).unwrap();
-        (
-            bin_design(&design, BinSettings::default()).unwrap(),
-            design.outcome,
-        )
+    /// Binned predictors, the outcome and the grower's row statistics of a CSV text.
+    fn fixture(
+        text: &str,
+        outcome: &str,
+        predictors: &[&str],
+    ) -> (BinnedMatrix, Outcome, Vec<f64>, usize) {
+        let design = design_from_csv(text, outcome, predictors);
+        let (stats, width) = design.row_statistics(false);
+        let m = bin_design(&design, BinSettings::default()).unwrap();
+        (m, design.outcome, stats, width)
     }
 
     #[test]
     fn xor_needs_depth_two_and_is_then_perfect() {
         let text = "y,a,b\n0,0,0\n1,0,1\n1,1,0\n0,1,1\n0,0,0\n1,0,1\n1,1,0\n0,1,1\n";
-        let (m, y) = fixture(text, "y", &["a", "b"]);
-        let (stats, k) = class_stats(&y);
+        let (m, y, stats, k) = fixture(text, "y", &["a", "b"]);
         let rows: Vec<u32> = (0..8).collect();
         let tree = grow(&m, &stats, k, &rows, &GrowSettings::default(), None);
         let Outcome::Classes { codes, .. } = &y else {
@@ -430,8 +411,7 @@ mod tests {
             };
             text += &format!("{y},{a},{b},{x3},{cat}\n");
         }
-        let (m, y) = fixture(&text, "y", &["x1", "x2", "x3", "c"]);
-        let (stats, k) = class_stats(&y);
+        let (m, y, stats, k) = fixture(&text, "y", &["x1", "x2", "x3", "c"]);
         let rows: Vec<u32> = (0..m.rows as u32).collect();
         for criterion in [Criterion::Gini, Criterion::Entropy] {
             let settings = GrowSettings {
@@ -462,9 +442,8 @@ mod tests {
             let y = if i >= 20 || i % 10 == 9 { 5.0 } else { 1.0 };
             text += &format!("{y},{x}\n");
         }
-        let (m, y) = fixture(&text, "y", &["x"]);
-        let Outcome::Numbers(v) = &y else { panic!() };
-        let stats: Vec<f64> = v.iter().flat_map(|&y| [1.0, y]).collect();
+        let (m, y, stats, _) = fixture(&text, "y", &["x"]);
+        assert!(matches!(y, Outcome::Numbers(_)));
         let settings = GrowSettings {
             criterion: Criterion::SquaredError,
             max_depth: Some(1),
@@ -497,8 +476,7 @@ mod tests {
             let y = if ward == "A" || ward == "C" { 1 } else { 0 };
             text += &format!("{y},{ward}\n");
         }
-        let (m, y) = fixture(&text, "y", &["ward"]);
-        let (stats, k) = class_stats(&y);
+        let (m, _, stats, k) = fixture(&text, "y", &["ward"]);
         let settings = GrowSettings {
             max_depth: Some(1),
             ..GrowSettings::default()
