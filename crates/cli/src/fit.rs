@@ -1,11 +1,11 @@
-//! `spinney fit FILE --outcome COL`: fits a model on all rows and reports it. This first
-//! version fits a single tree (`--method tree`); the ensembles of issue 3 come next.
-//! `--json` prints the tree node by node (predictor, threshold, where missing values go,
-//! children, values), which tests/reference/check_tree.py compares with scikit-learn.
+//! `spinney fit FILE --outcome COL`: fits a single tree, bagging, a random forest or AdaBoost
+//! on all rows and reports it (training fit, out-of-bag error, error by ensemble size, and
+//! optionally the fit on another file). `--json` prints a tree node by node (predictor,
+//! threshold, where missing values go, children, values), which the checks in
+//! tests/reference compare with scikit-learn.
 
 use anyhow::{bail, Context};
-use spinney_core::binning::{bin_design, BinSettings};
-use spinney_core::binning::{bin_new_table, BinnedMatrix};
+use spinney_core::binning::{bin_design, bin_new_table, BinSettings, BinnedMatrix};
 use spinney_core::data::{read_table, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::ensemble::adaboost::{fit_adaboost, AdaBoost, BoostSettings, Stop};
@@ -43,19 +43,25 @@ pub struct FitArgs {
     pub weight: Option<String>,
 }
 
-fn parse_sets(
-    sets: &[String],
-    settings: &mut GrowSettings,
-    bins: &mut BinSettings,
-    forest: &mut ForestSettings,
-    boost: &mut BoostSettings,
-    regression: bool,
-) -> anyhow::Result<()> {
-    settings.criterion = if regression {
-        Criterion::SquaredError
-    } else {
-        Criterion::Gini
-    };
+/// Every setting `--set` can change, for all methods.
+struct Settings {
+    grow: GrowSettings,
+    bins: BinSettings,
+    forest: ForestSettings,
+    boost: BoostSettings,
+    /// Weigh classes by n / (K · rows of the class).
+    balanced_classes: bool,
+}
+
+/// Applies the `--set NAME=VALUE` settings to `all`, checking each against its range.
+fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::Result<()> {
+    let Settings {
+        grow: settings,
+        bins,
+        forest,
+        boost,
+        balanced_classes,
+    } = all;
     for s in sets {
         let (name, value) = s
             .split_once('=')
@@ -93,12 +99,14 @@ fn parse_sets(
             "trees" => forest.trees = whole(1, 100_000)?,
             "rounds" => boost.rounds = whole(1, 100_000)?,
             "class_weight" => {
-                if value != "balanced" && value != "none" {
-                    bail!("--set class_weight={value}: use balanced or none");
-                }
                 if regression {
                     bail!("--set class_weight: only for class outcomes");
                 }
+                *balanced_classes = match value {
+                    "balanced" => true,
+                    "none" => false,
+                    _ => bail!("--set class_weight={value}: use balanced or none"),
+                };
             }
             "learning_rate" => {
                 let f: f64 = value.parse().with_context(|| format!("--set learning_rate: '{value}' is not a number"))?;
@@ -131,8 +139,8 @@ fn parse_sets(
             }
             other => bail!(
                 "--set {other}: unknown setting; see README.md for the settings of each method \
-                 (depth, leaf_size, split_size, bins, criterion, min_gain, trees, \
-                 predictors_per_split, row_fraction, sampling, seed)"
+                 (depth, leaf_size, split_size, bins, criterion, min_gain, class_weight, trees, \
+                 predictors_per_split, row_fraction, sampling, seed, rounds, learning_rate)"
             ),
         }
     }
@@ -279,41 +287,45 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         weight: args.weight.clone(),
         ..DesignSpec::default()
     };
-    let balanced = args.sets.iter().any(|s| s == "class_weight=balanced");
     let design = build_design(&table, &spec)?;
     let regression = matches!(design.outcome, Outcome::Numbers(_));
-    let mut grow_settings = GrowSettings::default();
-    let mut bins = BinSettings::default();
-    let mut forest_settings = ForestSettings::random_forest(design.predictors.len(), regression, 1);
+    // Defaults first (the method's own), then the user's --set choices on top.
+    let mut grow_settings = GrowSettings {
+        criterion: if regression {
+            Criterion::SquaredError
+        } else {
+            Criterion::Gini
+        },
+        ..GrowSettings::default()
+    };
+    let mut forest = ForestSettings::random_forest(design.predictors.len(), regression, 1);
     match args.method.as_str() {
-        "tree" | "forest" | "adaboost" => {}
-        "bagging" => forest_settings.predictors_per_split = None,
+        "tree" | "forest" => {}
+        "bagging" => forest.predictors_per_split = None,
+        "adaboost" if regression => bail!(
+            "--method adaboost: this AdaBoost (SAMME) predicts classes; the outcome '{}' is a number",
+            args.outcome
+        ),
+        "adaboost" => grow_settings.max_depth = Some(1),
         other => bail!("--method {other}: choose tree, bagging, forest or adaboost (gradient boosting is being built)"),
     }
-    let mut boost_settings = BoostSettings::default();
-    if args.method == "adaboost" {
-        if regression {
-            bail!("--method adaboost: this AdaBoost (SAMME) predicts classes; the outcome '{}' is a number", args.outcome);
-        }
-        grow_settings.max_depth = Some(1);
-    }
-    parse_sets(
-        &args.sets,
-        &mut grow_settings,
-        &mut bins,
-        &mut forest_settings,
-        &mut boost_settings,
-        regression,
-    )?;
-    forest_settings.grow = grow_settings;
-    boost_settings.grow = grow_settings;
+    let mut all = Settings {
+        grow: grow_settings,
+        bins: BinSettings::default(),
+        forest,
+        boost: BoostSettings::default(),
+        balanced_classes: false,
+    };
+    parse_sets(&args.sets, &mut all, regression)?;
+    all.forest.grow = all.grow;
+    all.boost.grow = all.grow;
     // Fit time counts binning and fitting, not reading the file.
     let fit_start = std::time::Instant::now();
-    let binned = bin_design(&design, bins)?;
-    let (stats, width) = design.row_statistics(balanced);
+    let binned = bin_design(&design, all.bins)?;
+    let (stats, width) = design.row_statistics(all.balanced_classes);
     let model = if args.method == "tree" {
         let rows: Vec<u32> = (0..binned.rows as u32).collect();
-        Model::Tree(grow(&binned, &stats, width, &rows, &grow_settings, None))
+        Model::Tree(grow(&binned, &stats, width, &rows, &all.grow, None))
     } else if args.method == "adaboost" {
         let Outcome::Classes { codes, labels } = &design.outcome else {
             unreachable!("checked above")
@@ -327,7 +339,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             codes,
             labels.len(),
             Some(&initial),
-            &boost_settings,
+            &all.boost,
             &mut Bar::new(),
         ))
     } else {
@@ -336,7 +348,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             &stats,
             width,
             &design.outcome,
-            &forest_settings,
+            &all.forest,
             &mut Bar::new(),
         ))
     };
@@ -357,7 +369,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             let test_binned = bin_new_table(&binned.columns, &other)?;
             // Keep only the rows with an outcome, as the design did.
             let rows = test_design.rows.clone();
-            let kept = keep_rows(&test_binned, &rows);
+            let kept = test_binned.select_rows(&rows);
             let outcome = align_classes(&test_design.outcome, &design.outcome)?;
             Some((
                 performance(&model, &kept, &outcome),
@@ -506,11 +518,6 @@ fn stop_words(stop: Stop) -> &'static str {
         Stop::NoBetterThanChance => "stopped early: a round was no better than chance",
         Stop::Cancelled => "cancelled before the last round",
     }
-}
-
-/// The rows `rows` of `m`, in order.
-fn keep_rows(m: &BinnedMatrix, rows: &[usize]) -> BinnedMatrix {
-    m.select_rows(rows)
 }
 
 /// Re-expresses a scored file's classes in the training labels' codes.
