@@ -80,6 +80,9 @@ pub fn grow(
     // so small nodes deep in a tree cost in proportion to their rows, not to 256 bins.
     let mut hist = vec![0.0f64; 256 * (width + 1)];
     let mut touched: Vec<u8> = Vec::with_capacity(256);
+    // Reused by every node and predictor: the bins in scan order, and the scan's sums.
+    let mut order: Vec<u8> = Vec::with_capacity(256);
+    let mut sums = ScanSums::new(width);
     let mut totals = vec![0.0f64; width];
     let mut candidates: Vec<usize> = Vec::new();
     while let Some((id, start, end, depth)) = stack.pop() {
@@ -129,19 +132,16 @@ pub fn grow(
                 width,
             );
             let col = &binned.columns[j];
-            let mut order: Vec<u8> = touched
-                .iter()
-                .copied()
-                .filter(|&b| b != MISSING_BIN)
-                .collect();
+            order.clear();
+            order.extend(touched.iter().copied().filter(|&b| b != MISSING_BIN));
             match col.rule {
                 BinRule::Numbers { .. } => order.sort_unstable(),
-                BinRule::Levels { .. } => order = level_order(&hist, &order, width, criterion),
+                BinRule::Levels { .. } => sort_levels(&hist, &mut order, width, criterion),
             }
             scan(
                 &hist,
                 &order,
-                width,
+                &mut sums,
                 j,
                 matches!(col.rule, BinRule::Numbers { .. }),
                 parent_cost,
@@ -245,25 +245,37 @@ fn fill_histogram(
     }
 }
 
-/// Category bins in the order their splits are scanned: by mean response where it is
-/// defined (two classes, regression), otherwise by bin.
-fn level_order(hist: &[f64], bins: &[u8], width: usize, criterion: Criterion) -> Vec<u8> {
+/// Sorts category bins into the order their splits are scanned: by mean response where it
+/// is defined (two classes, regression), otherwise by bin.
+fn sort_levels(hist: &[f64], bins: &mut [u8], width: usize, criterion: Criterion) {
     let stride = width + 1;
-    let mut present: Vec<(u8, Option<f64>)> = bins
-        .iter()
-        .map(|&b| b as usize)
-        .map(|b| {
-            (
-                b as u8,
-                criterion.order_key(&hist[b * stride..b * stride + width]),
-            )
-        })
-        .collect();
-    present.sort_by(|a, b| match (a.1, b.1) {
-        (Some(x), Some(y)) => x.total_cmp(&y).then(a.0.cmp(&b.0)),
-        _ => a.0.cmp(&b.0),
+    let key = |b: u8| criterion.order_key(&hist[b as usize * stride..b as usize * stride + width]);
+    bins.sort_by(|&a, &b| match (key(a), key(b)) {
+        (Some(x), Some(y)) => x.total_cmp(&y).then(a.cmp(&b)),
+        _ => a.cmp(&b),
     });
-    present.into_iter().map(|(b, _)| b).collect()
+}
+
+/// Running sums of one scan (statistics and a row count each), allocated once per tree.
+struct ScanSums {
+    present: Vec<f64>,
+    left: Vec<f64>,
+    right: Vec<f64>,
+    l_miss: Vec<f64>,
+    r_miss: Vec<f64>,
+}
+
+impl ScanSums {
+    fn new(width: usize) -> Self {
+        let z = vec![0.0; width + 1];
+        ScanSums {
+            present: z.clone(),
+            left: z.clone(),
+            right: z.clone(),
+            l_miss: z.clone(),
+            r_miss: z,
+        }
+    }
 }
 
 /// Scans the split points of one predictor, bins in `order`, updating `best`.
@@ -271,17 +283,26 @@ fn level_order(hist: &[f64], bins: &[u8], width: usize, criterion: Criterion) ->
 fn scan(
     hist: &[f64],
     order: &[u8],
-    width: usize,
+    sums: &mut ScanSums,
     feature: usize,
     numeric: bool,
     parent_cost: f64,
     settings: &GrowSettings,
     best: &mut Option<Best>,
 ) {
-    let stride = width + 1;
+    let stride = sums.present.len();
+    let width = stride - 1;
     let criterion = settings.criterion;
     let missing = &hist[MISSING_BIN as usize * stride..MISSING_BIN as usize * stride + stride];
-    let mut present = vec![0.0; stride];
+    let ScanSums {
+        present,
+        left,
+        right,
+        l_miss,
+        r_miss,
+    } = sums;
+    present.iter_mut().for_each(|p| *p = 0.0);
+    left.iter_mut().for_each(|l| *l = 0.0);
     for &b in order {
         for (p, h) in present
             .iter_mut()
@@ -291,10 +312,6 @@ fn scan(
         }
     }
     let min_leaf = settings.min_rows_leaf.max(1) as f64;
-    let mut left = vec![0.0; stride];
-    let mut right = vec![0.0; stride];
-    let mut l_miss = vec![0.0; stride];
-    let mut r_miss = vec![0.0; stride];
     for (i, &b) in order.iter().enumerate() {
         for (l, h) in left
             .iter_mut()
@@ -302,13 +319,10 @@ fn scan(
         {
             *l += h;
         }
-        if hist[b as usize * stride + width] == 0.0 {
-            continue; // an empty bin adds no new split point
-        }
         for k in 0..stride {
             right[k] = present[k] - left[k];
         }
-        // Missing values to the left, then to the right (only the second when none).
+        // Missing values to the left, then to the right (tried once when there are none).
         for missing_left in [true, false] {
             for k in 0..stride {
                 l_miss[k] = left[k] + if missing_left { missing[k] } else { 0.0 };
