@@ -167,19 +167,6 @@ fn cell_rows(table: &data::Table) -> serde_json::Value {
     serde_json::json!(rows)
 }
 
-fn fmt_opt(x: Option<f64>) -> String {
-    x.map_or_else(
-        || "-".into(),
-        |v| {
-            if v.abs() >= 1e6 || (v != 0.0 && v.abs() < 1e-3) {
-                format!("{v:.3e}")
-            } else {
-                format!("{}", (v * 1e4).round() / 1e4)
-            }
-        },
-    )
-}
-
 fn print_table(out: &mut impl Write, report: &data::TableReport) -> anyhow::Result<()> {
     writeln!(
         out,
@@ -203,7 +190,12 @@ fn print_table(out: &mut impl Write, report: &data::TableReport) -> anyhow::Resu
     let mut lines: Vec<[String; 8]> = Vec::new();
     for c in &report.columns {
         let (low, mid, high) = if c.top.is_empty() {
-            (fmt_opt(c.min), fmt_opt(c.median), fmt_opt(c.max))
+            {
+                let show = |x: Option<f64>| {
+                    x.map_or_else(|| "-".to_string(), |v| data::format_statistic(c.kind, v))
+                };
+                (show(c.min), show(c.median), show(c.max))
+            }
         } else {
             let top: Vec<String> = c
                 .top

@@ -20,7 +20,7 @@ pub mod values;
 
 pub use read::{read_table, Loaded, ReadOptions, Source};
 pub use report::{report, TableReport};
-pub use summary::{summarise, ColumnSummary, Flag, TopValue};
+pub use summary::{format_statistic, summarise, ColumnSummary, Flag, TopValue};
 
 /// What a column holds, as shown to the user.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]

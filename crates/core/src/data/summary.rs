@@ -70,6 +70,22 @@ pub struct ColumnSummary {
     pub flags: Vec<Flag>,
 }
 
+/// A summary statistic (min, median, max) of a column of `kind` as people read it: dates as
+/// dates, whole numbers whole, others to four decimals or in scientific form when very
+/// large or small.
+pub fn format_statistic(kind: Kind, x: f64) -> String {
+    match kind {
+        Kind::Date => super::format_date(x, false),
+        Kind::DateTime => super::format_date(x, true),
+        _ if x == x.trunc() && x.abs() < 1e12 => format!("{}", x as i64),
+        _ if x.abs() >= 1e6 || x.abs() < 1e-3 => format!("{x:.3e}"),
+        _ => {
+            let s = format!("{x:.4}");
+            s.trim_end_matches('0').trim_end_matches('.').to_string()
+        }
+    }
+}
+
 /// How many frequent values a summary lists.
 pub const TOP_VALUES: usize = 5;
 
@@ -220,6 +236,16 @@ mod tests {
                 .unwrap()
                 .table,
         )
+    }
+
+    #[test]
+    fn statistics_read_as_people_write_them() {
+        assert_eq!(format_statistic(Kind::Number, 2.5), "2.5");
+        assert_eq!(format_statistic(Kind::Number, 1.0 / 3.0), "0.3333");
+        assert_eq!(format_statistic(Kind::WholeNumber, 42.0), "42");
+        assert_eq!(format_statistic(Kind::Number, 12_345_678.9), "1.235e7");
+        assert_eq!(format_statistic(Kind::Number, 0.000_25), "2.500e-4");
+        assert_eq!(format_statistic(Kind::Date, 19782.0), "2024-02-29");
     }
 
     #[test]

@@ -128,23 +128,8 @@ fn show(doc: &Document, id: &str, visible: bool) {
     }
 }
 
-fn fmt_num(x: f64) -> String {
-    if x == x.trunc() && x.abs() < 1e12 {
-        format!("{}", x as i64)
-    } else if x.abs() >= 1e6 || x.abs() < 1e-3 {
-        format!("{x:.3e}")
-    } else {
-        let s = format!("{:.4}", x);
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    }
-}
-
 fn fmt_value(c: &ColumnSummary, x: f64) -> String {
-    match c.kind {
-        Kind::Date => spinney_core::data::format_date(x, false),
-        Kind::DateTime => spinney_core::data::format_date(x, true),
-        _ => fmt_num(x),
-    }
+    spinney_core::data::format_statistic(c.kind, x)
 }
 
 fn default_role(c: &ColumnSummary) -> Role {
