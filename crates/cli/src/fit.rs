@@ -5,7 +5,7 @@
 //! tests/reference compare with scikit-learn.
 
 use anyhow::{bail, Context};
-use spinney_core::binning::{bin_design, bin_new_table, BinSettings, BinnedMatrix};
+use spinney_core::binning::{bin_design, records_from_table, BinSettings, BinnedMatrix};
 use spinney_core::data::{read_table, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::ensemble::adaboost::{fit_adaboost, AdaBoost, BoostSettings, Stop};
@@ -13,7 +13,7 @@ use spinney_core::ensemble::forest::{argmax, fit_forest, Forest, ForestSettings}
 use spinney_core::progress::Silent;
 use spinney_core::tree::criterion::Criterion;
 use spinney_core::tree::grower::{grow, GrowSettings};
-use spinney_core::tree::{missing_goes_left, Tree};
+use spinney_core::tree::{Rows, Tree};
 
 /// The arguments of `spinney fit` (settings and their defaults are listed in README.md).
 #[derive(clap::Args)]
@@ -80,6 +80,14 @@ fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::
             "leaf_size" => settings.min_rows_leaf = whole(1, usize::MAX)?,
             "split_size" => settings.min_rows_split = whole(2, usize::MAX)?,
             "bins" => bins.max_bins = whole(2, 255)?,
+            "split_search" => {
+                bins.exact = match value {
+                    "exact" => true,
+                    "histogram" => false,
+                    _ => bail!("--set split_search={value}: use histogram (the default) or exact"),
+                }
+            }
+            "leaves" => settings.max_leaves = Some(whole(2, 1 << 20)?),
             "criterion" => {
                 settings.criterion = match (value, regression) {
                     ("gini", false) => Criterion::Gini,
@@ -139,7 +147,7 @@ fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::
             }
             other => bail!(
                 "--set {other}: unknown setting; see README.md for the settings of each method \
-                 (depth, leaf_size, split_size, bins, criterion, min_gain, class_weight, trees, \
+                 (depth, leaves, leaf_size, split_size, bins, split_search, criterion, min_gain, class_weight, trees, \
                  predictors_per_split, row_fraction, sampling, seed, rounds, learning_rate)"
             ),
         }
@@ -195,42 +203,43 @@ enum Model {
 }
 
 impl Model {
-    fn predict(&self, binned: &BinnedMatrix, row: usize, out: &mut Vec<f64>) {
+    fn predict(&self, rows: Rows<'_>, row: usize, out: &mut Vec<f64>) {
         match self {
             Model::Tree(t) => {
                 out.clear();
-                out.extend_from_slice(t.predict_row(binned, row));
+                out.extend_from_slice(t.predict(rows, row));
             }
             Model::Forest(f) => {
                 out.resize(f.outputs, 0.0);
-                f.predict_row(binned, row, out);
+                f.predict(rows, row, out);
             }
-            Model::AdaBoost(a) => *out = a.scores(binned, row, a.trees.len()),
+            Model::AdaBoost(a) => *out = a.scores(rows, row, a.trees.len()),
         }
     }
 }
 
-/// Accuracy (classes) or root mean squared error (numbers) of `model` on `binned`.
-fn performance(model: &Model, binned: &BinnedMatrix, outcome: &Outcome) -> (&'static str, f64) {
+/// Accuracy (classes) or root mean squared error (numbers) of `model` on `rows`.
+fn performance(model: &Model, rows: Rows<'_>, outcome: &Outcome) -> (&'static str, f64) {
     let mut p = Vec::new();
+    let n = rows.len();
     match outcome {
         Outcome::Classes { codes, .. } => {
-            let right = (0..binned.rows)
+            let right = (0..n)
                 .filter(|&r| {
-                    model.predict(binned, r, &mut p);
+                    model.predict(rows, r, &mut p);
                     argmax(&p) == codes[r] as usize
                 })
                 .count();
-            ("accuracy", right as f64 / binned.rows as f64)
+            ("accuracy", right as f64 / n as f64)
         }
         Outcome::Numbers(v) => {
-            let sse: f64 = (0..binned.rows)
+            let sse: f64 = (0..n)
                 .map(|r| {
-                    model.predict(binned, r, &mut p);
+                    model.predict(rows, r, &mut p);
                     (p[0] - v[r]).powi(2)
                 })
                 .sum();
-            ("rmse", (sse / binned.rows as f64).sqrt())
+            ("rmse", (sse / n as f64).sqrt())
         }
     }
 }
@@ -256,10 +265,15 @@ fn tree_json(tree: &Tree, binned: &BinnedMatrix) -> serde_json::Value {
                 return serde_json::json!({ "leaf": true, "weight": n.weight, "values": values });
             }
             let col = &binned.columns[n.feature as usize];
-            let left_bins: Vec<u8> = (0..=254u8).filter(|&b| n.left_bins.contains(b)).collect();
+            let left_bins: Vec<u8> = if n.numeric {
+                (0..=n.threshold_bin.min(254) as u8).collect()
+            } else {
+                (0..=254u8).filter(|&b| n.categories.contains(b)).collect()
+            };
+            let threshold = n.numeric.then_some(n.threshold);
             serde_json::json!({
-                "leaf": false, "predictor": col.name, "feature": n.feature, "threshold": n.threshold,
-                "left_bins": left_bins, "missing_left": missing_goes_left(n),
+                "leaf": false, "predictor": col.name, "feature": n.feature, "threshold": threshold,
+                "left_bins": left_bins, "missing_left": n.missing_left,
                 "left": n.left, "right": n.right, "weight": n.weight, "gain": n.gain, "values": values,
             })
         })
@@ -353,7 +367,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         ))
     };
     let fit_seconds = fit_start.elapsed().as_secs_f64();
-    let training = performance(&model, &binned, &design.outcome);
+    let training = performance(&model, Rows::Binned(&binned), &design.outcome);
     let scored = match &args.score {
         None => None,
         Some(path) => {
@@ -366,14 +380,13 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                     ..DesignSpec::default()
                 },
             )?;
-            let test_binned = bin_new_table(&binned.columns, &other)?;
+            let records = records_from_table(&binned.columns, &other)?;
             // Keep only the rows with an outcome, as the design did.
-            let rows = test_design.rows.clone();
-            let kept = test_binned.select_rows(&rows);
+            let kept = records.select_rows(&test_design.rows);
             let outcome = align_classes(&test_design.outcome, &design.outcome)?;
             Some((
-                performance(&model, &kept, &outcome),
-                staged_errors(&model, &kept, &outcome),
+                performance(&model, Rows::Records(&kept), &outcome),
+                staged_errors(&model, Rows::Records(&kept), &outcome),
             ))
         }
     };
@@ -389,8 +402,11 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             "training": { training.0: training.1 },
             "notices": design.notices,
         });
-        out["training_error_by_size"] =
-            serde_json::json!(staged_errors(&model, &binned, &design.outcome));
+        out["training_error_by_size"] = serde_json::json!(staged_errors(
+            &model,
+            Rows::Binned(&binned),
+            &design.outcome
+        ));
         if let Some(((name, value), curve)) = &scored {
             out["scored"] = serde_json::json!({ *name: value });
             out["scored_error_by_size"] = serde_json::json!(curve);
@@ -476,8 +492,8 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
 
 /// Error after 1, 2, ... members (trees or rounds), in one pass over the members: error
 /// rate for classes, mean squared error for numbers. `None` for a single tree.
-fn staged_errors(model: &Model, binned: &BinnedMatrix, outcome: &Outcome) -> Option<Vec<f64>> {
-    let n = binned.rows;
+fn staged_errors(model: &Model, rows: Rows<'_>, outcome: &Outcome) -> Option<Vec<f64>> {
+    let n = rows.len();
     let (members, outputs): (Vec<(&Tree, f64)>, usize) = match model {
         Model::Tree(_) => return None,
         Model::Forest(f) => (f.trees.iter().map(|t| (t, 1.0)).collect(), f.outputs),
@@ -492,7 +508,7 @@ fn staged_errors(model: &Model, binned: &BinnedMatrix, outcome: &Outcome) -> Opt
     for (t, (tree, alpha)) in members.iter().enumerate() {
         let mut err = 0.0;
         for r in 0..n {
-            let p = tree.predict_row(binned, r);
+            let p = tree.predict(rows, r);
             let s = &mut sums[r * outputs..(r + 1) * outputs];
             if voting {
                 s[argmax(p)] += alpha;

@@ -1,6 +1,12 @@
 //! Binning: each predictor's values mapped once to at most 255 bins (a `u8` per cell, stored
 //! column by column), with bin 255 reserved for missing values. Every tree learner works on
-//! these bins; the thresholds map new records to the same bins at prediction time.
+//! these bins. In *exact* mode every distinct value gets a bin of its own (`u16` cells, bin
+//! 65535 for missing), so the histogram search visits every split point a sort-based search
+//! would: this is the mode for small data and for comparisons with sort-based CART.
+//!
+//! New records (to score) are not binned: [`Records`] keeps numbers as they are, and trees
+//! compare them with their split thresholds; categories are mapped to their training bins
+//! by label.
 //!
 //! Numbers: when a predictor has at most `max_bins` distinct values, the thresholds are the
 //! midpoints between neighbouring distinct values (so every split a sort-based search could
@@ -14,8 +20,42 @@
 use crate::design::{Design, PredictorValues};
 use crate::error::{Error, ErrorKind, Result};
 
-/// The bin of missing values, in every column.
+/// The bin of missing values in the default (`u8`) cells.
 pub const MISSING_BIN: u8 = 255;
+
+/// Most distinct values per predictor in exact mode (`u16` cells, one value kept for missing).
+pub const MAX_EXACT_BINS: usize = 65_535;
+
+/// A cell type of a binned matrix: `u8` (histogram mode) or `u16` (exact mode).
+pub trait Bin: Copy + Eq + Ord + Send + Sync + 'static {
+    /// The bin of missing values.
+    const MISSING: Self;
+    fn index(self) -> usize;
+    /// The cell for a bin number (`None`: missing). The caller keeps `bin` in range.
+    fn from_bin(bin: Option<usize>) -> Self;
+}
+
+impl Bin for u8 {
+    const MISSING: u8 = MISSING_BIN;
+    #[inline(always)]
+    fn index(self) -> usize {
+        self as usize
+    }
+    fn from_bin(bin: Option<usize>) -> u8 {
+        bin.map_or(MISSING_BIN, |b| b as u8)
+    }
+}
+
+impl Bin for u16 {
+    const MISSING: u16 = u16::MAX;
+    #[inline(always)]
+    fn index(self) -> usize {
+        self as usize
+    }
+    fn from_bin(bin: Option<usize>) -> u16 {
+        bin.map_or(u16::MAX, |b| b as u16)
+    }
+}
 
 /// Binning settings.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -24,6 +64,9 @@ pub struct BinSettings {
     pub max_bins: usize,
     /// Category levels seen in fewer rows share one pooled bin.
     pub min_level_rows: usize,
+    /// Every distinct number its own bin (`u16` cells; `max_bins` then applies to
+    /// categories only).
+    pub exact: bool,
 }
 
 impl Default for BinSettings {
@@ -31,6 +74,7 @@ impl Default for BinSettings {
         BinSettings {
             max_bins: 255,
             min_level_rows: 1,
+            exact: false,
         }
     }
 }
@@ -54,33 +98,39 @@ pub enum BinRule {
 }
 
 impl BinRule {
-    /// The bin of a number (NaN = missing).
-    pub fn bin_of_number(&self, x: f64) -> u8 {
+    /// The bin of a number (`None`: missing, NaN).
+    pub fn bin_of_number(&self, x: f64) -> Option<usize> {
         match self {
-            _ if x.is_nan() => MISSING_BIN,
-            BinRule::Numbers { thresholds, .. } => thresholds.partition_point(|&t| t < x) as u8,
-            BinRule::Levels { .. } => MISSING_BIN,
+            _ if x.is_nan() => None,
+            BinRule::Numbers { thresholds, .. } => Some(thresholds.partition_point(|&t| t < x)),
+            BinRule::Levels { .. } => None,
         }
     }
 
-    /// The bin of a category code ([`crate::data::MISSING_CODE`] = missing).
-    pub fn bin_of_level(&self, code: u32) -> u8 {
+    /// The bin of a category code (`None` for [`crate::data::MISSING_CODE`]).
+    pub fn bin_of_level(&self, code: u32) -> Option<usize> {
         match self {
             BinRule::Levels {
                 bin_of_level,
                 pooled_bin,
             } => {
                 if code == crate::data::MISSING_CODE {
-                    MISSING_BIN
+                    None
                 } else {
-                    bin_of_level
-                        .get(code as usize)
-                        .copied()
-                        .unwrap_or(*pooled_bin)
+                    Some(
+                        bin_of_level
+                            .get(code as usize)
+                            .copied()
+                            .unwrap_or(*pooled_bin) as usize,
+                    )
                 }
             }
-            BinRule::Numbers { .. } => MISSING_BIN,
+            BinRule::Numbers { .. } => None,
         }
+    }
+
+    pub fn is_numeric(&self) -> bool {
+        matches!(self, BinRule::Numbers { .. })
     }
 }
 
@@ -97,32 +147,41 @@ pub struct BinnedColumn {
     pub levels: Vec<String>,
 }
 
+/// The cells of a binned matrix: `rows` per column, column after column.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Cells {
+    /// Histogram mode: at most 255 bins per predictor.
+    Narrow(Vec<u8>),
+    /// Exact mode: every distinct value a bin.
+    Wide(Vec<u16>),
+}
+
 /// All predictors binned: `rows` cells per column, column after column.
 #[derive(Debug, Clone, PartialEq)]
 pub struct BinnedMatrix {
     pub rows: usize,
     pub columns: Vec<BinnedColumn>,
-    cells: Vec<u8>,
+    pub cells: Cells,
 }
 
 impl BinnedMatrix {
-    /// A matrix holding only `rows` (in that order).
-    pub fn select_rows(&self, rows: &[usize]) -> BinnedMatrix {
-        let mut cells = Vec::with_capacity(rows.len() * self.columns.len());
-        for j in 0..self.columns.len() {
-            let col = self.column(j);
-            cells.extend(rows.iter().map(|&r| col[r]));
-        }
-        BinnedMatrix {
-            rows: rows.len(),
-            columns: self.columns.clone(),
-            cells,
+    /// The bin of row `row` in column `j` (`None`: missing).
+    #[inline]
+    pub fn bin(&self, j: usize, row: usize) -> Option<usize> {
+        let i = j * self.rows + row;
+        match &self.cells {
+            Cells::Narrow(c) => Some(c[i]).filter(|&b| b != u8::MISSING).map(usize::from),
+            Cells::Wide(c) => Some(c[i]).filter(|&b| b != u16::MISSING).map(usize::from),
         }
     }
 
-    /// The bins of column `j`, one per row.
-    pub fn column(&self, j: usize) -> &[u8] {
-        &self.cells[j * self.rows..(j + 1) * self.rows]
+    /// The bins of column `j` in the narrow (`u8`) form, for tests and tools; `None` in
+    /// exact mode.
+    pub fn narrow_column(&self, j: usize) -> Option<&[u8]> {
+        match &self.cells {
+            Cells::Narrow(c) => Some(&c[j * self.rows..(j + 1) * self.rows]),
+            Cells::Wide(_) => None,
+        }
     }
 }
 
@@ -163,17 +222,58 @@ pub fn bin_design(design: &Design, settings: BinSettings) -> Result<BinnedMatrix
             ),
         }));
     }
+    if settings.exact {
+        let mut cells = vec![0u16; design.rows.len() * design.predictors.len()];
+        let columns = bin_columns(design, settings, &mut cells)?;
+        return Ok(BinnedMatrix {
+            rows: design.rows.len(),
+            columns,
+            cells: Cells::Wide(cells),
+        });
+    }
+    let mut cells = vec![0u8; design.rows.len() * design.predictors.len()];
+    let columns = bin_columns(design, settings, &mut cells)?;
+    Ok(BinnedMatrix {
+        rows: design.rows.len(),
+        columns,
+        cells: Cells::Narrow(cells),
+    })
+}
+
+/// Bins every predictor into `cells` (`rows` per column) and returns the columns' rules.
+fn bin_columns<B: Bin>(
+    design: &Design,
+    settings: BinSettings,
+    cells: &mut [B],
+) -> Result<Vec<BinnedColumn>> {
     let rows = design.rows.len();
-    let mut cells = vec![0u8; rows * design.predictors.len()];
     let mut columns = Vec::with_capacity(design.predictors.len());
     for (j, p) in design.predictors.iter().enumerate() {
         let out = &mut cells[j * rows..(j + 1) * rows];
         let rule = match &p.values {
-            PredictorValues::Numbers(v) => BinRule::Numbers {
-                thresholds: number_thresholds(v, settings.max_bins),
-                low: Vec::new(),
-                high: Vec::new(),
-            },
+            PredictorValues::Numbers(v) => {
+                let limit = if settings.exact {
+                    MAX_EXACT_BINS - 1
+                } else {
+                    settings.max_bins
+                };
+                let thresholds = number_thresholds(v, limit);
+                if settings.exact && thresholds.len() + 1 >= limit {
+                    return Err(Error::new(ErrorKind::BadSetting {
+                        setting: "split_search".into(),
+                        reason: format!(
+                            "exact search gives each distinct value a bin, at most {} per predictor; '{}' has more. Use the histogram search (the default) for data this large",
+                            MAX_EXACT_BINS - 1,
+                            p.name
+                        ),
+                    }));
+                }
+                BinRule::Numbers {
+                    thresholds,
+                    low: Vec::new(),
+                    high: Vec::new(),
+                }
+            }
             PredictorValues::Levels { codes, levels } => level_rule(codes, levels.len(), settings),
         };
         let mut missing = 0;
@@ -181,7 +281,7 @@ pub fn bin_design(design: &Design, settings: BinSettings) -> Result<BinnedMatrix
         match &p.values {
             PredictorValues::Numbers(v) => {
                 for (o, &x) in out.iter_mut().zip(v) {
-                    *o = rule.bin_of_number(x);
+                    *o = B::from_bin(rule.bin_of_number(x));
                 }
                 if let BinRule::Numbers {
                     thresholds,
@@ -192,25 +292,25 @@ pub fn bin_design(design: &Design, settings: BinSettings) -> Result<BinnedMatrix
                     *low = vec![f64::INFINITY; thresholds.len() + 1];
                     *high = vec![f64::NEG_INFINITY; thresholds.len() + 1];
                     for (&b, &x) in out.iter().zip(v) {
-                        if b != MISSING_BIN {
-                            low[b as usize] = low[b as usize].min(x);
-                            high[b as usize] = high[b as usize].max(x);
+                        if b != B::MISSING {
+                            low[b.index()] = low[b.index()].min(x);
+                            high[b.index()] = high[b.index()].max(x);
                         }
                     }
                 }
             }
             PredictorValues::Levels { codes, .. } => {
                 for (o, &c) in out.iter_mut().zip(codes) {
-                    *o = rule.bin_of_level(c);
+                    *o = B::from_bin(rule.bin_of_level(c));
                 }
             }
         }
         let mut top = 0usize;
         for &b in out.iter() {
-            if b == MISSING_BIN {
+            if b == B::MISSING {
                 missing += 1;
             } else {
-                top = top.max(b as usize + 1);
+                top = top.max(b.index() + 1);
             }
         }
         let levels = match &p.values {
@@ -225,20 +325,51 @@ pub fn bin_design(design: &Design, settings: BinSettings) -> Result<BinnedMatrix
             levels,
         });
     }
-    Ok(BinnedMatrix {
-        rows,
-        columns,
-        cells,
-    })
+    Ok(columns)
 }
 
-/// Bins the rows of a new table (records to score, a test file) with the rules learnt on
-/// the training rows: columns matched by name, category values by label (labels never seen
-/// in training go to the pooled bin).
-pub fn bin_new_table(columns: &[BinnedColumn], table: &crate::data::Table) -> Result<BinnedMatrix> {
+/// Records to score with a fitted model, column by column in the model's predictor order:
+/// numbers as they are (NaN for missing), categories as their training bin (by label; labels
+/// never seen in training take the pooled bin), NaN for missing. Trees compare numbers with
+/// their thresholds, so a model scores new values without the training bins.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Records {
+    pub rows: usize,
+    values: Vec<f64>,
+}
+
+impl Records {
+    /// The value of row `row` in predictor `j`.
+    #[inline]
+    pub fn value(&self, j: usize, row: usize) -> f64 {
+        self.values[j * self.rows + row]
+    }
+
+    /// Records holding only `rows` (in that order).
+    pub fn select_rows(&self, rows: &[usize]) -> Records {
+        let columns = self.values.len() / self.rows.max(1);
+        let mut values = Vec::with_capacity(rows.len() * columns);
+        for j in 0..columns {
+            values.extend(rows.iter().map(|&r| self.value(j, r)));
+        }
+        Records {
+            rows: rows.len(),
+            values,
+        }
+    }
+
+    /// Records from column-major values (`rows` per predictor), for tests and tools.
+    pub fn from_columns(rows: usize, values: Vec<f64>) -> Records {
+        Records { rows, values }
+    }
+}
+
+/// Reads the predictors of `columns` (a fitted model's) from a table: columns matched by
+/// name, category values by label.
+pub fn records_from_table(columns: &[BinnedColumn], table: &crate::data::Table) -> Result<Records> {
     use crate::data::Values;
     let rows = table.rows;
-    let mut cells = vec![0u8; rows * columns.len()];
+    let mut values = vec![f64::NAN; rows * columns.len()];
     for (j, col) in columns.iter().enumerate() {
         let source = table.column(&col.name).ok_or_else(|| {
             Error::new(ErrorKind::NoSuchColumn {
@@ -246,24 +377,20 @@ pub fn bin_new_table(columns: &[BinnedColumn], table: &crate::data::Table) -> Re
                 available: table.columns.iter().map(|c| c.name.clone()).collect(),
             })
         })?;
-        let out = &mut cells[j * rows..(j + 1) * rows];
+        let out = &mut values[j * rows..(j + 1) * rows];
         match (&col.rule, &source.values) {
-            (BinRule::Numbers { .. }, Values::Numbers(v)) => {
-                for (o, &x) in out.iter_mut().zip(v) {
-                    *o = col.rule.bin_of_number(x);
-                }
-            }
+            (BinRule::Numbers { .. }, Values::Numbers(v)) => out.copy_from_slice(v),
             (BinRule::Levels { .. }, Values::Levels { codes, levels }) => {
                 let index: std::collections::HashMap<&str, u32> =
                     col.levels.iter().enumerate().map(|(i, l)| (l.as_str(), i as u32)).collect();
                 let map: Vec<u32> =
                     levels.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(u32::MAX - 1)).collect();
                 for (o, &c) in out.iter_mut().zip(codes) {
-                    *o = if c == crate::data::MISSING_CODE {
-                        MISSING_BIN
-                    } else {
-                        col.rule.bin_of_level(map[c as usize])
-                    };
+                    if c != crate::data::MISSING_CODE {
+                        if let Some(b) = col.rule.bin_of_level(map[c as usize]) {
+                            *o = b as f64;
+                        }
+                    }
                 }
             }
             _ => {
@@ -272,17 +399,13 @@ pub fn bin_new_table(columns: &[BinnedColumn], table: &crate::data::Table) -> Re
                         "column '{}' holds {} here but was {} when the model was fitted; set its kind to match",
                         col.name,
                         source.kind.label(),
-                        if matches!(col.rule, BinRule::Numbers { .. }) { "a number" } else { "a category" }
+                        if col.rule.is_numeric() { "a number" } else { "a category" }
                     ),
                 }))
             }
         }
     }
-    Ok(BinnedMatrix {
-        rows,
-        columns: columns.to_vec(),
-        cells,
-    })
+    Ok(Records { rows, values })
 }
 
 fn level_rule(codes: &[u32], levels: usize, settings: BinSettings) -> BinRule {
@@ -330,11 +453,11 @@ mod tests {
             low: vec![],
             high: vec![],
         };
-        let bins: Vec<u8> = [1.0, 1.5, 2.0, 3.0, f64::NAN]
+        let bins: Vec<Option<usize>> = [1.0, 1.5, 2.0, 3.0, f64::NAN]
             .iter()
             .map(|&x| rule.bin_of_number(x))
             .collect();
-        assert_eq!(bins, [0, 0, 1, 2, MISSING_BIN]);
+        assert_eq!(bins, [Some(0), Some(0), Some(1), Some(2), None]);
     }
 
     #[test]
@@ -350,7 +473,7 @@ mod tests {
         };
         let mut counts = [0usize; 4];
         for &x in &values {
-            counts[rule.bin_of_number(x) as usize] += 1;
+            counts[rule.bin_of_number(x).unwrap()] += 1;
         }
         assert_eq!(counts, [250, 250, 250, 250]);
     }
@@ -362,25 +485,25 @@ mod tests {
         let m = bin_design(
             &design,
             BinSettings {
-                max_bins: 255,
                 min_level_rows: 2,
+                ..BinSettings::default()
             },
         )
         .unwrap();
-        assert_eq!(m.column(0), [0, MISSING_BIN, 2, 1, 2]);
+        assert_eq!(m.narrow_column(0).unwrap(), [0, MISSING_BIN, 2, 1, 2]);
         assert_eq!((m.columns[0].bins, m.columns[0].missing), (3, 1));
         // Levels in file order: Cedar 0, Birch 1, Rare 2. Rare (1 row) is pooled.
-        assert_eq!(m.column(1), [0, 1, 0, 2, 1]);
+        assert_eq!(m.narrow_column(1).unwrap(), [0, 1, 0, 2, 1]);
         assert_eq!(
             m.columns[1].rule.bin_of_level(99),
-            2,
+            Some(2),
             "unseen levels go to the pool"
         );
         assert!(bin_design(
             &design,
             BinSettings {
                 max_bins: 300,
-                min_level_rows: 1
+                ..BinSettings::default()
             }
         )
         .is_err());

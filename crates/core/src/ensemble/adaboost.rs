@@ -10,7 +10,7 @@ use crate::ensemble::forest::argmax;
 use crate::progress::{Flow, Progress};
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::{grow, GrowSettings};
-use crate::tree::Tree;
+use crate::tree::{Rows, Tree};
 
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct BoostSettings {
@@ -57,11 +57,12 @@ pub struct AdaBoost {
 }
 
 impl AdaBoost {
-    /// Class scores of row `row`: Σ α over the rounds voting for each class.
-    pub fn scores(&self, binned: &BinnedMatrix, row: usize, rounds: usize) -> Vec<f64> {
+    /// Class scores of row `row` after `rounds` rounds: Σ α over the rounds voting for each
+    /// class.
+    pub fn scores(&self, rows: Rows<'_>, row: usize, rounds: usize) -> Vec<f64> {
         let mut s = vec![0.0; self.classes];
         for (t, a) in self.trees.iter().zip(&self.alphas).take(rounds) {
-            s[argmax(t.predict_row(binned, row))] += a;
+            s[argmax(t.predict(rows, row))] += a;
         }
         s
     }
@@ -178,7 +179,7 @@ mod tests {
         for (t, e) in model.errors.iter().enumerate() {
             bound *= 2.0 * (e * (1.0 - e)).sqrt();
             let wrong = (0..m.rows)
-                .filter(|&r| argmax(&model.scores(&m, r, t + 1)) != codes[r] as usize)
+                .filter(|&r| argmax(&model.scores(Rows::Binned(&m), r, t + 1)) != codes[r] as usize)
                 .count();
             let err = wrong as f64 / m.rows as f64;
             assert!(

@@ -12,7 +12,7 @@ use crate::progress::{Flow, Progress};
 use crate::random::{below, stream, Purpose};
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::{grow, GrowSettings};
-use crate::tree::Tree;
+use crate::tree::{Rows, Tree};
 
 /// Settings of a bagged ensemble.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -166,11 +166,11 @@ pub struct Forest {
 }
 
 impl Forest {
-    /// The ensemble's prediction for row `row` of `binned`: mean of the trees' outputs.
-    pub fn predict_row(&self, binned: &BinnedMatrix, row: usize, out: &mut [f64]) {
+    /// The ensemble's prediction for row `row`: mean of the trees' outputs.
+    pub fn predict(&self, rows: Rows<'_>, row: usize, out: &mut [f64]) {
         out.iter_mut().for_each(|o| *o = 0.0);
         for t in &self.trees {
-            for (o, v) in out.iter_mut().zip(t.predict_row(binned, row)) {
+            for (o, v) in out.iter_mut().zip(t.predict(rows, row)) {
                 *o += v;
             }
         }

@@ -11,7 +11,7 @@
 
 use super::criterion::Criterion;
 use super::{BinSet, Node, Tree};
-use crate::binning::{BinRule, BinnedMatrix, MISSING_BIN};
+use crate::binning::{Bin, BinRule, BinnedMatrix, Cells};
 
 /// Limits and choices for one tree.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -25,6 +25,10 @@ pub struct GrowSettings {
     pub min_rows_split: usize,
     /// Smallest weighted impurity decrease that makes a split worth keeping.
     pub min_gain: f64,
+    /// Most leaves. `Some` grows best-first: the leaf whose split gains most is split next
+    /// (Shi 2007; Friedman, Hastie & Tibshirani 2000), until no leaf can be split or the
+    /// limit is reached. `None` grows depth-first, left before right.
+    pub max_leaves: Option<usize>,
 }
 
 impl Default for GrowSettings {
@@ -35,6 +39,7 @@ impl Default for GrowSettings {
             min_rows_leaf: 1,
             min_rows_split: 2,
             min_gain: 0.0,
+            max_leaves: None,
         }
     }
 }
@@ -43,55 +48,169 @@ impl Default for GrowSettings {
 /// list of all predictors and keeps the ones to try, in the order to try them.
 pub type PredictorChooser<'a> = &'a mut dyn FnMut(&mut Vec<usize>);
 
-struct Best {
+/// The best split found for a node.
+#[derive(Debug, Clone)]
+struct Split {
     gain: f64,
     feature: usize,
-    left_bins: BinSet,
-    threshold_bin: Option<u8>,
-    /// The first non-empty bin on the right of a number split.
-    next_bin: Option<u8>,
+    numeric: bool,
+    /// Numbers: the highest bin sent left.
+    threshold_bin: usize,
+    /// Numbers: the first bin on the right holding rows of the node.
+    next_bin: Option<usize>,
+    /// Categories: the bins sent left.
+    categories: BinSet,
+    missing_left: bool,
+}
+
+/// A leaf that may be split: its node, its rows `work[start..end]`, depth and best split.
+struct Candidate {
+    id: usize,
+    start: usize,
+    end: usize,
+    depth: usize,
+    split: Split,
 }
 
 /// Grows a tree on `rows` of `binned`. `stats` holds `width` numbers per row of `binned`.
-pub fn grow(
-    binned: &BinnedMatrix,
-    stats: &[f64],
+pub fn grow<'a>(
+    binned: &'a BinnedMatrix,
+    stats: &'a [f64],
     width: usize,
     rows: &[u32],
-    settings: &GrowSettings,
-    mut choose: Option<PredictorChooser<'_>>,
+    settings: &'a GrowSettings,
+    choose: Option<PredictorChooser<'_>>,
 ) -> Tree {
-    let criterion = settings.criterion;
-    let outputs = match criterion {
-        Criterion::SquaredError => 1,
-        _ => width,
-    };
-    let mut work: Vec<u32> = rows.to_vec();
-    let mut scratch: Vec<u32> = Vec::with_capacity(rows.len());
-    let mut tree = Tree {
-        nodes: Vec::new(),
-        values: Vec::new(),
-        outputs,
-    };
-    // (node index, start, end, depth)
-    let mut stack: Vec<(usize, usize, usize, usize)> = vec![(0, 0, work.len(), 0)];
-    tree.nodes.push(empty_node());
-    // Kept zeroed between uses: only the bins a node touches are filled and cleared again,
-    // so small nodes deep in a tree cost in proportion to their rows, not to 256 bins.
-    let mut hist = vec![0.0f64; 256 * (width + 1)];
-    let mut touched: Vec<u8> = Vec::with_capacity(256);
-    // Reused by every node and predictor: the bins in scan order, and the scan's sums.
-    let mut order: Vec<u8> = Vec::with_capacity(256);
-    let mut sums = ScanSums::new(width);
-    let mut totals = vec![0.0f64; width];
-    let mut candidates: Vec<usize> = Vec::new();
-    while let Some((id, start, end, depth)) = stack.pop() {
-        let node_rows = &work[start..end];
-        totals.iter_mut().for_each(|t| *t = 0.0);
+    match &binned.cells {
+        Cells::Narrow(cells) => {
+            Grower::new(binned, cells, stats, width, rows, settings, choose).run()
+        }
+        Cells::Wide(cells) => {
+            Grower::new(binned, cells, stats, width, rows, settings, choose).run()
+        }
+    }
+}
+
+/// The state of growing one tree; buffers are allocated once per tree.
+struct Grower<'a, 'c, B: Bin> {
+    binned: &'a BinnedMatrix,
+    cells: &'a [B],
+    stats: &'a [f64],
+    width: usize,
+    settings: &'a GrowSettings,
+    choose: Option<PredictorChooser<'c>>,
+    tree: Tree,
+    /// The rows of every node: a node owns a contiguous range, left rows before right.
+    work: Vec<u32>,
+    scratch: Vec<u32>,
+    /// Statistics and a row count per bin, kept zeroed between uses: only the bins a node
+    /// touches are filled and cleared again, so small nodes deep in a tree cost in proportion
+    /// to their rows, not to the number of bins.
+    hist: Vec<f64>,
+    touched: Vec<B>,
+    /// The bins in scan order, and the scan's running sums.
+    order: Vec<B>,
+    sums: ScanSums,
+    totals: Vec<f64>,
+    candidates: Vec<usize>,
+}
+
+impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
+    fn new(
+        binned: &'a BinnedMatrix,
+        cells: &'a [B],
+        stats: &'a [f64],
+        width: usize,
+        rows: &[u32],
+        settings: &'a GrowSettings,
+        choose: Option<PredictorChooser<'c>>,
+    ) -> Self {
+        let outputs = match settings.criterion {
+            Criterion::SquaredError => 1,
+            _ => width,
+        };
+        Grower {
+            binned,
+            cells,
+            stats,
+            width,
+            settings,
+            choose,
+            tree: Tree {
+                nodes: vec![Node::leaf()],
+                values: Vec::new(),
+                outputs,
+            },
+            work: rows.to_vec(),
+            scratch: Vec::with_capacity(rows.len()),
+            hist: vec![0.0; (B::MISSING.index() + 1) * (width + 1)],
+            touched: Vec::with_capacity(256),
+            order: Vec::with_capacity(256),
+            sums: ScanSums::new(width),
+            totals: vec![0.0; width],
+            candidates: Vec::new(),
+        }
+    }
+
+    fn column(&self, j: usize) -> &'a [B] {
+        let n = self.binned.rows;
+        &self.cells[j * n..(j + 1) * n]
+    }
+
+    fn run(mut self) -> Tree {
+        let mut frontier: Vec<Candidate> = Vec::new();
+        let n = self.work.len();
+        if let Some(c) = self.evaluate(0, 0, n, 0) {
+            frontier.push(c);
+        }
+        let mut leaves = 1usize;
+        let best_first = self.settings.max_leaves.is_some();
+        let max_leaves = self.settings.max_leaves.unwrap_or(usize::MAX);
+        while leaves < max_leaves {
+            // Depth-first: the newest candidate (left children are pushed last). Best-first:
+            // the largest gain, the earliest created on ties.
+            let pick = if best_first {
+                (0..frontier.len()).fold(None, |b: Option<usize>, i| match b {
+                    Some(b) if frontier[b].split.gain >= frontier[i].split.gain => Some(b),
+                    _ => Some(i),
+                })
+            } else {
+                frontier.len().checked_sub(1)
+            };
+            let Some(pick) = pick else { break };
+            let c = if best_first {
+                frontier.remove(pick)
+            } else {
+                frontier.pop().expect("picked")
+            };
+            let k = self.apply(&c);
+            leaves += 1;
+            let (left, right) = (self.tree.nodes.len(), self.tree.nodes.len() + 1);
+            self.tree.nodes.push(Node::leaf());
+            self.tree.nodes.push(Node::leaf());
+            self.tree.nodes[c.id].left = left as u32;
+            self.tree.nodes[c.id].right = right as u32;
+            let l = self.evaluate(left, c.start, k, c.depth + 1);
+            let r = self.evaluate(right, k, c.end, c.depth + 1);
+            // Right pushed first so depth-first growth takes the left subtree first.
+            frontier.extend(r);
+            frontier.extend(l);
+        }
+        self.tree
+    }
+
+    /// Fills node `id`'s values from its rows `work[start..end]` and finds its best split
+    /// (`None`: the node stays a leaf).
+    fn evaluate(&mut self, id: usize, start: usize, end: usize, depth: usize) -> Option<Candidate> {
+        let settings = self.settings;
+        let criterion = settings.criterion;
+        let width = self.width;
+        let stats = self.stats;
+        self.totals.iter_mut().for_each(|t| *t = 0.0);
         let (mut y_min, mut y_max) = (f64::INFINITY, f64::NEG_INFINITY);
-        for &r in node_rows {
+        for &r in &self.work[start..end] {
             let s = &stats[r as usize * width..(r as usize + 1) * width];
-            for (t, v) in totals.iter_mut().zip(s) {
+            for (t, v) in self.totals.iter_mut().zip(s) {
                 *t += v;
             }
             if criterion == Criterion::SquaredError && s[0] > 0.0 {
@@ -100,131 +219,154 @@ pub fn grow(
                 y_max = y_max.max(y);
             }
         }
-        tree.nodes[id].value = tree.values.len() as u32;
-        tree.nodes[id].weight = criterion.weight(&totals);
-        criterion.values(&totals, &mut tree.values);
-        let n = node_rows.len();
-        let parent_cost = criterion.cost(&totals);
+        let weight = criterion.weight(&self.totals);
+        self.tree.nodes[id].value = self.tree.values.len() as u32;
+        self.tree.nodes[id].weight = weight;
+        criterion.values(&self.totals, &mut self.tree.values);
+        let n = end - start;
+        let parent_cost = criterion.cost(&self.totals);
         let pure = match criterion {
             Criterion::SquaredError => y_max <= y_min,
-            _ => parent_cost <= 1e-12 * tree.nodes[id].weight.max(1.0),
+            _ => parent_cost <= 1e-12 * weight.max(1.0),
         };
         if pure
             || n < settings.min_rows_split
             || n < 2 * settings.min_rows_leaf.max(1)
             || settings.max_depth.is_some_and(|d| depth >= d)
         {
-            continue;
+            return None;
         }
+        let mut candidates = std::mem::take(&mut self.candidates);
         candidates.clear();
-        candidates.extend(0..binned.columns.len());
-        if let Some(choose) = choose.as_mut() {
+        candidates.extend(0..self.binned.columns.len());
+        if let Some(choose) = self.choose.as_mut() {
             choose(&mut candidates);
         }
-        let mut best: Option<Best> = None;
+        let mut best: Option<Split> = None;
+        let stride = width + 1;
         for &j in &candidates {
+            let column = self.column(j);
             fill_histogram(
-                &mut hist,
-                &mut touched,
-                binned.column(j),
-                node_rows,
+                &mut self.hist,
+                &mut self.touched,
+                column,
+                &self.work[start..end],
                 stats,
                 width,
             );
-            let col = &binned.columns[j];
-            order.clear();
-            order.extend(touched.iter().copied().filter(|&b| b != MISSING_BIN));
-            match col.rule {
-                BinRule::Numbers { .. } => order.sort_unstable(),
-                BinRule::Levels { .. } => sort_levels(&hist, &mut order, width, criterion),
+            let numeric = self.binned.columns[j].rule.is_numeric();
+            self.order.clear();
+            self.order
+                .extend(self.touched.iter().copied().filter(|&b| b != B::MISSING));
+            if numeric {
+                self.order.sort_unstable();
+            } else {
+                sort_levels(&self.hist, &mut self.order, width, criterion);
             }
             scan(
-                &hist,
-                &order,
-                &mut sums,
+                &self.hist,
+                &self.order,
+                &mut self.sums,
                 j,
-                matches!(col.rule, BinRule::Numbers { .. }),
+                numeric,
                 parent_cost,
                 settings,
                 &mut best,
             );
-            let stride = width + 1;
-            for &b in &touched {
-                hist[b as usize * stride..(b as usize + 1) * stride]
+            for &b in &self.touched {
+                self.hist[b.index() * stride..(b.index() + 1) * stride]
                     .iter_mut()
                     .for_each(|h| *h = 0.0);
             }
         }
+        self.candidates = candidates;
         // Like CART as usually implemented, a split that gains nothing is still made when no
         // better one exists (so XOR-like patterns can be found a level down); `min_gain`
         // raises the bar.
-        let Some(best) = best else { continue };
-        if best.gain < settings.min_gain - 1e-12 * tree.nodes[id].weight.max(1.0) {
-            continue;
+        let split = best?;
+        if split.gain < settings.min_gain - 1e-12 * weight.max(1.0) {
+            return None;
         }
-        // Partition the node's rows: left first, both sides keeping their order.
-        let column = binned.column(best.feature);
-        scratch.clear();
-        let mut k = start;
-        for i in start..end {
-            let r = work[i];
-            if best.left_bins.contains(column[r as usize]) {
-                work[k] = r;
+        Some(Candidate {
+            id,
+            start,
+            end,
+            depth,
+            split,
+        })
+    }
+
+    /// Makes candidate `c`'s split: writes the node's split fields and partitions its rows,
+    /// left first, both sides keeping their order. Returns where the right rows start.
+    fn apply(&mut self, c: &Candidate) -> usize {
+        let split = &c.split;
+        let column = self.column(split.feature);
+        let goes_left = |b: B| -> bool {
+            if b == B::MISSING {
+                split.missing_left
+            } else if split.numeric {
+                b.index() <= split.threshold_bin
+            } else {
+                b.index() < 256 && split.categories.contains(b.index() as u8)
+            }
+        };
+        self.scratch.clear();
+        let mut k = c.start;
+        for i in c.start..c.end {
+            let r = self.work[i];
+            if goes_left(column[r as usize]) {
+                self.work[k] = r;
                 k += 1;
             } else {
-                scratch.push(r);
+                self.scratch.push(r);
             }
         }
-        work[k..end].copy_from_slice(&scratch);
-        let (left, right) = (tree.nodes.len(), tree.nodes.len() + 1);
-        tree.nodes.push(empty_node());
-        tree.nodes.push(empty_node());
-        let node = &mut tree.nodes[id];
-        node.feature = best.feature as u32;
-        node.left_bins = best.left_bins;
-        node.threshold_bin = best.threshold_bin;
-        node.threshold = match (
-            &binned.columns[best.feature].rule,
-            best.threshold_bin,
-            best.next_bin,
-        ) {
-            (BinRule::Numbers { low, high, .. }, Some(l), Some(r)) => {
-                let (a, b) = (high[l as usize], low[r as usize]);
-                let t = a / 2.0 + b / 2.0;
-                Some(if t == b || t.is_infinite() { a } else { t })
-            }
-            _ => None,
-        };
-        node.left = left as u32;
-        node.right = right as u32;
-        node.gain = best.gain;
-        // Right pushed first so the left subtree is grown first (depth-first, left to right).
-        stack.push((right, k, end, depth + 1));
-        stack.push((left, start, k, depth + 1));
-    }
-    tree
-}
-
-fn empty_node() -> Node {
-    Node {
-        feature: 0,
-        left_bins: BinSet::default(),
-        threshold_bin: None,
-        threshold: None,
-        left: 0,
-        right: 0,
-        weight: 0.0,
-        gain: 0.0,
-        value: 0,
+        self.work[k..c.end].copy_from_slice(&self.scratch);
+        let node = &mut self.tree.nodes[c.id];
+        node.feature = split.feature as u32;
+        node.numeric = split.numeric;
+        node.missing_left = split.missing_left;
+        node.gain = split.gain;
+        node.categories = split.categories;
+        if split.numeric {
+            let BinRule::Numbers { low, high, .. } = &self.binned.columns[split.feature].rule
+            else {
+                unreachable!("a number split is on a number column")
+            };
+            // The threshold on values, and the highest bin whose training values all lie at
+            // or below it (bins the node's rows left empty count too), so training rows
+            // outside the node (out-of-bag rows) take the side their values say.
+            let (threshold, last) = match split.next_bin {
+                Some(r) => {
+                    let (a, b) = (high[split.threshold_bin], low[r]);
+                    let t = a / 2.0 + b / 2.0;
+                    let t = if t == b || t.is_infinite() { a } else { t };
+                    let mut last = split.threshold_bin;
+                    while last + 1 < r && high[last + 1] <= t {
+                        last += 1;
+                    }
+                    (t, last)
+                }
+                // No present value on the right (only missing values go there): every
+                // number goes left.
+                None => (
+                    f64::INFINITY,
+                    high.len().saturating_sub(1).max(split.threshold_bin),
+                ),
+            };
+            node.threshold = threshold;
+            node.threshold_bin = last as u16;
+        }
+        k
     }
 }
 
 /// Sums statistics (and a row count) per bin of one predictor over the node's rows.
 /// `hist` must be all zero on entry; `touched` receives the bins filled.
-fn fill_histogram(
+fn fill_histogram<B: Bin>(
     hist: &mut [f64],
-    touched: &mut Vec<u8>,
-    column: &[u8],
+    touched: &mut Vec<B>,
+    column: &[B],
     rows: &[u32],
     stats: &[f64],
     width: usize,
@@ -232,10 +374,10 @@ fn fill_histogram(
     touched.clear();
     let stride = width + 1;
     for &r in rows {
-        let b = column[r as usize] as usize;
-        let h = &mut hist[b * stride..(b + 1) * stride];
+        let b = column[r as usize];
+        let h = &mut hist[b.index() * stride..(b.index() + 1) * stride];
         if h[width] == 0.0 {
-            touched.push(b as u8);
+            touched.push(b);
         }
         let s = &stats[r as usize * width..(r as usize + 1) * width];
         for (a, v) in h.iter_mut().zip(s) {
@@ -247,9 +389,9 @@ fn fill_histogram(
 
 /// Sorts category bins into the order their splits are scanned: by mean response where it
 /// is defined (two classes, regression), otherwise by bin.
-fn sort_levels(hist: &[f64], bins: &mut [u8], width: usize, criterion: Criterion) {
+fn sort_levels<B: Bin>(hist: &[f64], bins: &mut [B], width: usize, criterion: Criterion) {
     let stride = width + 1;
-    let key = |b: u8| criterion.order_key(&hist[b as usize * stride..b as usize * stride + width]);
+    let key = |b: B| criterion.order_key(&hist[b.index() * stride..b.index() * stride + width]);
     bins.sort_by(|&a, &b| match (key(a), key(b)) {
         (Some(x), Some(y)) => x.total_cmp(&y).then(a.cmp(&b)),
         _ => a.cmp(&b),
@@ -280,20 +422,21 @@ impl ScanSums {
 
 /// Scans the split points of one predictor, bins in `order`, updating `best`.
 #[allow(clippy::too_many_arguments)]
-fn scan(
+fn scan<B: Bin>(
     hist: &[f64],
-    order: &[u8],
+    order: &[B],
     sums: &mut ScanSums,
     feature: usize,
     numeric: bool,
     parent_cost: f64,
     settings: &GrowSettings,
-    best: &mut Option<Best>,
+    best: &mut Option<Split>,
 ) {
     let stride = sums.present.len();
     let width = stride - 1;
     let criterion = settings.criterion;
-    let missing = &hist[MISSING_BIN as usize * stride..MISSING_BIN as usize * stride + stride];
+    let m = B::MISSING.index();
+    let missing = &hist[m * stride..(m + 1) * stride];
     let ScanSums {
         present,
         left,
@@ -306,7 +449,7 @@ fn scan(
     for &b in order {
         for (p, h) in present
             .iter_mut()
-            .zip(&hist[b as usize * stride..(b as usize + 1) * stride])
+            .zip(&hist[b.index() * stride..(b.index() + 1) * stride])
         {
             *p += h;
         }
@@ -315,7 +458,7 @@ fn scan(
     for (i, &b) in order.iter().enumerate() {
         for (l, h) in left
             .iter_mut()
-            .zip(&hist[b as usize * stride..(b as usize + 1) * stride])
+            .zip(&hist[b.index() * stride..(b.index() + 1) * stride])
         {
             *l += h;
         }
@@ -334,30 +477,20 @@ fn scan(
             let gain =
                 parent_cost - criterion.cost(&l_miss[..width]) - criterion.cost(&r_miss[..width]);
             if best.as_ref().is_none_or(|b| gain > b.gain) {
-                // Numbers: every bin up to this one, including bins this node has no rows in,
-                // so new values fall on the side their size says. Categories: the bins scanned.
-                let mut left_bins = if numeric {
-                    BinSet::up_to(b)
-                } else {
-                    BinSet::default()
-                };
+                let mut categories = BinSet::default();
                 if !numeric {
                     for &lb in &order[..=i] {
-                        left_bins.insert(lb);
+                        categories.insert(lb.index() as u8);
                     }
                 }
-                if missing_left {
-                    left_bins.insert(MISSING_BIN);
-                }
-                *best = Some(Best {
+                *best = Some(Split {
                     gain,
                     feature,
-                    left_bins,
-                    threshold_bin: numeric.then_some(b),
-                    next_bin: order[i + 1..]
-                        .iter()
-                        .copied()
-                        .find(|&nb| hist[nb as usize * stride + width] > 0.0),
+                    numeric,
+                    threshold_bin: b.index(),
+                    next_bin: order[i + 1..].first().map(|nb| nb.index()),
+                    categories,
+                    missing_left,
                 });
             }
             if missing[width] == 0.0 {
@@ -466,11 +599,8 @@ mod tests {
         let rows: Vec<u32> = (0..40).collect();
         let tree = grow(&m, &stats, 2, &rows, &settings, None);
         let root = &tree.nodes[0];
-        assert_eq!(root.threshold, Some(19.0), "split midway between 18 and 20");
-        assert!(
-            !super::super::missing_goes_left(root),
-            "missing rows look like the high side"
-        );
+        assert_eq!(root.threshold, 19.0, "split midway between 18 and 20");
+        assert!(!root.missing_left, "missing rows look like the high side");
         assert_eq!(
             tree.values[tree.nodes[root.left as usize].value as usize],
             1.0
@@ -499,12 +629,138 @@ mod tests {
         let tree = grow(&m, &stats, k, &rows, &settings, None);
         assert_eq!(tree.leaves(), 2);
         let root = &tree.nodes[0];
-        let left: Vec<u8> = (0..4).filter(|&b| root.left_bins.contains(b)).collect();
+        let left: Vec<u8> = (0..4).filter(|&b| root.categories.contains(b)).collect();
         assert!(left == [1, 3] || left == [0, 2], "left bins {left:?}");
         assert!(
             (root.gain - 20.0).abs() < 1e-9,
             "Gini cost 40·0.5 = 20 falls to 0: {}",
             root.gain
         );
+    }
+
+    /// Seeded data with many distinct values: y = 1 when a + b > 1 (with 10% flipped).
+    fn many_values(rows: usize) -> String {
+        let mut state = 0x9E37_79B9_7F4A_7C15u64;
+        let mut next = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            (state % 1_000_000) as f64 / 1_000_000.0
+        };
+        let mut text = String::from("y,a,b,c\n");
+        for _ in 0..rows {
+            let (a, b, c) = (next(), next(), next());
+            let y = ((a + b > 1.0) != (next() < 0.1)) as u8;
+            let c = if c < 0.05 {
+                "NA".to_string()
+            } else {
+                c.to_string()
+            };
+            text += &format!("{y},{a},{b},{c}\n");
+        }
+        text
+    }
+
+    #[test]
+    fn best_first_growth_stops_at_the_leaf_limit_and_keeps_the_best_splits() {
+        let design = design_from_csv(&many_values(2000), "y", &["a", "b", "c"]);
+        let (stats, k) = design.row_statistics(false);
+        let m = bin_design(&design, BinSettings::default()).unwrap();
+        let rows: Vec<u32> = (0..m.rows as u32).collect();
+        let full = grow(&m, &stats, k, &rows, &GrowSettings::default(), None);
+        for limit in [2, 3, 8, 31] {
+            let settings = GrowSettings {
+                max_leaves: Some(limit),
+                ..GrowSettings::default()
+            };
+            let t = grow(&m, &stats, k, &rows, &settings, None);
+            assert_eq!(t.leaves(), limit);
+            // The root split is the same whatever the growth order.
+            assert_eq!(t.nodes[0].threshold, full.nodes[0].threshold);
+            // Best-first: no leaf left unsplit would have gained more than a split made.
+            let made = t.nodes.iter().filter(|n| !n.is_leaf()).map(|n| n.gain);
+            let least = made.fold(f64::INFINITY, f64::min);
+            assert!(least > 0.0, "limit {limit}");
+        }
+        let unlimited = GrowSettings {
+            max_leaves: Some(1 << 20),
+            ..GrowSettings::default()
+        };
+        assert_eq!(
+            grow(&m, &stats, k, &rows, &unlimited, None).leaves(),
+            full.leaves(),
+            "without a binding limit best-first grows the same number of leaves"
+        );
+    }
+
+    #[test]
+    fn exact_search_visits_every_distinct_value() {
+        // 2000 rows, nearly all values distinct: the histogram search has 255 bins, the exact
+        // search one per value. A fully grown exact tree fits every training row.
+        let design = design_from_csv(&many_values(2000), "y", &["a", "b", "c"]);
+        let (stats, k) = design.row_statistics(false);
+        let exact = bin_design(
+            &design,
+            BinSettings {
+                exact: true,
+                ..BinSettings::default()
+            },
+        )
+        .unwrap();
+        assert!(exact.columns[0].bins > 1500, "{}", exact.columns[0].bins);
+        let rows: Vec<u32> = (0..exact.rows as u32).collect();
+        let tree = grow(&exact, &stats, k, &rows, &GrowSettings::default(), None);
+        let Outcome::Classes { codes, .. } = &design.outcome else {
+            unreachable!()
+        };
+        let wrong = (0..exact.rows)
+            .filter(|&r| tree.predict_row(&exact, r)[codes[r] as usize] != 1.0)
+            .count();
+        assert_eq!(wrong, 0);
+    }
+
+    #[test]
+    fn records_and_training_bins_take_the_same_path() {
+        // A tree fitted on half the rows must send every row (seen or not) the same way
+        // whether it is read from the training bins or from its raw values.
+        use crate::binning::Records;
+        use crate::design::PredictorValues;
+        use crate::tree::Rows;
+        let design = design_from_csv(&many_values(1500), "y", &["a", "b", "c"]);
+        let (stats, k) = design.row_statistics(false);
+        let mut values = Vec::new();
+        for p in &design.predictors {
+            let PredictorValues::Numbers(v) = &p.values else {
+                unreachable!()
+            };
+            values.extend_from_slice(v);
+        }
+        let records = Records::from_columns(design.rows.len(), values);
+        for exact in [true, false] {
+            let m = bin_design(
+                &design,
+                BinSettings {
+                    exact,
+                    ..BinSettings::default()
+                },
+            )
+            .unwrap();
+            let half: Vec<u32> = (0..m.rows as u32).step_by(2).collect();
+            let tree = grow(&m, &stats, k, &half, &GrowSettings::default(), None);
+            let differ = (0..m.rows)
+                .filter(|&r| {
+                    tree.leaf(Rows::Binned(&m), r) != tree.leaf(Rows::Records(&records), r)
+                })
+                .count();
+            if exact {
+                assert_eq!(differ, 0);
+            } else {
+                // Quantile bins hold several values; a threshold may fall inside a bin the
+                // node's rows left empty, so a few unseen rows may differ (never seen rows).
+                assert!(half.iter().all(|&r| tree.leaf(Rows::Binned(&m), r as usize)
+                    == tree.leaf(Rows::Records(&records), r as usize)));
+                assert!(differ < m.rows / 20, "{differ}");
+            }
+        }
     }
 }

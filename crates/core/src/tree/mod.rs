@@ -4,14 +4,14 @@
 //!   statistics;
 //! - [`grower`]: grows a tree from a [`crate::binning::BinnedMatrix`], per-row statistics and
 //!   settings, by histogram split search; it never knows which ensemble asks (invariant 3);
-//! - [`Tree`] (here): the flat, prediction-time form: an array of nodes, each split sending a
-//!   set of bins left (numbers: the bins up to a threshold; categories: any set), with the
-//!   missing-value bin in that set or not.
+//! - [`Tree`] (here): the flat, prediction-time form: an array of nodes, each split a number
+//!   threshold (training bins up to `threshold_bin`; new values up to `threshold`) or a set of
+//!   category bins, with the side missing values take.
 
 pub mod criterion;
 pub mod grower;
 
-use crate::binning::{BinnedMatrix, MISSING_BIN};
+use crate::binning::{BinnedMatrix, Records};
 
 /// The bins that go to the left child: 256 bits, bin `b` is bit `b`.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -38,14 +38,20 @@ impl BinSet {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Node {
     pub feature: u32,
-    /// Bins sent left (the missing bin included when missing values go left).
-    pub left_bins: BinSet,
-    /// For number splits: the highest bin sent left.
-    pub threshold_bin: Option<u8>,
-    /// For number splits: values up to this go left. Midway between the largest training
-    /// value on the left and the smallest on the right, computed as `a/2 + b/2` (the rule of
+    /// A split on a number (`threshold`) or on categories (`categories`).
+    pub numeric: bool,
+    /// Number splits: the highest training bin sent left.
+    pub threshold_bin: u16,
+    /// Number splits: values up to this go left. Midway between the largest training value
+    /// on the left and the smallest on the right, computed as `a/2 + b/2` (the rule of
     /// scikit-learn's sort-based splitter, so exact-mode trees agree to the last digit).
-    pub threshold: Option<f64>,
+    /// 0 (unused) for category splits and leaves.
+    pub threshold: f64,
+    /// Category splits: the bins sent left.
+    pub categories: BinSet,
+    /// Where missing values go (chosen in training by gain; also taken by values the
+    /// training rows of this node never had).
+    pub missing_left: bool,
     pub left: u32,
     pub right: u32,
     /// Rows (weighted) that reached the node in training.
@@ -60,6 +66,75 @@ impl Node {
     pub fn is_leaf(&self) -> bool {
         self.left == 0
     }
+
+    /// Whether a row with this training bin (`None`: missing) goes left.
+    #[inline]
+    pub fn bin_goes_left(&self, bin: Option<usize>) -> bool {
+        match bin {
+            None => self.missing_left,
+            Some(b) if self.numeric => b <= self.threshold_bin as usize,
+            Some(b) => b < 256 && self.categories.contains(b as u8),
+        }
+    }
+
+    /// Whether a record's value goes left: a number compared with the threshold, or a
+    /// category's training bin (see [`crate::binning::Records`]); NaN is missing.
+    #[inline]
+    pub fn value_goes_left(&self, x: f64) -> bool {
+        if x.is_nan() {
+            self.missing_left
+        } else if self.numeric {
+            x <= self.threshold
+        } else {
+            x >= 0.0 && x < 256.0 && self.categories.contains(x as u8)
+        }
+    }
+
+    /// A leaf (children and split fields unset).
+    pub fn leaf() -> Node {
+        Node {
+            feature: 0,
+            numeric: false,
+            threshold_bin: 0,
+            threshold: 0.0,
+            categories: BinSet::default(),
+            missing_left: false,
+            left: 0,
+            right: 0,
+            weight: 0.0,
+            gain: 0.0,
+            value: 0,
+        }
+    }
+}
+
+/// The rows a model predicts: training rows by their bins, or new records by their values.
+#[derive(Debug, Clone, Copy)]
+pub enum Rows<'a> {
+    Binned(&'a BinnedMatrix),
+    Records(&'a Records),
+}
+
+impl Rows<'_> {
+    pub fn len(&self) -> usize {
+        match self {
+            Rows::Binned(b) => b.rows,
+            Rows::Records(r) => r.rows,
+        }
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Whether row `row` goes to the left child of split node `node`.
+    #[inline]
+    pub fn goes_left(&self, node: &Node, row: usize) -> bool {
+        match self {
+            Rows::Binned(b) => node.bin_goes_left(b.bin(node.feature as usize, row)),
+            Rows::Records(r) => node.value_goes_left(r.value(node.feature as usize, row)),
+        }
+    }
 }
 
 /// A fitted tree in its flat prediction-time form.
@@ -72,16 +147,15 @@ pub struct Tree {
 }
 
 impl Tree {
-    /// The leaf reached by row `row` of `binned`.
-    pub fn leaf_of(&self, binned: &BinnedMatrix, row: usize) -> usize {
+    /// The leaf reached by row `row`.
+    pub fn leaf(&self, rows: Rows<'_>, row: usize) -> usize {
         let mut i = 0usize;
         loop {
             let n = &self.nodes[i];
             if n.is_leaf() {
                 return i;
             }
-            let bin = binned.column(n.feature as usize)[row];
-            i = if n.left_bins.contains(bin) {
+            i = if rows.goes_left(n, row) {
                 n.left
             } else {
                 n.right
@@ -89,10 +163,20 @@ impl Tree {
         }
     }
 
-    /// The output values of the leaf reached by `row`.
+    /// The output values of node `i`.
+    pub fn node_values(&self, i: usize) -> &[f64] {
+        let v = self.nodes[i].value as usize;
+        &self.values[v..v + self.outputs]
+    }
+
+    /// The output values of the leaf reached by row `row`.
+    pub fn predict(&self, rows: Rows<'_>, row: usize) -> &[f64] {
+        self.node_values(self.leaf(rows, row))
+    }
+
+    /// The output values of the leaf reached by training row `row` of `binned`.
     pub fn predict_row(&self, binned: &BinnedMatrix, row: usize) -> &[f64] {
-        let n = &self.nodes[self.leaf_of(binned, row)];
-        &self.values[n.value as usize..n.value as usize + self.outputs]
+        self.predict(Rows::Binned(binned), row)
     }
 
     pub fn leaves(&self) -> usize {
@@ -110,9 +194,4 @@ impl Tree {
         }
         depth(self, 0)
     }
-}
-
-/// Whether missing values go left at a node.
-pub fn missing_goes_left(node: &Node) -> bool {
-    node.left_bins.contains(MISSING_BIN)
 }
