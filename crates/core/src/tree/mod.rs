@@ -86,7 +86,7 @@ impl Node {
         } else if self.numeric {
             x <= self.threshold
         } else {
-            x >= 0.0 && x < 256.0 && self.categories.contains(x as u8)
+            (0.0..256.0).contains(&x) && self.categories.contains(x as u8)
         }
     }
 
