@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Random forests and bagging against scikit-learn (PyPI): 5-fold stratified cross-validated
 accuracy, averaged over 5 seeds, on data shipped inside scikit-learn (wine, iris, breast
-cancer). Passes when Spinney's mean accuracy is within 1 percentage point of scikit-learn's
+cancer, digits: 1797 x 64, 10 classes). Passes when Spinney's mean accuracy is within 1 percentage point of scikit-learn's
 RandomForestClassifier(max_features="sqrt") / BaggingClassifier(DecisionTreeClassifier())
 with 100 trees. The folds are scikit-learn's StratifiedKFold(shuffle=True, random_state=0),
 the same for both. Prints "PASS"/"FAIL" lines with both figures and "N passed, N failed".
@@ -14,7 +14,7 @@ import tempfile
 
 import numpy as np
 import sklearn
-from sklearn.datasets import load_breast_cancer, load_iris, load_wine
+from sklearn.datasets import load_breast_cancer, load_digits, load_iris, load_wine
 from sklearn.ensemble import BaggingClassifier, RandomForestClassifier
 from sklearn.model_selection import StratifiedKFold
 from sklearn.tree import DecisionTreeClassifier
@@ -47,7 +47,7 @@ def main():
         print("0 passed, 1 failed")
         return 1
     with tempfile.TemporaryDirectory() as tmp:
-        for name, loader in [("wine", load_wine), ("iris", load_iris), ("breast cancer", load_breast_cancer)]:
+        for name, loader in [("wine", load_wine), ("iris", load_iris), ("breast cancer", load_breast_cancer), ("digits", load_digits)]:
             data = loader()
             X, y = data.data, data.target
             folds = list(StratifiedKFold(n_splits=FOLDS, shuffle=True, random_state=0).split(X, y))
