@@ -7,7 +7,9 @@ iris (150 x 4) for classification, the first 250 rows of diabetes for regression
 default histogram search (every predictor there has at most 255 distinct values, so the bins
 keep every split point); breast cancer (569 x 30) and the whole of diabetes (442 x 10), whose
 predictors have more distinct values, with `split_search=exact`. Growth to a leaf limit
-(`leaves`) is compared with scikit-learn's max_leaf_nodes, which also grows best-first. scikit-learn casts predictors to float32, so the files written here hold
+(`leaves`) is compared with scikit-learn's max_leaf_nodes, which also grows best-first;
+cost-complexity pruning (`pruning`, and the pruning path in the JSON) with its ccp_alpha and
+cost_complexity_pruning_path. scikit-learn casts predictors to float32, so the files written here hold
 the float32 values exactly; thresholds are then the same float64 midpoints on both sides.
 scikit-learn visits predictors in a random order and breaks exact ties by it; depths are
 limited so that no tie arises (checked: a tie is reported, not hidden).
@@ -176,8 +178,57 @@ def main():
                     label += " (%d more tie(s) at equal gain, nodes %s; subtrees below not compared)" % (
                         len(ties), ",".join(map(str, ties)))
                 report(label, [])
+        check_pruning(tmp)
     print("%d passed, %d failed" % (passed, failed))
     return 1 if failed else 0
+
+
+def check_pruning(tmp):
+    """Minimal cost-complexity pruning against scikit-learn's cost_complexity_pruning_path
+    and ccp_alpha (Breiman et al. 1984, ch. 3): the path's alphas and impurity increases to
+    1e-12, and the tree pruned at a mid-path alpha node for node."""
+    exact = ["split_search=exact"]
+    cases = [
+        ("wine gini, leaf size 3", load_wine(), True, "gini", [], 3),
+        ("breast cancer entropy, leaf size 8, exact", load_breast_cancer(), True, "entropy", exact, 8),
+        ("diabetes squared error, leaf size 15, exact", load_diabetes(), False, "squared_error", exact, 15),
+    ]
+    for name, data, is_class, criterion, extra, leaf in cases:
+        X = data.data.astype(np.float32)
+        y = data.target if is_class else data.target.astype(np.float64)
+        path = os.path.join(tmp, "prune.csv")
+        write_csv(path, X, y, ["x%d" % j for j in range(X.shape[1])], is_class)
+        kind = DecisionTreeClassifier if is_class else DecisionTreeRegressor
+        try:
+            ours = spinney_tree(path, 1000, criterion, extra + ["leaf_size=%d" % leaf])
+        except Exception as e:  # noqa: BLE001
+            report("pruning path " + name, ["spinney fit failed: %s" % e])
+            continue
+        a_ours = np.array([s["alpha"] for s in ours["pruning_path"]])
+        i_ours = np.array([s["impurity_increase"] for s in ours["pruning_path"]])
+        found = None
+        for seed in range(30):
+            ref = kind(criterion=criterion, min_samples_leaf=leaf, random_state=seed).cost_complexity_pruning_path(X, y)
+            a_ref, i_ref = ref.ccp_alphas, ref.impurities - ref.impurities[0]
+            if len(a_ref) == len(a_ours) and np.allclose(a_ref, a_ours, rtol=1e-9, atol=1e-12) \
+                    and np.allclose(i_ref, i_ours, rtol=1e-9, atol=1e-12):
+                found = seed
+                break
+        if found is None:
+            report("pruning path " + name, ["no random_state gives Spinney's path (%d steps vs %d)" % (len(a_ours), len(a_ref))])
+            continue
+        report("pruning path %s: %d steps%s" % (name, len(a_ours), "" if found == 0 else " (ties as random_state=%d)" % found), [])
+        # Midway between two steps of the path, so rounding at a step cannot decide.
+        k = len(a_ours) // 2
+        alpha = float(a_ours[k] + a_ours[k + 1]) / 2
+        try:
+            pruned = spinney_tree(path, 1000, criterion, extra + ["leaf_size=%d" % leaf, "pruning=%r" % alpha])
+        except Exception as e:  # noqa: BLE001
+            report("pruned tree " + name, ["spinney fit failed: %s" % e])
+            continue
+        model = kind(criterion=criterion, min_samples_leaf=leaf, random_state=found, ccp_alpha=alpha).fit(X, y)
+        problems, ties = differences(model, pruned, is_class)
+        report("pruned tree %s at alpha %.6g: %d leaves" % (name, alpha, pruned["leaves"]), problems + (["ties at %s" % ties] if ties else []))
 
 
 if __name__ == "__main__":

@@ -51,6 +51,8 @@ struct Settings {
     boost: BoostSettings,
     /// Weigh classes by n / (K · rows of the class).
     balanced_classes: bool,
+    /// Cost-complexity pruning of a single tree (α per leaf, share of the rows' weight).
+    pruning: f64,
 }
 
 /// Applies the `--set NAME=VALUE` settings to `all`, checking each against its range.
@@ -61,6 +63,7 @@ fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::
         forest,
         boost,
         balanced_classes,
+        pruning,
     } = all;
     for s in sets {
         let (name, value) = s
@@ -86,6 +89,13 @@ fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::
                     "histogram" => false,
                     _ => bail!("--set split_search={value}: use histogram (the default) or exact"),
                 }
+            }
+            "pruning" => {
+                let f: f64 = value.parse().with_context(|| format!("--set pruning: '{value}' is not a number"))?;
+                if !(f >= 0.0 && f.is_finite()) {
+                    bail!("--set pruning: {value} must be zero (no pruning) or more");
+                }
+                *pruning = f;
             }
             "leaves" => settings.max_leaves = Some(whole(2, 1 << 20)?),
             "criterion" => {
@@ -147,7 +157,7 @@ fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::
             }
             other => bail!(
                 "--set {other}: unknown setting; see README.md for the settings of each method \
-                 (depth, leaves, leaf_size, split_size, bins, split_search, criterion, min_gain, class_weight, trees, \
+                 (depth, leaves, leaf_size, split_size, bins, split_search, criterion, min_gain, pruning, class_weight, trees, \
                  predictors_per_split, row_fraction, sampling, seed, rounds, learning_rate)"
             ),
         }
@@ -329,6 +339,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         forest,
         boost: BoostSettings::default(),
         balanced_classes: false,
+        pruning: 0.0,
     };
     parse_sets(&args.sets, &mut all, regression)?;
     all.forest.grow = all.grow;
@@ -337,9 +348,15 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     let fit_start = std::time::Instant::now();
     let binned = bin_design(&design, all.bins)?;
     let (stats, width) = design.row_statistics(all.balanced_classes);
+    if all.pruning > 0.0 && args.method != "tree" {
+        bail!("--set pruning: prunes a single tree (--method tree); ensembles are not pruned");
+    }
+    let mut pruning_path = None;
     let model = if args.method == "tree" {
         let rows: Vec<u32> = (0..binned.rows as u32).collect();
-        Model::Tree(grow(&binned, &stats, width, &rows, &all.grow, None))
+        let full = grow(&binned, &stats, width, &rows, &all.grow, None);
+        pruning_path = Some(spinney_core::tree::prune::pruning_path(&full));
+        Model::Tree(spinney_core::tree::prune::prune(&full, all.pruning))
     } else if args.method == "adaboost" {
         let Outcome::Classes { codes, labels } = &design.outcome else {
             unreachable!("checked above")
@@ -416,6 +433,12 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 out["depth"] = tree.depth().into();
                 out["leaves"] = tree.leaves().into();
                 out["nodes"] = tree_json(tree, &binned);
+                if let Some(path) = &pruning_path {
+                    out["pruning_path"] = path
+                        .iter()
+                        .map(|s| serde_json::json!({ "alpha": s.alpha, "leaves": s.leaves, "impurity_increase": s.impurity_increase }))
+                        .collect();
+                }
             }
             Model::Forest(f) => {
                 out["trees"] = f.trees.len().into();

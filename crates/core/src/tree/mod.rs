@@ -4,12 +4,14 @@
 //!   statistics;
 //! - [`grower`]: grows a tree from a [`crate::binning::BinnedMatrix`], per-row statistics and
 //!   settings, by histogram split search; it never knows which ensemble asks (invariant 3);
+//! - [`prune`]: minimal cost-complexity pruning of a single tree and its pruning path;
 //! - [`Tree`] (here): the flat, prediction-time form: an array of nodes, each split a number
 //!   threshold (training bins up to `threshold_bin`; new values up to `threshold`) or a set of
 //!   category bins, with the side missing values take.
 
 pub mod criterion;
 pub mod grower;
+pub mod prune;
 
 use crate::binning::{BinnedMatrix, Records};
 
