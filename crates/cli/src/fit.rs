@@ -41,6 +41,10 @@ pub struct FitArgs {
     /// A column of row weights (numbers, zero or more).
     #[arg(long, value_name = "COLUMN")]
     pub weight: Option<String>,
+    /// Threads for forest and bagging trees (default: every core). The model is the same
+    /// whatever the number.
+    #[arg(long)]
+    pub threads: Option<usize>,
 }
 
 /// Every setting `--set` can change, for all methods.
@@ -374,14 +378,14 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             &mut Bar::new(),
         ))
     } else {
-        Model::Forest(fit_forest(
+        Model::Forest(fit_forest_on_threads(
             &binned,
             &stats,
             width,
             &design.outcome,
             &all.forest,
-            &mut Bar::new(),
-        ))
+            args.threads,
+        )?)
     };
     let fit_seconds = fit_start.elapsed().as_secs_f64();
     let training = performance(&model, Rows::Binned(&binned), &design.outcome);
@@ -511,6 +515,77 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         }
     }
     Ok(())
+}
+
+/// Fits a forest's trees on `threads` threads (all cores by default), a batch at a time,
+/// and tallies them in tree order: each tree draws only from its own seeded streams, so the
+/// forest is the same bit for bit whatever the number of threads.
+#[cfg(feature = "parallel")]
+fn fit_forest_on_threads(
+    binned: &BinnedMatrix,
+    stats: &[f64],
+    width: usize,
+    outcome: &Outcome,
+    settings: &ForestSettings,
+    threads: Option<usize>,
+) -> anyhow::Result<Forest> {
+    use rayon::prelude::*;
+    use spinney_core::ensemble::forest::{fit_trees, tree_outputs, OobTally};
+    use spinney_core::progress::Progress;
+    let threads = threads.unwrap_or_else(rayon::current_num_threads).max(1);
+    if threads == 1 {
+        return Ok(fit_forest(
+            binned,
+            stats,
+            width,
+            outcome,
+            settings,
+            &mut Bar::new(),
+        ));
+    }
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .context("cannot start the worker threads")?;
+    let mut tally = OobTally::new(binned.rows, tree_outputs(settings, width));
+    let mut bar = Bar::new();
+    // Batches bound the memory of trees waiting to be tallied (one in-bag count per row each).
+    let batch = threads * 4;
+    let mut start = 0;
+    while start < settings.trees {
+        let end = (start + batch).min(settings.trees);
+        let fitted: Vec<_> = pool.install(|| {
+            (start..end)
+                .into_par_iter()
+                .flat_map_iter(|i| fit_trees(binned, stats, width, settings, i..i + 1, &mut Silent))
+                .collect()
+        });
+        for f in fitted {
+            tally.add(f, binned, outcome);
+        }
+        bar.step("trees", end as u64, settings.trees as u64);
+        start = end;
+    }
+    Ok(tally.finish(false))
+}
+
+#[cfg(not(feature = "parallel"))]
+fn fit_forest_on_threads(
+    binned: &BinnedMatrix,
+    stats: &[f64],
+    width: usize,
+    outcome: &Outcome,
+    settings: &ForestSettings,
+    _threads: Option<usize>,
+) -> anyhow::Result<Forest> {
+    Ok(fit_forest(
+        binned,
+        stats,
+        width,
+        outcome,
+        settings,
+        &mut Bar::new(),
+    ))
 }
 
 /// Error after 1, 2, ... members (trees or rounds), in one pass over the members: error

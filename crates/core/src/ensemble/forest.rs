@@ -8,7 +8,7 @@ use std::ops::Range;
 
 use crate::binning::BinnedMatrix;
 use crate::design::Outcome;
-use crate::progress::{Flow, Progress};
+use crate::progress::{Flow, Progress, Silent};
 use crate::random::{below, stream, Purpose};
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::{grow, GrowSettings};
@@ -184,7 +184,103 @@ pub fn argmax(values: &[f64]) -> usize {
     (0..values.len()).fold(0, |b, k| if values[k] > values[b] { k } else { b })
 }
 
-/// Fits a whole ensemble and its out-of-bag record.
+/// The out-of-bag record built tree by tree, in tree order: each tree's predictions for the
+/// rows it did not see are added to those rows' sums, and the error over every row judged so
+/// far is noted. Holds O(rows) numbers whatever the number of trees, so trees can be fitted
+/// anywhere (in ranges, on threads or workers) and tallied here in order.
+pub struct OobTally {
+    outputs: usize,
+    sums: Vec<f64>,
+    votes: Vec<u32>,
+    out_of_bag: usize,
+    trees: Vec<Tree>,
+    oob_error: Vec<f64>,
+}
+
+impl OobTally {
+    pub fn new(rows: usize, outputs: usize) -> Self {
+        OobTally {
+            outputs,
+            sums: vec![0.0; rows * outputs],
+            votes: vec![0; rows],
+            out_of_bag: 0,
+            trees: Vec::new(),
+            oob_error: Vec::new(),
+        }
+    }
+
+    /// Adds the next tree (trees must come in index order).
+    pub fn add(&mut self, fitted: FittedTree, binned: &BinnedMatrix, outcome: &Outcome) {
+        let n = binned.rows;
+        let outputs = self.outputs;
+        for r in 0..n {
+            if fitted.in_bag[r] == 0 {
+                self.out_of_bag += 1;
+                self.votes[r] += 1;
+                for (s, v) in self.sums[r * outputs..(r + 1) * outputs]
+                    .iter_mut()
+                    .zip(fitted.tree.predict_row(binned, r))
+                {
+                    *s += v;
+                }
+            }
+        }
+        let (mut err, mut counted) = (0.0, 0usize);
+        for r in (0..n).filter(|&r| self.votes[r] > 0) {
+            counted += 1;
+            let s = &self.sums[r * outputs..(r + 1) * outputs];
+            err += match outcome {
+                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
+                Outcome::Numbers(y) => (s[0] / self.votes[r] as f64 - y[r]).powi(2),
+            };
+        }
+        self.oob_error.push(if counted == 0 {
+            f64::NAN
+        } else {
+            err / counted as f64
+        });
+        self.trees.push(fitted.tree);
+    }
+
+    pub fn trees(&self) -> usize {
+        self.trees.len()
+    }
+
+    /// The forest of the trees added, `partial` when fewer than asked for were fitted.
+    pub fn finish(self, partial: bool) -> Forest {
+        let outputs = self.outputs;
+        let rows = self.votes.len();
+        let oob_prediction = (0..rows * outputs)
+            .map(|i| {
+                let v = self.votes[i / outputs];
+                if v == 0 {
+                    f64::NAN
+                } else {
+                    self.sums[i] / v as f64
+                }
+            })
+            .collect();
+        let oob_share = self.out_of_bag as f64 / (self.trees.len().max(1) * rows.max(1)) as f64;
+        Forest {
+            trees: self.trees,
+            outputs,
+            oob_error: self.oob_error,
+            oob_prediction,
+            oob_share,
+            partial,
+        }
+    }
+}
+
+/// The number of values each tree predicts per row.
+pub fn tree_outputs(settings: &ForestSettings, width: usize) -> usize {
+    match settings.grow.criterion {
+        Criterion::SquaredError => 1,
+        _ => width,
+    }
+}
+
+/// Fits a whole ensemble, one tree after another, and its out-of-bag record.
 pub fn fit_forest(
     binned: &BinnedMatrix,
     stats: &[f64],
@@ -193,60 +289,17 @@ pub fn fit_forest(
     settings: &ForestSettings,
     progress: &mut dyn Progress,
 ) -> Forest {
-    let fitted = fit_trees(binned, stats, width, settings, 0..settings.trees, progress);
-    let partial = fitted.len() < settings.trees;
-    let n = binned.rows;
-    let outputs = fitted.first().map_or(1, |f| f.tree.outputs);
-    let mut sums = vec![0.0; n * outputs];
-    let mut votes = vec![0u32; n];
-    let mut oob_error = Vec::with_capacity(fitted.len());
-    let mut out_of_bag = 0usize;
-    for f in &fitted {
-        for r in 0..n {
-            if f.in_bag[r] == 0 {
-                out_of_bag += 1;
-                votes[r] += 1;
-                for (s, v) in sums[r * outputs..(r + 1) * outputs]
-                    .iter_mut()
-                    .zip(f.tree.predict_row(binned, r))
-                {
-                    *s += v;
-                }
-            }
+    let mut tally = OobTally::new(binned.rows, tree_outputs(settings, width));
+    for i in 0..settings.trees {
+        for fitted in fit_trees(binned, stats, width, settings, i..i + 1, &mut Silent) {
+            tally.add(fitted, binned, outcome);
         }
-        let (mut err, mut counted) = (0.0, 0usize);
-        for r in (0..n).filter(|&r| votes[r] > 0) {
-            counted += 1;
-            let s = &sums[r * outputs..(r + 1) * outputs];
-            err += match outcome {
-                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
-                Outcome::Numbers(y) => (s[0] / votes[r] as f64 - y[r]).powi(2),
-            };
+        if progress.step("trees", i as u64 + 1, settings.trees as u64) == Flow::Stop {
+            break;
         }
-        oob_error.push(if counted == 0 {
-            f64::NAN
-        } else {
-            err / counted as f64
-        });
     }
-    let oob_prediction = (0..n * outputs)
-        .map(|i| {
-            if votes[i / outputs] == 0 {
-                f64::NAN
-            } else {
-                sums[i] / votes[i / outputs] as f64
-            }
-        })
-        .collect();
-    let oob_share = out_of_bag as f64 / (fitted.len().max(1) * n) as f64;
-    Forest {
-        trees: fitted.into_iter().map(|f| f.tree).collect(),
-        outputs,
-        oob_error,
-        oob_prediction,
-        oob_share,
-        partial,
-    }
+    let partial = tally.trees() < settings.trees;
+    tally.finish(partial)
 }
 
 #[cfg(test)]
@@ -254,7 +307,6 @@ mod tests {
     use super::*;
     use crate::binning::{bin_design, BinSettings};
     use crate::design::design_from_csv;
-    use crate::progress::Silent;
 
     fn noisy_problem() -> (BinnedMatrix, Outcome, Vec<f64>) {
         let mut rng = stream(99, Purpose::TreeRows, 0);
