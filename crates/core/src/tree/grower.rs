@@ -255,13 +255,24 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 width,
             );
             let numeric = self.binned.columns[j].rule.is_numeric();
+            let bins = self.binned.columns[j].bins;
             self.order.clear();
-            self.order
-                .extend(self.touched.iter().copied().filter(|&b| b != B::MISSING));
-            if numeric {
-                self.order.sort_unstable();
+            if numeric && self.touched.len() * 8 > bins {
+                // Most bins in use: walking them in order is cheaper than sorting.
+                let hist = &self.hist;
+                self.order.extend(
+                    (0..bins)
+                        .filter(|&b| hist[b * stride + width] > 0.0)
+                        .map(|b| B::from_bin(Some(b))),
+                );
             } else {
-                sort_levels(&self.hist, &mut self.order, width, criterion);
+                self.order
+                    .extend(self.touched.iter().copied().filter(|&b| b != B::MISSING));
+                if numeric {
+                    self.order.sort_unstable();
+                } else {
+                    sort_levels(&self.hist, &mut self.order, width, criterion);
+                }
             }
             scan(
                 &self.hist,
@@ -400,27 +411,24 @@ fn sort_levels<B: Bin>(hist: &[f64], bins: &mut [B], width: usize, criterion: Cr
 
 /// Running sums of one scan (statistics and a row count each), allocated once per tree.
 struct ScanSums {
-    present: Vec<f64>,
+    total: Vec<f64>,
     left: Vec<f64>,
     right: Vec<f64>,
-    l_miss: Vec<f64>,
-    r_miss: Vec<f64>,
 }
 
 impl ScanSums {
     fn new(width: usize) -> Self {
         let z = vec![0.0; width + 1];
         ScanSums {
-            present: z.clone(),
+            total: z.clone(),
             left: z.clone(),
-            right: z.clone(),
-            l_miss: z.clone(),
-            r_miss: z,
+            right: z,
         }
     }
 }
 
-/// Scans the split points of one predictor, bins in `order`, updating `best`.
+/// Scans the split points of one predictor, bins in `order`, updating `best`. With missing
+/// values, one pass sends them left and a second sends them right; without, one pass.
 #[allow(clippy::too_many_arguments)]
 fn scan<B: Bin>(
     hist: &[f64],
@@ -432,50 +440,48 @@ fn scan<B: Bin>(
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) {
-    let stride = sums.present.len();
+    let stride = sums.total.len();
     let width = stride - 1;
     let criterion = settings.criterion;
     let m = B::MISSING.index();
     let missing = &hist[m * stride..(m + 1) * stride];
-    let ScanSums {
-        present,
-        left,
-        right,
-        l_miss,
-        r_miss,
-    } = sums;
-    present.iter_mut().for_each(|p| *p = 0.0);
-    left.iter_mut().for_each(|l| *l = 0.0);
+    let ScanSums { total, left, right } = sums;
+    total.copy_from_slice(missing);
     for &b in order {
-        for (p, h) in present
-            .iter_mut()
-            .zip(&hist[b.index() * stride..(b.index() + 1) * stride])
-        {
-            *p += h;
+        let h = &hist[b.index() * stride..(b.index() + 1) * stride];
+        for (t, v) in total.iter_mut().zip(h) {
+            *t += v;
         }
     }
     let min_leaf = settings.min_rows_leaf.max(1) as f64;
-    for (i, &b) in order.iter().enumerate() {
-        for (l, h) in left
-            .iter_mut()
-            .zip(&hist[b.index() * stride..(b.index() + 1) * stride])
-        {
-            *l += h;
+    let sides: &[bool] = if missing[width] > 0.0 {
+        &[true, false]
+    } else {
+        &[false]
+    };
+    for &missing_left in sides {
+        if missing_left {
+            left.copy_from_slice(missing);
+        } else {
+            left.iter_mut().for_each(|l| *l = 0.0);
         }
-        for k in 0..stride {
-            right[k] = present[k] - left[k];
-        }
-        // Missing values to the left, then to the right (tried once when there are none).
-        for missing_left in [true, false] {
-            for k in 0..stride {
-                l_miss[k] = left[k] + if missing_left { missing[k] } else { 0.0 };
-                r_miss[k] = right[k] + if missing_left { 0.0 } else { missing[k] };
+        for (i, &b) in order.iter().enumerate() {
+            let h = &hist[b.index() * stride..(b.index() + 1) * stride];
+            for (l, v) in left.iter_mut().zip(h) {
+                *l += v;
             }
-            if l_miss[width] < min_leaf || r_miss[width] < min_leaf {
+            if left[width] < min_leaf {
                 continue;
             }
+            // The right side only shrinks from here on.
+            if total[width] - left[width] < min_leaf {
+                break;
+            }
+            for k in 0..width {
+                right[k] = total[k] - left[k];
+            }
             let gain =
-                parent_cost - criterion.cost(&l_miss[..width]) - criterion.cost(&r_miss[..width]);
+                parent_cost - criterion.cost(&left[..width]) - criterion.cost(&right[..width]);
             if best.as_ref().is_none_or(|b| gain > b.gain) {
                 let mut categories = BinSet::default();
                 if !numeric {
@@ -492,9 +498,6 @@ fn scan<B: Bin>(
                     categories,
                     missing_left,
                 });
-            }
-            if missing[width] == 0.0 {
-                break;
             }
         }
     }
