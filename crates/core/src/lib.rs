@@ -2,8 +2,10 @@
 //! no threads (see ARCHITECTURE.md, invariant 1). The page (crates/web) and the command line
 //! (crates/cli) are thin shells around this crate.
 //!
-//! Today it holds the data layer: reading delimited text and spreadsheets into a typed
-//! [`data::Table`], summarising its columns and fingerprinting the file.
+//! It holds the data layer (reading delimited text and spreadsheets into a typed
+//! [`data::Table`], summarising and fingerprinting it) and the learning engine: the design
+//! ([`design`]), binning ([`binning`]), the tree grower and pruning ([`tree`]) and the
+//! ensembles built on them ([`ensemble`]).
 
 pub mod binning;
 pub mod data;
