@@ -315,7 +315,9 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         weight: args.weight.clone(),
         ..DesignSpec::default()
     };
-    let design = build_design(&table, &spec)?;
+    let mut design = build_design(&table, &spec)?;
+    // The design holds its own copy of the predictors; the table is no longer needed.
+    drop(table);
     let regression = matches!(design.outcome, Outcome::Numbers(_));
     // Defaults first (the method's own), then the user's --set choices on top.
     let mut grow_settings = GrowSettings {
@@ -351,6 +353,8 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     // Fit time counts binning and fitting, not reading the file.
     let fit_start = std::time::Instant::now();
     let binned = bin_design(&design, all.bins)?;
+    // From here on the learners read the bins only: free the predictors' values.
+    design.predictors = Vec::new();
     let (stats, width) = design.row_statistics(all.balanced_classes);
     if all.pruning > 0.0 && args.method != "tree" {
         bail!("--set pruning: prunes a single tree (--method tree); ensembles are not pruned");
