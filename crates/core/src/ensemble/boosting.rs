@@ -22,7 +22,7 @@ use crate::progress::{Flow, Progress};
 use crate::random::{below, stream, Purpose};
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::{grow_with, Constraints, GrowSettings};
-use crate::tree::Tree;
+use crate::tree::{Rows, Tree};
 
 /// Settings of gradient boosting. `grow.criterion` is set to [`Criterion::Gradient`] with
 /// `l2` by [`fit_boosting`].
@@ -115,24 +115,24 @@ impl Boosting {
         self.trees.len() / self.outputs.max(1)
     }
 
-    /// Adds round `round`'s trees to `scores` (`outputs` per row of `binned`).
-    pub fn add_round(&self, binned: &BinnedMatrix, round: usize, scores: &mut [f64]) {
+    /// Adds round `round`'s trees to `scores` (`outputs` per row of `rows`).
+    pub fn add_round(&self, rows: Rows<'_>, round: usize, scores: &mut [f64]) {
         let m = self.outputs;
         for k in 0..m {
             let tree = &self.trees[round * m + k];
             for (r, s) in scores.chunks_exact_mut(m).enumerate() {
-                s[k] += tree.predict_row(binned, r)[0];
+                s[k] += tree.predict(rows, r)[0];
             }
         }
     }
 
-    /// Scores of every row of `binned` after `rounds` rounds (staged scores).
-    pub fn scores(&self, binned: &BinnedMatrix, rounds: usize) -> Vec<f64> {
-        let mut s: Vec<f64> = (0..binned.rows)
+    /// Scores of every row of `rows` after `rounds` rounds (staged scores).
+    pub fn scores(&self, rows: Rows<'_>, rounds: usize) -> Vec<f64> {
+        let mut s: Vec<f64> = (0..rows.len())
             .flat_map(|_| self.initial.iter().copied())
             .collect();
         for round in 0..rounds.min(self.rounds()) {
-            self.add_round(binned, round, &mut s);
+            self.add_round(rows, round, &mut s);
         }
         s
     }
@@ -420,7 +420,7 @@ pub fn fit_boosting(
                 for &r in &sample {
                     let r = r as usize;
                     let w = weights.map_or(1.0, |w| w[r]);
-                    residuals[tree.leaf_of(binned, r)].push((y[r] - scores[r], w));
+                    residuals[tree.leaf(Rows::Binned(binned), r)].push((y[r] - scores[r], w));
                 }
                 for (i, res) in residuals.iter_mut().enumerate() {
                     if !res.is_empty() {
@@ -435,7 +435,7 @@ pub fn fit_boosting(
                 .for_each(|v| *v *= settings.learning_rate);
             model.trees.push(tree);
         }
-        model.add_round(binned, round, &mut scores);
+        model.add_round(Rows::Binned(binned), round, &mut scores);
         model.training_loss.push(value(&scores, &fit_rows, delta));
         if !held.is_empty() {
             let v = value(&scores, &held, delta);
@@ -466,7 +466,7 @@ pub fn fit_boosting(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::binning::{bin_design, BinSettings};
+    use crate::binning::{bin_design, BinSettings, Records};
     use crate::design::design_from_csv;
     use crate::progress::Silent;
 
@@ -548,9 +548,9 @@ mod tests {
             let Outcome::Numbers(y) = &design.outcome else {
                 unreachable!()
             };
-            let s = b.scores(&m, b.rounds());
+            let s = b.scores(Rows::Binned(&m), b.rounds());
             let mae: f64 = y.iter().zip(&s).map(|(a, b)| (a - b).abs()).sum::<f64>() / 300.0;
-            let s0 = b.scores(&m, 0);
+            let s0 = b.scores(Rows::Binned(&m), 0);
             let mae0: f64 = y.iter().zip(&s0).map(|(a, b)| (a - b).abs()).sum::<f64>() / 300.0;
             assert!(mae < 0.6 * mae0, "{loss:?}: {mae} vs start {mae0}");
         }
@@ -697,7 +697,7 @@ mod tests {
                     // Every bin of predictor j (fastest), 6 levels of the other two numbers,
                     // every category.
                     let (g, bins) = grid(&m, j, 6);
-                    let s = b.scores(&g, b.rounds());
+                    let s = b.scores(Rows::Records(&g), b.rounds());
                     for r in 0..g.rows {
                         if (r + 1) % bins != 0 {
                             assert!(
@@ -714,46 +714,49 @@ mod tests {
         }
     }
 
-    /// A grid of records: every bin of number predictor `j` (its smallest training value,
-    /// fastest-varying), `levels` spread bins of the other number predictors, every category
-    /// of `d`; binned by the model's own rules. Returns it and the bins of `j`.
-    fn grid(m: &BinnedMatrix, j: usize, levels: usize) -> (BinnedMatrix, usize) {
+    /// A grid of records: for number predictor `j` (fastest-varying) the smallest and largest
+    /// training value of every bin and a value beyond each end; `levels` spread values of the
+    /// other number predictors; every category of `d`. Returns it and the length of `j`'s run.
+    fn grid(m: &BinnedMatrix, j: usize, levels: usize) -> (Records, usize) {
         let values = |c: usize| -> Vec<f64> {
-            let BinRule::Numbers { low, .. } = &m.columns[c].rule else {
+            let BinRule::Numbers { low, high, .. } = &m.columns[c].rule else {
                 unreachable!()
             };
-            let low: Vec<f64> = low.iter().copied().filter(|x| x.is_finite()).collect();
+            let mut v: Vec<f64> = low
+                .iter()
+                .chain(high)
+                .copied()
+                .filter(|x| x.is_finite())
+                .collect();
+            v.sort_by(f64::total_cmp);
+            v.dedup();
             if c == j {
-                low
+                let (first, last) = (v[0] - 1.0, v[v.len() - 1] + 1.0);
+                v.insert(0, first);
+                v.push(last);
+                v
             } else {
                 (0..levels)
-                    .map(|i| low[i * (low.len() - 1) / (levels - 1)])
+                    .map(|i| v[i * (v.len() - 1) / (levels - 1)])
                     .collect()
             }
         };
         let (a, b, c) = (values(0), values(1), values(2));
-        let fast = if j == 0 { &a } else { &b };
-        let mut text = String::from("a,b,c,d\n");
-        for d in ["p", "q", "r"] {
+        let (fast, slow) = if j == 0 { (&a, &b) } else { (&b, &a) };
+        let mut cols: Vec<Vec<f64>> = vec![Vec::new(); 4];
+        for d in 0..m.columns[3].bins {
             for &z in &c {
-                for &slow in if j == 0 { &b } else { &a } {
+                for &y in slow {
                     for &x in fast {
-                        let (va, vb) = if j == 0 { (x, slow) } else { (slow, x) };
-                        text += &format!("{va},{vb},{z},{d}\n");
+                        let (va, vb) = if j == 0 { (x, y) } else { (y, x) };
+                        for (col, v) in cols.iter_mut().zip([va, vb, z, d as f64]) {
+                            col.push(v);
+                        }
                     }
                 }
             }
         }
-        let table = crate::data::read_table(
-            text.as_bytes(),
-            &crate::data::ReadOptions::default(),
-            &mut Silent,
-        )
-        .unwrap()
-        .table;
-        (
-            crate::binning::bin_new_table(&m.columns, &table).unwrap(),
-            fast.len(),
-        )
+        let rows = cols[0].len();
+        (Records::from_columns(rows, cols.concat()), fast.len())
     }
 }
