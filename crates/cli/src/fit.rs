@@ -66,6 +66,8 @@ struct Settings {
     boosting: BoostingSettings,
     /// Monotone constraints by predictor name (+1 up, −1 down), resolved after the design.
     monotone: Vec<(String, i8)>,
+    /// Huber's quantile, applied once the loss is known.
+    huber_quantile: Option<f64>,
     /// Weigh classes by n / (K · rows of the class).
     balanced_classes: bool,
     /// Cost-complexity pruning of a single tree (α per leaf, share of the rows' weight).
@@ -99,6 +101,7 @@ fn parse_sets(
         boost,
         boosting,
         monotone,
+        huber_quantile,
         balanced_classes,
         pruning,
     } = all;
@@ -230,13 +233,7 @@ fn parse_sets(
                     ),
                 })
             }
-            "huber_quantile" => {
-                let q = share(false)?;
-                match &mut boosting.loss {
-                    Some(Loss::Huber { quantile }) => *quantile = q,
-                    _ => bail!("--set huber_quantile: set loss=huber first (before this setting)"),
-                }
-            }
+            "huber_quantile" => *huber_quantile = Some(share(false)?),
             "l2" => boosting.l2 = non_negative()?,
             "min_hessian" => settings.min_weight_leaf = non_negative()?,
             "patience" => boosting.patience = Some(whole(1, 100_000)?),
@@ -277,6 +274,12 @@ fn parse_sets(
                  rounds, learning_rate; for boosting also loss, huber_quantile, l2, min_hessian, \
                  patience, validation_share, predictor_fraction, monotone)"
             ),
+        }
+    }
+    if let Some(q) = *huber_quantile {
+        match &mut boosting.loss {
+            Some(Loss::Huber { quantile }) => *quantile = q,
+            _ => bail!("--set huber_quantile: only with --set loss=huber"),
         }
     }
     Ok(())
@@ -471,6 +474,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         boost,
         boosting: BoostingSettings::default(),
         monotone: Vec::new(),
+        huber_quantile: None,
         balanced_classes: false,
         pruning: 0.0,
     };

@@ -106,7 +106,7 @@ fn boosting_refuses_bad_choices_clearly() {
     );
     run(
         boost(&["--set", "huber_quantile=0.5"], "x"),
-        &["set loss=huber first"],
+        &["only with --set loss=huber"],
     );
     run(
         boost(&["--set", "validation_share=1"], "y"),

@@ -238,13 +238,24 @@ fn check(
                 ),
             ));
         }
+        if loss == Loss::Softmax {
+            return Err(bad(
+                "monotone",
+                format!(
+                    "monotone constraints need one score per record (two classes or a number); \
+                     '{name}' has {classes} classes, and with one score per class the class \
+                     probabilities could still fall against the constraint. Merge the classes \
+                     into two, or leave the constraint out"
+                ),
+            ));
+        }
         if matches!(loss, Loss::AbsoluteError | Loss::Huber { .. }) {
             return Err(bad(
                 "monotone",
                 format!(
-                    "monotone constraints work with the logistic, softmax, squared_error and \
-                     poisson losses, not with {} (its leaf values are medians, not held within \
-                     the constraint's bounds)",
+                    "monotone constraints work with the logistic, squared_error and poisson \
+                     losses, not with {} (its leaf values are medians, not held within the \
+                     constraint's bounds)",
                     loss.word()
                 ),
             ));
@@ -655,6 +666,14 @@ mod tests {
             },
         );
         assert!(e.contains("'d' is a category"), "{e}");
+        let e = err(
+            &data(60, "classes", 1),
+            BoostingSettings {
+                monotone: vec![1, 0, 0, 0],
+                ..BoostingSettings::default()
+            },
+        );
+        assert!(e.contains("3 classes") && e.contains("two"), "{e}");
         let e = err(
             &data(40, "binary", 1),
             BoostingSettings {
