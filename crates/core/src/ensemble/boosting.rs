@@ -580,6 +580,16 @@ mod tests {
         let a = fit_boosting(&m, &design, None, &settings, &mut Silent).unwrap();
         let b = fit_boosting(&m, &design, None, &settings, &mut Silent).unwrap();
         assert_eq!(a.trees, b.trees);
+        // The scores kept while fitting give the reported training loss; the staged scores
+        // rebuilt from the model must give the same to the bit.
+        let Outcome::Classes { codes, .. } = &design.outcome else {
+            unreachable!()
+        };
+        let y: Vec<f64> = codes.iter().map(|&c| c as f64).collect();
+        let all: Vec<u32> = (0..m.rows as u32).collect();
+        let staged = a.scores(Rows::Binned(&m), a.rounds());
+        let loss = a.loss.value(&y, &staged, None, 1, None, &all);
+        assert_eq!(loss, *a.training_loss.last().unwrap());
         let other = BoostingSettings {
             seed: 10,
             ..settings.clone()
