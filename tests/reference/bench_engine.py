@@ -1,15 +1,26 @@
 #!/usr/bin/env python3
-"""Engine benchmark (prints, asserts nothing): random forest (100 fully grown trees, sqrt(p)
-predictors per split) and AdaBoost (500 stumps), Spinney against scikit-learn at one
-thread and (forest) at all cores, on the same seeded synthetic data: ROWS x 28 numbers, a
-binary outcome from a known non-linear rule with label noise, 80/20 split; then the time's
-growth with rows (fitted exponent over three sizes) and the breast-cancer data. Spinney's
-time is its own fit time (binning included, reading the CSV excluded), as printed by
-`spinney fit --json`; peak memory from /usr/bin/time, compared with reading the file alone.
-    python3 tests/reference/bench_engine.py [ROWS]      (scripts/bench engine)
+"""Engine benchmark (prints, asserts nothing), at one thread, on the same seeded synthetic
+data: ROWS x 28 numbers, a binary outcome from a known non-linear rule with label noise,
+80/20 split.
+- forest: random forest (100 fully grown trees, sqrt(p) predictors per split; at one thread
+  and at all cores) and AdaBoost (500 stumps), Spinney against scikit-learn, with Spinney's
+  peak memory beyond reading the file (per cell), the forest's time growth with rows (fitted
+  exponent over three sizes) and the breast-cancer data;
+- boosting: gradient boosting, logistic loss, 255 bins, depth 6 (no other leaf limit),
+  200 rounds, learning rate 0.1, L2 1, at least 20 rows per leaf, least hessian 0.001:
+  Spinney against LightGBM, XGBoost (hist) and scikit-learn's HistGradientBoostingClassifier;
+  time per round, total time, test AUC and the time ratio to the fastest peer.
+Spinney's time is its own fit time (binning included, reading the CSV excluded), as printed
+by `spinney fit --json`; the peers' is their fit() call on arrays (their binning included);
+peak memory from /usr/bin/time.
+    python3 tests/reference/bench_engine.py [ROWS] [forest|boosting|all]
+    (scripts/bench engine [ROWS]; scripts/bench boosting [ROWS])
 """
 import json
 import os
+
+# One thread everywhere: set before the peers load their OpenMP runtimes (they also get n_jobs=1).
+os.environ.setdefault("OMP_NUM_THREADS", "1")
 import subprocess
 import sys
 import tempfile
@@ -23,6 +34,7 @@ from sklearn.tree import DecisionTreeClassifier
 
 BIN = os.environ.get("SPINNEY_BIN", "target/release/spinney")
 rows = int(sys.argv[1]) if len(sys.argv) > 1 else 100_000
+which = sys.argv[2] if len(sys.argv) > 2 else "all"
 rng = np.random.default_rng(20261202)
 X = rng.normal(size=(rows, 28)).astype(np.float32)
 signal = X[:, 0] * X[:, 1] + np.sin(2 * X[:, 2]) + (X[:, 3] > 0.5) - 0.5 * X[:, 4] ** 2
@@ -37,10 +49,11 @@ def write(path, X, y):
             f.write(",".join(["%.7g" % v for v in row] + ["k%d" % t]) + "\n")
 
 
-def spinney(train, test, method, sets, threads=1):
-    """Spinney's fit time, scored accuracy and peak memory (KB, from /usr/bin/time)."""
+def spinney(train, test, method, sets, extra=(), threads=1):
+    """`spinney fit --json`'s output, with its peak memory in KB as "peak_kb" (NaN unknown)."""
     cmd = [BIN, "fit", train, "--outcome", "outcome", "--method", method, "--score", test, "--json",
            "--threads", str(threads)]
+    cmd += list(extra)
     for s in sets:
         cmd += ["--set", s]
     if os.path.exists("/usr/bin/time"):
@@ -48,7 +61,8 @@ def spinney(train, test, method, sets, threads=1):
     out = subprocess.run(cmd, capture_output=True, text=True, check=True)
     j = json.loads(out.stdout)
     peak = [int(l.split()[1]) for l in out.stderr.splitlines() if l.startswith("peak-kb")]
-    return j["fit_seconds"], j["scored"]["accuracy"], (peak[0] if peak else float("nan"))
+    j["peak_kb"] = peak[0] if peak else float("nan")
+    return j
 
 
 def peak_of_reading(path):
@@ -59,15 +73,8 @@ def peak_of_reading(path):
     return [int(l.split()[1]) for l in out.stderr.splitlines() if l.startswith("peak-kb")][0]
 
 
-cores = os.cpu_count() or 1
-print("scikit-learn %s; %d rows x 28, %d to fit, %d to score; %d cores" % (sklearn.__version__, rows, cut, rows - cut, cores))
-with tempfile.TemporaryDirectory() as tmp:
-    train, test = os.path.join(tmp, "train.csv"), os.path.join(tmp, "test.csv")
-    write(train, X[:cut], y[:cut])
-    write(test, X[cut:], y[cut:])
-    # Read back what the files hold, so both libraries see the same numbers.
-    Xtr = np.loadtxt(train, delimiter=",", skiprows=1, usecols=range(28), dtype=np.float32)
-    Xte = np.loadtxt(test, delimiter=",", skiprows=1, usecols=range(28), dtype=np.float32)
+def forest_and_adaboost(train, test, Xtr, Xte, tmp):
+    cores = os.cpu_count() or 1
     reading = peak_of_reading(train)
     for label, method, sets, make in [
         ("random forest, 100 trees", "forest", ["trees=100", "seed=1"],
@@ -76,40 +83,88 @@ with tempfile.TemporaryDirectory() as tmp:
          lambda jobs: AdaBoostClassifier(DecisionTreeClassifier(max_depth=1), n_estimators=500, random_state=1)),
     ]:
         for threads in ([1, cores] if method == "forest" and cores > 1 else [1]):
-            ours_t, ours_acc, peak = spinney(train, test, method, sets, threads)
+            j = spinney(train, test, method, sets, threads=threads)
+            ours_t, ours_acc = j["fit_seconds"], j["scored"]["accuracy"]
             model = make(threads)
             start = time.perf_counter()
             model.fit(Xtr, y[:cut])
             ref_t = time.perf_counter() - start
             ref_acc = model.score(Xte, y[cut:])
-            beyond = (peak - reading) * 1024 / (cut * 28)
+            beyond = (j["peak_kb"] - reading) * 1024 / (cut * 28)
             print("%-26s %d thread(s): Spinney %7.2f s, accuracy %.4f | scikit-learn %7.2f s, accuracy %.4f | "
                   "time ratio %.2f | peak %.0f MB, %.2f bytes per cell beyond reading the file" % (
-                      label, threads, ours_t, ours_acc, ref_t, ref_acc, ours_t / ref_t, peak / 1024, beyond))
+                      label, threads, ours_t, ours_acc, ref_t, ref_acc, ours_t / ref_t, j["peak_kb"] / 1024, beyond))
     # Time against rows: the exponent b of time = a * rows^b over three sizes (1 = linear).
     sizes = [cut // 4, cut // 2, cut]
     times = []
     for n in sizes:
         part = os.path.join(tmp, "part.csv")
         write(part, X[:n], y[:n])
-        times.append(spinney(part, test, "forest", ["trees=20", "seed=1"])[0])
+        times.append(spinney(part, test, "forest", ["trees=20", "seed=1"])["fit_seconds"])
     b = np.polyfit(np.log(sizes), np.log(times), 1)[0]
     print("forest time by rows (20 trees, 1 thread): %s -> exponent %.2f" % (
         ", ".join("%d: %.2f s" % (n, t) for n, t in zip(sizes, times)), b))
-
-# The breast-cancer data shipped inside scikit-learn, 5-fold, same settings.
-data = load_breast_cancer()
-Xb, yb = data.data.astype(np.float32), data.target
-with tempfile.TemporaryDirectory() as tmp:
+    # The breast-cancer data shipped inside scikit-learn, a seeded 80/20 split.
+    data = load_breast_cancer()
+    Xb, yb = data.data.astype(np.float32), data.target
     tr, te = os.path.join(tmp, "tr.csv"), os.path.join(tmp, "te.csv")
     idx = np.random.default_rng(1).permutation(len(yb))
     a, b_ = idx[:455], idx[455:]
     write(tr, Xb[a], yb[a])
     write(te, Xb[b_], yb[b_])
-    ours_t, ours_acc, _ = spinney(tr, te, "forest", ["trees=100", "seed=1"])
+    j = spinney(tr, te, "forest", ["trees=100", "seed=1"])
     model = RandomForestClassifier(n_estimators=100, max_features="sqrt", n_jobs=1, random_state=1)
     start = time.perf_counter()
     model.fit(Xb[a], yb[a])
     ref_t = time.perf_counter() - start
     print("breast cancer, forest 100 trees, 1 thread: Spinney %.3f s, accuracy %.4f | scikit-learn %.3f s, accuracy %.4f | ratio %.2f" % (
-        ours_t, ours_acc, ref_t, model.score(Xb[b_], yb[b_]), ours_t / ref_t))
+        j["fit_seconds"], j["scored"]["accuracy"], ref_t, model.score(Xb[b_], yb[b_]), j["fit_seconds"] / ref_t))
+
+
+ROUNDS = 200
+
+
+def boosting(train, test, Xtr, Xte):
+    import lightgbm
+    import xgboost
+    from sklearn.ensemble import HistGradientBoostingClassifier
+    from sklearn.metrics import roc_auc_score
+
+    j = spinney(train, test, "boosting", ["loss=logistic", "depth=6", "leaf_size=20", "min_hessian=0.001", "l2=1",
+                                          "rounds=%d" % ROUNDS, "learning_rate=0.1", "bins=255"], ["--predictions"])
+    ours = (j["fit_seconds"], roc_auc_score(y[cut:], np.array(j["predictions"])[:, 1]))
+    peers = {
+        "LightGBM %s" % lightgbm.__version__: lightgbm.LGBMClassifier(
+            n_estimators=ROUNDS, learning_rate=0.1, max_depth=6, num_leaves=64, reg_lambda=1.0,
+            min_child_samples=20, min_child_weight=1e-3, max_bin=255, n_jobs=1, verbose=-1),
+        "XGBoost %s (hist)" % xgboost.__version__: xgboost.XGBClassifier(
+            n_estimators=ROUNDS, learning_rate=0.1, max_depth=6, reg_lambda=1.0, min_child_weight=1e-3,
+            tree_method="hist", max_bin=255, n_jobs=1),
+        "scikit-learn %s HistGradientBoosting" % sklearn.__version__: HistGradientBoostingClassifier(
+            max_iter=ROUNDS, learning_rate=0.1, max_depth=6, max_leaf_nodes=None, l2_regularization=1.0,
+            min_samples_leaf=20, max_bins=255, early_stopping=False),
+    }
+    results = {}
+    for name, model in peers.items():
+        start = time.perf_counter()
+        model.fit(Xtr, y[:cut])
+        results[name] = (time.perf_counter() - start, roc_auc_score(y[cut:], model.predict_proba(Xte)[:, 1]))
+    fastest = min(t for t, _ in results.values())
+    print("gradient boosting, logistic, depth 6, 255 bins, %d rounds, learning rate 0.1, 1 thread:" % ROUNDS)
+    for name, (t, auc) in [("Spinney", ours)] + list(results.items()):
+        print("  %-44s %8.1f ms/round %8.2f s total  test AUC %.4f  time / fastest peer %.2f" % (
+            name, 1000 * t / ROUNDS, t, auc, t / fastest))
+
+
+print("scikit-learn %s; %d rows x 28, %d to fit, %d to score; %d cores" % (sklearn.__version__, rows, cut, rows - cut, os.cpu_count() or 1))
+with tempfile.TemporaryDirectory() as tmp:
+    train, test = os.path.join(tmp, "train.csv"), os.path.join(tmp, "test.csv")
+    write(train, X[:cut], y[:cut])
+    write(test, X[cut:], y[cut:])
+    # Read back what the files hold, so both libraries see the same numbers.
+    Xtr = np.loadtxt(train, delimiter=",", skiprows=1, usecols=range(28), dtype=np.float32)
+    Xte = np.loadtxt(test, delimiter=",", skiprows=1, usecols=range(28), dtype=np.float32)
+    if which in ("forest", "all"):
+        forest_and_adaboost(train, test, Xtr, Xte, tmp)
+    if which in ("boosting", "all"):
+        boosting(train, test, Xtr, Xte)

@@ -1,6 +1,7 @@
-//! `spinney fit FILE --outcome COL`: fits a single tree, bagging, a random forest or AdaBoost
-//! on all rows and reports it (training fit, out-of-bag error, error by ensemble size, and
-//! optionally the fit on another file). `--json` prints a tree node by node (predictor,
+//! `spinney fit FILE --outcome COL`: fits a single tree, bagging, a random forest, AdaBoost
+//! or gradient boosting on all rows and reports it (training fit, out-of-bag error, error by
+//! ensemble size, boosting's loss curves and stopping round, and optionally the fit on
+//! another file). `--json` prints a tree node by node (predictor,
 //! threshold, where missing values go, children, values), which the checks in
 //! tests/reference compare with scikit-learn.
 
@@ -9,7 +10,9 @@ use spinney_core::binning::{bin_design, records_from_table, BinSettings, BinnedM
 use spinney_core::data::{read_table, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::ensemble::adaboost::{fit_adaboost, AdaBoost, BoostSettings, Stop};
+use spinney_core::ensemble::boosting::{fit_boosting, Boosting, BoostingSettings, Stopping};
 use spinney_core::ensemble::forest::{argmax, fit_forest, Forest, ForestSettings};
+use spinney_core::ensemble::loss::Loss;
 use spinney_core::progress::Silent;
 use spinney_core::tree::criterion::Criterion;
 use spinney_core::tree::grower::{grow, GrowSettings};
@@ -26,7 +29,7 @@ pub struct FitArgs {
     /// Predictors, comma-separated (default: every other column but text and identifiers).
     #[arg(long, value_delimiter = ',')]
     pub predictors: Option<Vec<String>>,
-    /// The kind of model: tree, bagging, forest or adaboost.
+    /// The kind of model: tree, bagging, forest, adaboost or boosting.
     #[arg(long, default_value = "tree")]
     pub method: String,
     /// A setting NAME=VALUE (repeatable); see README.md for each method's settings.
@@ -45,6 +48,13 @@ pub struct FitArgs {
     /// whatever the number.
     #[arg(long)]
     pub threads: Option<usize>,
+    /// With --json: each row's prediction (class probabilities, AdaBoost's votes, or the
+    /// number) for the scored file, or for the training rows without --score.
+    #[arg(long)]
+    pub predictions: bool,
+    /// With --json and --method boosting: the same predictions after every round.
+    #[arg(long)]
+    pub staged: bool,
 }
 
 /// Every setting `--set` can change, for all methods.
@@ -53,19 +63,45 @@ struct Settings {
     bins: BinSettings,
     forest: ForestSettings,
     boost: BoostSettings,
+    boosting: BoostingSettings,
+    /// Monotone constraints by predictor name (+1 up, −1 down), resolved after the design.
+    monotone: Vec<(String, i8)>,
+    /// Huber's quantile, applied once the loss is known.
+    huber_quantile: Option<f64>,
     /// Weigh classes by n / (K · rows of the class).
     balanced_classes: bool,
     /// Cost-complexity pruning of a single tree (α per leaf, share of the rows' weight).
     pruning: f64,
 }
 
+/// Settings only gradient boosting reads, and the ones it does not read.
+const BOOSTING_ONLY: [&str; 8] = [
+    "loss",
+    "huber_quantile",
+    "l2",
+    "patience",
+    "validation_share",
+    "min_hessian",
+    "monotone",
+    "predictor_fraction",
+];
+const NOT_FOR_BOOSTING: [&str; 4] = ["criterion", "trees", "sampling", "predictors_per_split"];
+
 /// Applies the `--set NAME=VALUE` settings to `all`, checking each against its range.
-fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::Result<()> {
+fn parse_sets(
+    sets: &[String],
+    all: &mut Settings,
+    regression: bool,
+    method: &str,
+) -> anyhow::Result<()> {
     let Settings {
         grow: settings,
         bins,
         forest,
         boost,
+        boosting,
+        monotone,
+        huber_quantile,
         balanced_classes,
         pruning,
     } = all;
@@ -73,6 +109,42 @@ fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::
         let (name, value) = s
             .split_once('=')
             .with_context(|| format!("--set {s:?}: write NAME=VALUE"))?;
+        if method == "boosting" && NOT_FOR_BOOSTING.contains(&name) {
+            bail!(
+                "--set {name}: not a setting of gradient boosting (its split criterion follows \
+                 its loss; it fits one tree per round, or per class per round, on a share of the \
+                 rows set by row_fraction and of the predictors set by predictor_fraction)"
+            );
+        }
+        if method != "boosting" && BOOSTING_ONLY.contains(&name) {
+            bail!("--set {name}: only for --method boosting");
+        }
+        let share = |lo_open: bool| -> anyhow::Result<f64> {
+            let f: f64 = value
+                .parse()
+                .with_context(|| format!("--set {name}: '{value}' is not a number"))?;
+            let ok = if lo_open {
+                f > 0.0 && f <= 1.0
+            } else {
+                f > 0.0 && f < 1.0
+            };
+            if !ok {
+                bail!(
+                    "--set {name}: {f} is outside the allowed range {}",
+                    if lo_open { "(0, 1]" } else { "(0, 1)" }
+                );
+            }
+            Ok(f)
+        };
+        let non_negative = || -> anyhow::Result<f64> {
+            let f: f64 = value
+                .parse()
+                .with_context(|| format!("--set {name}: '{value}' is not a number"))?;
+            if !(f >= 0.0 && f.is_finite()) {
+                bail!("--set {name}: must be a number zero or more");
+            }
+            Ok(f)
+        };
         let whole = |lo: usize, hi: usize| -> anyhow::Result<usize> {
             let v: usize = value
                 .parse()
@@ -145,6 +217,42 @@ fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::
                     bail!("--set row_fraction: {f} is outside the allowed range (0, 1]");
                 }
                 forest.row_fraction = f;
+                boosting.row_fraction = f;
+            }
+            "loss" => {
+                boosting.loss = Some(match value {
+                    "logistic" => Loss::Logistic,
+                    "softmax" => Loss::Softmax,
+                    "squared_error" => Loss::SquaredError,
+                    "absolute_error" => Loss::AbsoluteError,
+                    "huber" => Loss::Huber { quantile: 0.9 },
+                    "poisson" => Loss::Poisson,
+                    _ => bail!(
+                        "--set loss={value}: unknown loss; use logistic or softmax for classes, \
+                         squared_error, absolute_error, huber or poisson for numbers"
+                    ),
+                })
+            }
+            "huber_quantile" => *huber_quantile = Some(share(false)?),
+            "l2" => boosting.l2 = non_negative()?,
+            "min_hessian" => settings.min_weight_leaf = non_negative()?,
+            "patience" => boosting.patience = Some(whole(1, 100_000)?),
+            "validation_share" => boosting.validation_share = share(false)?,
+            "predictor_fraction" => boosting.predictor_fraction = share(true)?,
+            "monotone" => {
+                let (column, way) = value.rsplit_once(':').with_context(|| {
+                    format!("--set monotone={value}: write COLUMN:up or COLUMN:down")
+                })?;
+                let sign = match way {
+                    "up" => 1,
+                    "down" => -1,
+                    "none" => 0,
+                    _ => bail!(
+                        "--set monotone={value}: '{way}' is not a direction; write \
+                         {column}:up (never falls as {column} rises) or {column}:down"
+                    ),
+                };
+                monotone.push((column.to_string(), sign));
             }
             "sampling" => {
                 forest.replace = match value {
@@ -161,9 +269,17 @@ fn parse_sets(sets: &[String], all: &mut Settings, regression: bool) -> anyhow::
             }
             other => bail!(
                 "--set {other}: unknown setting; see README.md for the settings of each method \
-                 (depth, leaves, leaf_size, split_size, bins, split_search, criterion, min_gain, pruning, class_weight, trees, \
-                 predictors_per_split, row_fraction, sampling, seed, rounds, learning_rate)"
+                 (depth, leaves, leaf_size, split_size, bins, split_search, criterion, min_gain, \
+                 pruning, class_weight, trees, predictors_per_split, row_fraction, sampling, seed, \
+                 rounds, learning_rate; for boosting also loss, huber_quantile, l2, min_hessian, \
+                 patience, validation_share, predictor_fraction, monotone)"
             ),
+        }
+    }
+    if let Some(q) = *huber_quantile {
+        match &mut boosting.loss {
+            Some(Loss::Huber { quantile }) => *quantile = q,
+            _ => bail!("--set huber_quantile: only with --set loss=huber"),
         }
     }
     Ok(())
@@ -214,6 +330,7 @@ enum Model {
     Tree(Tree),
     Forest(Forest),
     AdaBoost(AdaBoost),
+    Boosting(Boosting),
 }
 
 impl Model {
@@ -228,6 +345,13 @@ impl Model {
                 f.predict(rows, row, out);
             }
             Model::AdaBoost(a) => *out = a.scores(rows, row, a.trees.len()),
+            Model::Boosting(b) => {
+                let mut scores = b.initial.clone();
+                for (i, t) in b.trees.iter().enumerate() {
+                    scores[i % b.outputs] += t.predict(rows, row)[0];
+                }
+                b.predict(&scores, out);
+            }
         }
     }
 }
@@ -337,19 +461,50 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             args.outcome
         ),
         "adaboost" => grow_settings.max_depth = Some(1),
-        other => bail!("--method {other}: choose tree, bagging, forest or adaboost (gradient boosting is being built)"),
+        "boosting" => grow_settings = BoostingSettings::default().grow,
+        other => bail!("--method {other}: choose tree, bagging, forest, adaboost or boosting"),
+    }
+    let mut boost = BoostSettings::default();
+    if args.method == "boosting" {
+        let defaults = BoostingSettings::default();
+        (boost.rounds, boost.learning_rate) = (defaults.rounds, defaults.learning_rate);
     }
     let mut all = Settings {
         grow: grow_settings,
         bins: BinSettings::default(),
         forest,
-        boost: BoostSettings::default(),
+        boost,
+        boosting: BoostingSettings::default(),
+        monotone: Vec::new(),
+        huber_quantile: None,
         balanced_classes: false,
         pruning: 0.0,
     };
-    parse_sets(&args.sets, &mut all, regression)?;
+    parse_sets(&args.sets, &mut all, regression, &args.method)?;
     all.forest.grow = all.grow;
     all.boost.grow = all.grow;
+    all.boosting.grow = all.grow;
+    all.boosting.rounds = all.boost.rounds;
+    all.boosting.learning_rate = all.boost.learning_rate;
+    all.boosting.seed = all.forest.seed;
+    if !all.monotone.is_empty() {
+        all.boosting.monotone = vec![0; design.predictors.len()];
+        for (name, sign) in &all.monotone {
+            let Some(j) = design.predictors.iter().position(|p| &p.name == name) else {
+                bail!(
+                    "--set monotone={name}:...: '{name}' is not among the predictors ({}); \
+                     check the spelling or add it with --predictors",
+                    design
+                        .predictors
+                        .iter()
+                        .map(|p| p.name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                );
+            };
+            all.boosting.monotone[j] = *sign;
+        }
+    }
     // Fit time counts binning and fitting, not reading the file.
     let fit_start = std::time::Instant::now();
     let binned = bin_design(&design, all.bins)?;
@@ -360,7 +515,24 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         bail!("--set pruning: prunes a single tree (--method tree); ensembles are not pruned");
     }
     let mut pruning_path = None;
-    let model = if args.method == "tree" {
+    let model = if args.method == "boosting" {
+        // Row weights times class weights (with class_weight=balanced).
+        let weights: Option<Vec<f64>> = match (&design.outcome, all.balanced_classes) {
+            (Outcome::Classes { codes, .. }, true) => Some(
+                (0..codes.len())
+                    .map(|r| stats[r * width + codes[r] as usize])
+                    .collect(),
+            ),
+            _ => design.weights.clone(),
+        };
+        Model::Boosting(fit_boosting(
+            &binned,
+            &design,
+            weights.as_deref(),
+            &all.boosting,
+            &mut Bar::new(),
+        )?)
+    } else if args.method == "tree" {
         let rows: Vec<u32> = (0..binned.rows as u32).collect();
         let full = grow(&binned, &stats, width, &rows, &all.grow, None);
         pruning_path = Some(spinney_core::tree::prune::pruning_path(&full));
@@ -412,9 +584,13 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             Some((
                 performance(&model, Rows::Records(&kept), &outcome),
                 staged_errors(&model, Rows::Records(&kept), &outcome),
+                kept,
             ))
         }
     };
+    if args.staged && !matches!(model, Model::Boosting(_)) {
+        bail!("--staged: only for --method boosting (predictions after every round)");
+    }
     let classes = match &design.outcome {
         Outcome::Classes { labels, .. } => Some(labels.clone()),
         Outcome::Numbers(_) => None,
@@ -432,9 +608,26 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             Rows::Binned(&binned),
             &design.outcome
         ));
-        if let Some(((name, value), curve)) = &scored {
+        if let Some(((name, value), curve, _)) = &scored {
             out["scored"] = serde_json::json!({ *name: value });
             out["scored_error_by_size"] = serde_json::json!(curve);
+        }
+        // Predictions of the scored rows, or of the training rows without --score.
+        let predicted = scored
+            .as_ref()
+            .map_or(Rows::Binned(&binned), |s| Rows::Records(&s.2));
+        if args.predictions {
+            let mut p = Vec::new();
+            let rows: Vec<Vec<f64>> = (0..predicted.len())
+                .map(|r| {
+                    model.predict(predicted, r, &mut p);
+                    p.clone()
+                })
+                .collect();
+            out["predictions"] = serde_json::json!(rows);
+        }
+        if let (true, Model::Boosting(b)) = (args.staged, &model) {
+            out["staged_predictions"] = serde_json::json!(staged_predictions(b, predicted));
         }
         match &model {
             Model::Tree(tree) => {
@@ -453,6 +646,20 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 out["partial"] = f.partial.into();
                 out["out_of_bag_error_by_trees"] = serde_json::json!(f.oob_error);
                 out["out_of_bag_share"] = f.oob_share.into();
+            }
+            Model::Boosting(b) => {
+                out["loss"] = b.loss.word().into();
+                out["rounds"] = b.rounds().into();
+                out["initial_scores"] = serde_json::json!(b.initial);
+                out["training_loss_by_round"] = serde_json::json!(b.training_loss);
+                out["validation_loss_by_round"] = serde_json::json!(b.validation_loss);
+                out["held_out_rows"] = b.held_out.len().into();
+                out["stopped"] = stopping_words(b).into();
+                out["stopping_round"] = match b.stopping {
+                    Stopping::Early { last, .. } => last.into(),
+                    _ => serde_json::Value::Null,
+                };
+                out["partial"] = b.partial.into();
             }
             Model::AdaBoost(a) => {
                 out["rounds"] = a.trees.len().into();
@@ -492,6 +699,27 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 );
             }
             Model::AdaBoost(_) => {}
+            Model::Boosting(b) => {
+                println!(
+                    "gradient boosting ({} loss): {} rounds for '{}' on {} rows and {} predictors; {}",
+                    b.loss.word(),
+                    b.rounds(),
+                    design.outcome_name,
+                    binned.rows,
+                    binned.columns.len(),
+                    stopping_words(b)
+                );
+                if let (Some(first), Some(kept)) =
+                    (b.validation_loss.first(), b.validation_loss.get(b.rounds()))
+                {
+                    println!(
+                        "held-out loss ({} rows, not used for fitting): {first:.4} at the start, \
+                         {kept:.4} after round {}",
+                        b.held_out.len(),
+                        b.rounds()
+                    );
+                }
+            }
         }
         if let Model::AdaBoost(a) = &model {
             println!(
@@ -506,7 +734,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             "training {} {:.4} (apparent fit on the same rows, not a validation)",
             training.0, training.1
         );
-        if let Some(((name, value), _)) = scored {
+        if let Some(((name, value), _, _)) = scored {
             println!(
                 "{name} on {}: {value:.4}",
                 args.score
@@ -596,8 +824,30 @@ fn fit_forest_on_threads(
 /// rate for classes, mean squared error for numbers. `None` for a single tree.
 fn staged_errors(model: &Model, rows: Rows<'_>, outcome: &Outcome) -> Option<Vec<f64>> {
     let n = rows.len();
+    if let Model::Boosting(b) = model {
+        let mut p = Vec::new();
+        let curve = staged_predictions(b, rows)
+            .iter()
+            .map(|stage| {
+                let err: f64 = (0..n)
+                    .map(|r| {
+                        p.clear();
+                        p.extend_from_slice(&stage[r]);
+                        match outcome {
+                            Outcome::Classes { codes, .. } => {
+                                (argmax(&p) != codes[r] as usize) as u8 as f64
+                            }
+                            Outcome::Numbers(y) => (p[0] - y[r]).powi(2),
+                        }
+                    })
+                    .sum();
+                err / n as f64
+            })
+            .collect();
+        return Some(curve);
+    }
     let (members, outputs): (Vec<(&Tree, f64)>, usize) = match model {
-        Model::Tree(_) => return None,
+        Model::Tree(_) | Model::Boosting(_) => return None,
         Model::Forest(f) => (f.trees.iter().map(|t| (t, 1.0)).collect(), f.outputs),
         Model::AdaBoost(a) => (
             a.trees.iter().zip(a.alphas.iter().copied()).collect(),
@@ -627,6 +877,37 @@ fn staged_errors(model: &Model, rows: Rows<'_>, outcome: &Outcome) -> Option<Vec
         curve.push(err / n as f64);
     }
     Some(curve)
+}
+
+/// Every row's prediction after each round 1, 2, ... of a boosted model.
+fn staged_predictions(b: &Boosting, rows: Rows<'_>) -> Vec<Vec<Vec<f64>>> {
+    let mut scores = b.scores(rows, 0);
+    let mut out = Vec::with_capacity(b.rounds());
+    let mut p = Vec::new();
+    for round in 0..b.rounds() {
+        b.add_round(rows, round, &mut scores);
+        out.push(
+            scores
+                .chunks_exact(b.outputs)
+                .map(|s| {
+                    b.predict(s, &mut p);
+                    p.clone()
+                })
+                .collect(),
+        );
+    }
+    out
+}
+
+fn stopping_words(b: &Boosting) -> String {
+    match b.stopping {
+        Stopping::AllRounds => "ran every round".into(),
+        Stopping::Early { best, last } => format!(
+            "stopped early at round {last}: the held-out loss was lowest after round {best}, \
+             and the model keeps rounds 1 to {best}"
+        ),
+        Stopping::Cancelled => "cancelled before the last round (partial model)".into(),
+    }
 }
 
 fn stop_words(stop: Stop) -> &'static str {

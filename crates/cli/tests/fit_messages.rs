@@ -51,7 +51,7 @@ fn bad_designs_and_settings_are_refused_clearly() {
     );
     fails_with(
         &["fit", f, "--outcome", "y", "--method", "magic"],
-        &["choose tree, bagging, forest or adaboost"],
+        &["choose tree, bagging, forest, adaboost or boosting"],
     );
     fails_with(
         &["fit", f, "--outcome", "y", "--weight", "w"],

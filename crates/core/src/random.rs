@@ -13,6 +13,12 @@ pub enum Purpose {
     TreeRows = 1,
     /// The predictors tried at each split of tree `index`.
     TreePredictors = 2,
+    /// The rows of boosting round `index` (row subsampling).
+    BoostRows = 3,
+    /// The predictors of boosting tree `index` (round × outputs + output).
+    BoostPredictors = 4,
+    /// The rows held out for early stopping (`index` 0).
+    BoostHoldout = 5,
 }
 
 /// The stream for (`seed`, `purpose`, `index`).
