@@ -51,6 +51,7 @@ impl Criterion {
 
     /// Weight times impurity of a node with summed statistics `s`. For squared error the
     /// part that does not depend on the split (Σ w·y²) is left out: `−(Σ w·y)² / Σ w`.
+    #[inline(always)]
     pub fn cost(self, s: &[f64]) -> f64 {
         match self {
             Criterion::SquaredError => {
@@ -89,6 +90,7 @@ impl Criterion {
     }
 
     /// Total weight of a node (for gradients: the summed hessian).
+    #[inline(always)]
     pub fn weight(self, s: &[f64]) -> f64 {
         match self {
             Criterion::SquaredError => s[0],
