@@ -12,6 +12,8 @@ pub mod data;
 pub mod design;
 pub mod ensemble;
 pub mod error;
+pub mod model;
+pub mod model_file;
 pub mod progress;
 pub mod random;
 pub mod tree;
