@@ -14,6 +14,7 @@ use crate::data::values::yes_no_word;
 use crate::data::{Kind, Table, Values, MISSING_CODE};
 use crate::design::{Design, Outcome, PredictorValues};
 use crate::ensemble::adaboost::{AdaBoost, Stop};
+use crate::ensemble::boosting::Boosting;
 use crate::ensemble::forest::{argmax, Forest};
 use crate::error::{Error, ErrorKind, Result};
 use crate::tree::{Rows, Tree};
@@ -25,14 +26,17 @@ pub enum Method {
     Bagging,
     Forest,
     AdaBoost,
+    /// Gradient boosting.
+    Boosting,
 }
 
 impl Method {
-    pub const ALL: [Method; 4] = [
+    pub const ALL: [Method; 5] = [
         Method::Tree,
         Method::Bagging,
         Method::Forest,
         Method::AdaBoost,
+        Method::Boosting,
     ];
 
     /// The word used on the command line and in model files.
@@ -42,6 +46,7 @@ impl Method {
             Method::Bagging => "bagging",
             Method::Forest => "forest",
             Method::AdaBoost => "adaboost",
+            Method::Boosting => "boosting",
         }
     }
 
@@ -94,8 +99,7 @@ impl Predictor {
 }
 
 /// The predictors of a fitted design, in the model's order (the binned matrix's columns).
-/// `table` is the training table (for the words of yes/no columns).
-pub fn predictors_of(design: &Design, binned: &BinnedMatrix, table: &Table) -> Vec<Predictor> {
+pub fn predictors_of(design: &Design, binned: &BinnedMatrix) -> Vec<Predictor> {
     design
         .predictors
         .iter()
@@ -103,9 +107,9 @@ pub fn predictors_of(design: &Design, binned: &BinnedMatrix, table: &Table) -> V
         .map(|(p, col)| {
             let reading = match (&p.values, &col.rule) {
                 (PredictorValues::Numbers(_), _) if p.kind == Kind::YesNo => Reading::YesNo {
-                    labels: table
-                        .column(&p.name)
-                        .and_then(|c| c.yes_no_labels.clone())
+                    labels: p
+                        .yes_no_labels
+                        .clone()
                         .unwrap_or_else(|| ["0".into(), "1".into()]),
                 },
                 (
@@ -137,9 +141,11 @@ pub enum Ensemble {
     /// Bagging and random forests.
     Forest(Forest),
     AdaBoost(AdaBoost),
-    // Gradient boosting: add `Boosting(...)` here, with its arms in `Model::predict`,
-    // `Model::staged_predict`, `Model::staged_errors`, `Ensemble::trees`, `Model::check` and
-    // in model_file.rs (a `boosting` block beside `forest` and `adaboost`).
+    /// Gradient boosting: round `r`'s tree for score `k` is `trees[r * outputs + k]`.
+    Boosting(Boosting),
+    // A new method: a variant here, with its arms in `Model::predict`, `Model::raw_scores`,
+    // `Model::staged_predict`, `Model::staged_errors`, `Ensemble::trees`, `Model::check`,
+    // `is_partial` and in model_file.rs (a block beside `forest`, `adaboost`, `boosting`).
 }
 
 impl Ensemble {
@@ -149,6 +155,7 @@ impl Ensemble {
             Ensemble::Tree(t) => std::slice::from_ref(t),
             Ensemble::Forest(f) => &f.trees,
             Ensemble::AdaBoost(a) => &a.trees,
+            Ensemble::Boosting(b) => &b.trees,
         }
     }
 }
@@ -191,13 +198,17 @@ impl Model {
         self.classes.as_ref().map_or(1, Vec::len)
     }
 
-    /// Trees (bagging, forest) or rounds (AdaBoost); 1 for a single tree.
+    /// Trees (bagging, forest) or rounds (AdaBoost, boosting); 1 for a single tree.
     pub fn members(&self) -> usize {
-        self.ensemble.trees().len()
+        match &self.ensemble {
+            Ensemble::Boosting(b) => b.rounds(),
+            e => e.trees().len(),
+        }
     }
 
     /// The prediction for row `row` into `out` (`outputs()` values): class probabilities,
-    /// or the predicted number. AdaBoost's probabilities follow [`samme_probabilities`].
+    /// or the predicted number. AdaBoost's probabilities follow [`samme_probabilities`];
+    /// gradient boosting's come from its scores through its loss's link.
     pub fn predict(&self, rows: Rows<'_>, row: usize, out: &mut [f64]) {
         match &self.ensemble {
             Ensemble::Tree(t) => {
@@ -211,14 +222,24 @@ impl Model {
                 let total: f64 = a.alphas.iter().sum();
                 samme_probabilities(&scores, total, out);
             }
+            Ensemble::Boosting(b) => {
+                let scores = boosting_scores(b, rows, row, b.rounds());
+                let mut p = Vec::with_capacity(out.len());
+                b.predict(&scores, &mut p);
+                for (o, v) in out.iter_mut().zip(&p) {
+                    *o = *v;
+                }
+            }
         }
     }
 
-    /// AdaBoost's raw scores for row `row` (Σ α of the rounds voting for each class);
-    /// `None` for other methods.
-    pub fn adaboost_scores(&self, rows: Rows<'_>, row: usize) -> Option<Vec<f64>> {
+    /// The scores behind the prediction of row `row`: AdaBoost's votes (Σ α of the rounds
+    /// voting for each class) or gradient boosting's scores before the link (log-odds,
+    /// class scores, or the number's scale); `None` for trees, bagging and forests.
+    pub fn raw_scores(&self, rows: Rows<'_>, row: usize) -> Option<Vec<f64>> {
         match &self.ensemble {
             Ensemble::AdaBoost(a) => Some(a.scores(rows, row, a.trees.len())),
+            Ensemble::Boosting(b) => Some(boosting_scores(b, rows, row, b.rounds())),
             _ => None,
         }
     }
@@ -227,6 +248,17 @@ impl Model {
     /// member after member, each as [`Model::predict`] gives it for that many members.
     pub fn staged_predict(&self, rows: Rows<'_>, row: usize) -> Vec<f64> {
         let k = self.outputs();
+        if let Ensemble::Boosting(b) = &self.ensemble {
+            let mut scores = b.initial.clone();
+            let mut out = Vec::with_capacity(b.rounds() * k);
+            let mut p = Vec::with_capacity(k);
+            for round in 0..b.rounds() {
+                add_boosting_round(b, rows, row, round, &mut scores);
+                b.predict(&scores, &mut p);
+                out.extend_from_slice(&p);
+            }
+            return out;
+        }
         let trees = self.ensemble.trees();
         let mut out = vec![0.0; trees.len() * k];
         let mut sums = vec![0.0; k];
@@ -250,6 +282,7 @@ impl Model {
                     total += alpha;
                     samme_probabilities(&sums, total, stage);
                 }
+                Ensemble::Boosting(_) => {} // above
             }
         }
         out
@@ -260,8 +293,11 @@ impl Model {
     pub fn staged_errors(&self, rows: Rows<'_>, outcome: &Outcome) -> Option<Vec<f64>> {
         let n = rows.len();
         let outputs = self.outputs();
+        if let Ensemble::Boosting(b) = &self.ensemble {
+            return Some(boosting_staged_errors(b, rows, outcome));
+        }
         let (members, voting): (Vec<(&Tree, f64)>, bool) = match &self.ensemble {
-            Ensemble::Tree(_) => return None,
+            Ensemble::Tree(_) | Ensemble::Boosting(_) => return None,
             Ensemble::Forest(f) => (f.trees.iter().map(|t| (t, 1.0)).collect(), false),
             Ensemble::AdaBoost(a) => (a.trees.iter().zip(a.alphas.iter().copied()).collect(), true),
         };
@@ -516,7 +552,8 @@ impl Model {
         match (&self.method, &self.ensemble) {
             (Method::Tree, Ensemble::Tree(_))
             | (Method::Bagging | Method::Forest, Ensemble::Forest(_))
-            | (Method::AdaBoost, Ensemble::AdaBoost(_)) => {}
+            | (Method::AdaBoost, Ensemble::AdaBoost(_))
+            | (Method::Boosting, Ensemble::Boosting(_)) => {}
             _ => {
                 return Err(format!(
                     "its members do not match its method '{}'",
@@ -547,24 +584,65 @@ impl Model {
                     ));
                 }
             }
+            Ensemble::Boosting(b) => {
+                let classes = self.classes.as_ref().map_or(0, Vec::len);
+                if b.loss.for_classes() != self.classes.is_some() || b.classes != classes {
+                    return Err(format!(
+                        "the {} loss does not fit the outcome's {}",
+                        b.loss.word(),
+                        if classes == 0 {
+                            "numbers".to_string()
+                        } else {
+                            format!("{classes} classes")
+                        }
+                    ));
+                }
+                if b.outputs != b.loss.outputs(classes)
+                    || (b.loss.for_classes() && b.loss.outputs(classes) == 1 && classes != 2)
+                {
+                    return Err(format!(
+                        "the {} loss gives {} score(s) per row for {classes} classes",
+                        b.loss.word(),
+                        b.outputs
+                    ));
+                }
+                if b.initial.len() != b.outputs {
+                    return Err(format!(
+                        "boosting has {} starting score(s) but {} score(s) per row",
+                        b.initial.len(),
+                        b.outputs
+                    ));
+                }
+                if b.trees.len() % b.outputs.max(1) != 0 {
+                    return Err(format!(
+                        "boosting has {} trees, not a whole number of rounds of {}",
+                        b.trees.len(),
+                        b.outputs
+                    ));
+                }
+            }
         }
+        // Boosting's trees each give one score; the others' trees give the prediction.
+        let tree_outputs = match &self.ensemble {
+            Ensemble::Boosting(_) => 1,
+            _ => outputs,
+        };
         for (t, tree) in self.ensemble.trees().iter().enumerate() {
-            self.check_tree(tree)
+            self.check_tree(tree, tree_outputs)
                 .map_err(|e| format!("tree {}: {e}", t + 1))?;
         }
         Ok(())
     }
 
-    fn check_tree(&self, tree: &Tree) -> std::result::Result<(), String> {
+    fn check_tree(&self, tree: &Tree, outputs: usize) -> std::result::Result<(), String> {
         let n = tree.nodes.len();
         if n == 0 {
             return Err("it has no nodes".into());
         }
-        if tree.outputs != self.outputs() {
+        if tree.outputs != outputs {
             return Err(format!(
-                "it gives {} value(s) per node but the outcome needs {}",
-                tree.outputs,
-                self.outputs()
+                "it gives {} value(s) per node but should give {outputs}",
+                tree.outputs
             ));
         }
         let mut parents = vec![0u32; n];
@@ -682,5 +760,47 @@ pub fn is_partial(ensemble: &Ensemble) -> bool {
         Ensemble::Tree(_) => false,
         Ensemble::Forest(f) => f.partial,
         Ensemble::AdaBoost(a) => a.stop == Stop::Cancelled,
+        Ensemble::Boosting(b) => b.partial,
     }
+}
+
+/// Adds round `round`'s trees of `b` to the scores of one row.
+fn add_boosting_round(b: &Boosting, rows: Rows<'_>, row: usize, round: usize, scores: &mut [f64]) {
+    let m = b.outputs;
+    for (k, s) in scores.iter_mut().enumerate().take(m) {
+        if let Some(tree) = b.trees.get(round * m + k) {
+            *s += tree.predict(rows, row).first().copied().unwrap_or(0.0);
+        }
+    }
+}
+
+/// Gradient boosting's scores for one row after `rounds` rounds.
+fn boosting_scores(b: &Boosting, rows: Rows<'_>, row: usize, rounds: usize) -> Vec<f64> {
+    let mut scores = b.initial.clone();
+    for round in 0..rounds {
+        add_boosting_round(b, rows, row, round, &mut scores);
+    }
+    scores
+}
+
+/// Gradient boosting's error after each round (error rate, or mean squared error of the
+/// predicted number), one pass over the rounds.
+fn boosting_staged_errors(b: &Boosting, rows: Rows<'_>, outcome: &Outcome) -> Vec<f64> {
+    let n = rows.len();
+    let mut scores = b.scores(rows, 0);
+    let mut p = Vec::new();
+    let mut curve = Vec::with_capacity(b.rounds());
+    for round in 0..b.rounds() {
+        b.add_round(rows, round, &mut scores);
+        let mut err = 0.0;
+        for (r, s) in scores.chunks_exact(b.outputs.max(1)).enumerate() {
+            b.predict(s, &mut p);
+            err += match outcome {
+                Outcome::Classes { codes, .. } => (argmax(&p) != codes[r] as usize) as u8 as f64,
+                Outcome::Numbers(y) => (p[0] - y[r]).powi(2),
+            };
+        }
+        curve.push(err / n as f64);
+    }
+    curve
 }

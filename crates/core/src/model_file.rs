@@ -12,7 +12,9 @@
 //!   `training_fingerprint` (SHA-256 of the training file, or null), `training_rows`,
 //!   `partial` (fitting was cancelled);
 //! - `forest` (out-of-bag error after each tree, null where no row was out of bag; share of
-//!   rows out of bag) or `adaboost` (round weights, round errors, why it stopped);
+//!   rows out of bag), `adaboost` (round weights, round errors, why it stopped) or `boosting`
+//!   (loss, starting scores, training and held-out loss by round, the held-out rows'
+//!   numbers, why it stopped; its trees are round by round, one per score);
 //! - `trees`: each tree as parallel arrays, one entry per node (`feature`, `numeric`,
 //!   `threshold`, `threshold_bin`, `categories_left`, `missing_left`, `left`, `right`,
 //!   `weight`, `gain`, `value`), plus its `values` (`outputs` per node). A leaf has
@@ -30,7 +32,9 @@ use serde::{Deserialize, Serialize};
 
 use crate::data::Kind;
 use crate::ensemble::adaboost::{AdaBoost, Stop};
+use crate::ensemble::boosting::{Boosting, Stopping};
 use crate::ensemble::forest::Forest;
+use crate::ensemble::loss::Loss;
 use crate::error::{Error, ErrorKind, Result, Where};
 use crate::model::{Ensemble, Method, Model, Predictor, Reading};
 use crate::tree::{BinSet, Node, Tree};
@@ -67,6 +71,8 @@ struct FileV1 {
     forest: Option<ForestV1>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     adaboost: Option<AdaBoostV1>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    boosting: Option<BoostingV1>,
     trees: Vec<TreeV1>,
 }
 
@@ -99,6 +105,28 @@ struct AdaBoostV1 {
     round_errors: Vec<f64>,
     /// all_rounds, perfect, no_better_than_chance or cancelled.
     stopped: String,
+}
+
+#[derive(Serialize, Deserialize)]
+struct BoostingV1 {
+    /// logistic, softmax, squared_error, absolute_error, huber or poisson.
+    loss: String,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    huber_quantile: Option<f64>,
+    /// Scores per row (1, or one per class for softmax).
+    outputs: usize,
+    initial_scores: Vec<f64>,
+    /// null where the loss was not a finite number.
+    training_loss: Vec<Option<f64>>,
+    validation_loss: Vec<Option<f64>>,
+    /// Training rows (0-based, in the order used) held out for early stopping.
+    held_out_rows: Vec<u32>,
+    /// all_rounds, early or cancelled.
+    stopped: String,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    best_round: Option<usize>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    last_round: Option<usize>,
 }
 
 #[derive(Serialize, Deserialize)]
@@ -181,8 +209,36 @@ pub fn write_model(model: &Model) -> Result<String> {
             values: tree.values.clone(),
         });
     }
+    let nullable =
+        |v: &[f64]| -> Vec<Option<f64>> { v.iter().map(|&x| x.is_finite().then_some(x)).collect() };
+    let boosting = match &model.ensemble {
+        Ensemble::Boosting(b) => {
+            finite("starting scores", &b.initial)?;
+            let (stopped, best_round, last_round) = match b.stopping {
+                Stopping::AllRounds => ("all_rounds", None, None),
+                Stopping::Early { best, last } => ("early", Some(best), Some(last)),
+                Stopping::Cancelled => ("cancelled", None, None),
+            };
+            Some(BoostingV1 {
+                loss: b.loss.word().into(),
+                huber_quantile: match b.loss {
+                    Loss::Huber { quantile } => Some(quantile),
+                    _ => None,
+                },
+                outputs: b.outputs,
+                initial_scores: b.initial.clone(),
+                training_loss: nullable(&b.training_loss),
+                validation_loss: nullable(&b.validation_loss),
+                held_out_rows: b.held_out.clone(),
+                stopped: stopped.into(),
+                best_round,
+                last_round,
+            })
+        }
+        _ => None,
+    };
     let (forest, adaboost) = match &model.ensemble {
-        Ensemble::Tree(_) => (None, None),
+        Ensemble::Tree(_) | Ensemble::Boosting(_) => (None, None),
         Ensemble::Forest(f) => {
             finite("out-of-bag share", &[f.oob_share])?;
             let out_of_bag_error = f
@@ -257,6 +313,7 @@ pub fn write_model(model: &Model) -> Result<String> {
         partial: model.partial,
         forest,
         adaboost,
+        boosting,
         trees,
     };
     let mut bytes = Vec::new();
@@ -456,7 +513,7 @@ pub fn read_model(bytes: &[u8]) -> Result<Model> {
 fn from_file(file: FileV1) -> Result<Model> {
     let method = Method::from_word(&file.method).ok_or_else(|| {
         bad(format!(
-            "its method '{}' is not one of tree, bagging, forest, adaboost",
+            "its method '{}' is not one of tree, bagging, forest, adaboost, boosting",
             file.method
         ))
     })?;
@@ -567,6 +624,49 @@ fn from_file(file: FileV1) -> Result<Model> {
                 errors: a.round_errors,
                 classes: outputs,
                 stop,
+            })
+        }
+        Method::Boosting => {
+            let b = file
+                .boosting
+                .ok_or_else(|| bad("a gradient-boosting model lacks its \"boosting\" block"))?;
+            let loss = match (b.loss.as_str(), b.huber_quantile) {
+                ("logistic", _) => Loss::Logistic,
+                ("softmax", _) => Loss::Softmax,
+                ("squared_error", _) => Loss::SquaredError,
+                ("absolute_error", _) => Loss::AbsoluteError,
+                ("poisson", _) => Loss::Poisson,
+                ("huber", Some(quantile)) => Loss::Huber { quantile },
+                (other, _) => {
+                    return Err(bad(format!(
+                        "boosting's loss '{other}' is not one of logistic, softmax, \
+                         squared_error, absolute_error, huber (with huber_quantile), poisson"
+                    )))
+                }
+            };
+            let stopping = match (b.stopped.as_str(), b.best_round, b.last_round) {
+                ("all_rounds", _, _) => Stopping::AllRounds,
+                ("cancelled", _, _) => Stopping::Cancelled,
+                ("early", Some(best), Some(last)) => Stopping::Early { best, last },
+                (other, _, _) => {
+                    return Err(bad(format!(
+                        "boosting's \"stopped\" is '{other}', not all_rounds, cancelled, or \
+                         early with best_round and last_round"
+                    )))
+                }
+            };
+            let nan = |v: Vec<Option<f64>>| v.into_iter().map(|x| x.unwrap_or(f64::NAN)).collect();
+            Ensemble::Boosting(Boosting {
+                loss,
+                classes: file.classes.as_ref().map_or(0, Vec::len),
+                outputs: b.outputs,
+                initial: b.initial_scores,
+                trees,
+                training_loss: nan(b.training_loss),
+                validation_loss: nan(b.validation_loss),
+                held_out: b.held_out_rows,
+                stopping,
+                partial: file.partial,
             })
         }
     };

@@ -9,7 +9,9 @@ use spinney_core::binning::{bin_design, BinSettings, Records};
 use spinney_core::data::{read_table, ReadOptions, Table};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::ensemble::adaboost::{fit_adaboost, BoostSettings};
+use spinney_core::ensemble::boosting::{fit_boosting, BoostingSettings};
 use spinney_core::ensemble::forest::{fit_forest, ForestSettings};
+use spinney_core::ensemble::loss::Loss;
 use spinney_core::model::{
     is_partial, predictors_of, samme_probabilities, Ensemble, Method, Model,
 };
@@ -20,10 +22,11 @@ use spinney_core::tree::grower::{grow, GrowSettings};
 use spinney_core::tree::Rows;
 
 /// Invented records: a number with awkward decimals, a date, a yes/no column, a category
-/// with a rare (pooled) label, missing values everywhere, and three classes.
+/// with a rare (pooled) label, missing values everywhere, three classes (`y`) and two
+/// (`ok`).
 fn training_text() -> String {
     let wards = ["Cedar", "Birch", "Rowan", "Alder"];
-    let mut text = String::from("y,level,dose,seen,smoker,ward\n");
+    let mut text = String::from("y,ok,level,dose,seen,smoker,ward\n");
     for i in 0..240u64 {
         let h = i.wrapping_mul(2654435761) % 1000;
         let level = (h as f64) / 7.0 + 0.1;
@@ -48,7 +51,12 @@ fn training_text() -> String {
         };
         let ward = if i % 13 == 0 { "" } else { ward };
         let day = 1 + (i % 28);
-        text += &format!("{y},{level},{dose},2024-02-{day:02},{smoker},{ward}\n");
+        let ok = if (h + i) % 3 == 0 || y == "low" {
+            "ok"
+        } else {
+            "not_ok"
+        };
+        text += &format!("{y},{ok},{level},{dose},2024-02-{day:02},{smoker},{ward}\n");
     }
     text
 }
@@ -59,13 +67,20 @@ fn table(text: &str) -> Table {
         .table
 }
 
-/// A model of `method` on the training records; `numbers` predicts `dose` instead of `y`.
+/// A model of `method` on the training records: `y` (three classes) by default, `dose`
+/// (numbers) when `numbers`.
 fn fitted(method: Method, numbers: bool) -> Model {
+    fitted_with(method, if numbers { "dose" } else { "y" }, None)
+}
+
+/// A model of `method` for `outcome` (`y`, `ok` or `dose`), with a boosting loss if given.
+fn fitted_with(method: Method, outcome: &str, loss: Option<Loss>) -> Model {
     let t = table(&training_text());
-    let (outcome, predictors): (&str, &[&str]) = if numbers {
-        ("dose", &["level", "seen", "smoker", "ward"])
+    let numbers = outcome == "dose";
+    let predictors: &[&str] = if numbers {
+        &["level", "seen", "smoker", "ward"]
     } else {
-        ("y", &["level", "dose", "seen", "smoker", "ward"])
+        &["level", "dose", "seen", "smoker", "ward"]
     };
     let spec = DesignSpec {
         outcome: outcome.into(),
@@ -130,6 +145,16 @@ fn fitted(method: Method, numbers: bool) -> Model {
                 &mut Silent,
             ))
         }
+        Method::Boosting => {
+            let s = BoostingSettings {
+                loss,
+                rounds: 8,
+                // Early stopping on held-out rows for the two-class model.
+                patience: (outcome == "ok").then_some(2),
+                ..BoostingSettings::default()
+            };
+            Ensemble::Boosting(fit_boosting(&binned, &design, None, &s, &mut Silent).unwrap())
+        }
     };
     let classes = match &design.outcome {
         Outcome::Classes { labels, .. } => Some(labels.clone()),
@@ -139,7 +164,7 @@ fn fitted(method: Method, numbers: bool) -> Model {
         method,
         outcome: design.outcome_name.clone(),
         classes,
-        predictors: predictors_of(&design, &binned, &t),
+        predictors: predictors_of(&design, &binned),
         partial: is_partial(&ensemble),
         ensemble,
         settings: BTreeMap::from([("depth".to_string(), "6".to_string())]),
@@ -153,7 +178,7 @@ fn fitted(method: Method, numbers: bool) -> Model {
 /// beyond the training range, read as `model` reads its predictors.
 fn scoring_table(model: &Model) -> Table {
     let mut text = training_text();
-    text += "low,,,,,\nmid,1e9,-5,1999-12-31,no,Elm\nhigh,NA,3.3,2030-01-01,yes,Oak\n";
+    text += "low,ok,,,,,\nmid,ok,1e9,-5,1999-12-31,no,Elm\nhigh,,NA,3.3,2030-01-01,yes,Oak\n";
     let options = ReadOptions {
         kinds: model.reading_kinds(),
         ..ReadOptions::default()
@@ -194,6 +219,13 @@ fn all_models() -> Vec<Model> {
     let mut models: Vec<Model> = Method::ALL.iter().map(|&m| fitted(m, false)).collect();
     models.push(fitted(Method::Tree, true));
     models.push(fitted(Method::Forest, true));
+    models.push(fitted(Method::Boosting, true));
+    models.push(fitted_with(Method::Boosting, "ok", None));
+    models.push(fitted_with(
+        Method::Boosting,
+        "dose",
+        Some(Loss::Huber { quantile: 0.8 }),
+    ));
     models
 }
 
@@ -227,6 +259,17 @@ fn every_method_reads_back_identical() {
                     (&a.alphas, &a.errors, a.stop),
                     (&b.alphas, &b.errors, b.stop)
                 );
+            }
+            (Ensemble::Boosting(a), Ensemble::Boosting(b)) => {
+                let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                assert_eq!(
+                    (a.loss, a.outputs, a.classes),
+                    (b.loss, b.outputs, b.classes)
+                );
+                assert_eq!(bits(&a.initial), bits(&b.initial));
+                assert_eq!(bits(&a.training_loss), bits(&b.training_loss));
+                assert_eq!(bits(&a.validation_loss), bits(&b.validation_loss));
+                assert_eq!((&a.held_out, a.stopping), (&b.held_out, b.stopping));
             }
             (Ensemble::Forest(a), Ensemble::Forest(b)) => {
                 let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
@@ -428,6 +471,30 @@ fn broken_files_are_refused_by_name() {
             v["adaboost"]["round_weights"].as_array_mut().unwrap().pop();
         }),
         &["round weights"],
+    );
+    let gradient = fitted(Method::Boosting, false);
+    refused(
+        &edited(&gradient, |v| {
+            v["trees"].as_array_mut().unwrap().pop();
+        }),
+        &["not a whole number of rounds"],
+    );
+    refused(
+        &edited(&gradient, |v| v["boosting"]["loss"] = "logistic".into()),
+        &["logistic", "score(s) per row"],
+    );
+    refused(
+        &edited(&gradient, |v| v["boosting"]["loss"] = "poisson".into()),
+        &["poisson", "does not fit"],
+    );
+    refused(
+        &edited(&gradient, |v| {
+            v["boosting"]["initial_scores"]
+                .as_array_mut()
+                .unwrap()
+                .pop();
+        }),
+        &["starting score"],
     );
     refused(
         &edited(&boost, |v| v["adaboost"]["stopped"] = "tired".into()),
