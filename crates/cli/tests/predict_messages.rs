@@ -53,6 +53,23 @@ fn fails_with(args: &[&str], needles: &[&str]) {
     }
 }
 
+/// A tree of `depth` for the demo outcome, saved as `name`.
+fn saved_tree(name: &str, depth: usize) -> PathBuf {
+    let model = path(name);
+    let depth = format!("depth={depth}");
+    succeeds(&[
+        "fit",
+        DEMO,
+        "--outcome",
+        "complication_30d",
+        "--set",
+        &depth,
+        "--save-model",
+        s(&model),
+    ]);
+    model
+}
+
 #[test]
 fn a_saved_model_predicts_as_the_fitted_one() {
     for (name, method) in [
@@ -106,17 +123,7 @@ fn a_saved_model_predicts_as_the_fitted_one() {
 
 #[test]
 fn predict_keeps_identifiers_and_scores_incomplete_rows() {
-    let model = path("keep.json");
-    succeeds(&[
-        "fit",
-        DEMO,
-        "--outcome",
-        "complication_30d",
-        "--set",
-        "depth=4",
-        "--save-model",
-        s(&model),
-    ]);
+    let model = saved_tree("keep.json", 4);
     // No outcome column; missing values; a ward never seen in training; a quoted id.
     let file = path("new.csv");
     std::fs::write(
@@ -143,17 +150,7 @@ fn predict_keeps_identifiers_and_scores_incomplete_rows() {
 
 #[test]
 fn bad_models_and_tables_are_refused_clearly() {
-    let model = path("bad-inputs.json");
-    succeeds(&[
-        "fit",
-        DEMO,
-        "--outcome",
-        "complication_30d",
-        "--set",
-        "depth=3",
-        "--save-model",
-        s(&model),
-    ]);
+    let model = saved_tree("bad-inputs.json", 3);
     let text = std::fs::read_to_string(&model).unwrap();
     fails_with(
         &["predict", s(&path("nowhere.json")), DEMO],

@@ -337,6 +337,18 @@ struct Layout {
 }
 
 impl Layout {
+    /// Before an array item or object field: a comma after the first, then a new line
+    /// unless on one line.
+    fn separate(&self, w: &mut (impl std::io::Write + ?Sized), first: bool) -> std::io::Result<()> {
+        if !first {
+            w.write_all(b",")?;
+        }
+        if self.inline_from.is_none() {
+            self.newline(w, self.depth)?;
+        }
+        Ok(())
+    }
+
     fn newline(&self, w: &mut (impl std::io::Write + ?Sized), depth: usize) -> std::io::Result<()> {
         w.write_all(b"\n")?;
         for _ in 0..depth {
@@ -370,13 +382,7 @@ impl serde_json::ser::Formatter for Layout {
         w: &mut W,
         first: bool,
     ) -> std::io::Result<()> {
-        if !first {
-            w.write_all(b",")?;
-        }
-        if self.inline_from.is_none() {
-            self.newline(w, self.depth)?;
-        }
-        Ok(())
+        self.separate(w, first)
     }
     fn end_array_value<W: ?Sized + std::io::Write>(&mut self, _: &mut W) -> std::io::Result<()> {
         self.has_value = true;
@@ -399,13 +405,7 @@ impl serde_json::ser::Formatter for Layout {
         w: &mut W,
         first: bool,
     ) -> std::io::Result<()> {
-        if !first {
-            w.write_all(b",")?;
-        }
-        if self.inline_from.is_none() {
-            self.newline(w, self.depth)?;
-        }
-        Ok(())
+        self.separate(w, first)
     }
     fn begin_object_value<W: ?Sized + std::io::Write>(&mut self, w: &mut W) -> std::io::Result<()> {
         w.write_all(if self.inline_from.is_none() {
