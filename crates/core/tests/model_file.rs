@@ -544,3 +544,51 @@ fn damaged_files_never_panic() {
         }
     }
 }
+
+#[test]
+fn tables_to_score_are_read_by_name_label_and_kind() {
+    let model = fitted(Method::Tree, false);
+    // Missing columns are all named at once.
+    let t = table("level,smoker\n1,yes\n2,no\n");
+    let e = model.records(&t).unwrap_err().to_string();
+    for needle in ["the model needs", "'dose'", "'seen'", "'ward'"] {
+        assert!(e.contains(needle), "{e}");
+    }
+    // A category given as numbers (read without the model's kinds) is the wrong kind.
+    let t = table("level,dose,seen,smoker,ward\n1,2,2024-01-01,yes,3\n2,2,2024-01-02,no,4\n");
+    let e = model.records(&t).unwrap_err().to_string();
+    assert!(
+        e.contains("'ward' holds whole number here but was category"),
+        "{e}"
+    );
+    // Yes/no labels are matched by label whatever their case, then as yes/no words;
+    // anything else is missing and counted.
+    let text = "level,dose,seen,smoker,ward\n1,2,2024-01-01,YES,Birch\n1,2,2024-01-01,n,Birch\n\
+                1,2,2024-01-01,maybe,Birch\n1,2,2024-01-01,,Birch\n";
+    let options = ReadOptions {
+        kinds: model.reading_kinds(),
+        ..ReadOptions::default()
+    };
+    let t = read_table(text.as_bytes(), &options, &mut Silent)
+        .unwrap()
+        .table;
+    let (records, unseen) = model.records(&t).unwrap();
+    let smoker = model
+        .predictors
+        .iter()
+        .position(|p| p.name == "smoker")
+        .unwrap();
+    let values: Vec<f64> = (0..4).map(|r| records.value(smoker, r)).collect();
+    assert_eq!(&values[..2], &[1.0, 0.0]);
+    assert!(values[2].is_nan() && values[3].is_nan());
+    assert_eq!(unseen.len(), 1);
+    assert_eq!(
+        (
+            unseen[0].predictor.as_str(),
+            unseen[0].rows,
+            unseen[0].example.as_str()
+        ),
+        ("smoker", 1, "maybe")
+    );
+    assert_eq!(unseen[0].follows, "the missing side");
+}
