@@ -52,6 +52,10 @@ pub fn predict(args: PredictArgs) -> anyhow::Result<()> {
     let (records, unseen) = model
         .records(table)
         .map_err(|e| anyhow::anyhow!("{}: {e}", args.file.display()))?;
+    // How the file was read (values that could not be read as the model's kinds, say).
+    for n in &loaded.notices {
+        eprintln!("note: {}: {n}", args.file.display());
+    }
     report_unseen(&unseen);
     if model.partial {
         eprintln!(
