@@ -363,141 +363,9 @@ impl Model {
             .collect()
     }
 
-    /// Reads the model's predictors from `table` (columns by name, categories by label) as
-    /// [`Records`] to score, and counts labels training never saw. Every missing column and
-    /// every column of the wrong kind is named in one error.
+    /// Reads the model's predictors from `table` (see [`read_records`]).
     pub fn records(&self, table: &Table) -> Result<(Records, Vec<Unseen>)> {
-        let (mut missing, mut wrong_kind) = (Vec::new(), Vec::new());
-        let mut sources = Vec::with_capacity(self.predictors.len());
-        for p in &self.predictors {
-            let Some(c) = table.column(&p.name) else {
-                missing.push(p.name.clone());
-                continue;
-            };
-            let fits = match (&p.reading, &c.values) {
-                (Reading::Number, Values::Numbers(_)) => true,
-                (Reading::YesNo { .. }, Values::Levels { .. }) => true,
-                (Reading::YesNo { .. }, Values::Numbers(_)) => c.kind == Kind::YesNo,
-                (Reading::Category { .. }, Values::Levels { .. }) => true,
-                _ => false,
-            };
-            if !fits {
-                wrong_kind.push(format!(
-                    "'{}' holds {} here but was {} in training",
-                    p.name,
-                    c.kind.label(),
-                    p.kind.label()
-                ));
-            }
-            sources.push(c);
-        }
-        if !missing.is_empty() || !wrong_kind.is_empty() {
-            return Err(Error::new(ErrorKind::ColumnsForModel {
-                missing,
-                wrong_kind,
-                available: table.columns.iter().map(|c| c.name.clone()).collect(),
-            }));
-        }
-        let rows = table.rows;
-        let mut values = vec![f64::NAN; rows * self.predictors.len()];
-        let mut unseen = Vec::new();
-        for (j, (p, c)) in self.predictors.iter().zip(sources).enumerate() {
-            let out = &mut values[j * rows..(j + 1) * rows];
-            let mut count = 0usize;
-            let mut example = None;
-            // The value (training bin or 0/1) of each of the column's labels; None: unseen.
-            let label_values: Option<(Vec<Option<f64>>, &[u32])> = match (&p.reading, &c.values) {
-                (Reading::Number, Values::Numbers(v)) => {
-                    for (o, &x) in out.iter_mut().zip(v) {
-                        *o = x;
-                    }
-                    None
-                }
-                (Reading::YesNo { labels }, Values::Numbers(v)) => {
-                    // A yes/no column read as such: map each side through its label.
-                    let sides: Vec<f64> = match &c.yes_no_labels {
-                        Some(own) => own
-                            .iter()
-                            .map(|l| yes_no_side(labels, l).unwrap_or(f64::NAN))
-                            .collect(),
-                        None => vec![0.0, 1.0],
-                    };
-                    for (o, &x) in out.iter_mut().zip(v) {
-                        if !x.is_nan() {
-                            *o = sides[(x != 0.0) as usize];
-                        }
-                    }
-                    None
-                }
-                (Reading::YesNo { labels }, Values::Levels { codes, levels }) => Some((
-                    levels.iter().map(|l| yes_no_side(labels, l)).collect(),
-                    codes,
-                )),
-                (
-                    Reading::Category {
-                        levels: trained,
-                        bin_of_level,
-                        ..
-                    },
-                    Values::Levels { codes, levels },
-                ) => {
-                    let index: std::collections::HashMap<&str, usize> = trained
-                        .iter()
-                        .enumerate()
-                        .map(|(i, l)| (l.as_str(), i))
-                        .collect();
-                    Some((
-                        levels
-                            .iter()
-                            .map(|l| {
-                                index
-                                    .get(l.as_str())
-                                    .and_then(|&i| bin_of_level.get(i))
-                                    .map(|&b| b as f64)
-                            })
-                            .collect(),
-                        codes,
-                    ))
-                }
-                _ => None, // refused above
-            };
-            if let Some((map, codes)) = label_values {
-                let fallback = match &p.reading {
-                    Reading::Category { pooled_bin, .. } => *pooled_bin as f64,
-                    _ => f64::NAN,
-                };
-                for (o, &code) in out.iter_mut().zip(codes) {
-                    if code == MISSING_CODE {
-                        continue;
-                    }
-                    match map.get(code as usize).copied().flatten() {
-                        Some(x) => *o = x,
-                        None => {
-                            count += 1;
-                            if example.is_none() {
-                                if let Values::Levels { levels, .. } = &c.values {
-                                    example = levels.get(code as usize).cloned();
-                                }
-                            }
-                            *o = fallback;
-                        }
-                    }
-                }
-            }
-            if count > 0 {
-                unseen.push(Unseen {
-                    predictor: p.name.clone(),
-                    rows: count,
-                    example: example.unwrap_or_default(),
-                    follows: if fallback_is_pool(&p.reading) {
-                        "the pooled bin"
-                    } else {
-                        "the missing side"
-                    },
-                });
-            }
-        }
-        Ok((Records::from_columns(rows, values), unseen))
+        read_records(&self.predictors, table)
     }
 
     /// Checks that every index in the model is in range and every tree is a tree (each node
@@ -710,6 +578,143 @@ impl Model {
         }
         Ok(())
     }
+}
+
+/// Reads `predictors` from `table` (columns by name, categories by label) as [`Records`] to
+/// score, and counts labels training never saw. Every missing column and every column of the
+/// wrong kind is named in one error.
+pub fn read_records(predictors: &[Predictor], table: &Table) -> Result<(Records, Vec<Unseen>)> {
+    let (mut missing, mut wrong_kind) = (Vec::new(), Vec::new());
+    let mut sources = Vec::with_capacity(predictors.len());
+    for p in predictors {
+        let Some(c) = table.column(&p.name) else {
+            missing.push(p.name.clone());
+            continue;
+        };
+        let fits = match (&p.reading, &c.values) {
+            (Reading::Number, Values::Numbers(_)) => true,
+            (Reading::YesNo { .. }, Values::Levels { .. }) => true,
+            (Reading::YesNo { .. }, Values::Numbers(_)) => c.kind == Kind::YesNo,
+            (Reading::Category { .. }, Values::Levels { .. }) => true,
+            _ => false,
+        };
+        if !fits {
+            wrong_kind.push(format!(
+                "'{}' holds {} here but was {} in training",
+                p.name,
+                c.kind.label(),
+                p.kind.label()
+            ));
+        }
+        sources.push(c);
+    }
+    if !missing.is_empty() || !wrong_kind.is_empty() {
+        return Err(Error::new(ErrorKind::ColumnsForModel {
+            missing,
+            wrong_kind,
+            available: table.columns.iter().map(|c| c.name.clone()).collect(),
+        }));
+    }
+    let rows = table.rows;
+    let mut values = vec![f64::NAN; rows * predictors.len()];
+    let mut unseen = Vec::new();
+    for (j, (p, c)) in predictors.iter().zip(sources).enumerate() {
+        let out = &mut values[j * rows..(j + 1) * rows];
+        let mut count = 0usize;
+        let mut example = None;
+        // The value (training bin or 0/1) of each of the column's labels; None: unseen.
+        let label_values: Option<(Vec<Option<f64>>, &[u32])> = match (&p.reading, &c.values) {
+            (Reading::Number, Values::Numbers(v)) => {
+                for (o, &x) in out.iter_mut().zip(v) {
+                    *o = x;
+                }
+                None
+            }
+            (Reading::YesNo { labels }, Values::Numbers(v)) => {
+                // A yes/no column read as such: map each side through its label.
+                let sides: Vec<f64> = match &c.yes_no_labels {
+                    Some(own) => own
+                        .iter()
+                        .map(|l| yes_no_side(labels, l).unwrap_or(f64::NAN))
+                        .collect(),
+                    None => vec![0.0, 1.0],
+                };
+                for (o, &x) in out.iter_mut().zip(v) {
+                    if !x.is_nan() {
+                        *o = sides[(x != 0.0) as usize];
+                    }
+                }
+                None
+            }
+            (Reading::YesNo { labels }, Values::Levels { codes, levels }) => Some((
+                levels.iter().map(|l| yes_no_side(labels, l)).collect(),
+                codes,
+            )),
+            (
+                Reading::Category {
+                    levels: trained,
+                    bin_of_level,
+                    ..
+                },
+                Values::Levels { codes, levels },
+            ) => {
+                let index: std::collections::HashMap<&str, usize> = trained
+                    .iter()
+                    .enumerate()
+                    .map(|(i, l)| (l.as_str(), i))
+                    .collect();
+                Some((
+                    levels
+                        .iter()
+                        .map(|l| {
+                            index
+                                .get(l.as_str())
+                                .and_then(|&i| bin_of_level.get(i))
+                                .map(|&b| b as f64)
+                        })
+                        .collect(),
+                    codes,
+                ))
+            }
+            _ => None, // refused above
+        };
+        if let Some((map, codes)) = label_values {
+            let fallback = match &p.reading {
+                Reading::Category { pooled_bin, .. } => *pooled_bin as f64,
+                _ => f64::NAN,
+            };
+            for (o, &code) in out.iter_mut().zip(codes) {
+                if code == MISSING_CODE {
+                    continue;
+                }
+                match map.get(code as usize).copied().flatten() {
+                    Some(x) => *o = x,
+                    None => {
+                        count += 1;
+                        if example.is_none() {
+                            if let Values::Levels { levels, .. } = &c.values {
+                                example = levels.get(code as usize).cloned();
+                            }
+                        }
+                        *o = fallback;
+                    }
+                }
+            }
+        }
+        if count > 0 {
+            unseen.push(Unseen {
+                predictor: p.name.clone(),
+                rows: count,
+                example: example.unwrap_or_default(),
+                follows: if fallback_is_pool(&p.reading) {
+                    "the pooled bin"
+                } else {
+                    "the missing side"
+                },
+            });
+        }
+    }
+    Ok((Records::from_columns(rows, values), unseen))
 }
 
 fn fallback_is_pool(reading: &Reading) -> bool {
