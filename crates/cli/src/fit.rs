@@ -661,6 +661,9 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 out["stopped"] = stop_words(a.stop).into();
             }
         }
+        if let Some(path) = &args.save_model {
+            out["saved_model"] = path.display().to_string().into();
+        }
         println!("{}", serde_json::to_string_pretty(&out)?);
     } else {
         match &model.ensemble {
@@ -733,6 +736,13 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 args.score
                     .as_ref()
                     .map_or(String::new(), |p| p.display().to_string())
+            );
+        }
+        if let Some(path) = &args.save_model {
+            println!(
+                "model saved to {} (score new records with: spinney predict {} FILE)",
+                path.display(),
+                path.display()
             );
         }
         for n in &design.notices {
