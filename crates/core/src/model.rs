@@ -678,11 +678,12 @@ pub fn read_records(predictors: &[Predictor], table: &Table) -> Result<(Records,
             }
             _ => None, // refused above
         };
+        // Unseen labels: a category's pooled bin, or missing for yes/no.
+        let (fallback, follows) = match &p.reading {
+            Reading::Category { pooled_bin, .. } => (*pooled_bin as f64, "the pooled bin"),
+            _ => (f64::NAN, "the missing side"),
+        };
         if let Some((map, codes)) = label_values {
-            let fallback = match &p.reading {
-                Reading::Category { pooled_bin, .. } => *pooled_bin as f64,
-                _ => f64::NAN,
-            };
             for (o, &code) in out.iter_mut().zip(codes) {
                 if code == MISSING_CODE {
                     continue;
@@ -706,19 +707,11 @@ pub fn read_records(predictors: &[Predictor], table: &Table) -> Result<(Records,
                 predictor: p.name.clone(),
                 rows: count,
                 example: example.unwrap_or_default(),
-                follows: if fallback_is_pool(&p.reading) {
-                    "the pooled bin"
-                } else {
-                    "the missing side"
-                },
+                follows,
             });
         }
     }
     Ok((Records::from_columns(rows, values), unseen))
-}
-
-fn fallback_is_pool(reading: &Reading) -> bool {
-    matches!(reading, Reading::Category { .. })
 }
 
 /// The 0/1 value of a yes/no label: the training labels first (ignoring case), then yes/no
