@@ -443,6 +443,12 @@ impl Model {
                 if self.classes.is_none() || a.classes != outputs {
                     return Err("AdaBoost's classes do not match the outcome's classes".into());
                 }
+                let total: f64 = a.alphas.iter().sum();
+                if !total.is_finite() || a.alphas.iter().any(|&w| w < 0.0) {
+                    return Err(
+                        "AdaBoost's round weights must be zero or more, with a finite sum".into(),
+                    );
+                }
                 if a.alphas.len() != a.trees.len() || a.errors.len() != a.trees.len() {
                     return Err(format!(
                         "AdaBoost has {} rounds but {} round weights and {} round errors",

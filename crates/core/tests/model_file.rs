@@ -497,6 +497,13 @@ fn broken_files_are_refused_by_name() {
         &["starting score"],
     );
     refused(
+        &edited(&boost, |v| {
+            v["adaboost"]["round_weights"][0] = 1e308.into();
+            v["adaboost"]["round_weights"][1] = 1e308.into();
+        }),
+        &["finite sum"],
+    );
+    refused(
         &edited(&boost, |v| v["adaboost"]["stopped"] = "tired".into()),
         &["'tired'"],
     );
