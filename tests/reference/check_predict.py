@@ -10,7 +10,12 @@ References (version printed below):
 - AdaBoostClassifier.predict_proba (SAMME, 50 stumps) on breast cancer, exact search, to
   1e-12. scikit-learn draws a random predictor order per stump and may break an exact tie in
   gain differently, so random_state 0..29 are tried and the first whose round weights equal
-  Spinney's (as in check_adaboost.py) is compared.
+  Spinney's (as in check_adaboost.py) is compared;
+- GradientBoostingRegressor.predict (squared error, 100 rounds of depth-3 trees, learning
+  rate 0.1, at least 15 rows a leaf) on diabetes, exact search, to 1e-9; random_state 0..9
+  tried, the first that agrees on the training rows compared on the new points. With leaves
+  of one row (check_boosting.py's setting) two predictors can part a node's few rows alike,
+  scikit-learn may pick the other one, and the models then agree on the training rows only.
 Data shipped inside scikit-learn (no download), written as float32 values, which is what
 scikit-learn's trees compare; the same depths as check_tree.py, chosen so that no tie
 arises. Missing values are not compared: when a split saw none in training, scikit-learn
@@ -28,7 +33,7 @@ import tempfile
 import numpy as np
 import sklearn
 from sklearn.datasets import load_breast_cancer, load_diabetes, load_wine
-from sklearn.ensemble import AdaBoostClassifier
+from sklearn.ensemble import AdaBoostClassifier, GradientBoostingRegressor
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 
 BIN = os.environ.get("SPINNEY_BIN", os.path.join(os.path.dirname(__file__), "..", "..", "target", "debug", "spinney"))
@@ -150,6 +155,33 @@ def main():
                 report(name + " (random_state=%d)" % match[0],
                        None if len(ours) == len(new_X) and gap <= 1e-12 else
                        "%d rows, largest difference %g" % (len(ours), gap))
+        except Exception as e:  # noqa: BLE001
+            report(name, str(e))
+        # Gradient boosting, squared error, on diabetes.
+        name = "diabetes gradient boosting 100 rounds: predict"
+        try:
+            data = load_diabetes()
+            X, y = data.data.astype(np.float32), data.target.astype(np.float64)
+            new_X = new_points(X, 4)
+            rows = spinney_predictions(tmp, X, y, False, new_X,
+                                       ["--method", "boosting", "--set", "loss=squared_error", "--set", "depth=3",
+                                        "--set", "leaf_size=15", "--set", "min_hessian=0", "--set", "l2=0",
+                                        "--set", "rounds=100", "--set", "learning_rate=0.1",
+                                        "--set", "split_search=exact"])
+            ours = np.array([float(r["predicted_outcome"]) for r in rows])
+            old = tuple(int(p) for p in sklearn.__version__.split(".")[:2]) < (1, 9)
+            problem = "no random_state 0..9 agrees on the training rows"
+            for seed in range(10):
+                ref = GradientBoostingRegressor(loss="squared_error", max_depth=3, n_estimators=100,
+                                                learning_rate=0.1, subsample=1.0, random_state=seed,
+                                                min_samples_leaf=15,
+                                                **({"criterion": "squared_error"} if old else {})).fit(X, y)
+                expected = ref.predict(new_X)
+                if len(ours) == len(new_X) and largest_gap(ours[:len(X)], expected[:len(X)]) <= 1e-9:
+                    gap = largest_gap(ours, expected)
+                    problem = None if gap <= 1e-9 else "largest difference %g (random_state=%d)" % (gap, seed)
+                    break
+            report(name, problem)
         except Exception as e:  # noqa: BLE001
             report(name, str(e))
     print("%d passed, %d failed" % (passed, failed))
