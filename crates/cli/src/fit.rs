@@ -5,14 +5,17 @@
 //! threshold, where missing values go, children, values), which the checks in
 //! tests/reference compare with scikit-learn.
 
+use std::collections::BTreeMap;
+
 use anyhow::{bail, Context};
-use spinney_core::binning::{bin_design, records_from_table, BinSettings, BinnedMatrix};
-use spinney_core::data::{read_table, ReadOptions};
+use spinney_core::binning::{bin_design, BinSettings, BinnedMatrix};
+use spinney_core::data::{read_table, Loaded, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
-use spinney_core::ensemble::adaboost::{fit_adaboost, AdaBoost, BoostSettings, Stop};
+use spinney_core::ensemble::adaboost::{fit_adaboost, BoostSettings, Stop};
 use spinney_core::ensemble::boosting::{fit_boosting, Boosting, BoostingSettings, Stopping};
-use spinney_core::ensemble::forest::{argmax, fit_forest, Forest, ForestSettings};
+use spinney_core::ensemble::forest::{fit_forest, Forest, ForestSettings};
 use spinney_core::ensemble::loss::Loss;
+use spinney_core::model::{is_partial, predictors_of, Ensemble, Method, Model};
 use spinney_core::progress::Silent;
 use spinney_core::tree::criterion::Criterion;
 use spinney_core::tree::grower::{grow, GrowSettings};
@@ -48,13 +51,16 @@ pub struct FitArgs {
     /// whatever the number.
     #[arg(long)]
     pub threads: Option<usize>,
-    /// With --json: each row's prediction (class probabilities, AdaBoost's votes, or the
-    /// number) for the scored file, or for the training rows without --score.
+    /// With --json: each row's prediction (class probabilities, AdaBoost's by the SAMME
+    /// rule, or the number) for the scored file, or for the training rows without --score.
     #[arg(long)]
     pub predictions: bool,
     /// With --json and --method boosting: the same predictions after every round.
     #[arg(long)]
     pub staged: bool,
+    /// Save the fitted model to this file (versioned JSON, read by `spinney predict`).
+    #[arg(long, value_name = "PATH")]
+    pub save_model: Option<std::path::PathBuf>,
 }
 
 /// Every setting `--set` can change, for all methods.
@@ -325,72 +331,19 @@ impl spinney_core::progress::Progress for Bar {
     }
 }
 
-/// A fitted model of any method, predicting rows of a binned matrix.
-enum Model {
-    Tree(Tree),
-    Forest(Forest),
-    AdaBoost(AdaBoost),
-    Boosting(Boosting),
-}
-
-impl Model {
-    fn predict(&self, rows: Rows<'_>, row: usize, out: &mut Vec<f64>) {
-        match self {
-            Model::Tree(t) => {
-                out.clear();
-                out.extend_from_slice(t.predict(rows, row));
-            }
-            Model::Forest(f) => {
-                out.resize(f.outputs, 0.0);
-                f.predict(rows, row, out);
-            }
-            Model::AdaBoost(a) => *out = a.scores(rows, row, a.trees.len()),
-            Model::Boosting(b) => {
-                let mut scores = b.initial.clone();
-                for (i, t) in b.trees.iter().enumerate() {
-                    scores[i % b.outputs] += t.predict(rows, row)[0];
-                }
-                b.predict(&scores, out);
-            }
-        }
-    }
-}
-
-/// Accuracy (classes) or root mean squared error (numbers) of `model` on `rows`.
-fn performance(model: &Model, rows: Rows<'_>, outcome: &Outcome) -> (&'static str, f64) {
-    let mut p = Vec::new();
-    let n = rows.len();
-    match outcome {
-        Outcome::Classes { codes, .. } => {
-            let right = (0..n)
-                .filter(|&r| {
-                    model.predict(rows, r, &mut p);
-                    argmax(&p) == codes[r] as usize
-                })
-                .count();
-            ("accuracy", right as f64 / n as f64)
-        }
-        Outcome::Numbers(v) => {
-            let sse: f64 = (0..n)
-                .map(|r| {
-                    model.predict(rows, r, &mut p);
-                    (p[0] - v[r]).powi(2)
-                })
-                .sum();
-            ("rmse", (sse / n as f64).sqrt())
-        }
-    }
-}
-
-fn read(path: &std::path::Path) -> anyhow::Result<spinney_core::data::Table> {
+/// Reads a table, with the kinds in `kinds` chosen for those columns.
+pub fn read(
+    path: &std::path::Path,
+    kinds: Vec<(String, spinney_core::data::Kind)>,
+) -> anyhow::Result<Loaded> {
     let bytes = std::fs::read(path).with_context(|| format!("cannot read {}", path.display()))?;
     let options = ReadOptions {
         file_name: path.file_name().map(|n| n.to_string_lossy().into_owned()),
+        kinds,
         ..ReadOptions::default()
     };
-    let loaded = read_table(&bytes, &options, &mut Silent)
-        .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
-    Ok(loaded.table)
+    read_table(&bytes, &options, &mut Silent)
+        .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))
 }
 
 fn tree_json(tree: &Tree, binned: &BinnedMatrix) -> serde_json::Value {
@@ -420,7 +373,9 @@ fn tree_json(tree: &Tree, binned: &BinnedMatrix) -> serde_json::Value {
 }
 
 pub fn fit(args: FitArgs) -> anyhow::Result<()> {
-    let table = read(&args.file)?;
+    let Loaded {
+        table, fingerprint, ..
+    } = read(&args.file, Vec::new())?;
     // By default every other column, except free text and identifiers.
     let predictors = args.predictors.clone().unwrap_or_else(|| {
         table
@@ -453,17 +408,27 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         ..GrowSettings::default()
     };
     let mut forest = ForestSettings::random_forest(design.predictors.len(), regression, 1);
-    match args.method.as_str() {
-        "tree" | "forest" => {}
-        "bagging" => forest.predictors_per_split = None,
+    let method = match args.method.as_str() {
+        "tree" => Method::Tree,
+        "forest" => Method::Forest,
+        "bagging" => {
+            forest.predictors_per_split = None;
+            Method::Bagging
+        }
         "adaboost" if regression => bail!(
             "--method adaboost: this AdaBoost (SAMME) predicts classes; the outcome '{}' is a number",
             args.outcome
         ),
-        "adaboost" => grow_settings.max_depth = Some(1),
-        "boosting" => grow_settings = BoostingSettings::default().grow,
+        "adaboost" => {
+            grow_settings.max_depth = Some(1);
+            Method::AdaBoost
+        }
+        "boosting" => {
+            grow_settings = BoostingSettings::default().grow;
+            Method::Boosting
+        }
         other => bail!("--method {other}: choose tree, bagging, forest, adaboost or boosting"),
-    }
+    };
     let mut boost = BoostSettings::default();
     if args.method == "boosting" {
         let defaults = BoostingSettings::default();
@@ -508,14 +473,16 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     // Fit time counts binning and fitting, not reading the file.
     let fit_start = std::time::Instant::now();
     let binned = bin_design(&design, all.bins)?;
+    // How a saved model reads each predictor from a new table.
+    let predictors = predictors_of(&design, &binned);
     // From here on the learners read the bins only: free the predictors' values.
     design.predictors = Vec::new();
     let (stats, width) = design.row_statistics(all.balanced_classes);
-    if all.pruning > 0.0 && args.method != "tree" {
+    if all.pruning > 0.0 && method != Method::Tree {
         bail!("--set pruning: prunes a single tree (--method tree); ensembles are not pruned");
     }
     let mut pruning_path = None;
-    let model = if args.method == "boosting" {
+    let ensemble = if method == Method::Boosting {
         // Row weights times class weights (with class_weight=balanced).
         let weights: Option<Vec<f64>> = match (&design.outcome, all.balanced_classes) {
             (Outcome::Classes { codes, .. }, true) => Some(
@@ -525,19 +492,19 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             ),
             _ => design.weights.clone(),
         };
-        Model::Boosting(fit_boosting(
+        Ensemble::Boosting(fit_boosting(
             &binned,
             &design,
             weights.as_deref(),
             &all.boosting,
             &mut Bar::new(),
         )?)
-    } else if args.method == "tree" {
+    } else if method == Method::Tree {
         let rows: Vec<u32> = (0..binned.rows as u32).collect();
         let full = grow(&binned, &stats, width, &rows, &all.grow, None);
         pruning_path = Some(spinney_core::tree::prune::pruning_path(&full));
-        Model::Tree(spinney_core::tree::prune::prune(&full, all.pruning))
-    } else if args.method == "adaboost" {
+        Ensemble::Tree(spinney_core::tree::prune::prune(&full, all.pruning))
+    } else if method == Method::AdaBoost {
         let Outcome::Classes { codes, labels } = &design.outcome else {
             unreachable!("checked above")
         };
@@ -545,7 +512,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         let initial: Vec<f64> = (0..codes.len())
             .map(|r| stats[r * width + codes[r] as usize])
             .collect();
-        Model::AdaBoost(fit_adaboost(
+        Ensemble::AdaBoost(fit_adaboost(
             &binned,
             codes,
             labels.len(),
@@ -554,7 +521,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             &mut Bar::new(),
         ))
     } else {
-        Model::Forest(fit_forest_on_threads(
+        Ensemble::Forest(fit_forest_on_threads(
             &binned,
             &stats,
             width,
@@ -564,11 +531,41 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         )?)
     };
     let fit_seconds = fit_start.elapsed().as_secs_f64();
-    let training = performance(&model, Rows::Binned(&binned), &design.outcome);
+    let classes = match &design.outcome {
+        Outcome::Classes { labels, .. } => Some(labels.clone()),
+        Outcome::Numbers(_) => None,
+    };
+    let mut settings = describe_settings(&all, method, regression);
+    if let Ensemble::Boosting(b) = &ensemble {
+        // The loss in effect (the default follows the outcome).
+        settings.insert("loss".into(), b.loss.word().into());
+        if let Loss::Huber { quantile } = b.loss {
+            settings.insert("huber_quantile".into(), quantile.to_string());
+        }
+    }
+    let model = Model {
+        method,
+        outcome: design.outcome_name.clone(),
+        classes: classes.clone(),
+        predictors,
+        partial: is_partial(&ensemble),
+        ensemble,
+        settings,
+        seed: all.forest.seed,
+        training_fingerprint: Some(fingerprint),
+        training_rows: binned.rows,
+    };
+    if let Some(path) = &args.save_model {
+        let text = spinney_core::model_file::write_model(&model)?;
+        std::fs::write(path, text)
+            .with_context(|| format!("cannot write the model to {}", path.display()))?;
+    }
+    let training = model.performance(Rows::Binned(&binned), &design.outcome);
     let scored = match &args.score {
         None => None,
         Some(path) => {
-            let other = read(path)?;
+            // Predictors are read as the model read them in training.
+            let other = read(path, model.reading_kinds())?.table;
             let test_design = build_design(
                 &other,
                 &DesignSpec {
@@ -577,24 +574,23 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                     ..DesignSpec::default()
                 },
             )?;
-            let records = records_from_table(&binned.columns, &other)?;
+            let (records, unseen) = model
+                .records(&other)
+                .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
+            crate::predict::report_unseen(&unseen);
             // Keep only the rows with an outcome, as the design did.
             let kept = records.select_rows(&test_design.rows);
             let outcome = align_classes(&test_design.outcome, &design.outcome)?;
             Some((
-                performance(&model, Rows::Records(&kept), &outcome),
-                staged_errors(&model, Rows::Records(&kept), &outcome),
+                model.performance(Rows::Records(&kept), &outcome),
+                model.staged_errors(Rows::Records(&kept), &outcome),
                 kept,
             ))
         }
     };
-    if args.staged && !matches!(model, Model::Boosting(_)) {
+    if args.staged && method != Method::Boosting {
         bail!("--staged: only for --method boosting (predictions after every round)");
     }
-    let classes = match &design.outcome {
-        Outcome::Classes { labels, .. } => Some(labels.clone()),
-        Outcome::Numbers(_) => None,
-    };
     if args.json {
         let mut out = serde_json::json!({
             "format": "spinney-fit", "version": 1, "method": args.method, "fit_seconds": fit_seconds,
@@ -603,11 +599,8 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             "training": { training.0: training.1 },
             "notices": design.notices,
         });
-        out["training_error_by_size"] = serde_json::json!(staged_errors(
-            &model,
-            Rows::Binned(&binned),
-            &design.outcome
-        ));
+        out["training_error_by_size"] =
+            serde_json::json!(model.staged_errors(Rows::Binned(&binned), &design.outcome));
         if let Some(((name, value), curve, _)) = &scored {
             out["scored"] = serde_json::json!({ *name: value });
             out["scored_error_by_size"] = serde_json::json!(curve);
@@ -617,7 +610,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             .as_ref()
             .map_or(Rows::Binned(&binned), |s| Rows::Records(&s.2));
         if args.predictions {
-            let mut p = Vec::new();
+            let mut p = vec![0.0; model.outputs()];
             let rows: Vec<Vec<f64>> = (0..predicted.len())
                 .map(|r| {
                     model.predict(predicted, r, &mut p);
@@ -626,11 +619,11 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 .collect();
             out["predictions"] = serde_json::json!(rows);
         }
-        if let (true, Model::Boosting(b)) = (args.staged, &model) {
-            out["staged_predictions"] = serde_json::json!(staged_predictions(b, predicted));
+        if args.staged {
+            out["staged_predictions"] = serde_json::json!(staged_predictions(&model, predicted));
         }
-        match &model {
-            Model::Tree(tree) => {
+        match &model.ensemble {
+            Ensemble::Tree(tree) => {
                 out["depth"] = tree.depth().into();
                 out["leaves"] = tree.leaves().into();
                 out["nodes"] = tree_json(tree, &binned);
@@ -641,13 +634,13 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                         .collect();
                 }
             }
-            Model::Forest(f) => {
+            Ensemble::Forest(f) => {
                 out["trees"] = f.trees.len().into();
                 out["partial"] = f.partial.into();
                 out["out_of_bag_error_by_trees"] = serde_json::json!(f.oob_error);
                 out["out_of_bag_share"] = f.oob_share.into();
             }
-            Model::Boosting(b) => {
+            Ensemble::Boosting(b) => {
                 out["loss"] = b.loss.word().into();
                 out["rounds"] = b.rounds().into();
                 out["initial_scores"] = serde_json::json!(b.initial);
@@ -661,17 +654,20 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 };
                 out["partial"] = b.partial.into();
             }
-            Model::AdaBoost(a) => {
+            Ensemble::AdaBoost(a) => {
                 out["rounds"] = a.trees.len().into();
                 out["round_errors"] = serde_json::json!(a.errors);
                 out["round_weights"] = serde_json::json!(a.alphas);
                 out["stopped"] = stop_words(a.stop).into();
             }
         }
+        if let Some(path) = &args.save_model {
+            out["saved_model"] = path.display().to_string().into();
+        }
         println!("{}", serde_json::to_string_pretty(&out)?);
     } else {
-        match &model {
-            Model::Tree(tree) => println!(
+        match &model.ensemble {
+            Ensemble::Tree(tree) => println!(
                 "single tree for '{}' on {} rows and {} predictors: depth {}, {} leaves",
                 design.outcome_name,
                 binned.rows,
@@ -679,7 +675,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 tree.depth(),
                 tree.leaves()
             ),
-            Model::Forest(f) => {
+            Ensemble::Forest(f) => {
                 println!(
                     "{} of {} trees for '{}' on {} rows and {} predictors",
                     args.method,
@@ -698,8 +694,8 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                     f.oob_error.last().copied().unwrap_or(f64::NAN)
                 );
             }
-            Model::AdaBoost(_) => {}
-            Model::Boosting(b) => {
+            Ensemble::AdaBoost(_) => {}
+            Ensemble::Boosting(b) => {
                 println!(
                     "gradient boosting ({} loss): {} rounds for '{}' on {} rows and {} predictors; {}",
                     b.loss.word(),
@@ -721,7 +717,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 }
             }
         }
-        if let Model::AdaBoost(a) = &model {
+        if let Ensemble::AdaBoost(a) = &model.ensemble {
             println!(
                 "adaboost: {} rounds for '{}' on {} rows; {}",
                 a.trees.len(),
@@ -740,6 +736,13 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 args.score
                     .as_ref()
                     .map_or(String::new(), |p| p.display().to_string())
+            );
+        }
+        if let Some(path) = &args.save_model {
+            println!(
+                "model saved to {} (score new records with: spinney predict {} FILE)",
+                path.display(),
+                path.display()
             );
         }
         for n in &design.notices {
@@ -820,81 +823,15 @@ fn fit_forest_on_threads(
     ))
 }
 
-/// Error after 1, 2, ... members (trees or rounds), in one pass over the members: error
-/// rate for classes, mean squared error for numbers. `None` for a single tree.
-fn staged_errors(model: &Model, rows: Rows<'_>, outcome: &Outcome) -> Option<Vec<f64>> {
-    let n = rows.len();
-    if let Model::Boosting(b) = model {
-        let mut p = Vec::new();
-        let curve = staged_predictions(b, rows)
-            .iter()
-            .map(|stage| {
-                let err: f64 = (0..n)
-                    .map(|r| {
-                        p.clear();
-                        p.extend_from_slice(&stage[r]);
-                        match outcome {
-                            Outcome::Classes { codes, .. } => {
-                                (argmax(&p) != codes[r] as usize) as u8 as f64
-                            }
-                            Outcome::Numbers(y) => (p[0] - y[r]).powi(2),
-                        }
-                    })
-                    .sum();
-                err / n as f64
-            })
-            .collect();
-        return Some(curve);
-    }
-    let (members, outputs): (Vec<(&Tree, f64)>, usize) = match model {
-        Model::Tree(_) | Model::Boosting(_) => return None,
-        Model::Forest(f) => (f.trees.iter().map(|t| (t, 1.0)).collect(), f.outputs),
-        Model::AdaBoost(a) => (
-            a.trees.iter().zip(a.alphas.iter().copied()).collect(),
-            a.classes,
-        ),
-    };
-    let voting = matches!(model, Model::AdaBoost(_));
-    let mut sums = vec![0.0; n * outputs];
-    let mut curve = Vec::with_capacity(members.len());
-    for (t, (tree, alpha)) in members.iter().enumerate() {
-        let mut err = 0.0;
-        for r in 0..n {
-            let p = tree.predict(rows, r);
-            let s = &mut sums[r * outputs..(r + 1) * outputs];
-            if voting {
-                s[argmax(p)] += alpha;
-            } else {
-                for (a, b) in s.iter_mut().zip(p) {
-                    *a += b;
-                }
-            }
-            err += match outcome {
-                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
-                Outcome::Numbers(y) => (s[0] / (t + 1) as f64 - y[r]).powi(2),
-            };
+/// Every row's prediction after each round 1, 2, ... (`[round][row][value]`).
+fn staged_predictions(model: &Model, rows: Rows<'_>) -> Vec<Vec<Vec<f64>>> {
+    let k = model.outputs();
+    let mut out = vec![Vec::with_capacity(rows.len()); model.members()];
+    for r in 0..rows.len() {
+        let staged = model.staged_predict(rows, r);
+        for (round, p) in staged.chunks_exact(k).enumerate() {
+            out[round].push(p.to_vec());
         }
-        curve.push(err / n as f64);
-    }
-    Some(curve)
-}
-
-/// Every row's prediction after each round 1, 2, ... of a boosted model.
-fn staged_predictions(b: &Boosting, rows: Rows<'_>) -> Vec<Vec<Vec<f64>>> {
-    let mut scores = b.scores(rows, 0);
-    let mut out = Vec::with_capacity(b.rounds());
-    let mut p = Vec::new();
-    for round in 0..b.rounds() {
-        b.add_round(rows, round, &mut scores);
-        out.push(
-            scores
-                .chunks_exact(b.outputs)
-                .map(|s| {
-                    b.predict(s, &mut p);
-                    p.clone()
-                })
-                .collect(),
-        );
     }
     out
 }
@@ -917,6 +854,109 @@ fn stop_words(stop: Stop) -> &'static str {
         Stop::NoBetterThanChance => "stopped early: a round was no better than chance",
         Stop::Cancelled => "cancelled before the last round",
     }
+}
+
+/// Every setting in effect for `method`, by its `--set` name, as the model file records it.
+fn describe_settings(all: &Settings, method: Method, regression: bool) -> BTreeMap<String, String> {
+    let g = &all.grow;
+    let or_unlimited = |v: Option<usize>| v.map_or("unlimited".to_string(), |v| v.to_string());
+    let mut s = BTreeMap::new();
+    let mut put = |name: &str, value: String| {
+        s.insert(name.to_string(), value);
+    };
+    put("depth", or_unlimited(g.max_depth));
+    put("leaves", or_unlimited(g.max_leaves));
+    put("leaf_size", g.min_rows_leaf.to_string());
+    put("split_size", g.min_rows_split.to_string());
+    put("min_gain", g.min_gain.to_string());
+    put("bins", all.bins.max_bins.to_string());
+    put(
+        "split_search",
+        if all.bins.exact { "exact" } else { "histogram" }.into(),
+    );
+    if !regression {
+        put(
+            "class_weight",
+            if all.balanced_classes {
+                "balanced"
+            } else {
+                "none"
+            }
+            .into(),
+        );
+    }
+    if method != Method::Boosting {
+        put(
+            "criterion",
+            match g.criterion {
+                Criterion::Gini => "gini",
+                Criterion::Entropy => "entropy",
+                Criterion::SquaredError => "squared_error",
+                Criterion::Gradient { .. } => "gradient",
+            }
+            .into(),
+        );
+    }
+    match method {
+        Method::Tree => put("pruning", all.pruning.to_string()),
+        Method::Bagging | Method::Forest => {
+            let f = &all.forest;
+            put("trees", f.trees.to_string());
+            put(
+                "predictors_per_split",
+                f.predictors_per_split
+                    .map_or("all".to_string(), |m| m.to_string()),
+            );
+            put("row_fraction", f.row_fraction.to_string());
+            put(
+                "sampling",
+                if f.balanced {
+                    "balanced"
+                } else if f.replace {
+                    "with_replacement"
+                } else {
+                    "without_replacement"
+                }
+                .into(),
+            );
+            put("seed", f.seed.to_string());
+        }
+        Method::AdaBoost => {
+            put("rounds", all.boost.rounds.to_string());
+            put("learning_rate", all.boost.learning_rate.to_string());
+        }
+        Method::Boosting => {
+            let b = &all.boosting;
+            put("rounds", b.rounds.to_string());
+            put("learning_rate", b.learning_rate.to_string());
+            put("l2", b.l2.to_string());
+            put("row_fraction", b.row_fraction.to_string());
+            put("predictor_fraction", b.predictor_fraction.to_string());
+            put(
+                "patience",
+                b.patience.map_or("none".to_string(), |p| p.to_string()),
+            );
+            put("validation_share", b.validation_share.to_string());
+            put("min_hessian", g.min_weight_leaf.to_string());
+            if !all.monotone.is_empty() {
+                let ways: Vec<String> = all
+                    .monotone
+                    .iter()
+                    .map(|(name, sign)| {
+                        let way = match sign {
+                            1 => "up",
+                            -1 => "down",
+                            _ => "none",
+                        };
+                        format!("{name}:{way}")
+                    })
+                    .collect();
+                put("monotone", ways.join(","));
+            }
+            put("seed", b.seed.to_string());
+        }
+    }
+    s
 }
 
 /// Re-expresses a scored file's classes in the training labels' codes.

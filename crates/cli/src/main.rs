@@ -1,6 +1,8 @@
 //! `spinney`: the native command line. It runs the same core as the page on files too big
-//! for a browser. Today: `spinney inspect FILE` prints how a file reads and a summary of
-//! every column (a readable table, or JSON with `--json`).
+//! for a browser: `spinney inspect FILE` prints how a file reads and a summary of every column
+//! (a readable table, or JSON with `--json`); `spinney fit` fits and reports a model (and
+//! saves it with `--save-model`); `spinney predict MODEL FILE` scores a file with a saved
+//! model.
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -8,6 +10,7 @@ use std::process::ExitCode;
 
 mod bench;
 mod fit;
+mod predict;
 
 use anyhow::Context;
 use clap::{Parser, Subcommand};
@@ -50,6 +53,8 @@ enum Command {
     },
     /// Fit a model (tree, bagging, forest, AdaBoost) on every row of a file and report it.
     Fit(fit::FitArgs),
+    /// Score every row of a file with a saved model and write the predictions as CSV.
+    Predict(predict::PredictArgs),
     /// Measure speed and memory on generated data, and print the figures.
     Bench {
         #[command(subcommand)]
@@ -87,6 +92,7 @@ fn run(args: Args) -> anyhow::Result<()> {
             what: BenchWhat::Read { mb, repeats },
         } => bench::read(mb, repeats),
         Command::Fit(args) => fit::fit(args),
+        Command::Predict(args) => predict::predict(args),
         Command::Inspect {
             file,
             sheet,

@@ -365,47 +365,31 @@ impl Records {
 }
 
 /// Reads the predictors of `columns` (a fitted model's) from a table: columns matched by
-/// name, category values by label.
+/// name, category values by label (the one path of [`crate::model::read_records`]).
 pub fn records_from_table(columns: &[BinnedColumn], table: &crate::data::Table) -> Result<Records> {
-    use crate::data::Values;
-    let rows = table.rows;
-    let mut values = vec![f64::NAN; rows * columns.len()];
-    for (j, col) in columns.iter().enumerate() {
-        let source = table.column(&col.name).ok_or_else(|| {
-            Error::new(ErrorKind::NoSuchColumn {
-                name: col.name.clone(),
-                available: table.columns.iter().map(|c| c.name.clone()).collect(),
-            })
-        })?;
-        let out = &mut values[j * rows..(j + 1) * rows];
-        match (&col.rule, &source.values) {
-            (BinRule::Numbers { .. }, Values::Numbers(v)) => out.copy_from_slice(v),
-            (BinRule::Levels { .. }, Values::Levels { codes, levels }) => {
-                let index: std::collections::HashMap<&str, u32> =
-                    col.levels.iter().enumerate().map(|(i, l)| (l.as_str(), i as u32)).collect();
-                let map: Vec<u32> =
-                    levels.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(u32::MAX - 1)).collect();
-                for (o, &c) in out.iter_mut().zip(codes) {
-                    if c != crate::data::MISSING_CODE {
-                        if let Some(b) = col.rule.bin_of_level(map[c as usize]) {
-                            *o = b as f64;
-                        }
-                    }
-                }
-            }
-            _ => {
-                return Err(Error::new(ErrorKind::BadDesign {
-                    reason: format!(
-                        "column '{}' holds {} here but was {} when the model was fitted; set its kind to match",
-                        col.name,
-                        source.kind.label(),
-                        if col.rule.is_numeric() { "a number" } else { "a category" }
-                    ),
-                }))
-            }
-        }
-    }
-    Ok(Records { rows, values })
+    use crate::model::{Predictor, Reading};
+    let predictors: Vec<Predictor> = columns
+        .iter()
+        .map(|c| Predictor {
+            name: c.name.clone(),
+            kind: match c.rule {
+                BinRule::Numbers { .. } => crate::data::Kind::Number,
+                BinRule::Levels { .. } => crate::data::Kind::Category,
+            },
+            reading: match &c.rule {
+                BinRule::Numbers { .. } => Reading::Number,
+                BinRule::Levels {
+                    bin_of_level,
+                    pooled_bin,
+                } => Reading::Category {
+                    levels: c.levels.clone(),
+                    bin_of_level: bin_of_level.clone(),
+                    pooled_bin: *pooled_bin,
+                },
+            },
+        })
+        .collect();
+    crate::model::read_records(&predictors, table).map(|(records, _)| records)
 }
 
 fn level_rule(codes: &[u32], levels: usize, settings: BinSettings) -> BinRule {

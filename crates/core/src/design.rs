@@ -56,6 +56,9 @@ pub struct Predictor {
     pub name: String,
     pub kind: Kind,
     pub values: PredictorValues,
+    /// Yes/no predictors: the words the file used for 0 and 1 (kept for saved models, which
+    /// read new files by label).
+    pub yes_no_labels: Option<[String; 2]>,
 }
 
 /// A checked design: every array has one entry per used row.
@@ -281,6 +284,7 @@ pub fn build_design(table: &Table, spec: &DesignSpec) -> Result<Design> {
             name: c.name.clone(),
             kind: c.kind,
             values,
+            yes_no_labels: c.yes_no_labels.clone(),
         });
     }
     if predictors.is_empty() {

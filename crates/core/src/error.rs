@@ -71,6 +71,24 @@ pub enum ErrorKind {
     },
     /// The chosen columns cannot make a model (one-class outcome, no predictors, ...).
     BadDesign { reason: String },
+    /// A model file that cannot be used: not JSON, not a Spinney model, or inconsistent
+    /// contents. `at` holds the line and column when the JSON itself is at fault.
+    BadModelFile { at: Where, reason: String },
+    /// A model file whose major format version is newer than this Spinney reads.
+    NewerModelFile {
+        major: u64,
+        minor: u64,
+        written_by: String,
+        reads: u64,
+    },
+    /// A model could not be written as a file (a value JSON cannot hold).
+    ModelNotSaved { reason: String },
+    /// A table to score lacks predictors the model needs, or holds them as another kind.
+    ColumnsForModel {
+        missing: Vec<String>,
+        wrong_kind: Vec<String>,
+        available: Vec<String>,
+    },
 }
 
 /// The error type of spinney-core.
@@ -89,7 +107,8 @@ impl Error {
         match &*self.0 {
             ErrorKind::RaggedRow { at, .. }
             | ErrorKind::UnclosedQuote { at }
-            | ErrorKind::NotText { at, .. } => Some(at),
+            | ErrorKind::NotText { at, .. }
+            | ErrorKind::BadModelFile { at, .. } => Some(at),
             _ => None,
         }
     }
@@ -167,8 +186,71 @@ impl fmt::Display for Error {
                 )
             }
             ErrorKind::BadDesign { reason } => write!(f, "{reason}"),
+            ErrorKind::BadModelFile { at, reason } => {
+                let place = match (at.line, &at.column) {
+                    (Some(line), Some(column)) => format!(" (line {line}, column {column})"),
+                    (Some(line), None) => format!(" (line {line})"),
+                    _ => String::new(),
+                };
+                write!(
+                    f,
+                    "this model file cannot be used: {reason}{place}. Save the model again with \
+                     `spinney fit ... --save-model`; if the file was copied or edited, take the \
+                     original again"
+                )
+            }
+            ErrorKind::NewerModelFile {
+                major,
+                minor,
+                written_by,
+                reads,
+            } => write!(
+                f,
+                "this model file has format version {major}.{minor}, written by {written_by}; \
+                 this Spinney ({}) reads format version {reads} and older. Update Spinney to \
+                 read it",
+                crate::VERSION
+            ),
+            ErrorKind::ModelNotSaved { reason } => write!(
+                f,
+                "the model cannot be saved: {reason}. This is a fault in Spinney; please report \
+                 it with the command and settings used"
+            ),
+            ErrorKind::ColumnsForModel {
+                missing,
+                wrong_kind,
+                available,
+            } => {
+                let mut parts = Vec::new();
+                if !missing.is_empty() {
+                    let shown: Vec<&str> = available.iter().take(12).map(String::as_str).collect();
+                    parts.push(format!(
+                        "the model needs the column(s) {}, which the table lacks (it has: {}{}). \
+                         Add them, or rename columns to the names used in training (matched \
+                         exactly)",
+                        quoted(missing),
+                        shown.join(", "),
+                        if available.len() > 12 { ", ..." } else { "" }
+                    ));
+                }
+                if !wrong_kind.is_empty() {
+                    parts.push(format!(
+                        "{}. Set each column's kind to the one used in training",
+                        wrong_kind.join("; ")
+                    ));
+                }
+                write!(f, "{}", parts.join("; "))
+            }
         }
     }
+}
+
+fn quoted(names: &[String]) -> String {
+    names
+        .iter()
+        .map(|n| format!("'{n}'"))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 impl std::error::Error for Error {}

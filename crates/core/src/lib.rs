@@ -5,13 +5,16 @@
 //! It holds the data layer (reading delimited text and spreadsheets into a typed
 //! [`data::Table`], summarising and fingerprinting it) and the learning engine: the design
 //! ([`design`]), binning ([`binning`]), the tree grower and pruning ([`tree`]) and the
-//! ensembles built on them ([`ensemble`]).
+//! ensembles built on them ([`ensemble`]), the fitted model of any method ([`model`]) and its
+//! file ([`model_file`]).
 
 pub mod binning;
 pub mod data;
 pub mod design;
 pub mod ensemble;
 pub mod error;
+pub mod model;
+pub mod model_file;
 pub mod progress;
 pub mod random;
 pub mod tree;

@@ -185,15 +185,20 @@ impl Tree {
         self.nodes.iter().filter(|n| n.is_leaf()).count()
     }
 
+    /// Levels of splits on the longest path from the root; iterative, so a very deep tree
+    /// cannot overflow the stack.
     pub fn depth(&self) -> usize {
-        fn depth(t: &Tree, i: usize) -> usize {
-            let n = &t.nodes[i];
+        let mut deepest = 0;
+        let mut stack = vec![(0usize, 0usize)];
+        while let Some((i, d)) = stack.pop() {
+            let Some(n) = self.nodes.get(i) else { continue };
             if n.is_leaf() {
-                0
+                deepest = deepest.max(d);
             } else {
-                1 + depth(t, n.left as usize).max(depth(t, n.right as usize))
+                stack.push((n.left as usize, d + 1));
+                stack.push((n.right as usize, d + 1));
             }
         }
-        depth(self, 0)
+        deepest
     }
 }

@@ -1,0 +1,810 @@
+//! A fitted model of any method as one value ([`Model`]): the method, the outcome and its
+//! classes, how to read each predictor from a new table, the ensemble itself, the settings and
+//! seed it was fitted with, the training file's fingerprint and whether fitting was cancelled.
+//! Everything that predicts with a fitted model (the command line, the page, later the
+//! explanations) goes through here: class probabilities or the number for one row, staged
+//! predictions after 1, 2, ... members, the error by ensemble size and the overall fit.
+//! [`Model::check`] validates every index, so a model read from a file (see
+//! [`crate::model_file`]) can never make prediction panic.
+
+use std::collections::BTreeMap;
+
+use crate::binning::{BinRule, BinnedMatrix, Records};
+use crate::data::values::yes_no_word;
+use crate::data::{Kind, Table, Values, MISSING_CODE};
+use crate::design::{Design, Outcome, PredictorValues};
+use crate::ensemble::adaboost::{AdaBoost, Stop};
+use crate::ensemble::boosting::Boosting;
+use crate::ensemble::forest::{argmax, Forest};
+use crate::error::{Error, ErrorKind, Result};
+use crate::tree::{Rows, Tree};
+
+/// How the model was fitted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Method {
+    Tree,
+    Bagging,
+    Forest,
+    AdaBoost,
+    /// Gradient boosting.
+    Boosting,
+}
+
+impl Method {
+    pub const ALL: [Method; 5] = [
+        Method::Tree,
+        Method::Bagging,
+        Method::Forest,
+        Method::AdaBoost,
+        Method::Boosting,
+    ];
+
+    /// The word used on the command line and in model files.
+    pub fn word(self) -> &'static str {
+        match self {
+            Method::Tree => "tree",
+            Method::Bagging => "bagging",
+            Method::Forest => "forest",
+            Method::AdaBoost => "adaboost",
+            Method::Boosting => "boosting",
+        }
+    }
+
+    pub fn from_word(word: &str) -> Option<Method> {
+        Method::ALL.into_iter().find(|m| m.word() == word)
+    }
+}
+
+/// How a model reads one predictor from a new table.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Reading {
+    /// A number (number, whole number, date, date-time), compared with split thresholds.
+    Number,
+    /// Yes/no, stored as 0 (`labels[0]`) and 1 (`labels[1]`). New values are matched by
+    /// label (ignoring case), then as yes/no words; anything else counts as missing.
+    YesNo { labels: [String; 2] },
+    /// A category: the training labels, the training bin of each, and the pooled bin that
+    /// rare labels shared and that labels never seen in training follow.
+    Category {
+        levels: Vec<String>,
+        bin_of_level: Vec<u8>,
+        pooled_bin: u8,
+    },
+}
+
+/// One predictor as the model needs it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Predictor {
+    pub name: String,
+    /// The column's kind in the training table.
+    pub kind: Kind,
+    pub reading: Reading,
+}
+
+impl Predictor {
+    /// Whether splits on this predictor compare numbers (numbers, dates, yes/no).
+    pub fn is_numeric(&self) -> bool {
+        !matches!(self.reading, Reading::Category { .. })
+    }
+
+    /// The kind to read this predictor's column as in a new file, so that a few rows (say a
+    /// category whose labels look like numbers) are not read differently from training.
+    pub fn reading_kind(&self) -> Kind {
+        match (&self.reading, self.kind) {
+            (Reading::Number, Kind::Date | Kind::DateTime) => self.kind,
+            (Reading::Number, _) => Kind::Number,
+            _ => Kind::Category,
+        }
+    }
+}
+
+/// The predictors of a fitted design, in the model's order (the binned matrix's columns).
+pub fn predictors_of(design: &Design, binned: &BinnedMatrix) -> Vec<Predictor> {
+    design
+        .predictors
+        .iter()
+        .zip(&binned.columns)
+        .map(|(p, col)| {
+            let reading = match (&p.values, &col.rule) {
+                (PredictorValues::Numbers(_), _) if p.kind == Kind::YesNo => Reading::YesNo {
+                    labels: p
+                        .yes_no_labels
+                        .clone()
+                        .unwrap_or_else(|| ["0".into(), "1".into()]),
+                },
+                (
+                    PredictorValues::Levels { .. },
+                    BinRule::Levels {
+                        bin_of_level,
+                        pooled_bin,
+                    },
+                ) => Reading::Category {
+                    levels: col.levels.clone(),
+                    bin_of_level: bin_of_level.clone(),
+                    pooled_bin: *pooled_bin,
+                },
+                _ => Reading::Number,
+            };
+            Predictor {
+                name: p.name.clone(),
+                kind: p.kind,
+                reading,
+            }
+        })
+        .collect()
+}
+
+/// The fitted members.
+#[derive(Debug, Clone)]
+pub enum Ensemble {
+    Tree(Tree),
+    /// Bagging and random forests.
+    Forest(Forest),
+    AdaBoost(AdaBoost),
+    /// Gradient boosting: round `r`'s tree for score `k` is `trees[r * outputs + k]`.
+    Boosting(Boosting),
+    // A new method: a variant here, with its arms in `Model::predict`, `Model::raw_scores`,
+    // `Model::staged_predict`, `Model::staged_errors`, `Ensemble::trees`, `Model::check`,
+    // `is_partial` and in model_file.rs (a block beside `forest`, `adaboost`, `boosting`).
+}
+
+impl Ensemble {
+    /// Every tree of the ensemble, in order.
+    pub fn trees(&self) -> &[Tree] {
+        match self {
+            Ensemble::Tree(t) => std::slice::from_ref(t),
+            Ensemble::Forest(f) => &f.trees,
+            Ensemble::AdaBoost(a) => &a.trees,
+            Ensemble::Boosting(b) => &b.trees,
+        }
+    }
+}
+
+/// A fitted model of any method.
+#[derive(Debug, Clone)]
+pub struct Model {
+    pub method: Method,
+    pub outcome: String,
+    /// Class labels (prediction gives one probability per class), or `None` for a number.
+    pub classes: Option<Vec<String>>,
+    pub predictors: Vec<Predictor>,
+    pub ensemble: Ensemble,
+    /// Every setting in effect, by the names `spinney fit --set` uses, as text.
+    pub settings: BTreeMap<String, String>,
+    pub seed: u64,
+    /// SHA-256 of the training file, when known.
+    pub training_fingerprint: Option<String>,
+    /// Rows the model was fitted on.
+    pub training_rows: usize,
+    /// Fitting was cancelled: fewer trees or rounds than asked for.
+    pub partial: bool,
+}
+
+/// Labels of one predictor that training never saw, in a table being scored.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Unseen {
+    pub predictor: String,
+    /// Rows holding such a label.
+    pub rows: usize,
+    /// The first such label.
+    pub example: String,
+    /// Where these rows go: "the pooled bin" (categories) or "the missing side" (yes/no).
+    pub follows: &'static str,
+}
+
+impl Model {
+    /// Values per prediction: the number of classes, or 1.
+    pub fn outputs(&self) -> usize {
+        self.classes.as_ref().map_or(1, Vec::len)
+    }
+
+    /// Trees (bagging, forest) or rounds (AdaBoost, boosting); 1 for a single tree.
+    pub fn members(&self) -> usize {
+        match &self.ensemble {
+            Ensemble::Boosting(b) => b.rounds(),
+            e => e.trees().len(),
+        }
+    }
+
+    /// The prediction for row `row` into `out` (`outputs()` values): class probabilities,
+    /// or the predicted number. AdaBoost's probabilities follow [`samme_probabilities`];
+    /// gradient boosting's come from its scores through its loss's link.
+    pub fn predict(&self, rows: Rows<'_>, row: usize, out: &mut [f64]) {
+        match &self.ensemble {
+            Ensemble::Tree(t) => {
+                for (o, v) in out.iter_mut().zip(t.predict(rows, row)) {
+                    *o = *v;
+                }
+            }
+            Ensemble::Forest(f) => f.predict(rows, row, out),
+            Ensemble::AdaBoost(a) => {
+                let scores = a.scores(rows, row, a.trees.len());
+                let total: f64 = a.alphas.iter().sum();
+                samme_probabilities(&scores, total, out);
+            }
+            Ensemble::Boosting(b) => {
+                let scores = boosting_scores(b, rows, row, b.rounds());
+                let mut p = Vec::with_capacity(out.len());
+                b.predict(&scores, &mut p);
+                for (o, v) in out.iter_mut().zip(&p) {
+                    *o = *v;
+                }
+            }
+        }
+    }
+
+    /// The scores behind the prediction of row `row`: AdaBoost's votes (Σ α of the rounds
+    /// voting for each class) or gradient boosting's scores before the link (log-odds,
+    /// class scores, or the number's scale); `None` for trees, bagging and forests.
+    pub fn raw_scores(&self, rows: Rows<'_>, row: usize) -> Option<Vec<f64>> {
+        match &self.ensemble {
+            Ensemble::AdaBoost(a) => Some(a.scores(rows, row, a.trees.len())),
+            Ensemble::Boosting(b) => Some(boosting_scores(b, rows, row, b.rounds())),
+            _ => None,
+        }
+    }
+
+    /// Predictions for row `row` after 1, 2, ... members: `members() × outputs()` values,
+    /// member after member, each as [`Model::predict`] gives it for that many members.
+    pub fn staged_predict(&self, rows: Rows<'_>, row: usize) -> Vec<f64> {
+        let k = self.outputs();
+        if let Ensemble::Boosting(b) = &self.ensemble {
+            let mut scores = b.initial.clone();
+            let mut out = Vec::with_capacity(b.rounds() * k);
+            let mut p = Vec::with_capacity(k);
+            for round in 0..b.rounds() {
+                add_boosting_round(b, rows, row, round, &mut scores);
+                b.predict(&scores, &mut p);
+                out.extend_from_slice(&p);
+            }
+            return out;
+        }
+        let trees = self.ensemble.trees();
+        let mut out = vec![0.0; trees.len() * k];
+        let mut sums = vec![0.0; k];
+        let mut total = 0.0;
+        for (t, tree) in trees.iter().enumerate() {
+            let p = tree.predict(rows, row);
+            let stage = &mut out[t * k..(t + 1) * k];
+            match &self.ensemble {
+                Ensemble::Tree(_) => stage.iter_mut().zip(p).for_each(|(o, v)| *o = *v),
+                Ensemble::Forest(_) => {
+                    for ((s, v), o) in sums.iter_mut().zip(p).zip(stage.iter_mut()) {
+                        *s += v;
+                        *o = *s / (t + 1) as f64;
+                    }
+                }
+                Ensemble::AdaBoost(a) => {
+                    let alpha = a.alphas.get(t).copied().unwrap_or(0.0);
+                    if let Some(s) = sums.get_mut(argmax(p)) {
+                        *s += alpha;
+                    }
+                    total += alpha;
+                    samme_probabilities(&sums, total, stage);
+                }
+                Ensemble::Boosting(_) => {} // above
+            }
+        }
+        out
+    }
+
+    /// Error after 1, 2, ... members (trees or rounds), in one pass over the members: error
+    /// rate for classes, mean squared error for numbers. `None` for a single tree.
+    pub fn staged_errors(&self, rows: Rows<'_>, outcome: &Outcome) -> Option<Vec<f64>> {
+        let n = rows.len();
+        let outputs = self.outputs();
+        if let Ensemble::Boosting(b) = &self.ensemble {
+            return Some(boosting_staged_errors(b, rows, outcome));
+        }
+        let (members, voting): (Vec<(&Tree, f64)>, bool) = match &self.ensemble {
+            Ensemble::Tree(_) | Ensemble::Boosting(_) => return None,
+            Ensemble::Forest(f) => (f.trees.iter().map(|t| (t, 1.0)).collect(), false),
+            Ensemble::AdaBoost(a) => (a.trees.iter().zip(a.alphas.iter().copied()).collect(), true),
+        };
+        let mut sums = vec![0.0; n * outputs];
+        let mut curve = Vec::with_capacity(members.len());
+        for (t, (tree, alpha)) in members.iter().enumerate() {
+            let mut err = 0.0;
+            for r in 0..n {
+                let p = tree.predict(rows, r);
+                let s = &mut sums[r * outputs..(r + 1) * outputs];
+                if voting {
+                    if let Some(v) = s.get_mut(argmax(p)) {
+                        *v += alpha;
+                    }
+                } else {
+                    for (a, b) in s.iter_mut().zip(p) {
+                        *a += b;
+                    }
+                }
+                err += match outcome {
+                    Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
+                    Outcome::Numbers(y) => (s[0] / (t + 1) as f64 - y[r]).powi(2),
+                };
+            }
+            curve.push(err / n.max(1) as f64);
+        }
+        Some(curve)
+    }
+
+    /// Accuracy (classes) or root mean squared error (numbers) on `rows`, whose outcome is
+    /// `outcome` (class codes in the model's classes' order).
+    pub fn performance(&self, rows: Rows<'_>, outcome: &Outcome) -> (&'static str, f64) {
+        let mut p = vec![0.0; self.outputs()];
+        let n = rows.len();
+        match outcome {
+            Outcome::Classes { codes, .. } => {
+                let right = (0..n)
+                    .filter(|&r| {
+                        self.predict(rows, r, &mut p);
+                        argmax(&p) == codes[r] as usize
+                    })
+                    .count();
+                ("accuracy", right as f64 / n as f64)
+            }
+            Outcome::Numbers(v) => {
+                let sse: f64 = (0..n)
+                    .map(|r| {
+                        self.predict(rows, r, &mut p);
+                        (p[0] - v[r]).powi(2)
+                    })
+                    .sum();
+                ("rmse", (sse / n as f64).sqrt())
+            }
+        }
+    }
+
+    /// The kinds to read a new file's predictor columns as (see [`Predictor::reading_kind`]),
+    /// for [`crate::data::ReadOptions::kinds`].
+    pub fn reading_kinds(&self) -> Vec<(String, Kind)> {
+        self.predictors
+            .iter()
+            .map(|p| (p.name.clone(), p.reading_kind()))
+            .collect()
+    }
+
+    /// Reads the model's predictors from `table` (see [`read_records`]).
+    pub fn records(&self, table: &Table) -> Result<(Records, Vec<Unseen>)> {
+        read_records(&self.predictors, table)
+    }
+
+    /// Checks that every index in the model is in range and every tree is a tree (each node
+    /// below the root reached exactly once, children after their parent), so prediction
+    /// cannot panic or loop. Models read from files are checked before use.
+    pub fn check(&self) -> std::result::Result<(), String> {
+        let outputs = self.outputs();
+        if let Some(classes) = &self.classes {
+            if classes.len() < 2 {
+                return Err(format!(
+                    "it lists {} class(es); a class model needs at least 2",
+                    classes.len()
+                ));
+            }
+        }
+        if self.predictors.is_empty() {
+            return Err("it lists no predictors".into());
+        }
+        for (j, p) in self.predictors.iter().enumerate() {
+            if let Reading::Category {
+                levels,
+                bin_of_level,
+                pooled_bin,
+            } = &p.reading
+            {
+                if bin_of_level.len() != levels.len() {
+                    return Err(format!(
+                        "predictor {} ('{}') has {} labels but {} bins for them",
+                        j + 1,
+                        p.name,
+                        levels.len(),
+                        bin_of_level.len()
+                    ));
+                }
+                if *pooled_bin == u8::MAX {
+                    return Err(format!(
+                        "predictor {} ('{}') has pooled bin 255, which is kept for missing values",
+                        j + 1,
+                        p.name
+                    ));
+                }
+                if let Some(b) = bin_of_level.iter().find(|&&b| b > *pooled_bin) {
+                    return Err(format!(
+                        "predictor {} ('{}') puts a label in bin {b}, beyond its {} bins",
+                        j + 1,
+                        p.name,
+                        *pooled_bin as usize + 1
+                    ));
+                }
+            }
+        }
+        match (&self.method, &self.ensemble) {
+            (Method::Tree, Ensemble::Tree(_))
+            | (Method::Bagging | Method::Forest, Ensemble::Forest(_))
+            | (Method::AdaBoost, Ensemble::AdaBoost(_))
+            | (Method::Boosting, Ensemble::Boosting(_)) => {}
+            _ => {
+                return Err(format!(
+                    "its members do not match its method '{}'",
+                    self.method.word()
+                ))
+            }
+        }
+        match &self.ensemble {
+            Ensemble::Tree(_) => {}
+            Ensemble::Forest(f) => {
+                if f.outputs != outputs {
+                    return Err(format!(
+                        "the forest gives {} value(s) per row but the outcome needs {outputs}",
+                        f.outputs
+                    ));
+                }
+            }
+            Ensemble::AdaBoost(a) => {
+                if self.classes.is_none() || a.classes != outputs {
+                    return Err("AdaBoost's classes do not match the outcome's classes".into());
+                }
+                let total: f64 = a.alphas.iter().sum();
+                if !total.is_finite() || a.alphas.iter().any(|&w| w < 0.0) {
+                    return Err(
+                        "AdaBoost's round weights must be zero or more, with a finite sum".into(),
+                    );
+                }
+                if a.alphas.len() != a.trees.len() || a.errors.len() != a.trees.len() {
+                    return Err(format!(
+                        "AdaBoost has {} rounds but {} round weights and {} round errors",
+                        a.trees.len(),
+                        a.alphas.len(),
+                        a.errors.len()
+                    ));
+                }
+            }
+            Ensemble::Boosting(b) => {
+                let classes = self.classes.as_ref().map_or(0, Vec::len);
+                if b.loss.for_classes() != self.classes.is_some() || b.classes != classes {
+                    return Err(format!(
+                        "the {} loss does not fit the outcome's {}",
+                        b.loss.word(),
+                        if classes == 0 {
+                            "numbers".to_string()
+                        } else {
+                            format!("{classes} classes")
+                        }
+                    ));
+                }
+                if b.outputs != b.loss.outputs(classes)
+                    || (b.loss.for_classes() && b.loss.outputs(classes) == 1 && classes != 2)
+                {
+                    return Err(format!(
+                        "the {} loss gives {} score(s) per row for {classes} classes",
+                        b.loss.word(),
+                        b.outputs
+                    ));
+                }
+                if b.initial.len() != b.outputs {
+                    return Err(format!(
+                        "boosting has {} starting score(s) but {} score(s) per row",
+                        b.initial.len(),
+                        b.outputs
+                    ));
+                }
+                if b.trees.len() % b.outputs.max(1) != 0 {
+                    return Err(format!(
+                        "boosting has {} trees, not a whole number of rounds of {}",
+                        b.trees.len(),
+                        b.outputs
+                    ));
+                }
+            }
+        }
+        // Boosting's trees each give one score; the others' trees give the prediction.
+        let tree_outputs = match &self.ensemble {
+            Ensemble::Boosting(_) => 1,
+            _ => outputs,
+        };
+        for (t, tree) in self.ensemble.trees().iter().enumerate() {
+            self.check_tree(tree, tree_outputs)
+                .map_err(|e| format!("tree {}: {e}", t + 1))?;
+        }
+        Ok(())
+    }
+
+    fn check_tree(&self, tree: &Tree, outputs: usize) -> std::result::Result<(), String> {
+        let n = tree.nodes.len();
+        if n == 0 {
+            return Err("it has no nodes".into());
+        }
+        if tree.outputs != outputs {
+            return Err(format!(
+                "it gives {} value(s) per node but should give {outputs}",
+                tree.outputs
+            ));
+        }
+        let mut parents = vec![0u32; n];
+        for (i, node) in tree.nodes.iter().enumerate() {
+            let end = (node.value as usize).checked_add(tree.outputs);
+            if end.is_none_or(|e| e > tree.values.len()) {
+                return Err(format!(
+                    "node {i}'s values start at {}, beyond the {} values stored",
+                    node.value,
+                    tree.values.len()
+                ));
+            }
+            if node.threshold.is_nan() {
+                return Err(format!("node {i} has no threshold"));
+            }
+            if node.is_leaf() {
+                continue;
+            }
+            let (l, r) = (node.left as usize, node.right as usize);
+            for child in [l, r] {
+                if child <= i || child >= n {
+                    return Err(format!(
+                        "node {i} has child {child}; children must come after their parent and \
+                         within the tree's {n} nodes"
+                    ));
+                }
+            }
+            if l == r {
+                return Err(format!("node {i} has the same node {l} on both sides"));
+            }
+            parents[l] += 1;
+            parents[r] += 1;
+            let Some(p) = self.predictors.get(node.feature as usize) else {
+                return Err(format!(
+                    "node {i} splits on predictor {}, but the model has {}",
+                    node.feature as usize + 1,
+                    self.predictors.len()
+                ));
+            };
+            if node.numeric != p.is_numeric() {
+                return Err(format!(
+                    "node {i} splits '{}' as a {}, but it is a {}",
+                    p.name,
+                    if node.numeric { "number" } else { "category" },
+                    if p.is_numeric() { "number" } else { "category" }
+                ));
+            }
+            if let Reading::Category { pooled_bin, .. } = &p.reading {
+                if let Some(b) =
+                    (*pooled_bin as usize + 1..256).find(|&b| node.categories.contains(b as u8))
+                {
+                    return Err(format!(
+                        "node {i} sends bin {b} of '{}' left, beyond its {} bins",
+                        p.name,
+                        *pooled_bin as usize + 1
+                    ));
+                }
+            }
+        }
+        if let Some(i) = (1..n).find(|&i| parents[i] != 1) {
+            return Err(format!(
+                "node {i} is reached from {} parents; each node below the root needs exactly one",
+                parents[i]
+            ));
+        }
+        Ok(())
+    }
+}
+
+/// Reads `predictors` from `table` (columns by name, categories by label) as [`Records`] to
+/// score, and counts labels training never saw. Every missing column and every column of the
+/// wrong kind is named in one error.
+pub fn read_records(predictors: &[Predictor], table: &Table) -> Result<(Records, Vec<Unseen>)> {
+    let (mut missing, mut wrong_kind) = (Vec::new(), Vec::new());
+    let mut sources = Vec::with_capacity(predictors.len());
+    for p in predictors {
+        let Some(c) = table.column(&p.name) else {
+            missing.push(p.name.clone());
+            continue;
+        };
+        let fits = match (&p.reading, &c.values) {
+            (Reading::Number, Values::Numbers(_)) => true,
+            (Reading::YesNo { .. }, Values::Levels { .. }) => true,
+            (Reading::YesNo { .. }, Values::Numbers(_)) => c.kind == Kind::YesNo,
+            (Reading::Category { .. }, Values::Levels { .. }) => true,
+            _ => false,
+        };
+        if !fits {
+            wrong_kind.push(format!(
+                "'{}' holds {} here but was {} in training",
+                p.name,
+                c.kind.label(),
+                p.kind.label()
+            ));
+        }
+        sources.push(c);
+    }
+    if !missing.is_empty() || !wrong_kind.is_empty() {
+        return Err(Error::new(ErrorKind::ColumnsForModel {
+            missing,
+            wrong_kind,
+            available: table.columns.iter().map(|c| c.name.clone()).collect(),
+        }));
+    }
+    let rows = table.rows;
+    let mut values = vec![f64::NAN; rows * predictors.len()];
+    let mut unseen = Vec::new();
+    for (j, (p, c)) in predictors.iter().zip(sources).enumerate() {
+        let out = &mut values[j * rows..(j + 1) * rows];
+        let mut count = 0usize;
+        let mut example = None;
+        // The value (training bin or 0/1) of each of the column's labels; None: unseen.
+        let label_values: Option<(Vec<Option<f64>>, &[u32])> = match (&p.reading, &c.values) {
+            (Reading::Number, Values::Numbers(v)) => {
+                for (o, &x) in out.iter_mut().zip(v) {
+                    *o = x;
+                }
+                None
+            }
+            (Reading::YesNo { labels }, Values::Numbers(v)) => {
+                // A yes/no column read as such: map each side through its label.
+                let sides: Vec<f64> = match &c.yes_no_labels {
+                    Some(own) => own
+                        .iter()
+                        .map(|l| yes_no_side(labels, l).unwrap_or(f64::NAN))
+                        .collect(),
+                    None => vec![0.0, 1.0],
+                };
+                for (o, &x) in out.iter_mut().zip(v) {
+                    if !x.is_nan() {
+                        *o = sides[(x != 0.0) as usize];
+                    }
+                }
+                None
+            }
+            (Reading::YesNo { labels }, Values::Levels { codes, levels }) => Some((
+                levels.iter().map(|l| yes_no_side(labels, l)).collect(),
+                codes,
+            )),
+            (
+                Reading::Category {
+                    levels: trained,
+                    bin_of_level,
+                    ..
+                },
+                Values::Levels { codes, levels },
+            ) => {
+                let index: std::collections::HashMap<&str, usize> = trained
+                    .iter()
+                    .enumerate()
+                    .map(|(i, l)| (l.as_str(), i))
+                    .collect();
+                Some((
+                    levels
+                        .iter()
+                        .map(|l| {
+                            index
+                                .get(l.as_str())
+                                .and_then(|&i| bin_of_level.get(i))
+                                .map(|&b| b as f64)
+                        })
+                        .collect(),
+                    codes,
+                ))
+            }
+            _ => None, // refused above
+        };
+        // Unseen labels: a category's pooled bin, or missing for yes/no.
+        let (fallback, follows) = match &p.reading {
+            Reading::Category { pooled_bin, .. } => (*pooled_bin as f64, "the pooled bin"),
+            _ => (f64::NAN, "the missing side"),
+        };
+        if let Some((map, codes)) = label_values {
+            for (o, &code) in out.iter_mut().zip(codes) {
+                if code == MISSING_CODE {
+                    continue;
+                }
+                match map.get(code as usize).copied().flatten() {
+                    Some(x) => *o = x,
+                    None => {
+                        count += 1;
+                        if example.is_none() {
+                            if let Values::Levels { levels, .. } = &c.values {
+                                example = levels.get(code as usize).cloned();
+                            }
+                        }
+                        *o = fallback;
+                    }
+                }
+            }
+        }
+        if count > 0 {
+            unseen.push(Unseen {
+                predictor: p.name.clone(),
+                rows: count,
+                example: example.unwrap_or_default(),
+                follows,
+            });
+        }
+    }
+    Ok((Records::from_columns(rows, values), unseen))
+}
+
+/// The 0/1 value of a yes/no label: the training labels first (ignoring case), then yes/no
+/// words; `None` for anything else.
+fn yes_no_side(labels: &[String; 2], label: &str) -> Option<f64> {
+    let t = label.trim();
+    if t.eq_ignore_ascii_case(labels[1].trim()) {
+        Some(1.0)
+    } else if t.eq_ignore_ascii_case(labels[0].trim()) {
+        Some(0.0)
+    } else {
+        yes_no_word(t).map(|yes| yes as u8 as f64)
+    }
+}
+
+/// Class probabilities from AdaBoost SAMME votes, as scikit-learn's
+/// `AdaBoostClassifier.predict_proba` gives them (its SAMME path, from memory): the decision
+/// for class k is d_k = (A_k − (W − A_k)/(K − 1)) / W, where A_k is the summed round weight
+/// α of the rounds voting for k and W the sum of all α; the probabilities are the softmax of
+/// d / (K − 1). (For two classes scikit-learn writes it as a softmax of ±(d_1 − d_0)/2, which
+/// is the same.) With no rounds (W = 0) every class gets 1/K.
+pub fn samme_probabilities(votes: &[f64], total: f64, out: &mut [f64]) {
+    let k = votes.len() as f64;
+    if total.is_nan() || total <= 0.0 || votes.len() < 2 {
+        out.iter_mut().for_each(|o| *o = 1.0 / k.max(1.0));
+        return;
+    }
+    let decision = |a: f64| (a - (total - a) / (k - 1.0)) / total / (k - 1.0);
+    let top = votes
+        .iter()
+        .map(|&a| decision(a))
+        .fold(f64::NEG_INFINITY, f64::max);
+    let mut sum = 0.0;
+    for (o, &a) in out.iter_mut().zip(votes) {
+        *o = (decision(a) - top).exp();
+        sum += *o;
+    }
+    out.iter_mut().for_each(|o| *o /= sum);
+}
+
+/// Whether the model stopped early because it was cancelled.
+pub fn is_partial(ensemble: &Ensemble) -> bool {
+    match ensemble {
+        Ensemble::Tree(_) => false,
+        Ensemble::Forest(f) => f.partial,
+        Ensemble::AdaBoost(a) => a.stop == Stop::Cancelled,
+        Ensemble::Boosting(b) => b.partial,
+    }
+}
+
+/// Adds round `round`'s trees of `b` to the scores of one row.
+fn add_boosting_round(b: &Boosting, rows: Rows<'_>, row: usize, round: usize, scores: &mut [f64]) {
+    let m = b.outputs;
+    for (k, s) in scores.iter_mut().enumerate().take(m) {
+        if let Some(tree) = b.trees.get(round * m + k) {
+            *s += tree.predict(rows, row).first().copied().unwrap_or(0.0);
+        }
+    }
+}
+
+/// Gradient boosting's scores for one row after `rounds` rounds.
+fn boosting_scores(b: &Boosting, rows: Rows<'_>, row: usize, rounds: usize) -> Vec<f64> {
+    let mut scores = b.initial.clone();
+    for round in 0..rounds {
+        add_boosting_round(b, rows, row, round, &mut scores);
+    }
+    scores
+}
+
+/// Gradient boosting's error after each round (error rate, or mean squared error of the
+/// predicted number), one pass over the rounds.
+fn boosting_staged_errors(b: &Boosting, rows: Rows<'_>, outcome: &Outcome) -> Vec<f64> {
+    let n = rows.len();
+    let mut scores = b.scores(rows, 0);
+    let mut p = Vec::new();
+    let mut curve = Vec::with_capacity(b.rounds());
+    for round in 0..b.rounds() {
+        b.add_round(rows, round, &mut scores);
+        let mut err = 0.0;
+        for (r, s) in scores.chunks_exact(b.outputs.max(1)).enumerate() {
+            b.predict(s, &mut p);
+            err += match outcome {
+                Outcome::Classes { codes, .. } => (argmax(&p) != codes[r] as usize) as u8 as f64,
+                Outcome::Numbers(y) => (p[0] - y[r]).powi(2),
+            };
+        }
+        curve.push(err / n as f64);
+    }
+    curve
+}
