@@ -924,6 +924,15 @@ mod tests {
         );
     }
 
+    /// Every distinct value a bin (exact search).
+    fn exact_bins(design: &crate::design::Design) -> BinnedMatrix {
+        let exact = BinSettings {
+            exact: true,
+            ..BinSettings::default()
+        };
+        bin_design(design, exact).unwrap()
+    }
+
     /// Seeded data with many distinct values: y = 1 when a + b > 1 (with 10% flipped).
     fn many_values(rows: usize) -> String {
         let mut state = 0x9E37_79B9_7F4A_7C15u64;
@@ -985,14 +994,7 @@ mod tests {
         // search one per value. A fully grown exact tree fits every training row.
         let design = design_from_csv(&many_values(2000), "y", &["a", "b", "c"]);
         let (stats, k) = design.row_statistics(false);
-        let exact = bin_design(
-            &design,
-            BinSettings {
-                exact: true,
-                ..BinSettings::default()
-            },
-        )
-        .unwrap();
+        let exact = exact_bins(&design);
         assert!(exact.columns[0].bins > 1500, "{}", exact.columns[0].bins);
         let rows: Vec<u32> = (0..exact.rows as u32).collect();
         let tree = grow(&exact, &stats, k, &rows, &GrowSettings::default(), None);
@@ -1078,14 +1080,7 @@ mod tests {
         let design = design_from_csv(&text, "y", &["a", "b", "c", "ward"]);
         let (stats, k) = design.row_statistics(false);
         let narrow = bin_design(&design, BinSettings::default()).unwrap();
-        let wide = bin_design(
-            &design,
-            BinSettings {
-                exact: true,
-                ..BinSettings::default()
-            },
-        )
-        .unwrap();
+        let wide = exact_bins(&design);
         let rows: Vec<u32> = (0..narrow.rows as u32).collect();
         for settings in [
             GrowSettings::default(),
