@@ -389,7 +389,8 @@ pub fn records_from_table(columns: &[BinnedColumn], table: &crate::data::Table) 
             },
         })
         .collect();
-    crate::model::read_records(&predictors, table).map(|(records, _)| records)
+    crate::model::read_records(&predictors, &vec![true; predictors.len()], table)
+        .map(|(records, _)| records)
 }
 
 fn level_rule(codes: &[u32], levels: usize, settings: BinSettings) -> BinRule {

@@ -364,8 +364,22 @@ impl Model {
     }
 
     /// Reads the model's predictors from `table` (see [`read_records`]).
+    /// A column the model's splits never use may be absent (it is read as missing).
     pub fn records(&self, table: &Table) -> Result<(Records, Vec<Unseen>)> {
-        read_records(&self.predictors, table)
+        read_records(&self.predictors, &self.used_predictors(), table)
+    }
+
+    /// Whether some split of some tree uses each predictor.
+    pub fn used_predictors(&self) -> Vec<bool> {
+        let mut used = vec![false; self.predictors.len()];
+        for tree in self.ensemble.trees() {
+            for node in tree.nodes.iter().filter(|n| !n.is_leaf()) {
+                if let Some(u) = used.get_mut(node.feature as usize) {
+                    *u = true;
+                }
+            }
+        }
+        used
     }
 
     /// Checks that every index in the model is in range and every tree is a tree (each node
@@ -587,14 +601,22 @@ impl Model {
 }
 
 /// Reads `predictors` from `table` (columns by name, categories by label) as [`Records`] to
-/// score, and counts labels training never saw. Every missing column and every column of the
+/// score, and counts labels training never saw. A predictor that is not `needed` may be
+/// absent: its values are then missing. Every absent needed column and every column of the
 /// wrong kind is named in one error.
-pub fn read_records(predictors: &[Predictor], table: &Table) -> Result<(Records, Vec<Unseen>)> {
+pub fn read_records(
+    predictors: &[Predictor],
+    needed: &[bool],
+    table: &Table,
+) -> Result<(Records, Vec<Unseen>)> {
     let (mut missing, mut wrong_kind) = (Vec::new(), Vec::new());
     let mut sources = Vec::with_capacity(predictors.len());
-    for p in predictors {
+    for (j, p) in predictors.iter().enumerate() {
         let Some(c) = table.column(&p.name) else {
-            missing.push(p.name.clone());
+            if needed.get(j).copied().unwrap_or(true) {
+                missing.push(p.name.clone());
+            }
+            sources.push(None);
             continue;
         };
         let fits = match (&p.reading, &c.values) {
@@ -612,7 +634,7 @@ pub fn read_records(predictors: &[Predictor], table: &Table) -> Result<(Records,
                 p.kind.label()
             ));
         }
-        sources.push(c);
+        sources.push(Some(c));
     }
     if !missing.is_empty() || !wrong_kind.is_empty() {
         return Err(Error::new(ErrorKind::ColumnsForModel {
@@ -625,6 +647,7 @@ pub fn read_records(predictors: &[Predictor], table: &Table) -> Result<(Records,
     let mut values = vec![f64::NAN; rows * predictors.len()];
     let mut unseen = Vec::new();
     for (j, (p, c)) in predictors.iter().zip(sources).enumerate() {
+        let Some(c) = c else { continue };
         let out = &mut values[j * rows..(j + 1) * rows];
         let mut count = 0usize;
         let mut example = None;

@@ -555,12 +555,42 @@ fn damaged_files_never_panic() {
 #[test]
 fn tables_to_score_are_read_by_name_label_and_kind() {
     let model = fitted(Method::Tree, false);
-    // Missing columns are all named at once.
-    let t = table("level,smoker\n1,yes\n2,no\n");
-    let e = model.records(&t).unwrap_err().to_string();
-    for needle in ["the model needs", "'dose'", "'seen'", "'ward'"] {
-        assert!(e.contains(needle), "{e}");
+    // The tree cut to its first split: one predictor used, the others not.
+    let mut stump = model.clone();
+    let Ensemble::Tree(t) = &mut stump.ensemble else {
+        panic!()
+    };
+    let mut root = t.nodes[0].clone();
+    let mut sides = [root.left, root.right].map(|i| t.nodes[i as usize].clone());
+    for leaf in &mut sides {
+        (leaf.left, leaf.right) = (0, 0);
     }
+    (root.left, root.right) = (1, 2);
+    t.nodes = vec![root, sides[0].clone(), sides[1].clone()];
+    assert_eq!(stump.check(), Ok(()));
+    // Absent columns the splits use are all named at once; absent unused ones are not.
+    let used = stump.used_predictors();
+    assert_eq!(used.iter().filter(|&&u| u).count(), 1);
+    let t = table("other\n1\n2\n");
+    let e = stump.records(&t).unwrap_err().to_string();
+    assert!(e.contains("the model needs"), "{e}");
+    for (p, &u) in stump.predictors.iter().zip(&used) {
+        assert_eq!(e.contains(&format!("'{}'", p.name)), u, "{}: {e}", p.name);
+    }
+    // A table with only the used columns scores as the whole table does.
+    let whole = scoring_table(&stump);
+    let mut only_used = whole.clone();
+    only_used.columns.retain(|c| {
+        !stump
+            .predictors
+            .iter()
+            .zip(&used)
+            .any(|(p, &u)| p.name == c.name && !u)
+    });
+    assert_eq!(only_used.columns.len(), whole.columns.len() - 4);
+    let (a, _) = stump.records(&whole).unwrap();
+    let (b, _) = stump.records(&only_used).unwrap();
+    assert_eq!(predictions(&stump, &a), predictions(&stump, &b));
     // A category given as numbers (read without the model's kinds) is the wrong kind.
     let t = table("level,dose,seen,smoker,ward\n1,2,2024-01-01,yes,3\n2,2,2024-01-02,no,4\n");
     let e = model.records(&t).unwrap_err().to_string();
