@@ -225,12 +225,27 @@ try {
     expect(after[0].oob === firstRun.oob && /Bagging/.test(after[1].text), 'second run missing');
   });
 
+  await check('a design the core refuses gives its message in the step, and the runs stay', async () => {
+    expect(await page.$eval('#runs-stale', (e) => e.hidden), 'stale note shown before any change');
+    await page.selectOption('select[data-field=role][data-col="0"]', 'predictor');
+    await page.click('#run-start');
+    await page.waitForSelector('#fit-message.error:not([hidden])', { timeout: 30000 });
+    const msg = await page.textContent('#fit-message');
+    expect(msg.includes("the predictor 'patient_id' is free text or an identifier"), msg);
+    expect(msg.includes('runs kept so far are unchanged'), msg);
+    expect((await runRows()).length === 2, 'runs lost after a refused fit');
+    await page.selectOption('select[data-field=role][data-col="0"]', 'group');
+    // Putting the role back still counts as a change: the earlier runs are now marked.
+    await page.waitForSelector('#runs-stale:not([hidden])');
+  });
+
   await check('changing the roles marks the runs as fitted on earlier choices', async () => {
-    expect(await page.$eval('#runs-stale', (e) => e.hidden), 'stale note shown too early');
     const names = await namesShown();
     await page.selectOption(`select[data-field=role][data-col="${names.indexOf('bmi')}"]`, 'ignore');
     await page.waitForSelector('#runs-stale:not([hidden])');
-    expect((await runRows()).length === 2, 'runs lost when the roles changed');
+    const rows = await runRows();
+    expect(rows.length === 2 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
+    await page.locator('#step-runs').screenshot({ path: join(out, 'runs-step.png') });
     await page.screenshot({ path: join(out, 'runs-stale.png'), fullPage: true });
   });
 

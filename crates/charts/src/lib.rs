@@ -64,7 +64,7 @@ pub fn draw_error_curves<DB: DrawingBackend>(
         .margin(px(12.0))
         .x_label_area_size(px(44.0))
         .y_label_area_size(px(60.0))
-        .build_cartesian_2d(1f64..members as f64, 0f64..top)
+        .build_cartesian_2d(1i32..members as i32, 0f64..top)
         .map_err(err)?;
     c.configure_mesh()
         .x_desc(chart.x_label.as_str())
@@ -78,12 +78,12 @@ pub fn draw_error_curves<DB: DrawingBackend>(
         .draw()
         .map_err(err)?;
     for curve in &chart.curves {
-        let points: Vec<(f64, f64)> = curve
+        let points: Vec<(i32, f64)> = curve
             .values
             .iter()
             .enumerate()
             .filter(|(_, v)| v.is_finite())
-            .map(|(i, &v)| ((i + 1) as f64, v))
+            .map(|(i, &v)| (i as i32 + 1, v))
             .collect();
         let style = ShapeStyle::from(rgb(curve.colour)).stroke_width((2.0 * scale).round() as u32);
         if curve.dashed {

@@ -465,6 +465,7 @@ fn cancel(page: &Shared, note: &str) {
         p.busy = None;
         p.pending_origin = None;
         p.fits.in_flight = None;
+        p.fits.forget_models();
         reading_done(&p.doc);
         runs::fit_done(&p.doc);
         show_message(&p.doc, note, false);

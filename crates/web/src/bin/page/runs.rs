@@ -36,6 +36,10 @@ struct RunView {
     summary: String,
     /// The data or the roles changed after this run.
     stale: bool,
+    /// The worker still holds the fitted model (as run `result.run`); a cancel restarts the
+    /// worker, which forgets its models, while the page keeps their figures.
+    #[allow(dead_code)] // read by the steps after model runs
+    held: bool,
 }
 
 /// The step's state.
@@ -56,6 +60,13 @@ impl Fits {
     pub fn mark_stale(&mut self) {
         for r in &mut self.runs {
             r.stale = true;
+        }
+    }
+
+    /// The worker was restarted: it holds none of the models any more.
+    pub fn forget_models(&mut self) {
+        for r in &mut self.runs {
+            r.held = false;
         }
     }
 
@@ -639,6 +650,7 @@ pub fn fitted(page: &Shared, id: u32, result: RunResult) {
         method: f.method,
         summary: f.summary,
         stale: false,
+        held: true,
     });
     p.fits.charted = Some(p.fits.runs.len() - 1);
     let _ = by_id(&p.doc, "step-runs").set_attribute("data-runs", &p.fits.runs.len().to_string());
