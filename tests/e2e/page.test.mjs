@@ -1,7 +1,9 @@
 // Browser test of the page (issue 2): open the built page from dist/, read a fixture through
 // the file input, check the column kinds against tests/fixtures/manifest.json, choose an
 // outcome, read a broken file and see its message while the earlier table stays, try the
-// demo records, override a kind, read a large file while the page stays responsive, and
+// demo records, override a kind, grow a random forest on the demo records and see its run,
+// out-of-bag error and chart, cancel a long forest while the page stays responsive, see runs
+// marked stale when the roles change, read a large file while the page stays responsive, and
 // check that the page asked nothing of any other origin. Screenshots go to tests/out/e2e/.
 //
 // Runs with playwright-core and Debian's Chromium (/usr/bin/chromium); no browser download.
@@ -147,6 +149,104 @@ try {
     await page.waitForFunction((c) => document.querySelector(`select[data-field=kind][data-col="${c}"]`)?.value === 'category', col);
     const summary = await page.textContent('#roles-summary');
     expect(summary.includes('complication_30d'), 'outcome choice lost after the re-read');
+  });
+
+  const runRows = () => page.$$eval('table.runs tbody tr', (rows) => rows.map((r) => ({
+    oob: r.dataset.oob, training: r.dataset.training, seconds: r.dataset.fitSeconds, text: r.textContent,
+  })));
+
+  await check('settings are checked as they are typed', async () => {
+    await page.waitForSelector('#step-runs:not([hidden]) #set-trees');
+    await page.fill('#set-trees', '0');
+    await page.waitForSelector('#err-trees:not([hidden])');
+    const err = await page.textContent('#err-trees');
+    expect(err.includes('trees: 0 is outside the allowed range 1 to 100000'), err);
+    expect(await page.$eval('#run-start', (b) => b.disabled), 'Run is not disabled');
+    await page.fill('#set-trees', '50');
+    await page.waitForSelector('#err-trees[hidden]', { state: 'attached' });
+    expect(!(await page.$eval('#run-start', (b) => b.disabled)), 'Run stays disabled');
+  });
+
+  let firstRun;
+  await check('a random forest of 50 trees is grown and kept as a run, with its chart', async () => {
+    await page.check('input[name=method][value=forest]');
+    await page.fill('#set-trees', '50');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="1"]', { timeout: 60000 });
+    const rows = await runRows();
+    expect(rows.length === 1, `${rows.length} runs`);
+    firstRun = rows[0];
+    const oob = Number(firstRun.oob);
+    expect(oob > 0.05 && oob < 0.4, `out-of-bag error ${firstRun.oob}`);
+    expect(/Random forest/.test(firstRun.text) && /trees 50/.test(firstRun.text), firstRun.text);
+    const header = await page.textContent('table.runs thead');
+    expect(/apparent/.test(header) && /not a validation/.test(header), header);
+    const drawn = await page.$eval('#curve-canvas', (c) => {
+      const d = c.getContext('2d').getImageData(0, 0, c.width, c.height).data;
+      let ink = 0;
+      for (let i = 0; i < d.length; i += 4) if (d[i] < 200 || d[i + 1] < 200 || d[i + 2] < 200) ink++;
+      return { ink, width: c.width, css: c.clientWidth };
+    });
+    expect(drawn.ink > 1000, `chart nearly blank (${drawn.ink} inked pixels)`);
+    expect(drawn.width >= drawn.css, `canvas ${drawn.width} px for ${drawn.css} CSS px`);
+    const numbers = await page.$$eval('#curve-numbers tbody tr', (r) => r.length);
+    expect(numbers >= 20, `${numbers} rows in the chart's table`);
+    console.log(`  50-tree forest: fit ${Number(firstRun.seconds).toFixed(2)} s in the page, out-of-bag error ${oob.toFixed(4)}`);
+    await page.screenshot({ path: join(out, 'forest-run.png'), fullPage: true });
+  });
+
+  await check('a 2,000-tree forest can be cancelled; the page answers and the runs stay', async () => {
+    await page.fill('#set-trees', '2000');
+    await page.click('#run-start');
+    await page.waitForSelector('#fit-status:not([hidden])');
+    await page.waitForFunction(() => Number(document.querySelector('#fit-progress').value) > 0, null, { timeout: 30000 });
+    // The page answers while the worker fits.
+    const t0 = Date.now();
+    for (let k = 0; k < 5; k++) await page.evaluate(() => document.querySelector('#fit-time').textContent);
+    const answerMs = (Date.now() - t0) / 5;
+    expect(answerMs < 200, `page took ${answerMs} ms to answer while fitting`);
+    const time = await page.textContent('#fit-time');
+    expect(/of 2000 trees/.test(time) && /left/.test(time), `progress text: ${time}`);
+    await page.screenshot({ path: join(out, 'forest-fitting.png'), fullPage: true });
+    const c0 = Date.now();
+    await page.click('#cancel-fit');
+    await page.waitForSelector('#fit-status', { state: 'hidden', timeout: 1000 });
+    expect(Date.now() - c0 < 1000, 'cancel took over 1 s');
+    const rows = await runRows();
+    expect(rows.length === 1 && rows[0].oob === firstRun.oob, 'runs table changed by the cancel');
+    expect(/Cancelled/.test(await page.textContent('#fit-message')), 'no word of the cancel');
+    // The restarted worker has the table again: a small bagging run works.
+    await page.check('input[name=method][value=bagging]');
+    await page.fill('#set-trees', '10');
+    await page.waitForFunction(() => !document.querySelector('#run-start').disabled && document.querySelector('#read-status').hidden);
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 60000 });
+    const after = await runRows();
+    expect(after[0].oob === firstRun.oob && /Bagging/.test(after[1].text), 'second run missing');
+  });
+
+  await check('a design the core refuses gives its message in the step, and the runs stay', async () => {
+    expect(await page.$eval('#runs-stale', (e) => e.hidden), 'stale note shown before any change');
+    await page.selectOption('select[data-field=role][data-col="0"]', 'predictor');
+    await page.click('#run-start');
+    await page.waitForSelector('#fit-message.error:not([hidden])', { timeout: 30000 });
+    const msg = await page.textContent('#fit-message');
+    expect(msg.includes("the predictor 'patient_id' is free text or an identifier"), msg);
+    expect(msg.includes('runs kept so far are unchanged'), msg);
+    expect((await runRows()).length === 2, 'runs lost after a refused fit');
+    await page.selectOption('select[data-field=role][data-col="0"]', 'group');
+    // Putting the role back still counts as a change: the earlier runs are now marked.
+    await page.waitForSelector('#runs-stale:not([hidden])');
+  });
+
+  await check('changing the roles marks the runs as fitted on earlier choices', async () => {
+    const names = await namesShown();
+    await page.selectOption(`select[data-field=role][data-col="${names.indexOf('bmi')}"]`, 'ignore');
+    await page.waitForSelector('#runs-stale:not([hidden])');
+    const rows = await runRows();
+    expect(rows.length === 2 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
+    await page.locator('#step-runs').screenshot({ path: join(out, 'runs-step.png') });
+    await page.screenshot({ path: join(out, 'runs-stale.png'), fullPage: true });
   });
 
   await check('a 50 MB file is read with progress while the page stays responsive', async () => {

@@ -17,6 +17,7 @@ pub mod model;
 pub mod model_file;
 pub mod progress;
 pub mod random;
+pub mod settings;
 pub mod tree;
 
 pub use error::{Error, ErrorKind, Where};

@@ -8,7 +8,7 @@ use serde::{Deserialize, Serialize};
 use spinney_core::data::TableReport;
 
 /// Bumped when a message changes incompatibly.
-pub const PROTOCOL_VERSION: u32 = 1;
+pub const PROTOCOL_VERSION: u32 = 2;
 
 /// Rows of the preview table.
 pub const PREVIEW_ROWS: usize = 20;
@@ -40,6 +40,57 @@ pub enum Request {
         id: u32,
         settings: ReadSettings,
     },
+    /// Fit a model on the table the worker holds.
+    Fit {
+        v: u32,
+        id: u32,
+        design: FitDesign,
+        /// `tree`, `bagging`, `forest` or `adaboost` (the command line's `--method` words).
+        method: String,
+        /// (name, value) pairs by the command line's `--set` names; the rest keep the
+        /// method's defaults.
+        settings: Vec<(String, String)>,
+    },
+}
+
+/// The columns of a fit, as the page's roles table gives them.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct FitDesign {
+    pub outcome: String,
+    pub predictors: Vec<String>,
+    pub weight: Option<String>,
+}
+
+/// What a finished fit reports. Training figures are apparent (the rows the model was
+/// fitted on), never a validation.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct RunResult {
+    /// The run's number in the worker's list of fitted models.
+    pub run: u32,
+    pub method: String,
+    pub outcome: String,
+    pub rows: usize,
+    pub predictors: usize,
+    /// "error rate" (classes) or "mean squared error" (numbers).
+    pub error_name: String,
+    /// Trees (bagging, forest), rounds (AdaBoost) or 1 (a single tree).
+    pub members: usize,
+    /// "trees" or "rounds".
+    pub member_name: String,
+    /// Apparent error on the training rows with every member, and after 1, 2, ... members.
+    pub training_error: f64,
+    pub training_curve: Vec<f64>,
+    /// Out-of-bag error (bagging and forests), and after 1, 2, ... trees.
+    pub oob_error: Option<f64>,
+    pub oob_curve: Vec<f64>,
+    /// AdaBoost: each round's weighted training error, and why it stopped.
+    pub round_errors: Vec<f64>,
+    pub stop: Option<String>,
+    /// A single tree's depth and leaves.
+    pub tree_shape: Option<(usize, usize)>,
+    /// Binning and fitting, not reading.
+    pub fit_seconds: f64,
+    pub notices: Vec<String>,
 }
 
 /// The first rows of a table, as text (`None` = missing).
@@ -71,6 +122,8 @@ pub enum Reply {
         read_seconds: f64,
         worker_memory_bytes: u64,
     },
+    /// A fit finished.
+    Fitted { id: u32, result: Box<RunResult> },
     /// The request failed; the worker still holds the table it had before, if any.
     Failed {
         id: u32,
@@ -82,7 +135,7 @@ pub enum Reply {
 impl Request {
     pub fn version(&self) -> u32 {
         match self {
-            Request::Read { v, .. } | Request::Reread { v, .. } => *v,
+            Request::Read { v, .. } | Request::Reread { v, .. } | Request::Fit { v, .. } => *v,
         }
     }
 }

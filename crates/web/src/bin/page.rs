@@ -1,6 +1,8 @@
 //! The page controller: wires the notebook's steps in web/index.html to the worker. It keeps
 //! the page's state (the current table's report, the roles the user gave the columns, the
-//! file to restore after a cancel) and redraws a step when its inputs change.
+//! file to restore after a cancel, the model runs and their results) and redraws a step when
+//! its inputs change. The model-runs step (form, progress, runs table, error chart) lives in
+//! the `runs` module beside this file.
 //!
 //! Rendering builds HTML strings with every user-supplied text escaped ([`esc`]); events on
 //! generated controls are caught by one listener per container (event delegation).
@@ -10,9 +12,16 @@ use std::rc::Rc;
 
 use js_sys::{Array, Object, Reflect, Uint8Array};
 use spinney_core::data::{ColumnSummary, Flag, Kind, TableReport};
-use spinney_web::protocol::{Preview, ReadSettings, Reply, Request, PROTOCOL_VERSION};
+use spinney_web::protocol::{FitDesign, Preview, ReadSettings, Reply, Request, PROTOCOL_VERSION};
 use wasm_bindgen::prelude::*;
 use wasm_bindgen_futures::{spawn_local, JsFuture};
+// The model-runs step; kept beside this file (a directory of its own, so Cargo does not take
+// it for another binary).
+#[path = "page/measured.rs"]
+mod measured;
+#[path = "page/runs.rs"]
+mod runs;
+
 use web_sys::{
     Document, DragEvent, Element, Event, File, HtmlInputElement, HtmlSelectElement, MessageEvent,
     Worker,
@@ -87,6 +96,8 @@ struct Page {
     preview: Option<Preview>,
     settings: ReadSettings,
     roles: Vec<Role>,
+    /// The model-runs step.
+    fits: runs::Fits,
 }
 
 type Shared = Rc<RefCell<Page>>;
@@ -218,7 +229,9 @@ fn on_reply(page: &Shared, reply: Reply) {
             total,
         } => {
             let p = page.borrow();
-            if p.busy == Some(id) && !p.restoring {
+            if p.fits.in_flight.as_ref().is_some_and(|f| f.id == id) {
+                runs::progress(&p, done, total);
+            } else if p.busy == Some(id) && !p.restoring {
                 let bar = by_id(&p.doc, "read-progress");
                 let share = if total == 0 {
                     0.0
@@ -247,6 +260,10 @@ fn on_reply(page: &Shared, reply: Reply) {
             let restoring = std::mem::replace(&mut p.restoring, false);
             if let Some(origin) = p.pending_origin.take() {
                 p.good_origin = Some(origin);
+            }
+            if !restoring {
+                // New data or new reading settings: the runs describe the table before.
+                p.fits.mark_stale();
             }
             // Keep the roles the user chose when the same columns come back (a re-read).
             let old: Vec<(String, Role)> = p
@@ -295,11 +312,22 @@ fn on_reply(page: &Shared, reply: Reply) {
             }
             render_columns(&p);
         }
+        Reply::Fitted { id, result } => runs::fitted(page, id, *result),
         Reply::Failed {
             id,
             message,
             kept_previous,
         } => {
+            if page
+                .borrow()
+                .fits
+                .in_flight
+                .as_ref()
+                .is_some_and(|f| f.id == id)
+            {
+                runs::failed(page, &message);
+                return;
+            }
             let mut p = page.borrow_mut();
             if id != 0 && p.busy != Some(id) {
                 return;
@@ -423,9 +451,10 @@ fn reread(page: &Shared, settings: ReadSettings) {
     );
 }
 
-/// Stops the worker mid-read. The worker is replaced and the previous table read again
-/// from its origin, so nothing already loaded is lost.
-fn cancel(page: &Shared) {
+/// Stops the worker mid-read or mid-fit. The worker is replaced and the previous table read
+/// again from its origin, so nothing already loaded is lost; the runs table is the page's own
+/// and stays as it was.
+fn cancel(page: &Shared, note: &str) {
     let worker = spawn_worker(page);
     let good = {
         let mut p = page.borrow_mut();
@@ -435,13 +464,17 @@ fn cancel(page: &Shared) {
         p.queued.clear();
         p.busy = None;
         p.pending_origin = None;
+        p.fits.in_flight = None;
+        p.fits.forget_models();
         reading_done(&p.doc);
-        show_message(&p.doc, "Reading cancelled.", false);
+        runs::fit_done(&p.doc);
+        show_message(&p.doc, note, false);
         p.good_origin.clone().map(|o| (o, p.settings.clone()))
     };
     if let Some((origin, settings)) = good {
         load_origin(page, origin, settings, true);
     }
+    runs::render(&page.borrow());
 }
 
 // ---------------------------------------------------------------------------- rendering
@@ -597,6 +630,7 @@ fn render_columns(p: &Page) {
     html += "</tbody></table></div>";
     set_html(&p.doc, "columns", &html);
     render_roles_summary(p);
+    runs::render(p);
 }
 
 /// The plain-words account of the chosen roles, with what would stop or mislead a model.
@@ -769,6 +803,7 @@ fn on_column_change(page: &Shared, event: Event) {
             if let Some(r) = p.roles.get_mut(i) {
                 *r = role;
             }
+            p.fits.mark_stale();
             render_columns(&p);
         }
         Some("kind") => {
@@ -817,6 +852,26 @@ fn take_file(page: &Shared, file: File) {
     load_origin(page, Origin::File(file), ReadSettings::default(), false);
 }
 
+/// The model design the roles table describes: outcome, predictors and weight column, and
+/// whether the outcome is a number. `None` until an outcome is chosen.
+fn design_of(p: &Page) -> Option<(FitDesign, bool)> {
+    let report = p.report.as_ref()?;
+    let mut design = FitDesign::default();
+    let mut regression = false;
+    for (c, role) in report.columns.iter().zip(&p.roles) {
+        match role {
+            Role::Outcome => {
+                design.outcome = c.name.clone();
+                regression = c.kind.is_numeric() && c.kind != Kind::YesNo;
+            }
+            Role::Predictor => design.predictors.push(c.name.clone()),
+            Role::Weight => design.weight = Some(c.name.clone()),
+            Role::Group | Role::Ignore => {}
+        }
+    }
+    (!design.outcome.is_empty()).then_some((design, regression))
+}
+
 fn main() {
     console_panic_hook();
     let window = web_sys::window().expect("a browser window");
@@ -835,6 +890,7 @@ fn main() {
         preview: None,
         settings: ReadSettings::default(),
         roles: Vec::new(),
+        fits: runs::Fits::default(),
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;
@@ -893,8 +949,9 @@ fn main() {
     }
     let pg = page.clone();
     on(&by_id(&doc, "cancel-read"), "click", move |_: Event| {
-        cancel(&pg)
+        cancel(&pg, "Reading cancelled.")
     });
+    runs::listen(&page);
     let pg = page.clone();
     on(&by_id(&doc, "columns"), "change", move |e: Event| {
         on_column_change(&pg, e)

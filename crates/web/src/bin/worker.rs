@@ -1,15 +1,23 @@
-//! The Web Worker: holds the current file's bytes and table, and answers the page's requests
-//! (see spinney_web::protocol). It posts `Ready` first; messages sent before its wasm loaded
+//! The Web Worker: holds the current file's bytes and table and the models fitted on it (the
+//! list of runs), and answers the page's requests (see spinney_web::protocol): reading,
+//! re-reading and fitting. It posts `Ready` first; messages sent before its wasm loaded
 //! would be lost, so the page waits for it.
 
 use std::cell::RefCell;
 use std::rc::Rc;
 
 use js_sys::{Object, Reflect, Uint8Array};
+use spinney_core::binning::bin_design;
 use spinney_core::data::{self, read_table, Kind, Loaded, ReadOptions};
+use spinney_core::design::{build_design, DesignSpec, Outcome};
+use spinney_core::ensemble::adaboost::{fit_adaboost, AdaBoost, Stop};
+use spinney_core::ensemble::forest::{argmax, fit_forest, Forest};
 use spinney_core::progress::{Flow, Progress};
+use spinney_core::settings::{FitMethod, FitSettings};
+use spinney_core::tree::grower::grow;
+use spinney_core::tree::{Rows, Tree};
 use spinney_web::protocol::{
-    Preview, ReadSettings, Reply, Request, PREVIEW_ROWS, PROTOCOL_VERSION,
+    FitDesign, Preview, ReadSettings, Reply, Request, RunResult, PREVIEW_ROWS, PROTOCOL_VERSION,
 };
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
@@ -22,6 +30,25 @@ struct Held {
     name: String,
     bytes: Vec<u8>,
     loaded: Option<Loaded>,
+    /// Every model fitted since the worker started, by run number (for the later steps:
+    /// insight, threshold, scoring). A cancel restarts the worker, so the list starts again.
+    runs: Vec<Run>,
+}
+
+/// A fitted model of any method. (To become the core's `model::Model` once it lands.)
+enum Fitted {
+    Tree(Tree),
+    Forest(Forest),
+    AdaBoost(AdaBoost),
+}
+
+/// One kept run: what was asked and the model.
+#[allow(dead_code)] // read by the steps after model runs
+struct Run {
+    design: FitDesign,
+    method: FitMethod,
+    settings: Vec<(String, String)>,
+    model: Fitted,
 }
 
 fn scope() -> DedicatedWorkerGlobalScope {
@@ -38,19 +65,31 @@ fn post(reply: &Reply) {
     let _ = scope().post_message(&envelope);
 }
 
-/// Reports reading progress to the page.
+/// Reports progress to the page, at most about ten times a second (and always the last
+/// step), so thousands of small trees do not flood the page with messages.
 struct Reporter {
     id: u32,
+    last: f64,
+}
+
+impl Reporter {
+    fn new(id: u32) -> Self {
+        Reporter { id, last: 0.0 }
+    }
 }
 
 impl Progress for Reporter {
     fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
-        post(&Reply::Progress {
-            id: self.id,
-            stage: stage.to_string(),
-            done,
-            total,
-        });
+        let now = js_sys::Date::now();
+        if done == total || now - self.last >= 100.0 {
+            self.last = now;
+            post(&Reply::Progress {
+                id: self.id,
+                stage: stage.to_string(),
+                done,
+                total,
+            });
+        }
         Flow::Continue
     }
 }
@@ -105,6 +144,27 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             id, name, settings, ..
         } => (id, name, settings, bytes),
         Request::Reread { id, settings, .. } => (id, held.name.clone(), settings, None),
+        Request::Fit {
+            id,
+            design,
+            method,
+            settings,
+            ..
+        } => {
+            let kept_previous = held.loaded.is_some();
+            match fit(held, id, design, &method, settings) {
+                Ok(result) => post(&Reply::Fitted {
+                    id,
+                    result: Box::new(result),
+                }),
+                Err(message) => post(&Reply::Failed {
+                    id,
+                    message,
+                    kept_previous,
+                }),
+            }
+            return;
+        }
     };
     let fail = |held: &Held, message: String| {
         post(&Reply::Failed {
@@ -129,7 +189,7 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
         None => return fail(held, "no file is loaded yet; choose a file first".into()),
     };
     let start = js_sys::Date::now();
-    match read_table(source, &options, &mut Reporter { id }) {
+    match read_table(source, &options, &mut Reporter::new(id)) {
         Ok(loaded) => {
             let read_seconds = (js_sys::Date::now() - start) / 1000.0;
             let worker_memory_bytes = wasm_bindgen::memory()
@@ -155,6 +215,197 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             });
         }
         Err(e) => fail(held, format!("{name}: {e}")),
+    }
+}
+
+/// Fits `method` on the held table and keeps the model as a new run.
+fn fit(
+    held: &mut Held,
+    id: u32,
+    design: FitDesign,
+    method: &str,
+    sets: Vec<(String, String)>,
+) -> Result<RunResult, String> {
+    let loaded = held
+        .loaded
+        .as_ref()
+        .ok_or("no table is loaded yet; choose a file first")?;
+    let method_kind = FitMethod::from_word(method).ok_or_else(|| {
+        format!(
+            "{method}: choose tree, bagging, forest or adaboost (gradient boosting is being built)"
+        )
+    })?;
+    let spec = DesignSpec {
+        outcome: design.outcome.clone(),
+        predictors: design.predictors.clone(),
+        weight: design.weight.clone(),
+        ..DesignSpec::default()
+    };
+    let mut d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
+    // Fit time counts binning and fitting, as the command line's does.
+    let start = js_sys::Date::now();
+    let regression = matches!(d.outcome, Outcome::Numbers(_));
+    let settings = FitSettings::build(
+        method_kind,
+        d.predictors.len(),
+        regression,
+        &d.outcome_name,
+        &sets,
+    )?;
+    let binned = bin_design(&d, settings.bins).map_err(|e| e.to_string())?;
+    d.predictors = Vec::new();
+    let (stats, width) = d.row_statistics(settings.balanced_classes);
+    let mut progress = Reporter::new(id);
+    let model = match method_kind {
+        FitMethod::Tree => {
+            progress.step("tree", 0, 1);
+            let rows: Vec<u32> = (0..binned.rows as u32).collect();
+            let full = grow(&binned, &stats, width, &rows, &settings.grow, None);
+            progress.step("tree", 1, 1);
+            Fitted::Tree(spinney_core::tree::prune::prune(&full, settings.pruning))
+        }
+        FitMethod::AdaBoost => {
+            let Outcome::Classes { codes, labels } = &d.outcome else {
+                return Err("AdaBoost predicts classes; the outcome is a number".into());
+            };
+            // Initial AdaBoost row weights: the row weights times the class weights.
+            let initial: Vec<f64> = (0..codes.len())
+                .map(|r| stats[r * width + codes[r] as usize])
+                .collect();
+            Fitted::AdaBoost(fit_adaboost(
+                &binned,
+                codes,
+                labels.len(),
+                Some(&initial),
+                &settings.boost,
+                &mut progress,
+            ))
+        }
+        FitMethod::Bagging | FitMethod::Forest => Fitted::Forest(fit_forest(
+            &binned,
+            &stats,
+            width,
+            &d.outcome,
+            &settings.forest,
+            &mut progress,
+        )),
+    };
+    let fit_seconds = (js_sys::Date::now() - start) / 1000.0;
+    let rows = Rows::Binned(&binned);
+    let training_curve = staged_errors(&model, rows, &d.outcome);
+    let training_error = training_curve.last().copied().unwrap_or(f64::NAN);
+    let (oob_error, oob_curve, round_errors, stop, tree_shape, members) = match &model {
+        Fitted::Tree(t) => (
+            None,
+            Vec::new(),
+            Vec::new(),
+            None,
+            Some((t.depth(), t.leaves())),
+            1,
+        ),
+        Fitted::Forest(f) => (
+            f.oob_error.last().copied().filter(|e| e.is_finite()),
+            f.oob_error.clone(),
+            Vec::new(),
+            None,
+            None,
+            f.trees.len(),
+        ),
+        Fitted::AdaBoost(a) => (
+            None,
+            Vec::new(),
+            a.errors.clone(),
+            Some(stop_words(a.stop).to_string()),
+            None,
+            a.trees.len(),
+        ),
+    };
+    let result = RunResult {
+        run: held.runs.len() as u32,
+        method: method.to_string(),
+        outcome: d.outcome_name.clone(),
+        rows: binned.rows,
+        predictors: binned.columns.len(),
+        error_name: if regression {
+            "mean squared error"
+        } else {
+            "error rate"
+        }
+        .into(),
+        members,
+        member_name: if method_kind == FitMethod::AdaBoost {
+            "rounds"
+        } else {
+            "trees"
+        }
+        .into(),
+        training_error,
+        training_curve: if matches!(model, Fitted::Tree(_)) {
+            Vec::new()
+        } else {
+            training_curve
+        },
+        oob_error,
+        oob_curve,
+        round_errors,
+        stop,
+        tree_shape,
+        fit_seconds,
+        notices: d.notices.clone(),
+    };
+    held.runs.push(Run {
+        design,
+        method: method_kind,
+        settings: sets,
+        model,
+    });
+    Ok(result)
+}
+
+/// Error after 1, 2, ... members on `rows` (one value for a single tree): error rate for
+/// classes, mean squared error for numbers. The same rule as the command line's; both move
+/// onto the core's model once it lands.
+fn staged_errors(model: &Fitted, rows: Rows<'_>, outcome: &Outcome) -> Vec<f64> {
+    let n = rows.len();
+    let (members, outputs, voting): (Vec<(&Tree, f64)>, usize, bool) = match model {
+        Fitted::Tree(t) => (vec![(t, 1.0)], t.outputs, false),
+        Fitted::Forest(f) => (f.trees.iter().map(|t| (t, 1.0)).collect(), f.outputs, false),
+        Fitted::AdaBoost(a) => (
+            a.trees.iter().zip(a.alphas.iter().copied()).collect(),
+            a.classes,
+            true,
+        ),
+    };
+    let mut sums = vec![0.0; n * outputs];
+    let mut curve = Vec::with_capacity(members.len());
+    for (t, (tree, alpha)) in members.iter().enumerate() {
+        let mut err = 0.0;
+        for r in 0..n {
+            let p = tree.predict(rows, r);
+            let s = &mut sums[r * outputs..(r + 1) * outputs];
+            if voting {
+                s[argmax(p)] += alpha;
+            } else {
+                for (a, b) in s.iter_mut().zip(p) {
+                    *a += b;
+                }
+            }
+            err += match outcome {
+                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
+                Outcome::Numbers(y) => (s[0] / (t + 1) as f64 - y[r]).powi(2),
+            };
+        }
+        curve.push(err / n.max(1) as f64);
+    }
+    curve
+}
+
+fn stop_words(stop: Stop) -> &'static str {
+    match stop {
+        Stop::AllRounds => "ran every round",
+        Stop::Perfect => "stopped early: a round classified every training row correctly",
+        Stop::NoBetterThanChance => "stopped early: a round was no better than chance",
+        Stop::Cancelled => "cancelled before the last round",
     }
 }
 

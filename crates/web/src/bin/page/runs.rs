@@ -1,0 +1,751 @@
+//! The model-runs step of the page: the method and its settings form (checked as typed by
+//! the core's own settings rules, so the page refuses what the command line refuses, in the
+//! same words), the Run button, the progress bar with elapsed and remaining time and Cancel,
+//! the table of runs kept so far, and the error chart by number of trees or rounds (drawn by
+//! spinney-charts on a canvas, with its numbers as a table beside it).
+//!
+//! All fitting happens in the worker; this module only sends the request and shows replies.
+//! Cancel restarts the worker (see `cancel` in page.rs); the runs table is the page's own and
+//! survives it.
+
+use std::collections::HashMap;
+
+use plotters::prelude::IntoDrawingArea;
+use spinney_charts::{draw_error_curves, Curve, ErrorChart, COLOURS};
+use spinney_core::settings::{FitMethod, FitSettings};
+use spinney_web::protocol::{Request, RunResult, PROTOCOL_VERSION};
+use wasm_bindgen::JsCast;
+use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlInputElement};
+
+use super::measured::MeasuredCanvas;
+use super::{by_id, cancel, design_of, esc, on, send, set_html, show, Page, Shared};
+
+/// The fit the worker is working on.
+pub struct InFlight {
+    pub id: u32,
+    /// `performance.now()` when it was sent, in ms.
+    started: f64,
+    method: FitMethod,
+    summary: String,
+}
+
+/// One finished run as the page shows it.
+struct RunView {
+    result: RunResult,
+    method: FitMethod,
+    summary: String,
+    /// The data or the roles changed after this run.
+    stale: bool,
+    /// The worker still holds the fitted model (as run `result.run`); a cancel restarts the
+    /// worker, which forgets its models, while the page keeps their figures.
+    #[allow(dead_code)] // read by the steps after model runs
+    held: bool,
+}
+
+/// The step's state.
+#[derive(Default)]
+pub struct Fits {
+    pub in_flight: Option<InFlight>,
+    runs: Vec<RunView>,
+    /// The method chosen in the form (a random forest until the user picks another).
+    method: Option<FitMethod>,
+    /// What the user typed, by (method, setting); untouched settings show their defaults.
+    typed: HashMap<(&'static str, &'static str), String>,
+    /// The run whose curves the chart shows.
+    charted: Option<usize>,
+}
+
+impl Fits {
+    /// The data or the roles changed: the runs so far describe the earlier choice.
+    pub fn mark_stale(&mut self) {
+        for r in &mut self.runs {
+            r.stale = true;
+        }
+    }
+
+    /// The worker was restarted: it holds none of the models any more.
+    pub fn forget_models(&mut self) {
+        for r in &mut self.runs {
+            r.held = false;
+        }
+    }
+
+    fn method(&self) -> FitMethod {
+        self.method.unwrap_or(FitMethod::Forest)
+    }
+}
+
+/// A setting in the form.
+struct Field {
+    name: &'static str,
+    label: &'static str,
+    help: &'static str,
+    /// Empty means "no limit".
+    optional: bool,
+}
+
+const TREES: Field = Field {
+    name: "trees",
+    label: "Trees",
+    help: "How many trees vote together. More trees give a steadier answer and take longer (1 to 100,000).",
+    optional: false,
+};
+const DEPTH: Field = Field {
+    name: "depth",
+    label: "Depth",
+    help: "Most questions on the way from the top of a tree to an answer (1 to 1,000). Empty: no limit.",
+    optional: true,
+};
+const LEAF_SIZE: Field = Field {
+    name: "leaf_size",
+    label: "Leaf size",
+    help: "Fewest records that may end in one answer; larger values give simpler, smoother trees.",
+    optional: false,
+};
+const SEED: Field = Field {
+    name: "seed",
+    label: "Seed",
+    help: "Fixes every random draw: the same seed on the same data gives the same model.",
+    optional: false,
+};
+
+fn fields(method: FitMethod) -> Vec<Field> {
+    match method {
+        FitMethod::Tree => vec![
+            DEPTH,
+            Field {
+                name: "leaves",
+                label: "Leaves",
+                help: "Most answers (end groups) in the tree, best splits first (2 or more). Empty: no limit.",
+                optional: true,
+            },
+            LEAF_SIZE,
+            Field {
+                name: "pruning",
+                label: "Pruning",
+                help: "Cuts back branches that add little; 0 keeps the whole tree, 0.001 to 0.02 trims it.",
+                optional: false,
+            },
+        ],
+        FitMethod::Bagging => vec![TREES, DEPTH, LEAF_SIZE, SEED],
+        FitMethod::Forest => vec![
+            TREES,
+            Field {
+                name: "predictors_per_split",
+                label: "Predictors per split",
+                help: "Columns drawn afresh for each split to choose from; fewer make the trees differ more.",
+                optional: false,
+            },
+            DEPTH,
+            LEAF_SIZE,
+            SEED,
+        ],
+        FitMethod::AdaBoost => vec![
+            Field {
+                name: "rounds",
+                label: "Rounds",
+                help: "Small trees added one after another, each leaning on the records the earlier ones got wrong.",
+                optional: false,
+            },
+            Field {
+                name: "learning_rate",
+                label: "Learning rate",
+                help: "How much each round counts, above 0 and at most 10; below 1 learns more slowly, often more steadily.",
+                optional: false,
+            },
+            Field {
+                name: "depth",
+                label: "Depth",
+                help: "Depth of each round's tree; 1 is a single question (a stump).",
+                optional: true,
+            },
+        ],
+    }
+}
+
+fn method_label(m: FitMethod) -> &'static str {
+    match m {
+        FitMethod::Tree => "Single tree",
+        FitMethod::Bagging => "Bagging",
+        FitMethod::Forest => "Random forest",
+        FitMethod::AdaBoost => "AdaBoost",
+    }
+}
+
+fn method_help(m: FitMethod) -> &'static str {
+    match m {
+        FitMethod::Tree => "one set of yes/no questions; easy to read, but sways with the sample",
+        FitMethod::Bagging => "many trees, each grown on a resample of the records, averaged",
+        FitMethod::Forest => "bagging where every split may look at only a few columns drawn at random; judged on the records each tree did not see (out-of-bag)",
+        FitMethod::AdaBoost => "small trees in sequence, each giving more weight to past mistakes (classes only)",
+    }
+}
+
+/// A setting's default as text ("" for no limit).
+fn default_text(s: &FitSettings, name: &str) -> String {
+    let opt = |v: Option<usize>| v.map_or(String::new(), |v| v.to_string());
+    match name {
+        "trees" => s.forest.trees.to_string(),
+        "rounds" => s.boost.rounds.to_string(),
+        "learning_rate" => s.boost.learning_rate.to_string(),
+        "depth" => opt(s.grow.max_depth),
+        "leaves" => opt(s.grow.max_leaves),
+        "leaf_size" => s.grow.min_rows_leaf.to_string(),
+        "predictors_per_split" => opt(s.forest.predictors_per_split),
+        "seed" => s.forest.seed.to_string(),
+        "pruning" => s.pruning.to_string(),
+        _ => String::new(),
+    }
+}
+
+/// The method's defaults for the current design (`None` until an outcome is chosen, or with
+/// the reason the method cannot fit it).
+fn defaults(p: &Page, method: FitMethod) -> Option<Result<FitSettings, String>> {
+    let (design, regression) = design_of(p)?;
+    Some(FitSettings::defaults(
+        method,
+        design.predictors.len(),
+        regression,
+        &design.outcome,
+    ))
+}
+
+/// The value of each field of the chosen method: typed, or the default.
+fn values(p: &Page, method: FitMethod, defaults: Option<&FitSettings>) -> Vec<(Field, String)> {
+    fields(method)
+        .into_iter()
+        .map(|f| {
+            let v = p
+                .fits
+                .typed
+                .get(&(method.word(), f.name))
+                .cloned()
+                .or_else(|| defaults.map(|d| default_text(d, f.name)))
+                .unwrap_or_default();
+            (f, v)
+        })
+        .collect()
+}
+
+/// Checks each value as the worker will (the core's rules); errors by setting.
+fn check(p: &Page, method: FitMethod) -> (Vec<(&'static str, String)>, Option<String>) {
+    let base = match defaults(p, method) {
+        None => {
+            return (
+                Vec::new(),
+                Some("Choose an outcome in step 2 first.".into()),
+            )
+        }
+        Some(Err(e)) => return (Vec::new(), Some(format!("{e}."))),
+        Some(Ok(s)) => s,
+    };
+    let regression = design_of(p).is_some_and(|(_, r)| r);
+    let mut errors = Vec::new();
+    for (f, v) in values(p, method, Some(&base)) {
+        if v.trim().is_empty() {
+            if !f.optional {
+                errors.push((f.name, format!("{}: give a value", f.name)));
+            }
+            continue;
+        }
+        if let Err(e) = base.clone().apply(f.name, &v, regression) {
+            errors.push((f.name, e));
+        }
+    }
+    (errors, None)
+}
+
+/// The (name, value) pairs to send, and their plain summary.
+fn chosen(p: &Page, method: FitMethod) -> (Vec<(String, String)>, String) {
+    let base = defaults(p, method).and_then(Result::ok);
+    let mut sets = Vec::new();
+    let mut summary = Vec::new();
+    for (f, v) in values(p, method, base.as_ref()) {
+        let v = v.trim().to_string();
+        if v.is_empty() {
+            summary.push(format!("{} no limit", f.label.to_lowercase()));
+        } else {
+            summary.push(format!("{} {v}", f.label.to_lowercase()));
+            sets.push((f.name.to_string(), v));
+        }
+    }
+    (sets, summary.join(" · "))
+}
+
+// ---------------------------------------------------------------------------- rendering
+
+/// Draws the whole step (form, runs, chart), or hides it until a table is loaded.
+pub fn render(p: &Page) {
+    show(&p.doc, "step-runs", p.report.is_some());
+    if p.report.is_none() {
+        return;
+    }
+    render_form(p);
+    render_runs(p);
+    render_chart(p);
+}
+
+fn render_form(p: &Page) {
+    let method = p.fits.method();
+    let mut html = String::from("<fieldset class=\"methods\"><legend>Method</legend>");
+    for m in FitMethod::ALL {
+        html += &format!(
+            "<label class=\"method\"><input type=\"radio\" name=\"method\" value=\"{}\"{}> <strong>{}</strong> <span class=\"help\">{}</span></label>",
+            m.word(),
+            if m == method { " checked" } else { "" },
+            method_label(m),
+            method_help(m)
+        );
+    }
+    html += "</fieldset><div class=\"fields\">";
+    let base = defaults(p, method).and_then(Result::ok);
+    for (f, v) in values(p, method, base.as_ref()) {
+        html += &format!(
+            "<label class=\"field\"><span class=\"name\">{}</span><input id=\"set-{n}\" data-setting=\"{n}\" type=\"text\" inputmode=\"decimal\" value=\"{}\"{} aria-describedby=\"help-{n} err-{n}\"><span class=\"help\" id=\"help-{n}\">{}</span><span class=\"field-error\" id=\"err-{n}\" hidden></span></label>",
+            f.label,
+            esc(&v),
+            if f.optional { " placeholder=\"no limit\"" } else { "" },
+            f.help,
+            n = f.name
+        );
+    }
+    html += "</div><p class=\"run-line\"><button type=\"button\" id=\"run-start\" class=\"button primary\">Grow this model</button> <span id=\"run-hint\" class=\"hint\"></span></p>";
+    set_html(&p.doc, "run-form", &html);
+    check_form(p);
+}
+
+/// Shows each field's problem beside it and enables Run only when all is well.
+fn check_form(p: &Page) {
+    let method = p.fits.method();
+    let (errors, blocked) = check(p, method);
+    for f in fields(method) {
+        let el = by_id(&p.doc, &format!("err-{}", f.name));
+        let input = by_id(&p.doc, &format!("set-{}", f.name));
+        match errors.iter().find(|(n, _)| *n == f.name) {
+            Some((_, e)) => {
+                el.set_text_content(Some(e));
+                let _ = el.remove_attribute("hidden");
+                let _ = input.set_attribute("aria-invalid", "true");
+            }
+            None => {
+                let _ = el.set_attribute("hidden", "");
+                let _ = input.remove_attribute("aria-invalid");
+            }
+        }
+    }
+    let hint = match (&blocked, errors.is_empty(), &p.fits.in_flight) {
+        (Some(why), _, _) => why.clone(),
+        (None, false, _) => "Correct the settings marked above first.".into(),
+        (None, true, Some(_)) => "A model is being grown; wait for it or cancel it.".into(),
+        (None, true, None) => String::new(),
+    };
+    by_id(&p.doc, "run-hint").set_text_content(Some(&hint));
+    let button = by_id(&p.doc, "run-start");
+    if hint.is_empty() {
+        let _ = button.remove_attribute("disabled");
+    } else {
+        let _ = button.set_attribute("disabled", "");
+    }
+}
+
+fn fmt_error(x: f64) -> String {
+    if x.is_finite() {
+        format!("{x:.4}")
+    } else {
+        "—".into()
+    }
+}
+
+fn fmt_seconds(s: f64) -> String {
+    if s < 10.0 {
+        format!("{s:.1} s")
+    } else if s < 120.0 {
+        format!("{s:.0} s")
+    } else {
+        format!("{:.0} min {:.0} s", (s / 60.0).floor(), s % 60.0)
+    }
+}
+
+fn render_runs(p: &Page) {
+    let runs = &p.fits.runs;
+    show(&p.doc, "runs-stale", runs.iter().any(|r| r.stale));
+    if runs.is_empty() {
+        set_html(&p.doc, "runs", "<p class=\"empty\">No runs yet. Each model you grow is kept here, so you can compare them.</p>");
+        return;
+    }
+    let mut html = String::from("<div class=\"scroll\"><table class=\"runs\"><caption>Runs kept so far</caption><thead><tr><th scope=\"col\">Run</th><th scope=\"col\">Method</th><th scope=\"col\">Settings</th><th scope=\"col\">Rows</th><th scope=\"col\">Out-of-bag error</th><th scope=\"col\">Training error<br><span class=\"apparent\">apparent: the same rows, not a validation</span></th><th scope=\"col\">Fit time</th><th scope=\"col\">Curve</th></tr></thead><tbody>");
+    for (i, r) in runs.iter().enumerate() {
+        let res = &r.result;
+        let oob = match res.oob_error {
+            Some(e) => format!(
+                "{} <span class=\"unit\">{}</span>",
+                fmt_error(e),
+                esc(&res.error_name)
+            ),
+            None => "none (training fit only)".into(),
+        };
+        let mut extra = String::new();
+        if let Some((depth, leaves)) = res.tree_shape {
+            extra = format!("<br><span class=\"unit\">depth {depth}, {leaves} leaves</span>");
+        }
+        if let Some(stop) = &res.stop {
+            extra = format!(
+                "<br><span class=\"unit\">{} rounds; {}</span>",
+                res.members,
+                esc(stop)
+            );
+        }
+        let classes = [
+            if r.stale { "stale" } else { "" },
+            if p.fits.charted == Some(i) {
+                "charted"
+            } else {
+                ""
+            },
+        ]
+        .join(" ");
+        html += &format!(
+            "<tr class=\"{}\" data-oob=\"{}\" data-training=\"{}\" data-fit-seconds=\"{}\"><th scope=\"row\">{}{}</th><td>{}{extra}</td><td class=\"settings\">{}</td><td class=\"num\">{}</td><td class=\"num\">{oob}</td><td class=\"num\">{} <span class=\"unit\">{}</span></td><td class=\"num\">{}</td><td>{}</td></tr>",
+            classes.trim(),
+            res.oob_error.map_or(String::new(), |e| e.to_string()),
+            res.training_error,
+            res.fit_seconds,
+            i + 1,
+            if r.stale { " <span class=\"flag\" title=\"fitted before the data or roles changed\">earlier data</span>" } else { "" },
+            method_label(r.method),
+            esc(&r.summary),
+            res.rows,
+            fmt_error(res.training_error),
+            esc(&res.error_name),
+            fmt_seconds(res.fit_seconds),
+            if res.members > 1 || !res.oob_curve.is_empty() {
+                format!("<button type=\"button\" class=\"button quiet\" data-run=\"{i}\">show</button>")
+            } else {
+                "—".into()
+            }
+        );
+    }
+    html += "</tbody></table></div>";
+    set_html(&p.doc, "runs", &html);
+}
+
+/// The curves of run `r`, as the chart draws them.
+fn chart_of(r: &RunView) -> ErrorChart {
+    let res = &r.result;
+    let mut curves = Vec::new();
+    if !res.oob_curve.is_empty() {
+        curves.push(Curve {
+            name: "out-of-bag".into(),
+            values: res.oob_curve.clone(),
+            colour: COLOURS[0],
+            dashed: false,
+        });
+    }
+    if !res.training_curve.is_empty() {
+        curves.push(Curve {
+            name: "training (apparent)".into(),
+            values: res.training_curve.clone(),
+            colour: COLOURS[1],
+            dashed: true,
+        });
+    }
+    if !res.round_errors.is_empty() {
+        curves.push(Curve {
+            name: "the round's own weighted error".into(),
+            values: res.round_errors.clone(),
+            colour: COLOURS[2],
+            dashed: false,
+        });
+    }
+    ErrorChart {
+        x_label: format!("number of {}", res.member_name),
+        y_label: res.error_name.clone(),
+        curves,
+    }
+}
+
+fn render_chart(p: &Page) {
+    let run = p
+        .fits
+        .charted
+        .and_then(|i| p.fits.runs.get(i).map(|r| (i, r)));
+    let Some((i, run)) = run.filter(|(_, r)| r.result.members > 1) else {
+        show(&p.doc, "curve", false);
+        return;
+    };
+    show(&p.doc, "curve", true);
+    let chart = chart_of(run);
+    by_id(&p.doc, "curve-title").set_text_content(Some(&format!(
+        "Run {}: {} by number of {}",
+        i + 1,
+        run.result.error_name,
+        run.result.member_name
+    )));
+    let canvas: HtmlCanvasElement = match by_id(&p.doc, "curve-canvas").dyn_into() {
+        Ok(c) => c,
+        Err(_) => return,
+    };
+    let _ = canvas.set_attribute(
+        "aria-label",
+        &format!(
+            "Chart of {} against the number of {} for run {}; the numbers are in the table below it.",
+            run.result.error_name,
+            run.result.member_name,
+            i + 1
+        ),
+    );
+    draw(&canvas, &chart);
+    set_html(&p.doc, "curve-numbers", &numbers_table(&chart, &run.result));
+}
+
+/// Draws on the canvas at the screen's pixel density.
+fn draw(canvas: &HtmlCanvasElement, chart: &ErrorChart) {
+    let ratio = web_sys::window()
+        .map_or(1.0, |w| w.device_pixel_ratio())
+        .max(1.0);
+    let css_width = match canvas.client_width() {
+        w if w > 0 => w as f64,
+        _ => 640.0,
+    };
+    canvas.set_width((css_width * ratio).round() as u32);
+    canvas.set_height((css_width * 0.5 * ratio).round() as u32);
+    let Some(backend) = MeasuredCanvas::new(canvas.clone()) else {
+        web_sys::console::error_1(&"the chart canvas has no 2D context".into());
+        return;
+    };
+    if let Err(e) = draw_error_curves(&backend.into_drawing_area(), chart, ratio) {
+        web_sys::console::error_1(&format!("the chart could not be drawn: {e}").into());
+    }
+}
+
+/// The chart's numbers as a table (its text alternative): every size up to 25, else 25
+/// sizes spread evenly, the last always included.
+fn numbers_table(chart: &ErrorChart, res: &RunResult) -> String {
+    let n = chart
+        .curves
+        .iter()
+        .map(|c| c.values.len())
+        .max()
+        .unwrap_or(0);
+    let steps = 25usize;
+    let mut sizes: Vec<usize> = if n <= steps {
+        (1..=n).collect()
+    } else {
+        (0..steps).map(|k| 1 + k * (n - 1) / (steps - 1)).collect()
+    };
+    sizes.dedup();
+    let mut html = format!(
+        "<table class=\"curve-numbers\"><thead><tr><th scope=\"col\">{}</th>",
+        esc(&res.member_name)
+    );
+    for c in &chart.curves {
+        html += &format!("<th scope=\"col\">{}</th>", esc(&c.name));
+    }
+    html += "</tr></thead><tbody>";
+    for s in sizes {
+        html += &format!("<tr><th scope=\"row\">{s}</th>");
+        for c in &chart.curves {
+            html += &format!(
+                "<td class=\"num\">{}</td>",
+                c.values.get(s - 1).map_or("—".into(), |v| fmt_error(*v))
+            );
+        }
+        html += "</tr>";
+    }
+    html + "</tbody></table>"
+}
+
+// ---------------------------------------------------------------------------- fitting
+
+fn now() -> f64 {
+    web_sys::window()
+        .and_then(|w| w.performance())
+        .map_or(0.0, |p| p.now())
+}
+
+fn start(page: &Shared) {
+    let request = {
+        let mut p = page.borrow_mut();
+        let method = p.fits.method();
+        let (errors, blocked) = check(&p, method);
+        if p.fits.in_flight.is_some() || blocked.is_some() || !errors.is_empty() {
+            check_form(&p);
+            return;
+        }
+        if p.busy.is_some() {
+            by_id(&p.doc, "run-hint")
+                .set_text_content(Some("The table is being read; try again in a moment."));
+            return;
+        }
+        let Some((design, _)) = design_of(&p) else {
+            return;
+        };
+        let (settings, summary) = chosen(&p, method);
+        p.next_id += 1;
+        let id = p.next_id;
+        p.fits.in_flight = Some(InFlight {
+            id,
+            started: now(),
+            method,
+            summary,
+        });
+        show(&p.doc, "fit-message", false);
+        by_id(&p.doc, "fit-what").set_text_content(Some(&format!(
+            "Growing a {}…",
+            method_label(method).to_lowercase()
+        )));
+        let _ = by_id(&p.doc, "fit-progress").set_attribute("value", "0");
+        by_id(&p.doc, "fit-time").set_text_content(Some("starting"));
+        show(&p.doc, "fit-status", true);
+        check_form(&p);
+        Request::Fit {
+            v: PROTOCOL_VERSION,
+            id,
+            design,
+            method: method.word().to_string(),
+            settings,
+        }
+    };
+    send(page, request, None);
+}
+
+/// Progress of the fit in flight: the bar, members done, elapsed and remaining time.
+pub fn progress(p: &Page, done: u64, total: u64) {
+    let Some(f) = &p.fits.in_flight else { return };
+    let share = done as f64 / total.max(1) as f64;
+    let _ = by_id(&p.doc, "fit-progress").set_attribute("value", &format!("{share:.3}"));
+    let elapsed = (now() - f.started) / 1000.0;
+    let unit = if f.method == FitMethod::AdaBoost {
+        "rounds"
+    } else {
+        "trees"
+    };
+    let left = if done > 0 {
+        format!(
+            ", about {} left",
+            fmt_seconds(elapsed / done as f64 * (total - done) as f64)
+        )
+    } else {
+        String::new()
+    };
+    by_id(&p.doc, "fit-time").set_text_content(Some(&format!(
+        "{done} of {total} {unit} · {} so far{left}",
+        fmt_seconds(elapsed)
+    )));
+}
+
+pub fn fit_done(doc: &Document) {
+    show(doc, "fit-status", false);
+}
+
+/// A fit finished: keep it as a run and chart it.
+pub fn fitted(page: &Shared, id: u32, result: RunResult) {
+    let mut p = page.borrow_mut();
+    let Some(f) = p.fits.in_flight.take_if(|f| f.id == id) else {
+        return;
+    };
+    fit_done(&p.doc);
+    p.fits.runs.push(RunView {
+        result,
+        method: f.method,
+        summary: f.summary,
+        stale: false,
+        held: true,
+    });
+    p.fits.charted = Some(p.fits.runs.len() - 1);
+    let _ = by_id(&p.doc, "step-runs").set_attribute("data-runs", &p.fits.runs.len().to_string());
+    render_runs(&p);
+    render_chart(&p);
+    check_form(&p);
+}
+
+/// The fit failed: its message in the step, the runs as they were.
+pub fn failed(page: &Shared, message: &str) {
+    let mut p = page.borrow_mut();
+    p.fits.in_flight = None;
+    fit_done(&p.doc);
+    note(
+        &p.doc,
+        &format!("{message}. The runs kept so far are unchanged."),
+        true,
+    );
+    check_form(&p);
+}
+
+/// A message in the step itself.
+fn note(doc: &Document, text: &str, is_error: bool) {
+    let el = by_id(doc, "fit-message");
+    el.set_text_content(Some(text));
+    el.set_class_name(if is_error { "message error" } else { "message" });
+    show(doc, "fit-message", true);
+}
+
+// ---------------------------------------------------------------------------- events
+
+fn on_form(page: &Shared, event: Event) {
+    let Some(target) = event.target().and_then(|t| t.dyn_into::<Element>().ok()) else {
+        return;
+    };
+    match event.type_().as_str() {
+        "change" if target.get_attribute("name").as_deref() == Some("method") => {
+            let value = target.unchecked_ref::<HtmlInputElement>().value();
+            let mut p = page.borrow_mut();
+            p.fits.method = FitMethod::from_word(&value);
+            render_form(&p);
+        }
+        "input" => {
+            let Some(name) = target.get_attribute("data-setting") else {
+                return;
+            };
+            let mut p = page.borrow_mut();
+            let method = p.fits.method();
+            let Some(f) = fields(method).into_iter().find(|f| f.name == name) else {
+                return;
+            };
+            let value = target.unchecked_ref::<HtmlInputElement>().value();
+            p.fits.typed.insert((method.word(), f.name), value);
+            check_form(&p);
+        }
+        "click" if target.id() == "run-start" => start(page),
+        _ => {}
+    }
+}
+
+fn on_runs(page: &Shared, event: Event) {
+    let Some(i) = event
+        .target()
+        .and_then(|t| t.dyn_into::<Element>().ok())
+        .and_then(|t| t.get_attribute("data-run"))
+        .and_then(|r| r.parse::<usize>().ok())
+    else {
+        return;
+    };
+    let mut p = page.borrow_mut();
+    p.fits.charted = Some(i);
+    render_runs(&p);
+    render_chart(&p);
+}
+
+/// One listener per container of the step.
+pub fn listen(page: &Shared) {
+    let doc = page.borrow().doc.clone();
+    let form = by_id(&doc, "run-form");
+    for kind in ["change", "input", "click"] {
+        let pg = page.clone();
+        on(&form, kind, move |e: Event| on_form(&pg, e));
+    }
+    let pg = page.clone();
+    on(&by_id(&doc, "runs"), "click", move |e: Event| {
+        on_runs(&pg, e)
+    });
+    let pg = page.clone();
+    on(&by_id(&doc, "cancel-fit"), "click", move |_: Event| {
+        cancel(&pg, "");
+        let p = pg.borrow();
+        note(
+            &p.doc,
+            "Cancelled. The runs kept so far are unchanged; the table is read again in the background.",
+            false,
+        );
+    });
+}
