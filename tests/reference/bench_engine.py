@@ -6,10 +6,12 @@ data: ROWS x 28 numbers, a binary outcome from a known non-linear rule with labe
   and at all cores) and AdaBoost (500 stumps), Spinney against scikit-learn, with Spinney's
   peak memory beyond reading the file (per cell), the forest's time growth with rows (fitted
   exponent over three sizes) and the breast-cancer data;
-- boosting: gradient boosting, logistic loss, 255 bins, depth 6 (no other leaf limit),
-  200 rounds, learning rate 0.1, L2 1, at least 20 rows per leaf, least hessian 0.001:
-  Spinney against LightGBM, XGBoost (hist) and scikit-learn's HistGradientBoostingClassifier;
-  time per round, total time, test AUC and the time ratio to the fastest peer.
+- boosting: gradient boosting, logistic loss, 255 bins, 31 leaves best-first and then depth 6
+  (no other leaf limit), 200 rounds, learning rate 0.1, L2 1, at least 20 rows per leaf,
+  least hessian 0.001: Spinney against LightGBM, XGBoost (hist) and scikit-learn's
+  HistGradientBoostingClassifier, each peer in a process of its own; time per round, total
+  time, test AUC, memory (peak growth beyond holding the data: Spinney's peak minus reading
+  the file, a peer's peak after fit() minus before) and the time ratio to the fastest peer.
 Spinney's time is its own fit time (binning included, reading the CSV excluded), as printed
 by `spinney fit --json`; the peers' is their fit() call on arrays (their binning included);
 peak memory from /usr/bin/time.
@@ -123,37 +125,67 @@ def forest_and_adaboost(train, test, Xtr, Xte, tmp):
 
 ROUNDS = 200
 
-
-def boosting(train, test, Xtr, Xte):
-    import lightgbm
-    import xgboost
+# One peer fit in a process of its own (one thread), so its peak memory is its own: prints
+# JSON with the fit time, the test AUC, and the peak resident memory before and after fit().
+PEER = r"""
+import json, resource, sys, time
+import numpy as np
+from sklearn.metrics import roc_auc_score
+name, folder, shape, rounds = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4])
+Xtr, ytr, Xte, yte = (np.load("%s/%s.npy" % (folder, k)) for k in ("Xtr", "ytr", "Xte", "yte"))
+leaves, depth = (31, None) if shape == "leaves" else (64, 6)
+common = dict(learning_rate=0.1, n_jobs=1)
+if name == "lightgbm":
+    import lightgbm as lib
+    model = lib.LGBMClassifier(n_estimators=rounds, num_leaves=leaves, max_depth=depth or -1, reg_lambda=1.0,
+                               min_child_samples=20, min_child_weight=1e-3, max_bin=255, verbose=-1, **common)
+elif name == "xgboost":
+    import xgboost as lib
+    shape_args = dict(grow_policy="lossguide", max_leaves=31, max_depth=0) if depth is None else dict(max_depth=6)
+    model = lib.XGBClassifier(n_estimators=rounds, reg_lambda=1.0, min_child_weight=1e-3, tree_method="hist",
+                              max_bin=255, **shape_args, **common)
+else:
+    import sklearn as lib
     from sklearn.ensemble import HistGradientBoostingClassifier
+    model = HistGradientBoostingClassifier(max_iter=rounds, learning_rate=0.1, max_leaf_nodes=leaves if depth is None else None,
+                                           max_depth=depth, l2_regularization=1.0, min_samples_leaf=20, max_bins=255,
+                                           early_stopping=False)
+before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+start = time.perf_counter()
+model.fit(Xtr, ytr)
+seconds = time.perf_counter() - start
+after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+print(json.dumps({"version": lib.__version__, "seconds": seconds, "before_kb": before, "after_kb": after,
+                  "auc": roc_auc_score(yte, model.predict_proba(Xte)[:, 1])}))
+"""
+
+
+def boosting(train, test, Xtr, Xte, tmp):
     from sklearn.metrics import roc_auc_score
 
-    j = spinney(train, test, "boosting", ["loss=logistic", "depth=6", "leaf_size=20", "min_hessian=0.001", "l2=1",
-                                          "rounds=%d" % ROUNDS, "learning_rate=0.1", "bins=255"], ["--predictions"])
-    ours = (j["fit_seconds"], roc_auc_score(y[cut:], np.array(j["predictions"])[:, 1]))
-    peers = {
-        "LightGBM %s" % lightgbm.__version__: lightgbm.LGBMClassifier(
-            n_estimators=ROUNDS, learning_rate=0.1, max_depth=6, num_leaves=64, reg_lambda=1.0,
-            min_child_samples=20, min_child_weight=1e-3, max_bin=255, n_jobs=1, verbose=-1),
-        "XGBoost %s (hist)" % xgboost.__version__: xgboost.XGBClassifier(
-            n_estimators=ROUNDS, learning_rate=0.1, max_depth=6, reg_lambda=1.0, min_child_weight=1e-3,
-            tree_method="hist", max_bin=255, n_jobs=1),
-        "scikit-learn %s HistGradientBoosting" % sklearn.__version__: HistGradientBoostingClassifier(
-            max_iter=ROUNDS, learning_rate=0.1, max_depth=6, max_leaf_nodes=None, l2_regularization=1.0,
-            min_samples_leaf=20, max_bins=255, early_stopping=False),
-    }
-    results = {}
-    for name, model in peers.items():
-        start = time.perf_counter()
-        model.fit(Xtr, y[:cut])
-        results[name] = (time.perf_counter() - start, roc_auc_score(y[cut:], model.predict_proba(Xte)[:, 1]))
-    fastest = min(t for t, _ in results.values())
-    print("gradient boosting, logistic, depth 6, 255 bins, %d rounds, learning rate 0.1, 1 thread:" % ROUNDS)
-    for name, (t, auc) in [("Spinney", ours)] + list(results.items()):
-        print("  %-44s %8.1f ms/round %8.2f s total  test AUC %.4f  time / fastest peer %.2f" % (
-            name, 1000 * t / ROUNDS, t, auc, t / fastest))
+    for k, v in (("Xtr", Xtr), ("ytr", y[:cut]), ("Xte", Xte), ("yte", y[cut:])):
+        np.save(os.path.join(tmp, k + ".npy"), v)
+    reading = peak_of_reading(train)
+    for shape, words, ours_shape in [("leaves", "31 leaves (best-first)", ["leaves=31"]),
+                                     ("depth", "depth 6 (no other leaf limit)", ["depth=6", "leaves=64"])]:
+        j = spinney(train, test, "boosting", ["loss=logistic", "leaf_size=20", "min_hessian=0.001", "l2=1",
+                                              "rounds=%d" % ROUNDS, "learning_rate=0.1", "bins=255"] + ours_shape,
+                    ["--predictions"])
+        rows_ = [("Spinney", j["fit_seconds"], roc_auc_score(y[cut:], np.array(j["predictions"])[:, 1]),
+                  (j["peak_kb"] - reading) / 1024)]
+        for name, label in (("lightgbm", "LightGBM"), ("xgboost", "XGBoost (hist)"),
+                            ("sklearn", "scikit-learn HistGradientBoosting")):
+            out = subprocess.run([sys.executable, "-c", PEER, name, tmp, shape, str(ROUNDS)], capture_output=True,
+                                 text=True, check=True, env=dict(os.environ, OMP_NUM_THREADS="1"))
+            r = json.loads(out.stdout.strip().splitlines()[-1])
+            rows_.append(("%s %s" % (label, r["version"]), r["seconds"], r["auc"],
+                          (r["after_kb"] - r["before_kb"]) / 1024))
+        fastest = min(t for _, t, _, _ in rows_[1:])
+        print("gradient boosting, logistic, %s, 255 bins, %d rounds, learning rate 0.1, 1 thread "
+              "(memory: peak growth beyond holding the data):" % (words, ROUNDS))
+        for name, t, auc, mb in rows_:
+            print("  %-40s %8.1f ms/round %8.2f s total  test AUC %.4f  memory %6.0f MB  time / fastest peer %.2f" % (
+                name, 1000 * t / ROUNDS, t, auc, mb, t / fastest))
 
 
 print("scikit-learn %s; %d rows x 28, %d to fit, %d to score; %d cores" % (sklearn.__version__, rows, cut, rows - cut, os.cpu_count() or 1))
@@ -167,4 +199,4 @@ with tempfile.TemporaryDirectory() as tmp:
     if which in ("forest", "all"):
         forest_and_adaboost(train, test, Xtr, Xte, tmp)
     if which in ("boosting", "all"):
-        boosting(train, test, Xtr, Xte)
+        boosting(train, test, Xtr, Xte, tmp)

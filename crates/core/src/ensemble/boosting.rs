@@ -61,9 +61,11 @@ impl Default for BoostingSettings {
             validation_share: 0.1,
             monotone: Vec::new(),
             seed: 1,
+            // 31 leaves grown best-first, at least 20 rows and 0.001 hessian per leaf: the
+            // defaults of LightGBM and of scikit-learn's HistGradientBoosting (from memory).
             grow: GrowSettings {
                 criterion: Criterion::Gradient { l2: 0.0 },
-                max_depth: Some(3),
+                max_leaves: Some(31),
                 min_rows_leaf: 20,
                 min_weight_leaf: 1e-3,
                 ..GrowSettings::default()

@@ -6,9 +6,9 @@
 //! outcome is a number per row: the value itself, or the class code for class losses.
 //! Sources: Friedman, Ann Stat 2001;29:1189–1232 (squared, absolute, Huber with its
 //! quantile-chosen δ and the median leaf update of "M-TreeBoost", two-class logistic);
-//! Chen & Guestrin 2016 (Newton leaves); softmax and Poisson (log link) as in scikit-learn's
-//! HistGradientBoosting losses (from memory: the hessian p(1 − p) per class, the initial
-//! scores log of the class shares and log of the mean count).
+//! Chen & Guestrin 2016 (Newton leaves); softmax with Friedman's (K − 1)/K step factor
+//! (algorithm 6), and Poisson with a log link, initial scores the log of the class shares and
+//! of the mean count (as in scikit-learn's HistGradientBoosting losses, from memory).
 
 /// A gradient-boosting loss.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -140,9 +140,13 @@ impl Loss {
                     (p - y[r], p * (1.0 - p))
                 }
                 Loss::Softmax => {
+                    // The hessian times K/(K − 1): all K scores move at once, and the diagonal
+                    // Newton step alone overshoots (Friedman 2001, algorithm 6, the (K − 1)/K
+                    // factor of the leaf value; LightGBM's multi-class hessian, from memory).
                     let p = softmax_share(f, k);
                     let target = (y[r] as usize == k) as u8 as f64;
-                    (p - target, p * (1.0 - p))
+                    let factor = outputs as f64 / (outputs as f64 - 1.0).max(1.0);
+                    (p - target, factor * p * (1.0 - p))
                 }
             };
             let wt = w.map_or(1.0, |w| w[r]);

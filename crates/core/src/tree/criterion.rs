@@ -42,6 +42,7 @@ impl Criterion {
     /// Cost of a node whose value is held at `value` (a bound of a monotone constraint)
     /// instead of its best value: `2·G·v + (H + λ)·v²`, which is `−G²/(H + λ)` at the best
     /// value `v = −G/(H + λ)` (gradients only; other criteria ignore `value`).
+    #[inline(always)]
     pub fn cost_at(self, s: &[f64], value: f64) -> f64 {
         match self {
             Criterion::Gradient { l2 } => 2.0 * s[0] * value + (s[1] + l2) * value * value,
@@ -113,6 +114,7 @@ impl Criterion {
 
     /// The single output value of a node (squared error: the mean; gradients: the Newton
     /// step `−G/(H + λ)`); for classes the share of the last class.
+    #[inline(always)]
     pub fn leaf_value(self, s: &[f64]) -> f64 {
         match self {
             Criterion::Gradient { l2 } => {
