@@ -13,6 +13,7 @@ pub mod data;
 pub mod design;
 pub mod ensemble;
 pub mod error;
+pub mod metrics;
 pub mod model;
 pub mod model_file;
 pub mod progress;
