@@ -8,6 +8,7 @@
 //! ensembles built on them ([`ensemble`]), the fitted model of any method ([`model`]) and its
 //! file ([`model_file`]).
 
+pub mod baseline;
 pub mod binning;
 pub mod data;
 pub mod design;
