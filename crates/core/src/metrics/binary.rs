@@ -102,7 +102,8 @@ pub struct RankedScores {
     order: Vec<usize>,
     /// End (exclusive) in `order` of each run of equal scores.
     group_ends: Vec<usize>,
-    events: Vec<bool>,
+    /// 1 for an event, 0 otherwise, in sorted order (so the inner loop has no branch).
+    sorted_events: Vec<f64>,
 }
 
 impl RankedScores {
@@ -119,10 +120,11 @@ impl RankedScores {
             }
         }
         group_ends.push(order.len());
+        let sorted_events = order.iter().map(|&r| f64::from(outcomes[r])).collect();
         Ok(RankedScores {
             order,
             group_ends,
-            events: outcomes.iter().map(|&c| c == 1).collect(),
+            sorted_events,
         })
     }
 
@@ -132,15 +134,13 @@ impl RankedScores {
         let (mut neg_below, mut sum, mut pos_total) = (0.0, 0.0, 0.0);
         let mut start = 0;
         for &end in &self.group_ends {
-            let (mut pos_g, mut neg_g) = (0.0, 0.0);
-            for &r in &self.order[start..end] {
-                let w = weight(weights, r);
-                if self.events[r] {
-                    pos_g += w;
-                } else {
-                    neg_g += w;
-                }
+            let (mut pos_g, mut all_g) = (0.0, 0.0);
+            for k in start..end {
+                let w = weight(weights, self.order[k]);
+                pos_g += w * self.sorted_events[k];
+                all_g += w;
             }
+            let neg_g = all_g - pos_g;
             sum += pos_g * (neg_below + neg_g / 2.0);
             neg_below += neg_g;
             pos_total += pos_g;
