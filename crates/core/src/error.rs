@@ -64,6 +64,10 @@ pub enum ErrorKind {
     BadSetting { setting: String, reason: String },
     /// The work was cancelled through the progress observer.
     Cancelled,
+    /// Outcomes, predictions or weights handed to a metric or a baseline model that it
+    /// cannot use (empty, one class only, NaN, probabilities outside [0, 1], lengths that
+    /// differ, ...). `reason` says what is wrong and what to do.
+    BadScores { what: String, reason: String },
     /// A column named in a setting does not exist.
     NoSuchColumn {
         name: String,
@@ -175,6 +179,9 @@ impl fmt::Display for Error {
                 write!(f, "the setting '{setting}' is not usable: {reason}")
             }
             ErrorKind::Cancelled => write!(f, "cancelled; nothing was changed"),
+            ErrorKind::BadScores { what, reason } => {
+                write!(f, "{what} cannot be computed: {reason}")
+            }
             ErrorKind::NoSuchColumn { name, available } => {
                 let shown: Vec<&str> = available.iter().take(12).map(String::as_str).collect();
                 write!(

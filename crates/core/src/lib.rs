@@ -6,13 +6,17 @@
 //! [`data::Table`], summarising and fingerprinting it) and the learning engine: the design
 //! ([`design`]), binning ([`binning`]), the tree grower and pruning ([`tree`]) and the
 //! ensembles built on them ([`ensemble`]), the fitted model of any method ([`model`]) and its
-//! file ([`model_file`]).
+//! file ([`model_file`]); and the means of judging a model: validation figures over plain
+//! slices of outcomes and predictions ([`metrics`]) and the baseline models to compare
+//! against ([`baseline`]).
 
+pub mod baseline;
 pub mod binning;
 pub mod data;
 pub mod design;
 pub mod ensemble;
 pub mod error;
+pub mod metrics;
 pub mod model;
 pub mod model_file;
 pub mod progress;

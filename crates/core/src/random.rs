@@ -19,6 +19,9 @@ pub enum Purpose {
     BoostPredictors = 4,
     /// The rows held out for early stopping (`index` 0).
     BoostHoldout = 5,
+    /// The rows of bootstrap resample `index` of a metric's percentile interval
+    /// (metrics::intervals).
+    MetricResample = 8,
 }
 
 /// The stream for (`seed`, `purpose`, `index`).
