@@ -1,47 +1,17 @@
 //! The fitting settings by their plain-word names (`depth`, `trees`, `learning_rate`, ...),
 //! each checked against its allowed range once, with the same words wherever they are typed:
 //! the page's settings form checks every value with [`FitSettings::apply`] as it is typed, and
-//! the worker applies them before fitting. (The command line's `--set` parser in
-//! crates/cli/src/fit.rs carries the same names and ranges; it is to move onto this module
-//! once the model and boosting work on it has landed, so the ranges live in one place.)
+//! the worker applies them before fitting, for the methods of [`Method`] but gradient
+//! boosting. (The command line's `--set` parser in crates/cli/src/fit.rs carries the same
+//! names and ranges, and boosting's; it is to move onto this module, boosting's settings with
+//! it, so the ranges live in one place.)
 
 use crate::binning::BinSettings;
 use crate::ensemble::adaboost::BoostSettings;
 use crate::ensemble::forest::ForestSettings;
+use crate::model::Method;
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::GrowSettings;
-
-/// The methods that can be fitted.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum FitMethod {
-    Tree,
-    Bagging,
-    Forest,
-    AdaBoost,
-}
-
-impl FitMethod {
-    pub const ALL: [FitMethod; 4] = [
-        FitMethod::Tree,
-        FitMethod::Bagging,
-        FitMethod::Forest,
-        FitMethod::AdaBoost,
-    ];
-
-    /// The word the command line's `--method` uses.
-    pub fn word(self) -> &'static str {
-        match self {
-            FitMethod::Tree => "tree",
-            FitMethod::Bagging => "bagging",
-            FitMethod::Forest => "forest",
-            FitMethod::AdaBoost => "adaboost",
-        }
-    }
-
-    pub fn from_word(word: &str) -> Option<FitMethod> {
-        FitMethod::ALL.into_iter().find(|m| m.word() == word)
-    }
-}
 
 /// Every setting a fit can change, for all methods, with the method's defaults.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -60,7 +30,7 @@ impl FitSettings {
     /// The defaults of `method` for `predictors` predictors and a number (`regression`) or
     /// class outcome. Refuses AdaBoost for a number outcome.
     pub fn defaults(
-        method: FitMethod,
+        method: Method,
         predictors: usize,
         regression: bool,
         outcome: &str,
@@ -75,14 +45,18 @@ impl FitSettings {
         };
         let mut forest = ForestSettings::random_forest(predictors, regression, 1);
         match method {
-            FitMethod::Tree | FitMethod::Forest => {}
-            FitMethod::Bagging => forest.predictors_per_split = None,
-            FitMethod::AdaBoost if regression => {
+            Method::Tree | Method::Forest => {}
+            Method::Bagging => forest.predictors_per_split = None,
+            Method::AdaBoost if regression => {
                 return Err(format!(
                     "this AdaBoost (SAMME) predicts classes; the outcome '{outcome}' is a number"
                 ))
             }
-            FitMethod::AdaBoost => grow.max_depth = Some(1),
+            Method::AdaBoost => grow.max_depth = Some(1),
+            Method::Boosting => {
+                return Err("gradient boosting: its settings are not here yet; fit it with                             `spinney fit --method boosting`"
+                    .into())
+            }
         }
         Ok(FitSettings {
             grow,
@@ -222,7 +196,7 @@ impl FitSettings {
     /// The defaults of `method` with every `(name, value)` applied in order, and the grow
     /// settings handed to the ensembles. Refuses pruning for anything but a single tree.
     pub fn build(
-        method: FitMethod,
+        method: Method,
         predictors: usize,
         regression: bool,
         outcome: &str,
@@ -232,7 +206,7 @@ impl FitSettings {
         for (name, value) in sets {
             s.apply(name, value, regression)?;
         }
-        if s.pruning > 0.0 && method != FitMethod::Tree {
+        if s.pruning > 0.0 && method != Method::Tree {
             return Err(
                 "pruning: prunes a single tree (method tree); ensembles are not pruned".into(),
             );
@@ -256,12 +230,12 @@ mod tests {
 
     #[test]
     fn defaults_follow_the_method() {
-        let forest = FitSettings::build(FitMethod::Forest, 9, false, "y", &[]).unwrap();
+        let forest = FitSettings::build(Method::Forest, 9, false, "y", &[]).unwrap();
         assert_eq!(forest.forest.trees, 500);
         assert_eq!(forest.forest.predictors_per_split, Some(3));
-        let bagging = FitSettings::build(FitMethod::Bagging, 9, false, "y", &[]).unwrap();
+        let bagging = FitSettings::build(Method::Bagging, 9, false, "y", &[]).unwrap();
         assert_eq!(bagging.forest.predictors_per_split, None);
-        let ada = FitSettings::build(FitMethod::AdaBoost, 9, false, "y", &[]).unwrap();
+        let ada = FitSettings::build(Method::AdaBoost, 9, false, "y", &[]).unwrap();
         assert_eq!(ada.boost.grow.max_depth, Some(1));
         assert_eq!(ada.boost.rounds, 50);
     }
@@ -269,7 +243,7 @@ mod tests {
     #[test]
     fn values_are_applied_and_handed_to_the_ensembles() {
         let s = FitSettings::build(
-            FitMethod::Forest,
+            Method::Forest,
             9,
             false,
             "y",
@@ -297,20 +271,14 @@ mod tests {
             ),
             ("wobble", "1", "wobble: unknown setting"),
         ] {
-            let err = FitSettings::build(FitMethod::Forest, 3, false, "y", &sets(&[(name, value)]))
+            let err = FitSettings::build(Method::Forest, 3, false, "y", &sets(&[(name, value)]))
                 .unwrap_err();
             assert!(err.starts_with(says), "{err}");
         }
-        let err = FitSettings::build(FitMethod::AdaBoost, 3, true, "weight_kg", &[]).unwrap_err();
+        let err = FitSettings::build(Method::AdaBoost, 3, true, "weight_kg", &[]).unwrap_err();
         assert!(err.contains("'weight_kg' is a number"), "{err}");
-        let err = FitSettings::build(
-            FitMethod::Forest,
-            3,
-            false,
-            "y",
-            &sets(&[("pruning", "0.1")]),
-        )
-        .unwrap_err();
+        let err = FitSettings::build(Method::Forest, 3, false, "y", &sets(&[("pruning", "0.1")]))
+            .unwrap_err();
         assert!(err.contains("single tree"), "{err}");
     }
 }

@@ -10,12 +10,13 @@ use js_sys::{Object, Reflect, Uint8Array};
 use spinney_core::binning::bin_design;
 use spinney_core::data::{self, read_table, Kind, Loaded, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
-use spinney_core::ensemble::adaboost::{fit_adaboost, AdaBoost, Stop};
-use spinney_core::ensemble::forest::{argmax, fit_forest, Forest};
+use spinney_core::ensemble::adaboost::{fit_adaboost, Stop};
+use spinney_core::ensemble::forest::fit_forest;
+use spinney_core::model::{is_partial, predictors_of, Ensemble, Method, Model};
 use spinney_core::progress::{Flow, Progress};
-use spinney_core::settings::{FitMethod, FitSettings};
+use spinney_core::settings::FitSettings;
 use spinney_core::tree::grower::grow;
-use spinney_core::tree::{Rows, Tree};
+use spinney_core::tree::Rows;
 use spinney_web::protocol::{
     FitDesign, Preview, ReadSettings, Reply, Request, RunResult, PREVIEW_ROWS, PROTOCOL_VERSION,
 };
@@ -35,20 +36,11 @@ struct Held {
     runs: Vec<Run>,
 }
 
-/// A fitted model of any method. (To become the core's `model::Model` once it lands.)
-enum Fitted {
-    Tree(Tree),
-    Forest(Forest),
-    AdaBoost(AdaBoost),
-}
-
-/// One kept run: what was asked and the model.
+/// One kept run: the columns asked for and the model (its method and settings inside).
 #[allow(dead_code)] // read by the steps after model runs
 struct Run {
     design: FitDesign,
-    method: FitMethod,
-    settings: Vec<(String, String)>,
-    model: Fitted,
+    model: Model,
 }
 
 fn scope() -> DedicatedWorkerGlobalScope {
@@ -230,7 +222,7 @@ fn fit(
         .loaded
         .as_ref()
         .ok_or("no table is loaded yet; choose a file first")?;
-    let method_kind = FitMethod::from_word(method).ok_or_else(|| {
+    let method_kind = Method::from_word(method).ok_or_else(|| {
         format!(
             "{method}: choose tree, bagging, forest or adaboost (gradient boosting is being built)"
         )
@@ -253,18 +245,19 @@ fn fit(
         &sets,
     )?;
     let binned = bin_design(&d, settings.bins).map_err(|e| e.to_string())?;
+    let predictors = predictors_of(&d, &binned);
     d.predictors = Vec::new();
     let (stats, width) = d.row_statistics(settings.balanced_classes);
     let mut progress = Reporter::new(id);
-    let model = match method_kind {
-        FitMethod::Tree => {
+    let ensemble = match method_kind {
+        Method::Tree => {
             progress.step("tree", 0, 1);
             let rows: Vec<u32> = (0..binned.rows as u32).collect();
             let full = grow(&binned, &stats, width, &rows, &settings.grow, None);
             progress.step("tree", 1, 1);
-            Fitted::Tree(spinney_core::tree::prune::prune(&full, settings.pruning))
+            Ensemble::Tree(spinney_core::tree::prune::prune(&full, settings.pruning))
         }
-        FitMethod::AdaBoost => {
+        Method::AdaBoost => {
             let Outcome::Classes { codes, labels } = &d.outcome else {
                 return Err("AdaBoost predicts classes; the outcome is a number".into());
             };
@@ -272,7 +265,7 @@ fn fit(
             let initial: Vec<f64> = (0..codes.len())
                 .map(|r| stats[r * width + codes[r] as usize])
                 .collect();
-            Fitted::AdaBoost(fit_adaboost(
+            Ensemble::AdaBoost(fit_adaboost(
                 &binned,
                 codes,
                 labels.len(),
@@ -281,7 +274,7 @@ fn fit(
                 &mut progress,
             ))
         }
-        FitMethod::Bagging | FitMethod::Forest => Fitted::Forest(fit_forest(
+        Method::Bagging | Method::Forest => Ensemble::Forest(fit_forest(
             &binned,
             &stats,
             width,
@@ -289,36 +282,60 @@ fn fit(
             &settings.forest,
             &mut progress,
         )),
+        // Refused by FitSettings::build above; kept here so a new method cannot slip by.
+        Method::Boosting => return Err("gradient boosting is not in the page yet".into()),
     };
     let fit_seconds = (js_sys::Date::now() - start) / 1000.0;
+    let classes = match &d.outcome {
+        Outcome::Classes { labels, .. } => Some(labels.clone()),
+        Outcome::Numbers(_) => None,
+    };
+    let model = Model {
+        method: method_kind,
+        outcome: d.outcome_name.clone(),
+        classes,
+        predictors,
+        partial: is_partial(&ensemble),
+        ensemble,
+        // The settings the page sent; every other one is the method's default.
+        settings: sets.iter().cloned().collect(),
+        seed: settings.forest.seed,
+        training_fingerprint: Some(loaded.fingerprint.clone()),
+        training_rows: binned.rows,
+    };
     let rows = Rows::Binned(&binned);
-    let training_curve = staged_errors(&model, rows, &d.outcome);
-    let training_error = training_curve.last().copied().unwrap_or(f64::NAN);
-    let (oob_error, oob_curve, round_errors, stop, tree_shape, members) = match &model {
-        Fitted::Tree(t) => (
+    let training_curve = model.staged_errors(rows, &d.outcome).unwrap_or_default();
+    let training_error = match training_curve.last() {
+        Some(&e) => e,
+        // A single tree: its error from its accuracy or RMSE.
+        None => match model.performance(rows, &d.outcome) {
+            ("accuracy", a) => 1.0 - a,
+            (_, rmse) => rmse * rmse,
+        },
+    };
+    let (oob_error, oob_curve, round_errors, stop, tree_shape) = match &model.ensemble {
+        Ensemble::Tree(t) => (
             None,
             Vec::new(),
             Vec::new(),
             None,
             Some((t.depth(), t.leaves())),
-            1,
         ),
-        Fitted::Forest(f) => (
+        Ensemble::Forest(f) => (
             f.oob_error.last().copied().filter(|e| e.is_finite()),
             f.oob_error.clone(),
             Vec::new(),
             None,
             None,
-            f.trees.len(),
         ),
-        Fitted::AdaBoost(a) => (
+        Ensemble::AdaBoost(a) => (
             None,
             Vec::new(),
             a.errors.clone(),
             Some(stop_words(a.stop).to_string()),
             None,
-            a.trees.len(),
         ),
+        Ensemble::Boosting(_) => (None, Vec::new(), Vec::new(), None, None),
     };
     let result = RunResult {
         run: held.runs.len() as u32,
@@ -332,19 +349,15 @@ fn fit(
             "error rate"
         }
         .into(),
-        members,
-        member_name: if method_kind == FitMethod::AdaBoost {
+        members: model.members(),
+        member_name: if method_kind == Method::AdaBoost {
             "rounds"
         } else {
             "trees"
         }
         .into(),
         training_error,
-        training_curve: if matches!(model, Fitted::Tree(_)) {
-            Vec::new()
-        } else {
-            training_curve
-        },
+        training_curve,
         oob_error,
         oob_curve,
         round_errors,
@@ -353,51 +366,8 @@ fn fit(
         fit_seconds,
         notices: d.notices.clone(),
     };
-    held.runs.push(Run {
-        design,
-        method: method_kind,
-        settings: sets,
-        model,
-    });
+    held.runs.push(Run { design, model });
     Ok(result)
-}
-
-/// Error after 1, 2, ... members on `rows` (one value for a single tree): error rate for
-/// classes, mean squared error for numbers. The same rule as the command line's; both move
-/// onto the core's model once it lands.
-fn staged_errors(model: &Fitted, rows: Rows<'_>, outcome: &Outcome) -> Vec<f64> {
-    let n = rows.len();
-    let (members, outputs, voting): (Vec<(&Tree, f64)>, usize, bool) = match model {
-        Fitted::Tree(t) => (vec![(t, 1.0)], t.outputs, false),
-        Fitted::Forest(f) => (f.trees.iter().map(|t| (t, 1.0)).collect(), f.outputs, false),
-        Fitted::AdaBoost(a) => (
-            a.trees.iter().zip(a.alphas.iter().copied()).collect(),
-            a.classes,
-            true,
-        ),
-    };
-    let mut sums = vec![0.0; n * outputs];
-    let mut curve = Vec::with_capacity(members.len());
-    for (t, (tree, alpha)) in members.iter().enumerate() {
-        let mut err = 0.0;
-        for r in 0..n {
-            let p = tree.predict(rows, r);
-            let s = &mut sums[r * outputs..(r + 1) * outputs];
-            if voting {
-                s[argmax(p)] += alpha;
-            } else {
-                for (a, b) in s.iter_mut().zip(p) {
-                    *a += b;
-                }
-            }
-            err += match outcome {
-                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
-                Outcome::Numbers(y) => (s[0] / (t + 1) as f64 - y[r]).powi(2),
-            };
-        }
-        curve.push(err / n.max(1) as f64);
-    }
-    curve
 }
 
 fn stop_words(stop: Stop) -> &'static str {

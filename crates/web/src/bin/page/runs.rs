@@ -12,7 +12,8 @@ use std::collections::HashMap;
 
 use plotters::prelude::IntoDrawingArea;
 use spinney_charts::{draw_error_curves, Curve, ErrorChart, COLOURS};
-use spinney_core::settings::{FitMethod, FitSettings};
+use spinney_core::model::Method as FitMethod;
+use spinney_core::settings::FitSettings;
 use spinney_web::protocol::{Request, RunResult, PROTOCOL_VERSION};
 use wasm_bindgen::JsCast;
 use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlInputElement};
@@ -109,8 +110,17 @@ const SEED: Field = Field {
     optional: false,
 };
 
+/// The methods the page offers so far.
+const METHODS: [FitMethod; 4] = [
+    FitMethod::Tree,
+    FitMethod::Bagging,
+    FitMethod::Forest,
+    FitMethod::AdaBoost,
+];
+
 fn fields(method: FitMethod) -> Vec<Field> {
     match method {
+        FitMethod::Boosting => Vec::new(),
         FitMethod::Tree => vec![
             DEPTH,
             Field {
@@ -169,6 +179,7 @@ fn method_label(m: FitMethod) -> &'static str {
         FitMethod::Bagging => "Bagging",
         FitMethod::Forest => "Random forest",
         FitMethod::AdaBoost => "AdaBoost",
+        FitMethod::Boosting => "Gradient boosting",
     }
 }
 
@@ -178,6 +189,7 @@ fn method_help(m: FitMethod) -> &'static str {
         FitMethod::Bagging => "many trees, each grown on a resample of the records, averaged",
         FitMethod::Forest => "bagging where every split may look at only a few columns drawn at random; judged on the records each tree did not see (out-of-bag)",
         FitMethod::AdaBoost => "small trees in sequence, each giving more weight to past mistakes (classes only)",
+        FitMethod::Boosting => "not in the page yet",
     }
 }
 
@@ -288,7 +300,7 @@ pub fn render(p: &Page) {
 fn render_form(p: &Page) {
     let method = p.fits.method();
     let mut html = String::from("<fieldset class=\"methods\"><legend>Method</legend>");
-    for m in FitMethod::ALL {
+    for m in METHODS {
         html += &format!(
             "<label class=\"method\"><input type=\"radio\" name=\"method\" value=\"{}\"{}> <strong>{}</strong> <span class=\"help\">{}</span></label>",
             m.word(),
@@ -690,7 +702,7 @@ fn on_form(page: &Shared, event: Event) {
         "change" if target.get_attribute("name").as_deref() == Some("method") => {
             let value = target.unchecked_ref::<HtmlInputElement>().value();
             let mut p = page.borrow_mut();
-            p.fits.method = FitMethod::from_word(&value);
+            p.fits.method = FitMethod::from_word(&value).filter(|m| METHODS.contains(m));
             render_form(&p);
         }
         "input" => {
