@@ -270,58 +270,61 @@ fn check(
 /// (numbers: from all rows), drawn from the `BoostHoldout` stream.
 fn hold_out(
     y: &[f64],
-    classes: usize,
+    design: &Design,
     settings: &BoostingSettings,
-    outcome: &str,
 ) -> Result<(Vec<u32>, Vec<u32>)> {
     let n = y.len();
-    let groups: Vec<Vec<u32>> = if classes > 0 {
-        let mut g = vec![Vec::new(); classes];
-        for (r, &c) in y.iter().enumerate() {
-            g[c as usize].push(r as u32);
+    let outcome = &design.outcome_name;
+    // Groups drawn from separately: each class (with its label), or all rows.
+    let groups: Vec<(String, Vec<u32>)> = match &design.outcome {
+        Outcome::Classes { labels, .. } => {
+            let mut g: Vec<(String, Vec<u32>)> =
+                labels.iter().map(|l| (l.clone(), Vec::new())).collect();
+            for (r, &c) in y.iter().enumerate() {
+                g[c as usize].1.push(r as u32);
+            }
+            g.retain(|g| !g.1.is_empty());
+            g
         }
-        g.retain(|g| !g.is_empty());
-        g
-    } else {
-        vec![(0..n as u32).collect()]
+        Outcome::Numbers(_) => vec![(String::new(), (0..n as u32).collect())],
     };
+    let too_few = |reason: String| {
+        Error::new(ErrorKind::BadSetting {
+            setting: "patience".into(),
+            reason,
+        })
+    };
+    let share = settings.validation_share;
     let mut rng = stream(settings.seed, Purpose::BoostHoldout, 0);
     let mut held = Vec::new();
-    let mut short = false;
-    for mut g in groups {
-        let take = (settings.validation_share * g.len() as f64).round() as usize;
+    for (label, mut g) in groups {
+        let take = (share * g.len() as f64).round() as usize;
+        // A class absent from either part can be neither judged nor learnt.
         if take == 0 || take >= g.len() {
-            short = true;
+            return Err(too_few(format!(
+                "early stopping holds out {:.0}% of each class of '{outcome}', but class \
+                 '{label}' has {} row(s), too few to be on both sides. Change validation_share, \
+                 add records of that class, or leave patience unset to fit every round",
+                share * 100.0,
+                g.len()
+            )));
         }
-        for k in 0..take.min(g.len()) {
+        for k in 0..take {
             let j = k + below(&mut rng, g.len() - k);
             g.swap(k, j);
         }
-        held.extend_from_slice(&g[..take.min(g.len())]);
+        held.extend_from_slice(&g[..take]);
     }
     // Fewer than 10 held-out rows judge a stopping round by noise (common practice, no
-    // source); a class absent from either part cannot be judged or learnt.
-    if short || held.len() < 10 {
-        return Err(Error::new(ErrorKind::BadSetting {
-            setting: "patience".into(),
-            reason: format!(
-                "early stopping holds out {:.0}% of the {n} rows of '{outcome}', which gives {} \
-                 row(s){}; at least 10 are needed{}. Raise validation_share, or leave patience \
-                 unset to fit every round",
-                settings.validation_share * 100.0,
-                held.len(),
-                if short && classes > 0 {
-                    " and leaves a class out of one part"
-                } else {
-                    ""
-                },
-                if classes > 0 {
-                    ", with every class on both sides"
-                } else {
-                    ""
-                },
-            ),
-        }));
+    // source).
+    if held.len() < 10 {
+        return Err(too_few(format!(
+            "early stopping holds out {:.0}% of the {n} rows of '{outcome}', which gives {} \
+             row(s); at least 10 are needed. Raise validation_share, or leave patience unset \
+             to fit every round",
+            share * 100.0,
+            held.len()
+        )));
     }
     held.sort_unstable();
     let mut is_held = vec![false; n];
@@ -345,7 +348,7 @@ pub fn fit_boosting(
     let m = loss.outputs(classes);
     let p = binned.columns.len();
     let (fit_rows, held) = match settings.patience {
-        Some(_) => hold_out(&y, classes, settings, &design.outcome_name)?,
+        Some(_) => hold_out(&y, design, settings)?,
         None => ((0..n as u32).collect(), Vec::new()),
     };
     let mut grow_settings = settings.grow;
