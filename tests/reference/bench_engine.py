@@ -96,6 +96,11 @@ def forest_and_adaboost(train, test, Xtr, Xte, tmp):
             print("%-26s %d thread(s): Spinney %7.2f s, accuracy %.4f | scikit-learn %7.2f s, accuracy %.4f | "
                   "time ratio %.2f | peak %.0f MB, %.2f bytes per cell beyond reading the file" % (
                       label, threads, ours_t, ours_acc, ref_t, ref_acc, ours_t / ref_t, j["peak_kb"] / 1024, beyond))
+    # Working memory apart from the model: a one-tree forest holds almost no model.
+    one = spinney(train, test, "forest", ["trees=1", "seed=1"])
+    print("working memory (a 1-tree forest): peak %.0f MB, %.2f bytes per cell beyond reading the file "
+          "(the 100-tree peaks above also hold the fitted trees)" % (
+              one["peak_kb"] / 1024, (one["peak_kb"] - reading) * 1024 / (cut * 28)))
     # Time against rows: the exponent b of time = a * rows^b over three sizes (1 = linear).
     sizes = [cut // 4, cut // 2, cut]
     times = []
