@@ -21,3 +21,18 @@ pub trait Progress {
 pub struct Silent;
 
 impl Progress for Silent {}
+
+/// For tests: asks the work to stop once `done` reaches the number given.
+#[cfg(test)]
+pub(crate) struct StopAfter(pub u64);
+
+#[cfg(test)]
+impl Progress for StopAfter {
+    fn step(&mut self, _: &str, done: u64, _: u64) -> Flow {
+        if done >= self.0 {
+            Flow::Stop
+        } else {
+            Flow::Continue
+        }
+    }
+}

@@ -484,7 +484,7 @@ mod tests {
     use super::*;
     use crate::binning::{bin_design, BinSettings, Records};
     use crate::design::design_from_csv;
-    use crate::progress::Silent;
+    use crate::progress::{Silent, StopAfter};
 
     /// Seeded data: y depends on a and b (plus noise), c is noise, d a category.
     fn data(rows: usize, kind: &str, seed: u64) -> String {
@@ -634,16 +634,6 @@ mod tests {
         // 20% of each class held out: 80 of 400.
         assert_eq!(b.held_out.len(), 80);
 
-        struct StopAfter(u64);
-        impl Progress for StopAfter {
-            fn step(&mut self, _: &str, done: u64, _: u64) -> Flow {
-                if done >= self.0 {
-                    Flow::Stop
-                } else {
-                    Flow::Continue
-                }
-            }
-        }
         let plain = BoostingSettings {
             rounds: 50,
             ..BoostingSettings::default()

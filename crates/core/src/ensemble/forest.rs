@@ -307,6 +307,7 @@ mod tests {
     use super::*;
     use crate::binning::{bin_design, BinSettings};
     use crate::design::design_from_csv;
+    use crate::progress::StopAfter;
 
     fn noisy_problem() -> (BinnedMatrix, Outcome, Vec<f64>) {
         let mut rng = stream(99, Purpose::TreeRows, 0);
@@ -387,16 +388,6 @@ mod tests {
 
     #[test]
     fn cancelling_leaves_a_partial_forest() {
-        struct StopAfter(u64);
-        impl Progress for StopAfter {
-            fn step(&mut self, _: &str, done: u64, _: u64) -> Flow {
-                if done >= self.0 {
-                    Flow::Stop
-                } else {
-                    Flow::Continue
-                }
-            }
-        }
         let (m, y, stats) = noisy_problem();
         let mut s = ForestSettings::random_forest(4, false, 1);
         s.trees = 50;

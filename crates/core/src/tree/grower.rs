@@ -253,11 +253,9 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 frontier.len().checked_sub(1)
             };
             let Some(pick) = pick else { break };
-            let c = if best_first {
-                frontier.remove(pick)
-            } else {
-                frontier.pop().expect("picked")
-            };
+            // Removing the last (depth-first) costs nothing; best-first keeps the order, so
+            // ties still go to the earliest created.
+            let c = frontier.remove(pick);
             let k = self.apply(&c);
             leaves += 1;
             let (left, right) = (self.tree.nodes.len(), self.tree.nodes.len() + 1);
@@ -624,7 +622,7 @@ fn fill_histogram<B: Bin>(
         for &r in rows {
             let r = r as usize;
             let b = column[r].index();
-            let h: &mut [f64; 3] = (&mut hist[b * 3..b * 3 + 3]).try_into().unwrap();
+            let h = &mut hist[b * 3..b * 3 + 3];
             h[0] += stats[2 * r];
             h[1] += stats[2 * r + 1];
             h[2] += 1.0;
