@@ -502,8 +502,16 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     } else if method == Method::Tree {
         let rows: Vec<u32> = (0..binned.rows as u32).collect();
         let full = grow(&binned, &stats, width, &rows, &all.grow, None);
-        pruning_path = Some(spinney_core::tree::prune::pruning_path(&full));
-        Ensemble::Tree(spinney_core::tree::prune::prune(&full, all.pruning))
+        // The path costs time quadratic in the nodes (weakest links one by one): only for
+        // the JSON output, its one reader.
+        if args.json {
+            pruning_path = Some(spinney_core::tree::prune::pruning_path(&full));
+        }
+        Ensemble::Tree(if all.pruning > 0.0 {
+            spinney_core::tree::prune::prune(&full, all.pruning)
+        } else {
+            full
+        })
     } else if method == Method::AdaBoost {
         let Outcome::Classes { codes, labels } = &design.outcome else {
             unreachable!("checked above")
