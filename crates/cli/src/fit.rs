@@ -507,11 +507,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         if args.json {
             pruning_path = Some(spinney_core::tree::prune::pruning_path(&full));
         }
-        Ensemble::Tree(if all.pruning > 0.0 {
-            spinney_core::tree::prune::prune(&full, all.pruning)
-        } else {
-            full
-        })
+        Ensemble::Tree(spinney_core::tree::prune::prune(full, all.pruning))
     } else if method == Method::AdaBoost {
         let Outcome::Classes { codes, labels } = &design.outcome else {
             unreachable!("checked above")

@@ -120,13 +120,13 @@ pub fn pruning_path(tree: &Tree) -> Vec<PruneStep> {
 /// `tree` pruned at `alpha` (the share-of-weight units of [`PruneStep::alpha`]): every
 /// weakest link with α ≤ `alpha` collapsed. Nodes keep their order; a collapsed node keeps
 /// its training values and becomes a leaf.
-pub fn prune(tree: &Tree, alpha: f64) -> Tree {
+pub fn prune(tree: Tree, alpha: f64) -> Tree {
     if alpha <= 0.0 {
         // As in scikit-learn's ccp_alpha = 0: no pruning, even of splits that gained nothing.
-        return tree.clone();
+        return tree;
     }
-    let (_, collapsed) = weakest_links(tree, alpha);
-    let keep = reachable(tree, &collapsed);
+    let (_, collapsed) = weakest_links(&tree, alpha);
+    let keep = reachable(&tree, &collapsed);
     let mut new_index = vec![0u32; tree.nodes.len()];
     let mut next = 0u32;
     for (i, k) in keep.iter().enumerate() {
@@ -218,16 +218,16 @@ mod tests {
         let (tree, m) = noisy_tree();
         let path = pruning_path(&tree);
         for step in path.iter().filter(|s| s.alpha > 0.0) {
-            let pruned = prune(&tree, step.alpha);
+            let pruned = prune(tree.clone(), step.alpha);
             assert_eq!(pruned.leaves(), step.leaves, "alpha {}", step.alpha);
         }
         // Pruned trees still predict: each row lands on a leaf whose values sum to one.
-        let small = prune(&tree, path[path.len() / 2].alpha);
+        let small = prune(tree.clone(), path[path.len() / 2].alpha);
         for r in 0..m.rows {
             let p = small.predict_row(&m, r);
             assert!((p.iter().sum::<f64>() - 1.0).abs() < 1e-12);
         }
-        assert_eq!(prune(&tree, 0.0).leaves(), path[0].leaves);
-        assert_eq!(prune(&tree, f64::INFINITY).nodes.len(), 1);
+        assert_eq!(prune(tree.clone(), 0.0).leaves(), path[0].leaves);
+        assert_eq!(prune(tree, f64::INFINITY).nodes.len(), 1);
     }
 }

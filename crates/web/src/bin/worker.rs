@@ -255,7 +255,7 @@ fn fit(
             let rows: Vec<u32> = (0..binned.rows as u32).collect();
             let full = grow(&binned, &stats, width, &rows, &settings.grow, None);
             progress.step("tree", 1, 1);
-            Ensemble::Tree(spinney_core::tree::prune::prune(&full, settings.pruning))
+            Ensemble::Tree(spinney_core::tree::prune::prune(full, settings.pruning))
         }
         Method::AdaBoost => {
             let Outcome::Classes { codes, labels } = &d.outcome else {
