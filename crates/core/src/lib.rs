@@ -20,6 +20,7 @@ pub mod fit;
 pub mod metrics;
 pub mod model;
 pub mod model_file;
+pub mod onnx;
 pub mod progress;
 pub mod random;
 pub mod settings;
