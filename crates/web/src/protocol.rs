@@ -90,6 +90,8 @@ pub struct RunResult {
     pub tree_shape: Option<(usize, usize)>,
     /// Binning and fitting, not reading.
     pub fit_seconds: f64,
+    /// The worker's wasm memory after the fit (it never shrinks, so this is its peak).
+    pub worker_memory_bytes: u64,
     pub notices: Vec<String>,
 }
 

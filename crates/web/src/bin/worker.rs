@@ -181,11 +181,7 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
     match read_table(source, &options, &mut Reporter::new(id)) {
         Ok(loaded) => {
             let read_seconds = (js_sys::Date::now() - start) / 1000.0;
-            let worker_memory_bytes = wasm_bindgen::memory()
-                .unchecked_into::<js_sys::WebAssembly::Memory>()
-                .buffer()
-                .unchecked_into::<js_sys::ArrayBuffer>()
-                .byte_length() as u64;
+            let worker_memory_bytes = wasm_memory_bytes();
             let report = data::report(&loaded, &name);
             let preview = preview(&loaded);
             if let Some(b) = new_bytes {
@@ -316,10 +312,20 @@ fn fit(
         stop,
         tree_shape,
         fit_seconds,
+        worker_memory_bytes: wasm_memory_bytes(),
         notices: d.notices.clone(),
     };
     held.runs.push(Run { design, model });
     Ok(result)
+}
+
+/// The size of this worker's wasm memory (it only grows, so this is the peak so far).
+fn wasm_memory_bytes() -> u64 {
+    wasm_bindgen::memory()
+        .unchecked_into::<js_sys::WebAssembly::Memory>()
+        .buffer()
+        .unchecked_into::<js_sys::ArrayBuffer>()
+        .byte_length() as u64
 }
 
 fn main() {

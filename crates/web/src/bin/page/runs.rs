@@ -453,11 +453,12 @@ fn render_runs(p: &Page) {
         ]
         .join(" ");
         html += &format!(
-            "<tr class=\"{}\" data-oob=\"{}\" data-training=\"{}\" data-fit-seconds=\"{}\"><th scope=\"row\">{}{}</th><td>{}{extra}</td><td class=\"settings\">{}</td><td class=\"num\">{}</td><td class=\"num\">{oob}</td><td class=\"num\">{} <span class=\"unit\">{}</span></td><td class=\"num\">{}</td><td>{}</td></tr>",
+            "<tr class=\"{}\" data-oob=\"{}\" data-training=\"{}\" data-fit-seconds=\"{}\" data-worker-memory=\"{}\"><th scope=\"row\">{}{}</th><td>{}{extra}</td><td class=\"settings\">{}</td><td class=\"num\">{}</td><td class=\"num\">{oob}</td><td class=\"num\">{} <span class=\"unit\">{}</span></td><td class=\"num\">{}</td><td>{}</td></tr>",
             classes.trim(),
             res.oob_error.map_or(String::new(), |e| e.to_string()),
             res.training_error,
             res.fit_seconds,
+            res.worker_memory_bytes,
             i + 1,
             if r.stale { " <span class=\"flag\" title=\"fitted before the data or roles changed\">earlier data</span>" } else { "" },
             method_label(r.method),
