@@ -1,7 +1,8 @@
 // Page benchmark (prints figures, asserts nothing): page load to interactive with the wasm
 // cached, the wasm's compressed size, and fitting in the page's worker (wasm) against the
 // native command line on the same generated file: a 300-tree random forest and 200 rounds of
-// gradient boosting (31 leaves, learning rate 0.1, 255 bins), one thread each. Run after
+// gradient boosting (31 leaves, learning rate 0.1, 255 bins); the forest on one worker and on
+// as many as the machine offers (the page's worker count), native on one thread. Run after
 // `trunk build --offline --release` and `cargo build --release -p spinney-cli`:
 //   node tests/e2e/bench-page.mjs [ROWS]      (scripts/bench page [ROWS] does all three)
 import { chromium } from 'playwright-core';
@@ -74,24 +75,33 @@ try {
   await page.selectOption(`select[data-field=role][data-col="${names.indexOf('y')}"]`, 'outcome');
   await page.waitForSelector('#step-runs:not([hidden]) #run-start');
 
+  const most = await page.$$eval('#workers option', (o) => Math.max(...o.map((x) => Number(x.value))));
+  const forest = { method: 'forest', set: { trees: '300' }, cli: ['--method', 'forest', '--set', 'trees=300'] };
   const fits = [
-    { name: 'random forest, 300 trees', method: 'forest', set: { trees: '300' }, cli: ['--method', 'forest', '--set', 'trees=300'] },
+    { ...forest, name: 'random forest, 300 trees, 1 worker', workers: '1' },
+    // The first run on several workers starts them and reads the table into each.
+    { ...forest, name: `random forest, 300 trees, ${most} workers (first: starting them)`, workers: String(most) },
+    { ...forest, name: `random forest, 300 trees, ${most} workers`, workers: String(most) },
     { name: 'gradient boosting, 200 rounds, 31 leaves', method: 'boosting', set: { rounds: '200', leaves: '31', learning_rate: '0.1' },
       cli: ['--method', 'boosting', '--set', 'rounds=200', '--set', 'leaves=31', '--set', 'learning_rate=0.1'] },
   ];
   let done = 0;
+  const nativeSeconds = {};
   for (const f of fits) {
     await page.check(`input[name=method][value=${f.method}]`);
     for (const [k, v] of Object.entries(f.set)) await page.fill(`#set-${k}`, v);
+    if (f.workers) await page.selectOption('#workers', f.workers);
     await page.waitForFunction(() => !document.querySelector('#run-start').disabled);
     await page.click('#run-start');
     done += 1;
     await page.waitForSelector(`#step-runs[data-runs="${done}"]`, { timeout: 1800000 });
     const seconds = await page.$$eval('table.runs tbody tr', (r) => Number(r[r.length - 1].dataset.fitSeconds));
     const memory = await page.$$eval('table.runs tbody tr', (r) => Number(r[r.length - 1].dataset.workerMemory));
-    const nat = native(f.cli);
-    console.log(`${f.name}: page (wasm, one worker) ${seconds.toFixed(2)} s, native (1 thread) ${nat.toFixed(2)} s, ` +
-      `ratio ${(seconds / nat).toFixed(2)}; worker wasm memory after the fit ${(memory / 1e6).toFixed(0)} MB`);
+    const key = f.cli.join(' ');
+    nativeSeconds[key] ??= native(f.cli);
+    const nat = nativeSeconds[key];
+    console.log(`${f.name}: page ${seconds.toFixed(2)} s, native (1 thread) ${nat.toFixed(2)} s, ` +
+      `ratio ${(seconds / nat).toFixed(2)}; main worker wasm memory ${(memory / 1e6).toFixed(0)} MB`);
   }
 } finally {
   await browser.close();

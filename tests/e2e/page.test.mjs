@@ -195,6 +195,21 @@ try {
     await page.screenshot({ path: join(out, 'forest-run.png'), fullPage: true });
   });
 
+  await check('the same forest grown by one worker and by two is the same to the last digit', async () => {
+    const workers = await page.$$eval('#workers option', (o) => o.map((x) => x.value));
+    expect(workers.length >= 2, `workers offered: ${workers}`);
+    // The forest above was grown by the default number of workers (two on a two-thread
+    // machine); now by one.
+    await page.selectOption('#workers', '1');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 60000 });
+    const rows = await runRows();
+    expect(rows[1].oob === firstRun.oob && rows[1].training === firstRun.training,
+      `one worker: out-of-bag ${rows[1].oob}, training ${rows[1].training}; two: ${firstRun.oob}, ${firstRun.training}`);
+    console.log(`  50-tree forest: ${Number(firstRun.seconds).toFixed(2)} s on ${workers.length >= 2 ? 'two workers' : 'one'}, ${Number(rows[1].seconds).toFixed(2)} s on one`);
+    await page.selectOption('#workers', '2');
+  });
+
   await check('a 2,000-tree forest can be cancelled; the page answers and the runs stay', async () => {
     await page.fill('#set-trees', '2000');
     await page.click('#run-start');
@@ -213,16 +228,16 @@ try {
     await page.waitForSelector('#fit-status', { state: 'hidden', timeout: 1000 });
     expect(Date.now() - c0 < 1000, 'cancel took over 1 s');
     const rows = await runRows();
-    expect(rows.length === 1 && rows[0].oob === firstRun.oob, 'runs table changed by the cancel');
+    expect(rows.length === 2 && rows[0].oob === firstRun.oob, 'runs table changed by the cancel');
     expect(/Cancelled/.test(await page.textContent('#fit-message')), 'no word of the cancel');
     // The restarted worker has the table again: a small bagging run works.
     await page.check('input[name=method][value=bagging]');
     await page.fill('#set-trees', '10');
     await page.waitForFunction(() => !document.querySelector('#run-start').disabled && document.querySelector('#read-status').hidden);
     await page.click('#run-start');
-    await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 60000 });
+    await page.waitForSelector('#step-runs[data-runs="3"]', { timeout: 60000 });
     const after = await runRows();
-    expect(after[0].oob === firstRun.oob && /Bagging/.test(after[1].text), 'second run missing');
+    expect(after[0].oob === firstRun.oob && /Bagging/.test(after[2].text), 'bagging run missing');
   });
 
   await check('a gradient boosting run of 60 rounds is kept beside the others', async () => {
@@ -235,10 +250,10 @@ try {
     await page.fill('#set-learning_rate', '0.1');
     await page.waitForSelector('#err-learning_rate[hidden]', { state: 'attached' });
     await page.click('#run-start');
-    await page.waitForSelector('#step-runs[data-runs="3"]', { timeout: 60000 });
+    await page.waitForSelector('#step-runs[data-runs="4"]', { timeout: 60000 });
     const rows = await runRows();
-    expect(/Gradient boosting/.test(rows[2].text) && /rounds 60/.test(rows[2].text), rows[2].text);
-    expect(/ran every round/.test(rows[2].text), `no stopping words: ${rows[2].text}`);
+    expect(/Gradient boosting/.test(rows[3].text) && /rounds 60/.test(rows[3].text), rows[3].text);
+    expect(/ran every round/.test(rows[3].text), `no stopping words: ${rows[3].text}`);
   });
 
   await check('a design the core refuses gives its message in the step, and the runs stay', async () => {
@@ -249,7 +264,7 @@ try {
     const msg = await page.textContent('#fit-message');
     expect(msg.includes("the predictor 'patient_id' is free text or an identifier"), msg);
     expect(msg.includes('runs kept so far are unchanged'), msg);
-    expect((await runRows()).length === 3, 'runs lost after a refused fit');
+    expect((await runRows()).length === 4, 'runs lost after a refused fit');
     await page.selectOption('select[data-field=role][data-col="0"]', 'group');
     // Putting the role back still counts as a change: the earlier runs are now marked.
     await page.waitForSelector('#runs-stale:not([hidden])');
@@ -260,7 +275,7 @@ try {
     await page.selectOption(`select[data-field=role][data-col="${names.indexOf('bmi')}"]`, 'ignore');
     await page.waitForSelector('#runs-stale:not([hidden])');
     const rows = await runRows();
-    expect(rows.length === 3 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
+    expect(rows.length === 4 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
     await page.locator('#step-runs').screenshot({ path: join(out, 'runs-step.png') });
     await page.screenshot({ path: join(out, 'runs-stale.png'), fullPage: true });
   });

@@ -19,6 +19,8 @@ use wasm_bindgen_futures::{spawn_local, JsFuture};
 // it for another binary).
 #[path = "page/measured.rs"]
 mod measured;
+#[path = "page/pool.rs"]
+mod pool;
 #[path = "page/runs.rs"]
 mod runs;
 
@@ -98,6 +100,8 @@ struct Page {
     roles: Vec<Role>,
     /// The model-runs step.
     fits: runs::Fits,
+    /// Extra workers growing shares of a forest.
+    pool: pool::Pool,
 }
 
 type Shared = Rc<RefCell<Page>>;
@@ -313,6 +317,8 @@ fn on_reply(page: &Shared, reply: Reply) {
             render_columns(&p);
         }
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
+        // Shares of a forest come from the extra workers (see pool.rs), not this one.
+        Reply::Part { .. } => {}
         Reply::Failed {
             id,
             message,
@@ -397,34 +403,40 @@ fn start_read(
     );
 }
 
+/// The file's name and bytes, from the file the user chose or the demo file on this page's
+/// own folder; the message to show when they cannot be had.
+async fn fetch_origin(origin: &Origin) -> Result<(String, Uint8Array), String> {
+    let (name, buffer) = match origin {
+        Origin::File(file) => (file.name(), JsFuture::from(file.array_buffer()).await),
+        Origin::Demo(path) => {
+            let name = path.rsplit('/').next().unwrap_or(path).to_string();
+            let window = web_sys::window().expect("window");
+            let response = match JsFuture::from(window.fetch_with_str(path)).await {
+                Ok(r) => r.unchecked_into::<web_sys::Response>(),
+                Err(_) => {
+                    return Err(format!(
+                        "The demo file {name} could not be loaded from this page's own folder."
+                    ))
+                }
+            };
+            match response.array_buffer() {
+                Ok(promise) => (name, JsFuture::from(promise).await),
+                Err(e) => (name, Err(e)),
+            }
+        }
+    };
+    match buffer {
+        Ok(buffer) => Ok((name, Uint8Array::new(&buffer))),
+        Err(_) => Err(format!("{name} could not be opened by the browser. Check that the file still exists and you may read it.")),
+    }
+}
+
 fn load_origin(page: &Shared, origin: Origin, settings: ReadSettings, restoring: bool) {
     let page = page.clone();
     spawn_local(async move {
-        let doc = page.borrow().doc.clone();
-        let (name, buffer) = match &origin {
-            Origin::File(file) => (file.name(), JsFuture::from(file.array_buffer()).await),
-            Origin::Demo(path) => {
-                let name = path.rsplit('/').next().unwrap_or(path).to_string();
-                let window = web_sys::window().expect("window");
-                let response = match JsFuture::from(window.fetch_with_str(path)).await {
-                    Ok(r) => r.unchecked_into::<web_sys::Response>(),
-                    Err(_) => {
-                        show_message(&doc, &format!("The demo file {name} could not be loaded from this page's own folder."), true);
-                        return;
-                    }
-                };
-                match response.array_buffer() {
-                    Ok(promise) => (name, JsFuture::from(promise).await),
-                    Err(e) => (name, Err(e)),
-                }
-            }
-        };
-        match buffer {
-            Ok(buffer) => {
-                let bytes = Uint8Array::new(&buffer);
-                start_read(&page, origin, name, bytes, settings, restoring);
-            }
-            Err(_) => show_message(&doc, &format!("{name} could not be opened by the browser. Check that the file still exists and you may read it."), true),
+        match fetch_origin(&origin).await {
+            Ok((name, bytes)) => start_read(&page, origin, name, bytes, settings, restoring),
+            Err(message) => show_message(&page.borrow().doc, &message, true),
         }
     });
 }
@@ -466,6 +478,7 @@ fn cancel(page: &Shared, note: &str) {
         p.pending_origin = None;
         p.fits.in_flight = None;
         p.fits.forget_models();
+        p.pool.stop();
         reading_done(&p.doc);
         runs::fit_done(&p.doc);
         show_message(&p.doc, note, false);
@@ -891,6 +904,7 @@ fn main() {
         settings: ReadSettings::default(),
         roles: Vec::new(),
         fits: runs::Fits::default(),
+        pool: pool::Pool::default(),
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;

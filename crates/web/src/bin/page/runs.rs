@@ -54,6 +54,8 @@ pub struct Fits {
     typed: HashMap<(&'static str, &'static str), String>,
     /// The run whose curves the chart shows.
     charted: Option<usize>,
+    /// Workers to grow a forest's trees on (`None`: the default for this machine).
+    workers: Option<usize>,
 }
 
 impl Fits {
@@ -74,6 +76,19 @@ impl Fits {
     fn method(&self) -> FitMethod {
         self.method.unwrap_or(FitMethod::Forest)
     }
+
+    /// Workers for bagging and forests: the user's choice, else up to 4 of the machine's
+    /// threads.
+    fn workers(&self) -> usize {
+        self.workers.unwrap_or_else(|| max_workers().min(4))
+    }
+}
+
+/// The machine's threads as the browser reports them (at most 8 are offered).
+fn max_workers() -> usize {
+    web_sys::window()
+        .map_or(1.0_f64, |w| w.navigator().hardware_concurrency())
+        .clamp(1.0, 8.0) as usize
 }
 
 /// A setting in the form.
@@ -357,6 +372,20 @@ fn render_form(p: &Page) {
             n = f.name
         );
     }
+    if matches!(method, FitMethod::Forest | FitMethod::Bagging) {
+        let chosen = p.fits.workers();
+        let options: String = (1..=max_workers())
+            .map(|n| {
+                format!(
+                    "<option value=\"{n}\"{}>{n}</option>",
+                    if n == chosen { " selected" } else { "" }
+                )
+            })
+            .collect();
+        html += &format!(
+            "<label class=\"field\"><span class=\"name\">Workers</span><select id=\"workers\" aria-describedby=\"help-workers\">{options}</select><span class=\"help\" id=\"help-workers\">Browser threads growing trees at the same time; each holds its own copy of the table. The forest is the same whatever the number.</span></label>"
+        );
+    }
     html += "</div><p class=\"run-line\"><button type=\"button\" id=\"run-start\" class=\"button primary\">Grow this model</button> <span id=\"run-hint\" class=\"hint\"></span></p>";
     set_html(&p.doc, "run-form", &html);
     check_form(p);
@@ -606,7 +635,7 @@ fn numbers_table(chart: &ErrorChart, res: &RunResult) -> String {
 
 // ---------------------------------------------------------------------------- fitting
 
-fn now() -> f64 {
+pub fn now() -> f64 {
     web_sys::window()
         .and_then(|w| w.performance())
         .map_or(0.0, |p| p.now())
@@ -647,15 +676,42 @@ fn start(page: &Shared) {
         by_id(&p.doc, "fit-time").set_text_content(Some("starting"));
         show(&p.doc, "fit-status", true);
         check_form(&p);
-        Request::Fit {
-            v: PROTOCOL_VERSION,
-            id,
-            design,
-            method: method.word().to_string(),
-            settings,
+        let trees = defaults(&p, method)
+            .and_then(Result::ok)
+            .and_then(|mut d| {
+                settings
+                    .iter()
+                    .try_for_each(|(n, v)| d.apply(n, v))
+                    .ok()
+                    .map(|_| d.forest.trees)
+            })
+            .unwrap_or(0);
+        let workers = p.fits.workers();
+        if matches!(method, FitMethod::Forest | FitMethod::Bagging) && workers > 1 && trees > 1 {
+            Err((
+                id,
+                design,
+                method.word().to_string(),
+                settings,
+                trees,
+                workers,
+            ))
+        } else {
+            Ok(Request::Fit {
+                v: PROTOCOL_VERSION,
+                id,
+                design,
+                method: method.word().to_string(),
+                settings,
+            })
         }
     };
-    send(page, request, None);
+    match request {
+        Ok(request) => send(page, request, None),
+        Err((id, design, method, settings, trees, workers)) => {
+            super::pool::start(page, id, design, method, settings, trees, workers)
+        }
+    }
 }
 
 /// Progress of the fit in flight: the bar, members done, elapsed and remaining time.
@@ -664,7 +720,7 @@ pub fn progress(p: &Page, done: u64, total: u64) {
     let share = done as f64 / total.max(1) as f64;
     let _ = by_id(&p.doc, "fit-progress").set_attribute("value", &format!("{share:.3}"));
     let elapsed = (now() - f.started) / 1000.0;
-    let unit = if f.method == FitMethod::AdaBoost {
+    let unit = if matches!(f.method, FitMethod::AdaBoost | FitMethod::Boosting) {
         "rounds"
     } else {
         "trees"
@@ -688,11 +744,16 @@ pub fn fit_done(doc: &Document) {
 }
 
 /// A fit finished: keep it as a run and chart it.
-pub fn fitted(page: &Shared, id: u32, result: RunResult) {
+pub fn fitted(page: &Shared, id: u32, mut result: RunResult) {
     let mut p = page.borrow_mut();
     let Some(f) = p.fits.in_flight.take_if(|f| f.id == id) else {
         return;
     };
+    // Grown by several workers: the time from the shares sent to the last one back, plus
+    // the main worker's tally.
+    if let Some(shares) = p.pool.seconds(id) {
+        result.fit_seconds += shares;
+    }
     fit_done(&p.doc);
     p.fits.runs.push(RunView {
         result,
@@ -754,6 +815,10 @@ fn on_form(page: &Shared, event: Event) {
             let value = target.unchecked_ref::<HtmlInputElement>().value();
             p.fits.typed.insert((method.word(), f.name), value);
             check_form(&p);
+        }
+        "change" if target.id() == "workers" => {
+            let value = target.unchecked_ref::<web_sys::HtmlSelectElement>().value();
+            page.borrow_mut().fits.workers = value.parse().ok();
         }
         "click" if target.id() == "run-start" => start(page),
         _ => {}
