@@ -4,7 +4,8 @@
 // demo records, override a kind, grow a random forest on the demo records and see its run,
 // out-of-bag error and chart, cancel a long forest while the page stays responsive, see runs
 // marked stale when the roles change, read a large file while the page stays responsive, and
-// check that the page asked nothing of any other origin. Screenshots go to tests/out/e2e/.
+// check that the page asked nothing of any other origin; while models train, no main-thread
+// task may last over 200 ms (PerformanceObserver 'longtask'). Screenshots go to tests/out/e2e/.
 //
 // Runs with playwright-core and Debian's Chromium (/usr/bin/chromium); no browser download.
 //   node tests/e2e/page.test.mjs        (after `trunk build`; scripts/test does both)
@@ -44,6 +45,13 @@ const browser = await chromium.launch({
   // playwright gives every launch a fresh temporary profile (the --user-data-dir of toolchain.md).
 });
 const context = await browser.newContext({ viewport: { width: 1400, height: 1000 } });
+// Long tasks of the page's main thread (over 50 ms each, as the browser reports them).
+await context.addInitScript(() => {
+  window.__longTasks = [];
+  new PerformanceObserver((list) => {
+    for (const e of list.getEntries()) window.__longTasks.push({ start: e.startTime, duration: e.duration });
+  }).observe({ entryTypes: ['longtask'] });
+});
 const page = await context.newPage();
 const requests = [];
 const consoleErrors = [];
@@ -52,6 +60,10 @@ page.on('request', (r) => requests.push(r.url()));
 page.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
 page.on('pageerror', (e) => consoleErrors.push(String(e)));
 
+const mainThreadNow = () => page.evaluate(() => performance.now());
+// The longest main-thread task that began between two performance.now() readings.
+const longestTask = (from, to) => page.evaluate(([a, b]) => Math.max(0, ...window.__longTasks
+  .filter((t) => t.start >= a && t.start <= b).map((t) => t.duration)), [from, to]);
 const kindsShown = () => page.$$eval('select[data-field=kind]', (s) => s.map((x) => x.value));
 const namesShown = () => page.$$eval('table.columns tbody th[scope=row]', (s) => s.map((x) => x.textContent));
 
@@ -167,12 +179,23 @@ try {
     expect(!(await page.$eval('#run-start', (b) => b.disabled)), 'Run stays disabled');
   });
 
+  await check('the long-task watch sees a deliberate 250 ms task (so its silence below means something)', async () => {
+    const t0 = await mainThreadNow();
+    await page.evaluate(() => setTimeout(() => { const t = performance.now(); while (performance.now() - t < 250) { /* busy */ } }, 0));
+    await page.waitForTimeout(600);
+    const longest = await longestTask(t0, await mainThreadNow());
+    expect(longest >= 250, `the watch saw ${longest} ms`);
+  });
+
   let firstRun;
   await check('a random forest of 50 trees is grown and kept as a run, with its chart', async () => {
     await page.check('input[name=method][value=forest]');
     await page.fill('#set-trees', '50');
+    const t0 = await mainThreadNow();
     await page.click('#run-start');
     await page.waitForSelector('#step-runs[data-runs="1"]', { timeout: 60000 });
+    const longest = await longestTask(t0, await mainThreadNow());
+    expect(longest <= 200, `the main thread was busy ${longest} ms at once while the forest grew`);
     const rows = await runRows();
     expect(rows.length === 1, `${rows.length} runs`);
     firstRun = rows[0];
@@ -249,8 +272,11 @@ try {
     await page.waitForSelector('#err-learning_rate:not([hidden])');
     await page.fill('#set-learning_rate', '0.1');
     await page.waitForSelector('#err-learning_rate[hidden]', { state: 'attached' });
+    const t0 = await mainThreadNow();
     await page.click('#run-start');
     await page.waitForSelector('#step-runs[data-runs="4"]', { timeout: 60000 });
+    const longest = await longestTask(t0, await mainThreadNow());
+    expect(longest <= 200, `the main thread was busy ${longest} ms at once while boosting ran`);
     const rows = await runRows();
     expect(/Gradient boosting/.test(rows[3].text) && /rounds 60/.test(rows[3].text), rows[3].text);
     expect(/ran every round/.test(rows[3].text), `no stopping words: ${rows[3].text}`);
