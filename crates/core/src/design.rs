@@ -37,6 +37,17 @@ impl Outcome {
     pub fn is_empty(&self) -> bool {
         self.len() == 0
     }
+
+    /// The outcome of `rows` only (indices, in that order; repeats allowed).
+    pub fn select(&self, rows: &[usize]) -> Outcome {
+        match self {
+            Outcome::Classes { codes, labels } => Outcome::Classes {
+                codes: rows.iter().map(|&r| codes[r]).collect(),
+                labels: labels.clone(),
+            },
+            Outcome::Numbers(v) => Outcome::Numbers(rows.iter().map(|&r| v[r]).collect()),
+        }
+    }
 }
 
 /// A predictor's values over the used rows.
@@ -112,6 +123,40 @@ impl Design {
                     .collect(),
                 2,
             ),
+        }
+    }
+}
+
+impl Design {
+    /// The design of `rows` only (indices into this design's rows, in that order; repeats
+    /// allowed, as a bootstrap sample has them). Validation fits each fold on such a subset,
+    /// so binning and everything else learnt from the rows sees the training part only.
+    pub fn select_rows(&self, rows: &[usize]) -> Design {
+        let pick_f = |v: &[f64]| rows.iter().map(|&r| v[r]).collect::<Vec<f64>>();
+        let pick_u = |v: &[u32]| rows.iter().map(|&r| v[r]).collect::<Vec<u32>>();
+        Design {
+            outcome_name: self.outcome_name.clone(),
+            outcome: self.outcome.select(rows),
+            predictors: self
+                .predictors
+                .iter()
+                .map(|p| Predictor {
+                    name: p.name.clone(),
+                    kind: p.kind,
+                    values: match &p.values {
+                        PredictorValues::Numbers(v) => PredictorValues::Numbers(pick_f(v)),
+                        PredictorValues::Levels { codes, levels } => PredictorValues::Levels {
+                            codes: pick_u(codes),
+                            levels: levels.clone(),
+                        },
+                    },
+                    yes_no_labels: p.yes_no_labels.clone(),
+                })
+                .collect(),
+            weights: self.weights.as_deref().map(pick_f),
+            groups: self.groups.as_deref().map(pick_u),
+            rows: rows.iter().map(|&r| self.rows[r]).collect(),
+            notices: Vec::new(),
         }
     }
 }

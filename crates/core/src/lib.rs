@@ -8,7 +8,7 @@
 //! ensembles built on them ([`ensemble`]), the fitted model of any method ([`model`]) and its
 //! file ([`model_file`]); and the means of judging a model: validation figures over plain
 //! slices of outcomes and predictions ([`metrics`]) and the baseline models to compare
-//! against ([`baseline`]).
+//! against ([`baseline`]), and honest validation by held-out rows ([`validate`]).
 
 pub mod baseline;
 pub mod binning;
@@ -25,6 +25,7 @@ pub mod progress;
 pub mod random;
 pub mod settings;
 pub mod tree;
+pub mod validate;
 
 pub use error::{Error, ErrorKind, Where};
 

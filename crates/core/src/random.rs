@@ -22,6 +22,11 @@ pub enum Purpose {
     /// The rows of bootstrap resample `index` of a metric's percentile interval
     /// (metrics::intervals).
     MetricResample = 8,
+    /// The order rows are dealt into validation folds (repeat `index`), the rows held out
+    /// (`index` 0), and the order groups are placed in grouped folds (`index` 0).
+    FoldRows = 9,
+    /// The rows of bootstrap resample `index` of bootstrap validation (optimism correction).
+    ValidationResample = 10,
 }
 
 /// The stream for (`seed`, `purpose`, `index`).

@@ -98,7 +98,7 @@ pub fn summarise(table: &Table) -> Vec<ColumnSummary> {
         .collect()
 }
 
-fn looks_like_id_name(name: &str) -> bool {
+pub(crate) fn looks_like_id_name(name: &str) -> bool {
     let lower = name.to_ascii_lowercase();
     let words: Vec<&str> = lower
         .split(|c: char| !c.is_ascii_alphanumeric())

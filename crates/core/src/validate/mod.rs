@@ -1,0 +1,738 @@
+//! Honest validation: how a model would do on rows it has not seen. A scheme ([`Scheme`])
+//! splits the design's rows ([`folds`]); each split's model is fitted by
+//! [`crate::fit::fit_design`] on its training rows only (so the bins, too, are learnt from
+//! them) and predicts its held-out rows. The out-of-sample predictions of every row are
+//! pooled and judged ([`judge`]), each split's own figures kept, and the error by ensemble
+//! size averaged over the splits. [`warnings`] says what the figures cannot show.
+//!
+//! Out-of-bag (bagging, forests) fits once and takes each row's prediction from the trees
+//! that did not see it. Bootstrap validation reports the optimism-corrected figures of
+//! Harrell, Lee & Mark (Stat Med 1996;15:361–387): the apparent figure of a fit on all rows
+//! minus the mean optimism, where a resample's optimism is its model's figure on its own
+//! resample minus that on the original rows. Its curves come from each row's predictions by
+//! the models whose resample left it out.
+//!
+//! The splits are fitted one after another here (the core has no threads); a caller with
+//! threads passes a [`FoldRunner`] that runs the independent jobs as it likes and gets the
+//! same result (each job depends only on its split and the seed).
+
+pub mod folds;
+pub mod judge;
+pub mod warnings;
+
+pub use folds::{splits, Scheme, Split};
+pub use judge::{figures, judge, Estimate, Figures, JudgeSettings, Judged};
+
+use crate::baseline;
+use crate::binning::{BinnedColumn, Records};
+use crate::design::{Design, Outcome, PredictorValues};
+use crate::error::{Error, ErrorKind, Result};
+use crate::fit::{fit_design, FitOptions};
+use crate::model::{Ensemble, Method, Model};
+use crate::progress::{Flow, Progress};
+use crate::settings::FitSettings;
+use crate::tree::Rows;
+
+/// What to validate, and how to judge it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Plan {
+    pub scheme: Scheme,
+    /// Seeds the splits (the model's own seed is in its settings).
+    pub seed: u64,
+    /// Two classes: a row is called an event at or above this probability.
+    pub threshold: f64,
+    /// Bootstrap resamples of the pooled predictions for intervals (0: none).
+    pub resamples: usize,
+    /// Fit the baseline (L2 logistic or ridge regression) on the same splits.
+    pub baseline: bool,
+}
+
+/// What one split's fit gave.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FoldRun {
+    /// Predictions of the split's test rows, `outputs` per row, in its order.
+    pub predictions: Vec<f64>,
+    pub baseline: Option<Vec<f64>>,
+    /// Error after each member on the out-of-sample test rows (error rate, or mean squared
+    /// error); None for a single tree.
+    pub error_by_size: Option<Vec<f64>>,
+    /// The same on the split's training rows (apparent, not a validation).
+    pub training_error_by_size: Option<Vec<f64>>,
+    /// Figures on the test rows.
+    pub figures: Figures,
+    pub baseline_figures: Option<Figures>,
+    /// Bootstrap: figures of the resample's model on its own resample (apparent).
+    pub apparent: Option<Figures>,
+    pub baseline_apparent: Option<Figures>,
+    /// Trees or rounds fitted.
+    pub members: usize,
+}
+
+/// One split's figures, as reported.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct FoldFigures {
+    pub repeat: usize,
+    pub fold: usize,
+    pub train_rows: usize,
+    pub test_rows: usize,
+    pub members: usize,
+    pub figures: Figures,
+    pub baseline: Option<Figures>,
+}
+
+/// The result of a validation.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Validation {
+    pub scheme: String,
+    pub seed: u64,
+    pub rows: usize,
+    /// Rows with an out-of-sample prediction (all but holdout's training rows and, out of
+    /// bag, rows every tree saw).
+    pub judged_rows: usize,
+    /// The model's out-of-sample figures with intervals, and curves. For bootstrap
+    /// validation the figures are optimism-corrected (no intervals).
+    pub model: Judged,
+    pub baseline: Option<Judged>,
+    /// Bootstrap validation: the apparent figures (a fit on all rows judged on those same
+    /// rows; NOT a validation) and the mean optimism subtracted from them.
+    pub apparent: Option<Figures>,
+    pub optimism: Option<Figures>,
+    pub baseline_apparent: Option<Figures>,
+    pub baseline_optimism: Option<Figures>,
+    /// Each split's figures on its test rows.
+    pub folds: Vec<FoldFigures>,
+    /// Out-of-sample error after 1, 2, ... members (mean over the splits weighted by their
+    /// rows; out-of-bag error for oob).
+    pub error_by_size: Option<Vec<f64>>,
+    /// Training error after 1, 2, ... members (apparent; for comparison only).
+    pub training_error_by_size: Option<Vec<f64>>,
+    /// What was done that the figures depend on.
+    pub notes: Vec<String>,
+    /// Every row's out-of-sample prediction (`outputs` per row; the mean over repeats or
+    /// resamples; NaN where there is none).
+    #[serde(skip)]
+    pub predictions: Vec<f64>,
+    #[serde(skip)]
+    pub baseline_predictions: Option<Vec<f64>>,
+    /// Every row's fold (0-based) in the first repeat; None where it was never held out.
+    #[serde(skip)]
+    pub fold_of_row: Vec<Option<u32>>,
+    pub outputs: usize,
+}
+
+/// A split's fitting job: `(split index, fit options, progress)`.
+pub type FoldJob<'a> = dyn Fn(usize, FitOptions<'_>, &mut dyn Progress) -> Result<FoldRun> + Sync + 'a;
+
+/// Runs `count` jobs and returns their results in index order; [`run_in_order`] runs them
+/// one after another, the command line on threads.
+pub type FoldRunner<'a> =
+    &'a dyn Fn(usize, &FoldJob<'_>, &mut dyn Progress) -> Result<Vec<FoldRun>>;
+
+/// Reports a split's own progress as "fit i/n: stage" and passes a stop on.
+pub struct InSplit<'a> {
+    pub outer: &'a mut dyn Progress,
+    pub index: usize,
+    pub count: usize,
+}
+
+impl Progress for InSplit<'_> {
+    fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
+        let label = format!("fit {}/{}: {stage}", self.index + 1, self.count);
+        self.outer.step(&label, done, total)
+    }
+}
+
+fn cancelled() -> Error {
+    Error::new(ErrorKind::Cancelled)
+}
+
+/// Runs the jobs one after another, stopping when `progress` asks.
+pub fn run_in_order(
+    count: usize,
+    job: &FoldJob<'_>,
+    progress: &mut dyn Progress,
+) -> Result<Vec<FoldRun>> {
+    let mut out = Vec::with_capacity(count);
+    for i in 0..count {
+        if progress.step("fits", i as u64, count as u64) == Flow::Stop {
+            return Err(cancelled());
+        }
+        let mut inner = InSplit {
+            outer: &mut *progress,
+            index: i,
+            count,
+        };
+        out.push(job(i, FitOptions::default(), &mut inner)?);
+    }
+    progress.step("fits", count as u64, count as u64);
+    Ok(out)
+}
+
+/// The baseline's view of a design's predictors.
+fn baseline_columns(design: &Design) -> Vec<baseline::Column<'_>> {
+    design
+        .predictors
+        .iter()
+        .map(|p| baseline::Column {
+            name: &p.name,
+            values: match &p.values {
+                PredictorValues::Numbers(v) => baseline::ColumnValues::Numbers(v),
+                PredictorValues::Levels { codes, levels } => baseline::ColumnValues::Categories {
+                    codes,
+                    labels: levels,
+                },
+            },
+        })
+        .collect()
+}
+
+/// Penalty of the baseline: C = 1 for logistic regression and α = 1 for ridge, the
+/// defaults of scikit-learn's LogisticRegression and Ridge (common practice, no source).
+const BASELINE_PENALTY: f64 = 1.0;
+
+/// Fits the baseline on `train` and predicts `test` and `train`.
+fn fit_baseline(train: &Design, test: &Design) -> Result<(Vec<f64>, Vec<f64>)> {
+    let cols = baseline_columns(train);
+    let test_cols = baseline_columns(test);
+    match &train.outcome {
+        Outcome::Classes { codes, labels } => {
+            let m = baseline::fit_logistic(
+                &cols,
+                codes,
+                labels.len(),
+                train.weights.as_deref(),
+                BASELINE_PENALTY,
+            )?;
+            Ok((m.predict(&test_cols)?, m.predict(&cols)?))
+        }
+        Outcome::Numbers(y) => {
+            let m = baseline::fit_ridge(&cols, y, train.weights.as_deref(), BASELINE_PENALTY)?;
+            Ok((m.predict(&test_cols)?, m.predict(&cols)?))
+        }
+    }
+}
+
+/// New records of `design`'s rows read by the bins of a model fitted on other rows:
+/// numbers as they are, categories by their training bin (levels the training rows never
+/// had go to the pooled bin), as [`crate::model::read_records`] reads a new file.
+pub fn records_of(design: &Design, columns: &[BinnedColumn]) -> Records {
+    let n = design.outcome.len();
+    let mut values = Vec::with_capacity(n * columns.len());
+    for (p, c) in design.predictors.iter().zip(columns) {
+        match &p.values {
+            PredictorValues::Numbers(v) => values.extend_from_slice(v),
+            PredictorValues::Levels { codes, .. } => values.extend(
+                codes
+                    .iter()
+                    .map(|&code| c.rule.bin_of_level(code).map_or(f64::NAN, |b| b as f64)),
+            ),
+        }
+    }
+    Records::from_columns(n, values)
+}
+
+fn predict_all(model: &Model, rows: Rows<'_>) -> Vec<f64> {
+    let k = model.outputs();
+    let mut out = vec![0.0; rows.len() * k];
+    for (r, o) in out.chunks_exact_mut(k).enumerate() {
+        model.predict(rows, r, o);
+    }
+    out
+}
+
+/// Fits `split`'s training rows and predicts its test rows.
+pub fn run_split(
+    design: &Design,
+    settings: &FitSettings,
+    plan: &Plan,
+    split: &Split,
+    options: FitOptions<'_>,
+    progress: &mut dyn Progress,
+) -> Result<FoldRun> {
+    let train = design.select_rows(&split.train);
+    let test = design.select_rows(&split.test);
+    let bootstrap = matches!(plan.scheme, Scheme::Bootstrap { .. });
+    let (baseline, baseline_train) = if plan.baseline {
+        let (t, a) = fit_baseline(&train, &test)?;
+        (Some(t), Some(a))
+    } else {
+        (None, None)
+    };
+    let fitted = fit_design(train, settings, None, options, progress)?;
+    if fitted.model.partial {
+        return Err(cancelled());
+    }
+    let model = &fitted.model;
+    let records = records_of(&test, &fitted.binned.columns);
+    let predictions = predict_all(model, Rows::Records(&records));
+    // The out-of-sample test rows (all but a bootstrap resample's own rows).
+    let error_by_size = if split.out_of_sample.iter().all(|&o| o) {
+        model.staged_errors(Rows::Records(&records), &test.outcome)
+    } else {
+        let keep: Vec<usize> = (0..split.test.len())
+            .filter(|&i| split.out_of_sample[i])
+            .collect();
+        let held = test.select_rows(&keep);
+        model.staged_errors(Rows::Records(&records.select_rows(&keep)), &held.outcome)
+    };
+    let training_error_by_size =
+        model.staged_errors(Rows::Binned(&fitted.binned), &fitted.design.outcome);
+    let apparent = bootstrap.then(|| {
+        let p = predict_all(model, Rows::Binned(&fitted.binned));
+        figures(&fitted.design.outcome, &p, plan.threshold)
+    });
+    Ok(FoldRun {
+        figures: figures(&test.outcome, &predictions, plan.threshold),
+        baseline_figures: baseline
+            .as_ref()
+            .map(|b| figures(&test.outcome, b, plan.threshold)),
+        baseline_apparent: baseline_train
+            .as_ref()
+            .filter(|_| bootstrap)
+            .map(|b| figures(&fitted.design.outcome, b, plan.threshold)),
+        apparent,
+        predictions,
+        baseline,
+        error_by_size,
+        training_error_by_size,
+        members: model.members(),
+    })
+}
+
+/// Mean of curves of different lengths, each weighted; a shorter curve (a boosting run that
+/// stopped early) keeps its last value.
+fn mean_curve(curves: &[(Vec<f64>, f64)]) -> Option<Vec<f64>> {
+    let len = curves.iter().map(|(c, _)| c.len()).max()?;
+    let total: f64 = curves.iter().map(|(_, w)| w).sum();
+    if len == 0 || total <= 0.0 {
+        return None;
+    }
+    Some(
+        (0..len)
+            .map(|i| {
+                curves
+                    .iter()
+                    .map(|(c, w)| w * c.get(i).or(c.last()).copied().unwrap_or(f64::NAN))
+                    .sum::<f64>()
+                    / total
+            })
+            .collect(),
+    )
+}
+
+/// Pools per-split predictions into each row's mean out-of-sample prediction.
+fn pool(
+    n: usize,
+    outputs: usize,
+    splits: &[Split],
+    predictions: impl Fn(usize) -> Option<Vec<f64>>,
+) -> Option<Vec<f64>> {
+    let mut sums = vec![0.0; n * outputs];
+    let mut counts = vec![0u32; n];
+    for (i, split) in splits.iter().enumerate() {
+        let p = predictions(i)?;
+        for (pos, &r) in split.test.iter().enumerate() {
+            if split.out_of_sample[pos] {
+                counts[r] += 1;
+                for k in 0..outputs {
+                    sums[r * outputs + k] += p[pos * outputs + k];
+                }
+            }
+        }
+    }
+    for (r, &c) in counts.iter().enumerate() {
+        for k in 0..outputs {
+            let s = &mut sums[r * outputs + k];
+            *s = if c == 0 { f64::NAN } else { *s / c as f64 };
+        }
+    }
+    Some(sums)
+}
+
+/// Judges the rows that have a prediction.
+fn judge_pooled(design: &Design, pooled: &[f64], outputs: usize, plan: &Plan) -> Judged {
+    let keep: Vec<usize> = (0..design.outcome.len())
+        .filter(|&r| !pooled[r * outputs].is_nan())
+        .collect();
+    let sub = design.outcome.select(&keep);
+    let p: Vec<f64> = keep
+        .iter()
+        .flat_map(|&r| pooled[r * outputs..(r + 1) * outputs].iter().copied())
+        .collect();
+    judge(
+        &sub,
+        &p,
+        &JudgeSettings {
+            threshold: plan.threshold,
+            resamples: plan.resamples,
+            seed: plan.seed,
+        },
+    )
+}
+
+/// Harrell's optimism: mean over resamples of (apparent on the resample − on all rows).
+fn optimism(pairs: &[(&Figures, &Figures)]) -> Figures {
+    let mut out = Figures::new();
+    if let Some((first, _)) = pairs.first() {
+        for name in first.keys() {
+            let d: Vec<f64> = pairs
+                .iter()
+                .filter_map(|(a, t)| Some(a.get(name)? - t.get(name)?))
+                .collect();
+            if !d.is_empty() {
+                out.insert(name.clone(), d.iter().sum::<f64>() / d.len() as f64);
+            }
+        }
+    }
+    out
+}
+
+/// Replaces each figure by apparent − optimism (no interval).
+fn correct(judged: &mut Judged, apparent: &Figures, optimism: &Figures) {
+    judged.metrics = apparent
+        .iter()
+        .filter_map(|(name, a)| {
+            let o = optimism.get(name)?;
+            Some((name.clone(), Estimate::bare(a - o)))
+        })
+        .collect();
+}
+
+/// Validates `settings` on `design` by `plan`. `options` serve the fits on every row
+/// (out-of-bag, bootstrap's apparent fit); `runner` runs the splits (default: in order).
+pub fn validate(
+    design: &Design,
+    settings: &FitSettings,
+    plan: &Plan,
+    options: FitOptions<'_>,
+    runner: Option<FoldRunner<'_>>,
+    progress: &mut dyn Progress,
+) -> Result<Validation> {
+    if !(plan.threshold > 0.0 && plan.threshold < 1.0) {
+        return Err(Error::new(ErrorKind::BadSetting {
+            setting: "threshold".into(),
+            reason: format!(
+                "{} is outside (0, 1); give the probability from which a row is called an \
+                 event, e.g. 0.5",
+                plan.threshold
+            ),
+        }));
+    }
+    let n = design.outcome.len();
+    let outputs = match &design.outcome {
+        Outcome::Classes { labels, .. } => labels.len(),
+        Outcome::Numbers(_) => 1,
+    };
+    let mut notes = Vec::new();
+    let run_splits = |splits: &[Split], plan: &Plan, progress: &mut dyn Progress| {
+        let job = |i: usize, options: FitOptions<'_>, progress: &mut dyn Progress| {
+            run_split(design, settings, plan, &splits[i], options, progress)
+        };
+        match runner {
+            Some(r) => r(splits.len(), &job, progress),
+            None => run_in_order(splits.len(), &job, progress),
+        }
+    };
+    if plan.scheme == Scheme::OutOfBag {
+        if !matches!(settings.method, Method::Bagging | Method::Forest) {
+            return Err(Error::new(ErrorKind::BadSetting {
+                setting: "validate".into(),
+                reason: format!(
+                    "oob: only bagging and forests leave rows out of each tree; {} does not. \
+                     Use folds:10",
+                    settings.method.word()
+                ),
+            }));
+        }
+        let fitted = fit_design(design.clone(), settings, None, options, progress)?;
+        if fitted.model.partial {
+            return Err(cancelled());
+        }
+        let Ensemble::Forest(forest) = &fitted.model.ensemble else {
+            return Err(cancelled());
+        };
+        let model = judge_pooled(design, &forest.oob_prediction, outputs, plan);
+        let judged_rows = model.rows;
+        notes.push(format!(
+            "each row judged by the trees whose bootstrap left it out ({:.1}% of (tree, row) \
+             pairs)",
+            100.0 * forest.oob_share
+        ));
+        let (baseline, baseline_predictions) = if plan.baseline {
+            // A logistic or ridge model has no out-of-bag rows: 10 stratified folds.
+            let scheme = Scheme::Folds { k: 10, repeats: 1 };
+            let s = splits(design, &scheme, plan.seed)?;
+            let mut pooled = vec![f64::NAN; n * outputs];
+            for split in &s {
+                let (p, _) = fit_baseline(&design.select_rows(&split.train), &design.select_rows(&split.test))?;
+                for (pos, &r) in split.test.iter().enumerate() {
+                    pooled[r * outputs..(r + 1) * outputs]
+                        .copy_from_slice(&p[pos * outputs..(pos + 1) * outputs]);
+                }
+            }
+            notes.push("the baseline, having no out-of-bag rows, is judged by 10 stratified folds".into());
+            (Some(judge_pooled(design, &pooled, outputs, plan)), Some(pooled))
+        } else {
+            (None, None)
+        };
+        return Ok(Validation {
+            scheme: plan.scheme.words(),
+            seed: plan.seed,
+            rows: n,
+            judged_rows,
+            model,
+            baseline,
+            apparent: None,
+            optimism: None,
+            baseline_apparent: None,
+            baseline_optimism: None,
+            folds: Vec::new(),
+            error_by_size: Some(forest.oob_error.clone()),
+            training_error_by_size: fitted
+                .model
+                .staged_errors(Rows::Binned(&fitted.binned), &fitted.design.outcome),
+            notes,
+            predictions: forest.oob_prediction.clone(),
+            baseline_predictions,
+            fold_of_row: vec![None; n],
+            outputs,
+        });
+    }
+
+    let s = splits(design, &plan.scheme, plan.seed)?;
+    let runs = run_splits(&s, plan, progress)?;
+    let predictions = pool(n, outputs, &s, |i| Some(runs[i].predictions.clone()))
+        .unwrap_or_default();
+    let baseline_predictions = pool(n, outputs, &s, |i| runs[i].baseline.clone());
+    let mut model = judge_pooled(design, &predictions, outputs, plan);
+    let mut baseline = baseline_predictions
+        .as_ref()
+        .map(|p| judge_pooled(design, p, outputs, plan));
+    let judged_rows = model.rows;
+    let mut fold_of_row = vec![None; n];
+    for split in s.iter().filter(|x| x.repeat == 0) {
+        for &r in &split.test {
+            fold_of_row[r] = Some(split.fold as u32);
+        }
+    }
+    let weights = |i: usize| s[i].out_of_sample.iter().filter(|&&o| o).count() as f64;
+    let curve = |f: &dyn Fn(&FoldRun) -> Option<Vec<f64>>, w: &dyn Fn(usize) -> f64| {
+        let c: Option<Vec<(Vec<f64>, f64)>> =
+            runs.iter().enumerate().map(|(i, r)| Some((f(r)?, w(i)))).collect();
+        c.and_then(|c| mean_curve(&c))
+    };
+    let error_by_size = curve(&|r| r.error_by_size.clone(), &weights);
+    let training_error_by_size = curve(&|r| r.training_error_by_size.clone(), &|i| {
+        s[i].train.len() as f64
+    });
+    let (mut apparent, mut optimism_of, mut baseline_apparent, mut baseline_optimism) =
+        (None, None, None, None);
+    match &plan.scheme {
+        Scheme::Bootstrap { resamples } => {
+            // The apparent fit: every row, judged on those rows.
+            let fitted = fit_design(design.clone(), settings, None, options, progress)?;
+            if fitted.model.partial {
+                return Err(cancelled());
+            }
+            let p = predict_all(&fitted.model, Rows::Binned(&fitted.binned));
+            let a = figures(&design.outcome, &p, plan.threshold);
+            let pairs: Vec<(&Figures, &Figures)> = runs
+                .iter()
+                .filter_map(|r| Some((r.apparent.as_ref()?, &r.figures)))
+                .collect();
+            let o = optimism(&pairs);
+            correct(&mut model, &a, &o);
+            if plan.baseline {
+                let (_, train_pred) = fit_baseline(design, design)?;
+                let ba = figures(&design.outcome, &train_pred, plan.threshold);
+                let pairs: Vec<(&Figures, &Figures)> = runs
+                    .iter()
+                    .filter_map(|r| Some((r.baseline_apparent.as_ref()?, r.baseline_figures.as_ref()?)))
+                    .collect();
+                let bo = optimism(&pairs);
+                if let Some(b) = baseline.as_mut() {
+                    correct(b, &ba, &bo);
+                }
+                baseline_apparent = Some(ba);
+                baseline_optimism = Some(bo);
+            }
+            apparent = Some(a);
+            optimism_of = Some(o);
+            notes.push(format!(
+                "figures are optimism-corrected (Harrell, Lee & Mark 1996): apparent minus the \
+                 mean optimism over {resamples} bootstrap refits; curves and the per-row \
+                 predictions come from the refits whose resample left the row out"
+            ));
+        }
+        Scheme::Holdout { fraction } => notes.push(format!(
+            "one stratified split: {} rows held out ({:.0}%), {} trained on; a single split \
+             varies with the seed, k-fold is steadier",
+            s[0].test.len(),
+            100.0 * fraction,
+            s[0].train.len()
+        )),
+        Scheme::Folds { k, repeats } if *repeats > 1 => notes.push(format!(
+            "{k} stratified folds repeated {repeats} times; each row's prediction is the mean \
+             of its {repeats} out-of-sample predictions"
+        )),
+        Scheme::Folds { k, .. } => notes.push(format!("{k} stratified folds")),
+        Scheme::Groups { k, column } => notes.push(format!(
+            "{k} grouped folds: all rows of a '{column}' value in one fold"
+        )),
+        Scheme::OutOfBag => {}
+    }
+    let folds = s
+        .iter()
+        .zip(&runs)
+        .map(|(split, run)| FoldFigures {
+            repeat: split.repeat,
+            fold: split.fold,
+            train_rows: split.train.len(),
+            test_rows: split.test.len(),
+            members: run.members,
+            figures: run.figures.clone(),
+            baseline: run.baseline_figures.clone(),
+        })
+        .collect();
+    Ok(Validation {
+        scheme: plan.scheme.words(),
+        seed: plan.seed,
+        rows: n,
+        judged_rows,
+        model,
+        baseline,
+        apparent,
+        optimism: optimism_of,
+        baseline_apparent,
+        baseline_optimism,
+        folds,
+        error_by_size,
+        training_error_by_size,
+        notes,
+        predictions,
+        baseline_predictions,
+        fold_of_row,
+        outputs,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::design::design_from_csv;
+    use crate::progress::{Silent, StopAfter};
+    use crate::random::{below, stream, Purpose};
+
+    /// 400 rows: y depends on a + b (10% flipped), c is noise, w a category.
+    fn problem() -> Design {
+        let mut rng = stream(5, Purpose::TreeRows, 0);
+        let mut text = String::from("y,a,b,c,w\n");
+        for _ in 0..400 {
+            let x: Vec<f64> = (0..3).map(|_| below(&mut rng, 1000) as f64 / 1000.0).collect();
+            let flip = below(&mut rng, 10) == 0;
+            let y = (x[0] + x[1] > 1.0) != flip;
+            let w = ["k", "l", "m"][below(&mut rng, 3)];
+            text += &format!("{},{},{},{},{w}\n", u8::from(y), x[0], x[1], x[2]);
+        }
+        design_from_csv(&text, "y", &["a", "b", "c", "w"])
+    }
+
+    fn plan(scheme: &str) -> Plan {
+        Plan {
+            scheme: Scheme::parse(scheme).unwrap(),
+            seed: 3,
+            threshold: 0.5,
+            resamples: 100,
+            baseline: true,
+        }
+    }
+
+    fn forest(trees: usize) -> FitSettings {
+        FitSettings::build(Method::Forest, 4, false, "y", &[("trees".into(), trees.to_string())])
+            .unwrap()
+    }
+
+    #[test]
+    fn k_fold_predicts_every_row_once_and_any_runner_gives_the_same_result() {
+        let d = problem();
+        let s = forest(30);
+        let p = plan("folds:5");
+        let v = validate(&d, &s, &p, FitOptions::default(), None, &mut Silent).unwrap();
+        assert_eq!((v.rows, v.judged_rows, v.folds.len()), (400, 400, 5));
+        assert!(v.predictions.iter().all(|x| x.is_finite()));
+        let auc = &v.model.metrics["auc"];
+        // 10% of labels flipped: a sound model lands well above chance, below perfect.
+        assert!(auc.value > 0.8 && auc.value < 0.99, "{auc:?}");
+        let base = &v.baseline.as_ref().unwrap().metrics["auc"];
+        assert!(base.value > 0.8, "{base:?}");
+        assert_eq!(v.error_by_size.as_ref().unwrap().len(), 30);
+        // Training error falls below the out-of-sample error (apparent fit is optimistic).
+        let last = |c: &Option<Vec<f64>>| *c.as_ref().unwrap().last().unwrap();
+        assert!(last(&v.training_error_by_size) < last(&v.error_by_size));
+        // A runner that runs the jobs backwards (as threads might finish) changes nothing.
+        let backwards = |count: usize, job: &FoldJob<'_>, _: &mut dyn Progress| {
+            let mut out: Vec<FoldRun> = (0..count)
+                .rev()
+                .map(|i| job(i, FitOptions::default(), &mut Silent))
+                .collect::<Result<_>>()?;
+            out.reverse();
+            Ok(out)
+        };
+        let w = validate(&d, &s, &p, FitOptions::default(), Some(&backwards), &mut Silent).unwrap();
+        assert_eq!(v, w);
+        assert!(v.fold_of_row.iter().all(Option::is_some));
+    }
+
+    #[test]
+    fn out_of_bag_holdout_and_bootstrap() {
+        let d = problem();
+        let s = forest(40);
+        let oob = validate(&d, &s, &plan("oob"), FitOptions::default(), None, &mut Silent).unwrap();
+        assert!(oob.judged_rows > 390, "{}", oob.judged_rows);
+        assert!(oob.model.metrics["auc"].value > 0.8);
+        assert!(oob.baseline.is_some());
+        let hold =
+            validate(&d, &s, &plan("holdout:0.25"), FitOptions::default(), None, &mut Silent)
+                .unwrap();
+        assert_eq!(hold.judged_rows, 100);
+        let mut p = plan("bootstrap:8");
+        p.baseline = false;
+        let tree = FitSettings::build(Method::Tree, 4, false, "y", &[]).unwrap();
+        let boot = validate(&d, &tree, &p, FitOptions::default(), None, &mut Silent).unwrap();
+        let apparent = boot.apparent.as_ref().unwrap()["auc"];
+        let corrected = boot.model.metrics["auc"].value;
+        // A fully grown tree fits its rows almost perfectly; its optimism is large.
+        assert!(apparent > 0.97 && corrected < apparent - 0.05, "{apparent} {corrected}");
+        let tree_oob = validate(&d, &tree, &plan("oob"), FitOptions::default(), None, &mut Silent);
+        assert!(tree_oob.unwrap_err().to_string().contains("Use folds:10"));
+    }
+
+    #[test]
+    fn a_stop_cancels_and_a_bad_threshold_is_refused() {
+        let d = problem();
+        let s = forest(20);
+        let e = validate(&d, &s, &plan("folds:5"), FitOptions::default(), None, &mut StopAfter(3));
+        assert!(matches!(e.unwrap_err().kind(), ErrorKind::Cancelled));
+        let mut p = plan("folds:5");
+        p.threshold = 1.2;
+        let e = validate(&d, &s, &p, FitOptions::default(), None, &mut Silent).unwrap_err();
+        assert!(e.to_string().contains("outside (0, 1)"), "{e}");
+    }
+
+    #[test]
+    fn each_fold_bins_its_own_training_rows() {
+        // A category level only in the test fold reads as the pooled bin, never a panic.
+        let d = problem();
+        let split = Split {
+            repeat: 0,
+            fold: 0,
+            train: (0..300).collect(),
+            test: (300..400).collect(),
+            out_of_sample: vec![true; 100],
+        };
+        let run = run_split(&d, &forest(5), &plan("folds:4"), &split, FitOptions::default(), &mut Silent)
+            .unwrap();
+        assert_eq!(run.predictions.len(), 200);
+        assert!(run.figures.contains_key("auc"));
+    }
+}
