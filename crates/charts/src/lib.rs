@@ -24,6 +24,7 @@
 mod calibration;
 mod decision;
 mod error_curves;
+mod importance;
 mod roc;
 
 pub use calibration::{
@@ -32,6 +33,7 @@ pub use calibration::{
 };
 pub use decision::{decision_table, draw_decision, DecisionChart, DecisionRun};
 pub use error_curves::{draw_error_curves, error_table, Curve, ErrorChart};
+pub use importance::{draw_importance, importance_table, Importance, ImportanceChart};
 pub use roc::{draw_roc, roc_table, RocChart, RocRun};
 
 use plotters::chart::MeshStyle;
@@ -333,6 +335,91 @@ pub(crate) fn clip_y(points: &[(f64, f64)], low: f64, high: f64) -> Vec<Vec<(f64
     pieces
 }
 
+/// Width of `text` in device pixels, measured through the backend.
+pub(crate) fn text_width<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    text: &str,
+    style: &TextStyle,
+) -> i32 {
+    area.estimate_text_size(text, style)
+        .map_or(0, |s| s.0 as i32)
+}
+
+/// `text` cut with "…" so it fits `width` device pixels (whole text when it fits).
+pub(crate) fn fit_text<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    text: &str,
+    style: &TextStyle,
+    width: i32,
+) -> String {
+    if text_width(area, text, style) <= width {
+        return text.to_string();
+    }
+    let chars: Vec<char> = text.chars().collect();
+    let mut keep = chars.len();
+    while keep > 0 {
+        keep -= 1;
+        let short: String = chars[..keep].iter().chain(['…'].iter()).collect();
+        if text_width(area, &short, style) <= width {
+            return short;
+        }
+    }
+    String::new()
+}
+
+/// `text` broken into lines at spaces so each fits `width` device pixels (a single word
+/// wider than that gets a line of its own).
+pub(crate) fn wrap<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    text: &str,
+    style: &TextStyle,
+    width: i32,
+) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        let longer = if line.is_empty() {
+            word.to_string()
+        } else {
+            format!("{line} {word}")
+        };
+        if line.is_empty() || text_width(area, &longer, style) <= width {
+            line = longer;
+        } else {
+            lines.push(std::mem::replace(&mut line, word.to_string()));
+        }
+    }
+    if !line.is_empty() {
+        lines.push(line);
+    }
+    lines
+}
+
+/// Draws `lines` of small muted text at the bottom of `area` and returns the area above.
+pub(crate) fn footnote<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    text: &str,
+    look: &Look,
+) -> Result<DrawingArea<DB, Shift>, String> {
+    if text.trim().is_empty() {
+        return Ok(area.clone());
+    }
+    let style = TextStyle::from(look.font(12.0)).color(&MUTED);
+    let (w, h) = area.dim_in_pixel();
+    let lines = wrap(area, text, &style, w as i32 - look.px(24.0));
+    let row = look.px(16.0);
+    let top = h as i32 - row * lines.len() as i32 - look.px(6.0);
+    for (i, line) in lines.iter().enumerate() {
+        area.draw(&Text::new(
+            line.clone(),
+            (look.px(12.0), top + row * i as i32),
+            style.clone().pos(Pos::new(HPos::Left, VPos::Top)),
+        ))
+        .map_err(fail)?;
+    }
+    Ok(area.split_vertically(top.max(0)).0)
+}
+
 /// A number for a table cell with `digits` decimals; "—" when not finite.
 pub(crate) fn cell(v: f64, digits: usize) -> String {
     if v.is_finite() {
@@ -462,6 +549,22 @@ pub(crate) mod testing {
             .skip(1)
             .filter(|p| p.split("/>").next().unwrap_or("").contains(&hex))
             .map(|p| polylines(&format!("<polyline{p}"))[0])
+            .collect()
+    }
+
+    /// The texts drawn, in order, trimmed.
+    pub fn texts(svg: &str) -> Vec<String> {
+        svg.split("<text")
+            .skip(1)
+            .map(|t| {
+                let inner = t.split_once('>').map_or("", |x| x.1);
+                inner
+                    .split("</text>")
+                    .next()
+                    .unwrap_or("")
+                    .trim()
+                    .to_string()
+            })
             .collect()
     }
 
