@@ -23,6 +23,7 @@
 
 mod calibration;
 mod decision;
+mod dependence;
 mod error_curves;
 mod importance;
 mod roc;
@@ -32,6 +33,7 @@ pub use calibration::{
     CalibrationRun,
 };
 pub use decision::{decision_table, draw_decision, DecisionChart, DecisionRun};
+pub use dependence::{dependence_table, draw_dependence, DependenceAxis, DependenceChart};
 pub use error_curves::{draw_error_curves, error_table, Curve, ErrorChart};
 pub use importance::{draw_importance, importance_table, Importance, ImportanceChart};
 pub use roc::{draw_roc, roc_table, RocChart, RocRun};
@@ -476,7 +478,7 @@ pub(crate) fn draw_count_strip<DB: DrawingBackend>(
         .margin_left(look.px(12.0))
         .margin_right(look.px(12.0))
         .margin_bottom(look.px(4.0))
-        .x_label_area_size(look.px(if x_labels { 44.0 } else { 22.0 }))
+        .x_label_area_size(look.px(44.0))
         .y_label_area_size(look.px(60.0))
         .build_cartesian_2d(x.0..x.1, 0f64..top * 1.05)
         .map_err(fail)?;
@@ -488,7 +490,7 @@ pub(crate) fn draw_count_strip<DB: DrawingBackend>(
         .y_label_formatter(&int_label)
         .disable_y_mesh();
     if !x_labels {
-        mesh.x_label_formatter(&no_label);
+        mesh.x_label_formatter(&no_label).disable_x_mesh();
     }
     mesh.draw().map_err(fail)?;
     c.draw_series(bars.iter().filter(|b| b.2 > 0).map(|&(a, b, n, colour)| {
