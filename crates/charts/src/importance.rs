@@ -4,10 +4,9 @@
 
 use plotters::coord::Shift;
 use plotters::prelude::*;
-use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use crate::{
-    begin, cell, fail, fit_text, footnote, message, padded, rgb, span, style_mesh, text_width,
+    begin, cell, fail, footnote, message, names_width, padded, rgb, row_names, span, style_mesh,
     Drawn, Look, Table, INK,
 };
 
@@ -90,14 +89,7 @@ pub fn draw_importance<DB: DrawingBackend>(
     };
     let (lo, hi) = padded((lo, hi));
     let (lo, hi) = (if lo > 0.0 { 0.0 } else { lo }, hi);
-    let label = look.text(12.0);
-    let (w, _) = area.dim_in_pixel();
-    let widest = shown
-        .iter()
-        .map(|b| text_width(&area, &b.name, &label))
-        .max()
-        .unwrap_or(0);
-    let names_width = (widest + look.px(12.0)).min(w as i32 * 2 / 5);
+    let names_width = names_width(&area, shown.iter().map(|b| b.name.as_str()), &look);
     let n = shown.len() as f64;
     let mut c = ChartBuilder::on(&area)
         .margin(look.px(12.0))
@@ -134,16 +126,8 @@ pub fn draw_importance<DB: DrawingBackend>(
     }
     c.draw_series(LineSeries::new([(0.0, 0.0), (0.0, n)], look.line(INK, 1.0)))
         .map_err(fail)?;
-    let (bx, by) = area.get_base_pixel();
-    for (i, b) in shown.iter().enumerate() {
-        let (x, y) = c.backend_coord(&(lo, row(i)));
-        area.draw(&Text::new(
-            fit_text(&area, &b.name, &label, names_width - look.px(8.0)),
-            (x - bx - look.px(6.0), y - by),
-            label.clone().pos(Pos::new(HPos::Right, VPos::Center)),
-        ))
-        .map_err(fail)?;
-    }
+    let names: Vec<&str> = shown.iter().map(|b| b.name.as_str()).collect();
+    row_names(&area, &c, &names, lo, row, names_width, &look)?;
     area.present().map_err(fail)
 }
 

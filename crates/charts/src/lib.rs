@@ -22,6 +22,7 @@
 //! - [`draw_tree`]: a small tree as boxes; the first levels of a bigger one with a note.
 
 mod calibration;
+mod contributions;
 mod decision;
 mod dependence;
 mod error_curves;
@@ -32,6 +33,7 @@ pub use calibration::{
     calibration_table, draw_calibration, probability_histogram, CalibrationBin, CalibrationChart,
     CalibrationRun,
 };
+pub use contributions::{contributions_table, draw_contributions, Contribution, ContributionChart};
 pub use decision::{decision_table, draw_decision, DecisionChart, DecisionRun};
 pub use dependence::{dependence_table, draw_dependence, DependenceAxis, DependenceChart};
 pub use error_curves::{draw_error_curves, error_table, Curve, ErrorChart};
@@ -420,6 +422,47 @@ pub(crate) fn footnote<DB: DrawingBackend>(
         .map_err(fail)?;
     }
     Ok(area.split_vertically(top.max(0)).0)
+}
+
+/// Width of the name column for rows labelled `names`: the widest name and some room,
+/// at most two fifths of the area.
+pub(crate) fn names_width<'n, DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    names: impl IntoIterator<Item = &'n str>,
+    look: &Look,
+) -> i32 {
+    let label = look.text(12.0);
+    let widest = names
+        .into_iter()
+        .map(|n| text_width(area, n, &label))
+        .max()
+        .unwrap_or(0);
+    (widest + look.px(12.0)).min(area.dim_in_pixel().0 as i32 * 2 / 5)
+}
+
+/// Draws row names left of the plot: `names[i]` at height `row(i)`, right-aligned against
+/// the y axis at `x_axis`, cut to `width`.
+pub(crate) fn row_names<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    chart: &Plane<'_, DB>,
+    names: &[&str],
+    x_axis: f64,
+    row: impl Fn(usize) -> f64,
+    width: i32,
+    look: &Look,
+) -> Drawn {
+    let label = look.text(12.0);
+    let (bx, by) = area.get_base_pixel();
+    for (i, name) in names.iter().enumerate() {
+        let (x, y) = chart.backend_coord(&(x_axis, row(i)));
+        area.draw(&Text::new(
+            fit_text(area, name, &label, width - look.px(8.0)),
+            (x - bx - look.px(6.0), y - by),
+            label.clone().pos(Pos::new(HPos::Right, VPos::Center)),
+        ))
+        .map_err(fail)?;
+    }
+    Ok(())
 }
 
 /// A number for a table cell with `digits` decimals; "—" when not finite.
