@@ -28,6 +28,7 @@ mod dependence;
 mod error_curves;
 mod importance;
 mod roc;
+mod tree;
 
 pub use calibration::{
     calibration_table, draw_calibration, probability_histogram, CalibrationBin, CalibrationChart,
@@ -39,6 +40,7 @@ pub use dependence::{dependence_table, draw_dependence, DependenceAxis, Dependen
 pub use error_curves::{draw_error_curves, error_table, Curve, ErrorChart};
 pub use importance::{draw_importance, importance_table, Importance, ImportanceChart};
 pub use roc::{draw_roc, roc_table, RocChart, RocRun};
+pub use tree::{draw_tree, tree_table, TreeChart, TreeNode, DRAWN_DEPTH};
 
 use plotters::chart::MeshStyle;
 use plotters::coord::types::RangedCoordf64;
@@ -603,12 +605,12 @@ pub(crate) mod testing {
             .skip(1)
             .map(|t| {
                 let inner = t.split_once('>').map_or("", |x| x.1);
-                inner
-                    .split("</text>")
-                    .next()
-                    .unwrap_or("")
-                    .trim()
-                    .to_string()
+                let raw = inner.split("</text>").next().unwrap_or("").trim();
+                raw.replace("&lt;", "<")
+                    .replace("&gt;", ">")
+                    .replace("&quot;", "\"")
+                    .replace("&apos;", "'")
+                    .replace("&amp;", "&")
             })
             .collect()
     }
