@@ -103,8 +103,10 @@ pub(crate) struct Look {
 impl Look {
     pub fn new(scale: f64) -> Look {
         Look {
-            scale: if scale.is_finite() && scale > 0.0 {
-                scale
+            // Device pixel ratios run from about 0.5 (zoomed out) to 4; outside that (or not
+            // a number) the caller made a mistake, and sizes of 0 pixels would divide by 0.
+            scale: if scale.is_finite() {
+                scale.clamp(0.5, 8.0)
             } else {
                 1.0
             },
@@ -125,12 +127,20 @@ impl Look {
     }
 }
 
-/// Fills the area, draws the title (if any) and returns the area below it.
+/// Fills the area, draws the title (if any) and returns the area below it; an area smaller
+/// than 160×120 CSS pixels is refused with a message (nothing readable fits).
 pub(crate) fn begin<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     title: &str,
     look: &Look,
 ) -> Result<DrawingArea<DB, Shift>, String> {
+    let (w, h) = area.dim_in_pixel();
+    let (least_w, least_h) = (look.px(160.0), look.px(120.0));
+    if (w as i32) < least_w || (h as i32) < least_h {
+        return Err(format!(
+            "the chart's area is {w}×{h} pixels; it needs at least {least_w}×{least_h}"
+        ));
+    }
     area.fill(&WHITE).map_err(fail)?;
     if title.trim().is_empty() {
         return Ok(area.clone());
@@ -622,6 +632,150 @@ pub(crate) mod testing {
             .skip(1)
             .filter(|p| p.split("/>").next().unwrap_or("").contains(&hex))
             .count()
+    }
+
+    /// Every chart on areas too small to hold it, and at odd pixel ratios: a picture or an
+    /// error, never a panic.
+    #[test]
+    fn tiny_areas_and_odd_ratios_do_not_panic() {
+        let roc = RocChart {
+            title: "t".into(),
+            runs: vec![RocRun {
+                name: "a".into(),
+                auc: Some(0.7),
+                points: vec![(0.0, 0.0), (0.5, 0.8), (1.0, 1.0)],
+                colour: PALETTE[0],
+            }],
+        };
+        let importance = ImportanceChart {
+            title: "t".into(),
+            value_label: "v".into(),
+            bars: vec![Importance {
+                name: "a".into(),
+                value: 1.0,
+                spread: Some(0.1),
+            }],
+            caption: "c".into(),
+            colour: PALETTE[0],
+        };
+        let tree = TreeChart {
+            title: "t".into(),
+            nodes: vec![
+                TreeNode {
+                    feature: "a".into(),
+                    threshold: "< 1".into(),
+                    left: Some(1),
+                    right: Some(2),
+                    value: "v".into(),
+                },
+                TreeNode {
+                    feature: String::new(),
+                    threshold: String::new(),
+                    left: None,
+                    right: None,
+                    value: "l".into(),
+                },
+                TreeNode {
+                    feature: String::new(),
+                    threshold: String::new(),
+                    left: None,
+                    right: None,
+                    value: "r".into(),
+                },
+            ],
+        };
+        let calibration = CalibrationChart {
+            title: "t".into(),
+            runs: vec![CalibrationRun {
+                name: "a".into(),
+                colour: PALETTE[0],
+                bins: vec![CalibrationBin {
+                    lowest_predicted: 0.1,
+                    highest_predicted: 0.3,
+                    mean_predicted: 0.2,
+                    observed: 0.25,
+                    low: 0.1,
+                    high: 0.4,
+                    rows: 20,
+                }],
+                smoothed: vec![(0.1, 0.1), (0.3, 0.35)],
+                histogram: vec![3, 5],
+            }],
+        };
+        let decision = DecisionChart {
+            title: "t".into(),
+            treat_all: vec![(0.1, 0.1), (0.5, -0.6)],
+            runs: vec![DecisionRun {
+                name: "a".into(),
+                colour: PALETTE[0],
+                points: vec![(0.1, 0.1), (0.5, 0.02)],
+            }],
+        };
+        let dependence = DependenceChart {
+            title: "t".into(),
+            predictor: "x".into(),
+            value_label: "y".into(),
+            axis: DependenceAxis::Numbers {
+                grid: vec![0.0, 1.0],
+                data: vec![0.5],
+            },
+            average: vec![0.2, 0.3],
+            ice: vec![vec![0.1, 0.4]],
+            colour: PALETTE[0],
+        };
+        let contributions = ContributionChart {
+            title: "t".into(),
+            value_label: "v".into(),
+            base: 0.0,
+            prediction: 1.0,
+            contributions: vec![Contribution {
+                name: "a".into(),
+                value: 1.0,
+            }],
+            top: 5,
+            caption: "c".into(),
+        };
+        let error = ErrorChart {
+            title: "t".into(),
+            x_label: "x".into(),
+            y_label: "y".into(),
+            curves: vec![Curve {
+                name: "a".into(),
+                values: vec![0.3, 0.2],
+                colour: PALETTE[0],
+                dashed: true,
+            }],
+        };
+        for size in [(1, 1), (40, 30), (120, 80), (160, 120), (200, 150)] {
+            for scale in [0.0, -1.0, f64::NAN, 0.3, 1.0, 3.0, 1e9] {
+                let mut out = String::new();
+                let root = SVGBackend::with_string(&mut out, size).into_drawing_area();
+                let drawn = [
+                    draw_roc(&root, &roc, scale),
+                    draw_importance(&root, &importance, scale),
+                    draw_tree(&root, &tree, scale),
+                    draw_calibration(&root, &calibration, scale),
+                    draw_decision(&root, &decision, scale),
+                    draw_dependence(&root, &dependence, scale),
+                    draw_contributions(&root, &contributions, scale),
+                    draw_error_curves(&root, &error, scale),
+                ];
+                // Ratios are held to 0.5–8 (not a number: 1); a chart needs 160×120 at ratio 1.
+                let ratio = if scale.is_finite() {
+                    scale.clamp(0.5, 8.0)
+                } else {
+                    1.0
+                };
+                let fits = f64::from(size.0) >= (160.0 * ratio).round()
+                    && f64::from(size.1) >= (120.0 * ratio).round();
+                for d in drawn {
+                    match d {
+                        Ok(()) => assert!(fits, "{size:?} at {scale} drew"),
+                        Err(e) => assert!(!fits && e.contains("it needs at least"), "{e}"),
+                    }
+                }
+            }
+        }
     }
 
     #[test]
