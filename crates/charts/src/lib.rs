@@ -155,21 +155,28 @@ pub(crate) fn begin<DB: DrawingBackend>(
     Ok(area.split_vertically(look.px(28.0)).1)
 }
 
-/// Draws a short message in the middle of the area (input the chart cannot show).
+/// Draws a short message in the middle of the area (input the chart cannot show), wrapped
+/// to its width.
 pub(crate) fn message<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     text: &str,
     look: &Look,
 ) -> Drawn {
     let (w, h) = area.dim_in_pixel();
-    area.draw(&Text::new(
-        text.to_string(),
-        (w as i32 / 2, h as i32 / 2),
-        TextStyle::from(look.font(13.0))
-            .color(&MUTED)
-            .pos(Pos::new(HPos::Center, VPos::Center)),
-    ))
-    .map_err(fail)?;
+    let style = TextStyle::from(look.font(13.0))
+        .color(&MUTED)
+        .pos(Pos::new(HPos::Center, VPos::Center));
+    let lines = wrap(area, text, &style, w as i32 - look.px(24.0));
+    let row = look.px(18.0);
+    let first = h as i32 / 2 - row * (lines.len() as i32 - 1) / 2;
+    for (i, line) in lines.into_iter().enumerate() {
+        area.draw(&Text::new(
+            line,
+            (w as i32 / 2, first + row * i as i32),
+            style.clone(),
+        ))
+        .map_err(fail)?;
+    }
     area.present().map_err(fail)
 }
 
