@@ -106,9 +106,11 @@ pub fn draw_contributions<DB: DrawingBackend>(
         .filter(|c| !c.value.is_finite())
         .count();
     if skipped > 0 {
-        note.push(format!(
-            "{skipped} contributions are not numbers and are left out."
-        ));
+        note.push(if skipped == 1 {
+            "1 contribution is not a number and is left out.".to_string()
+        } else {
+            format!("{skipped} contributions are not numbers and are left out.")
+        });
     }
     let total = chart.base + steps.iter().map(|s| s.1).sum::<f64>();
     if (total - chart.prediction).abs() > 1e-6 * (1.0 + chart.prediction.abs()) {
@@ -314,7 +316,7 @@ mod tests {
             draw_contributions(a, &chart, s)
         });
         assert!(out.contains("not the prediction"));
-        assert!(out.contains("1 contributions are not numbers"));
+        assert!(out.contains("1 contribution is not a number and is left out."));
         let table = contributions_table(&chart);
         assert_eq!(table.rows.len(), 1 + 7 + 1);
         assert_eq!(table.rows[1], ["predictor 0 = 0", "0.8000", "-0.4000"]);
