@@ -536,6 +536,8 @@ fn chart_of(r: &RunView) -> ErrorChart {
         });
     }
     ErrorChart {
+        // The page's own heading names the chart.
+        title: String::new(),
         x_label: format!("number of {}", res.member_name),
         y_label: res.error_name.clone(),
         curves,
