@@ -27,7 +27,7 @@ use crate::baseline;
 use crate::binning::{BinnedColumn, Records};
 use crate::design::{Design, Outcome, PredictorValues};
 use crate::error::{Error, ErrorKind, Result};
-use crate::fit::{fit_design, FitOptions};
+use crate::fit::{fit_design, FitOptions, Fitted};
 use crate::model::{Ensemble, Method, Model};
 use crate::progress::{Flow, Progress};
 use crate::settings::FitSettings;
@@ -398,6 +398,74 @@ fn correct(judged: &mut Judged, apparent: &Figures, optimism: &Figures) {
         .collect();
 }
 
+/// Judges a bagged ensemble or forest already fitted on every row of `design` by its
+/// out-of-bag predictions (the `oob` scheme without fitting again), with the baseline on
+/// 10 stratified folds when the plan asks for it.
+pub fn out_of_bag(design: &Design, fitted: &Fitted, plan: &Plan) -> Result<Validation> {
+    let n = design.outcome.len();
+    let outputs = match &design.outcome {
+        Outcome::Classes { labels, .. } => labels.len(),
+        Outcome::Numbers(_) => 1,
+    };
+    let mut notes = Vec::new();
+    if fitted.model.partial {
+        return Err(cancelled());
+    }
+    let Ensemble::Forest(forest) = &fitted.model.ensemble else {
+        return Err(Error::new(ErrorKind::BadSetting {
+            setting: "validate".into(),
+            reason: "oob: only bagging and forests leave rows out of each tree; use folds:10"
+                .into(),
+        }));
+    };
+    let model = judge_pooled(design, &forest.oob_prediction, outputs, plan);
+    let judged_rows = model.rows;
+    notes.push(format!(
+        "each row judged by the trees whose bootstrap left it out ({:.1}% of (tree, row) \
+         pairs)",
+        100.0 * forest.oob_share
+    ));
+    let (baseline, baseline_predictions) = if plan.baseline {
+        // A logistic or ridge model has no out-of-bag rows: 10 stratified folds.
+        let scheme = Scheme::Folds { k: 10, repeats: 1 };
+        let s = splits(design, &scheme, plan.seed)?;
+        let mut pooled = vec![f64::NAN; n * outputs];
+        for split in &s {
+            let (p, _) = fit_baseline(&design.select_rows(&split.train), &design.select_rows(&split.test))?;
+            for (pos, &r) in split.test.iter().enumerate() {
+                pooled[r * outputs..(r + 1) * outputs]
+                    .copy_from_slice(&p[pos * outputs..(pos + 1) * outputs]);
+            }
+        }
+        notes.push("the baseline, having no out-of-bag rows, is judged by 10 stratified folds".into());
+        (Some(judge_pooled(design, &pooled, outputs, plan)), Some(pooled))
+    } else {
+        (None, None)
+    };
+    Ok(Validation {
+        scheme: plan.scheme.words(),
+        seed: plan.seed,
+        rows: n,
+        judged_rows,
+        model,
+        baseline,
+        apparent: None,
+        optimism: None,
+        baseline_apparent: None,
+        baseline_optimism: None,
+        folds: Vec::new(),
+        error_by_size: Some(forest.oob_error.clone()),
+        training_error_by_size: fitted
+            .model
+            .staged_errors(Rows::Binned(&fitted.binned), &fitted.design.outcome),
+        notes,
+        predictions: forest.oob_prediction.clone(),
+        baseline_predictions,
+        fold_of_row: vec![None; n],
+        outputs,
+    })
+}
+
 /// Validates `settings` on `design` by `plan`. `options` serve the fits on every row
 /// (out-of-bag, bootstrap's apparent fit); `runner` runs the splits (default: in order).
 pub fn validate(
@@ -445,58 +513,7 @@ pub fn validate(
             }));
         }
         let fitted = fit_design(design.clone(), settings, None, options, progress)?;
-        if fitted.model.partial {
-            return Err(cancelled());
-        }
-        let Ensemble::Forest(forest) = &fitted.model.ensemble else {
-            return Err(cancelled());
-        };
-        let model = judge_pooled(design, &forest.oob_prediction, outputs, plan);
-        let judged_rows = model.rows;
-        notes.push(format!(
-            "each row judged by the trees whose bootstrap left it out ({:.1}% of (tree, row) \
-             pairs)",
-            100.0 * forest.oob_share
-        ));
-        let (baseline, baseline_predictions) = if plan.baseline {
-            // A logistic or ridge model has no out-of-bag rows: 10 stratified folds.
-            let scheme = Scheme::Folds { k: 10, repeats: 1 };
-            let s = splits(design, &scheme, plan.seed)?;
-            let mut pooled = vec![f64::NAN; n * outputs];
-            for split in &s {
-                let (p, _) = fit_baseline(&design.select_rows(&split.train), &design.select_rows(&split.test))?;
-                for (pos, &r) in split.test.iter().enumerate() {
-                    pooled[r * outputs..(r + 1) * outputs]
-                        .copy_from_slice(&p[pos * outputs..(pos + 1) * outputs]);
-                }
-            }
-            notes.push("the baseline, having no out-of-bag rows, is judged by 10 stratified folds".into());
-            (Some(judge_pooled(design, &pooled, outputs, plan)), Some(pooled))
-        } else {
-            (None, None)
-        };
-        return Ok(Validation {
-            scheme: plan.scheme.words(),
-            seed: plan.seed,
-            rows: n,
-            judged_rows,
-            model,
-            baseline,
-            apparent: None,
-            optimism: None,
-            baseline_apparent: None,
-            baseline_optimism: None,
-            folds: Vec::new(),
-            error_by_size: Some(forest.oob_error.clone()),
-            training_error_by_size: fitted
-                .model
-                .staged_errors(Rows::Binned(&fitted.binned), &fitted.design.outcome),
-            notes,
-            predictions: forest.oob_prediction.clone(),
-            baseline_predictions,
-            fold_of_row: vec![None; n],
-            outputs,
-        });
+        return out_of_bag(design, &fitted, plan);
     }
 
     let s = splits(design, &plan.scheme, plan.seed)?;
