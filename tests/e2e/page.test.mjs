@@ -282,6 +282,38 @@ try {
     expect(/ran every round/.test(rows[3].text), `no stopping words: ${rows[3].text}`);
   });
 
+  await check('step 4 compares the runs on records they did not learn from, with intervals, the baseline and three charts', async () => {
+    await page.waitForSelector('#step-compare:not([hidden])');
+    const rows = await page.$$eval('#compare-table tbody tr[data-run]', (r) => r.map((x) => ({
+      run: x.dataset.run, judged: x.dataset.judged, text: x.textContent,
+      auc: x.querySelector('[data-figure=auc]')?.textContent ?? '',
+    })));
+    expect(rows.length === 4, `${rows.length} runs compared`);
+    const forest = rows[0];
+    expect(forest.judged === 'yes' && /out-of-bag/.test(forest.text), `forest row: ${forest.text}`);
+    const boosting = rows[3];
+    expect(boosting.judged === 'yes' && /5-fold cross-validation/.test(boosting.text), `boosting row: ${boosting.text}`);
+    for (const r of [forest, boosting]) {
+      const m = r.auc.match(/^(0\.\d+) \((0\.\d+) to (0\.\d+)\)$/);
+      expect(m && Number(m[2]) < Number(m[1]) && Number(m[1]) < Number(m[3]), `AUC cell "${r.auc}"`);
+      expect(Number(m[1]) > 0.6, `AUC ${m[1]} no better than chance on the demo records`);
+    }
+    const baselines = await page.$$eval('#compare-table tr.baseline', (r) => r.map((x) => x.textContent));
+    expect(baselines.length >= 2 && baselines.every((b) => /logistic regression/.test(b)), `baseline rows: ${baselines}`);
+    for (const id of ['roc-canvas', 'calibration-canvas', 'decision-canvas']) {
+      const ink = await page.$eval(`#${id}`, (c) => {
+        const d = c.getContext('2d').getImageData(0, 0, c.width, c.height).data;
+        let n = 0;
+        for (let i = 0; i < d.length; i += 4) if (d[i] < 200 || d[i + 1] < 200 || d[i + 2] < 200) n++;
+        return n;
+      });
+      expect(ink > 1000, `${id} nearly blank (${ink} inked pixels)`);
+    }
+    const rocRows = await page.$$eval('#roc-numbers tbody tr', (r) => r.length);
+    expect(rocRows >= 5, `${rocRows} rows in the ROC numbers`);
+    await page.locator('#step-compare').screenshot({ path: join(out, 'compare-step.png') });
+  });
+
   await check('a design the core refuses gives its message in the step, and the runs stay', async () => {
     expect(await page.$eval('#runs-stale', (e) => e.hidden), 'stale note shown before any change');
     await page.selectOption('select[data-field=role][data-col="0"]', 'predictor');

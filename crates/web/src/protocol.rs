@@ -50,6 +50,8 @@ pub enum Request {
         /// (name, value) pairs by the command line's `--set` names; the rest keep the
         /// method's defaults.
         settings: Vec<(String, String)>,
+        /// How to judge the run (`None`: training figures only).
+        judging: Option<Judging>,
     },
     /// Fit trees `first .. first + count` of a bagged ensemble or forest on the table the
     /// worker holds (one worker's share); answered by [`Reply::Part`] with the trees as bytes.
@@ -70,6 +72,7 @@ pub enum Request {
         design: FitDesign,
         method: String,
         settings: Vec<(String, String)>,
+        judging: Option<Judging>,
     },
 }
 
@@ -79,6 +82,71 @@ pub struct FitDesign {
     pub outcome: String,
     pub predictors: Vec<String>,
     pub weight: Option<String>,
+    /// The column holding each record's group (patient, site), for grouped folds and the
+    /// repeated-record warning.
+    #[serde(default)]
+    pub group: Option<String>,
+}
+
+/// How a run is judged: a validation scheme in the command line's words (`oob`,
+/// `holdout:0.2`, `folds:5`, `folds:10:5`, `groups:5:COLUMN`, `bootstrap:200`), the
+/// two-class threshold, and whether the baseline is judged on the same splits.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Judging {
+    pub scheme: String,
+    pub threshold: f64,
+    pub baseline: bool,
+    pub seed: u64,
+}
+
+/// One figure with its 95% interval, where it has one.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Figure {
+    pub name: String,
+    pub value: f64,
+    pub low: Option<f64>,
+    pub high: Option<f64>,
+}
+
+/// A calibration group: its predictions' range and mean, its share of events with a 95%
+/// Wilson interval, and its rows.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CalibrationGroup {
+    pub lowest: f64,
+    pub highest: f64,
+    pub mean_predicted: f64,
+    pub observed: f64,
+    pub low: f64,
+    pub high: f64,
+    pub rows: u64,
+}
+
+/// What the validation of a run found (out-of-sample figures only; the training figures of
+/// [`RunResult`] are apparent).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunValidation {
+    /// The scheme in words.
+    pub scheme: String,
+    pub judged_rows: usize,
+    pub figures: Vec<Figure>,
+    /// The baseline (L2 logistic or ridge regression) on the same splits.
+    pub baseline_name: String,
+    pub baseline: Option<Vec<Figure>>,
+    /// Two classes: ROC points (false-positive rate, true-positive rate), the baseline's too.
+    pub roc: Vec<(f64, f64)>,
+    pub baseline_roc: Vec<(f64, f64)>,
+    pub calibration: Vec<CalibrationGroup>,
+    /// The smoothed calibration curve (predicted, observed).
+    pub smoothed: Vec<(f64, f64)>,
+    /// Out-of-sample event probabilities counted in twentieths.
+    pub histogram: Vec<u64>,
+    /// Net benefit by threshold: (threshold, model, treat all).
+    pub decision: Vec<(f64, f64, f64)>,
+    /// Out-of-sample error after 1, 2, ... trees or rounds, where the scheme gives it.
+    pub error_by_size: Vec<f64>,
+    /// Computed warnings about the data and the scheme.
+    pub warnings: Vec<String>,
+    pub notes: Vec<String>,
 }
 
 /// What a finished fit reports. Training figures are apparent (the rows the model was
@@ -112,6 +180,10 @@ pub struct RunResult {
     pub fit_seconds: f64,
     /// The worker's wasm memory after the fit (it never shrinks, so this is its peak).
     pub worker_memory_bytes: u64,
+    /// The out-of-sample judgement, when asked for and possible.
+    pub validation: Option<RunValidation>,
+    /// Why the run could not be judged as asked (the model itself is kept).
+    pub validation_refused: Option<String>,
     pub notices: Vec<String>,
 }
 

@@ -173,20 +173,21 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
             Err(_) => (None, None),
         }
     };
-    let mut put_boot = |name: &str, value: Option<f64>, f: &mut dyn FnMut(&[f64]) -> Option<f64>| {
-        if let Some(value) = value.filter(|v| v.is_finite()) {
-            let (low, high) = boot(f);
-            metrics.insert(
-                name.to_string(),
-                Estimate {
-                    value,
-                    low,
-                    high,
-                    interval: if low.is_some() { "bootstrap" } else { "none" },
-                },
-            );
-        }
-    };
+    let mut put_boot =
+        |name: &str, value: Option<f64>, f: &mut dyn FnMut(&[f64]) -> Option<f64>| {
+            if let Some(value) = value.filter(|v| v.is_finite()) {
+                let (low, high) = boot(f);
+                metrics.insert(
+                    name.to_string(),
+                    Estimate {
+                        value,
+                        low,
+                        high,
+                        interval: if low.is_some() { "bootstrap" } else { "none" },
+                    },
+                );
+            }
+        };
     let mut judged = Judged {
         rows,
         metrics: BTreeMap::new(),
@@ -235,7 +236,11 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
             put_boot(
                 "calibration_slope",
                 cal.as_ref().map(|c| c.slope),
-                &mut |w| binary::calibration(codes, &p, Some(w)).ok().map(|c| c.slope),
+                &mut |w| {
+                    binary::calibration(codes, &p, Some(w))
+                        .ok()
+                        .map(|c| c.slope)
+                },
             );
             put_boot(
                 "observed_expected",
@@ -247,7 +252,9 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
                 },
             );
             let from_confusion = |w: &[f64], f: fn(&binary::Confusion) -> Option<f64>| {
-                binary::confusion(codes, &p, t, Some(w)).ok().and_then(|c| f(&c))
+                binary::confusion(codes, &p, t, Some(w))
+                    .ok()
+                    .and_then(|c| f(&c))
             };
             fn balanced(c: &binary::Confusion) -> Option<f64> {
                 let pos = c.true_positives + c.false_negatives;
@@ -283,7 +290,11 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
                         value: a.value,
                         low: a.interval.map(|i| i.low),
                         high: a.interval.map(|i| i.high),
-                        interval: if a.interval.is_some() { "DeLong" } else { "none" },
+                        interval: if a.interval.is_some() {
+                            "DeLong"
+                        } else {
+                            "none"
+                        },
                     },
                 ));
             }
@@ -299,7 +310,8 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
             };
             let c = &mut judged.curves;
             c.roc = curves::roc_points(codes, &p, None).unwrap_or_default();
-            c.precision_recall = curves::precision_recall_points(codes, &p, None).unwrap_or_default();
+            c.precision_recall =
+                curves::precision_recall_points(codes, &p, None).unwrap_or_default();
             c.calibration = curves::calibration_groups(codes, &p, 10).unwrap_or_default();
             c.smoothed_calibration =
                 curves::smoothed_calibration(codes, &p, 50).unwrap_or_default();
@@ -337,7 +349,9 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
         Outcome::Numbers(y) => {
             let fit = regression::fit(y, predictions, None).ok();
             put_boot("rmse", fit.as_ref().map(|f| f.rmse), &mut |w| {
-                regression::fit(y, predictions, Some(w)).ok().map(|f| f.rmse)
+                regression::fit(y, predictions, Some(w))
+                    .ok()
+                    .map(|f| f.rmse)
             });
             put_boot("mae", fit.as_ref().map(|f| f.mae), &mut |w| {
                 regression::fit(y, predictions, Some(w)).ok().map(|f| f.mae)

@@ -17,6 +17,8 @@ use wasm_bindgen::prelude::*;
 use wasm_bindgen_futures::{spawn_local, JsFuture};
 // The model-runs step; kept beside this file (a directory of its own, so Cargo does not take
 // it for another binary).
+#[path = "page/compare.rs"]
+mod compare;
 #[path = "page/measured.rs"]
 mod measured;
 #[path = "page/pool.rs"]
@@ -879,6 +881,8 @@ fn design_of(p: &Page) -> Option<(FitDesign, bool)> {
             }
             Role::Predictor => design.predictors.push(c.name.clone()),
             Role::Weight => design.weight = Some(c.name.clone()),
+            // The first group column keeps records together in grouped folds.
+            Role::Group if design.group.is_none() => design.group = Some(c.name.clone()),
             Role::Group | Role::Ignore => {}
         }
     }

@@ -18,8 +18,10 @@ use spinney_core::model::{Ensemble, Method, Model};
 use spinney_core::progress::{Flow, Progress};
 use spinney_core::settings::FitSettings;
 use spinney_core::tree::Rows;
+use spinney_core::validate::{self, judge::Judged, Plan, Scheme, Validation};
 use spinney_web::protocol::{
-    FitDesign, Preview, ReadSettings, Reply, Request, RunResult, PREVIEW_ROWS, PROTOCOL_VERSION,
+    CalibrationGroup, Figure, FitDesign, Judging, Preview, ReadSettings, Reply, Request, RunResult,
+    RunValidation, PREVIEW_ROWS, PROTOCOL_VERSION,
 };
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
@@ -153,10 +155,11 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             design,
             method,
             settings,
+            judging,
             ..
         } => {
             let kept_previous = held.loaded.is_some();
-            match fit(held, id, design, &method, settings, None) {
+            match fit(held, id, design, &method, settings, judging, None) {
                 Ok(result) => post(&Reply::Fitted {
                     id,
                     result: Box::new(result),
@@ -174,11 +177,12 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             design,
             method,
             settings,
+            judging,
             ..
         } => {
             let kept_previous = held.loaded.is_some();
             let parts = bytes.unwrap_or_default();
-            match fit(held, id, design, &method, settings, Some(parts)) {
+            match fit(held, id, design, &method, settings, judging, Some(parts)) {
                 Ok(result) => post(&Reply::Fitted {
                     id,
                     result: Box::new(result),
@@ -276,7 +280,7 @@ fn design_and_settings(
         outcome: design.outcome.clone(),
         predictors: design.predictors.clone(),
         weight: design.weight.clone(),
-        ..DesignSpec::default()
+        group: design.group.clone(),
     };
     let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
     let regression = matches!(d.outcome, Outcome::Numbers(_));
@@ -313,6 +317,7 @@ fn fit(
     design: FitDesign,
     method: &str,
     sets: Vec<(String, String)>,
+    judging: Option<Judging>,
     parts: Option<Vec<u8>>,
 ) -> Result<RunResult, String> {
     let (d, settings) = design_and_settings(held, &design, method, &sets)?;
@@ -345,16 +350,34 @@ fn fit(
         forest_fitter: parts.is_some().then_some(&tally as ForestFitter<'_>),
         ..FitOptions::default()
     };
-    let Fitted {
-        mut model,
-        binned,
-        design: d,
-        ..
-    } = fit_design(d, &settings, fingerprint, options, &mut progress).map_err(|e| e.to_string())?;
+    let mut fitted =
+        fit_design(d, &settings, fingerprint, options, &mut progress).map_err(|e| e.to_string())?;
     let fit_seconds = (js_sys::Date::now() - start) / 1000.0;
+    let (validation, validation_refused) = match &judging {
+        None => (None, None),
+        Some(j) => match judge_run(
+            held,
+            &design,
+            method,
+            &sets,
+            &settings,
+            &fitted,
+            j,
+            &mut progress,
+        ) {
+            Ok(v) => (Some(v), None),
+            Err(e) => (None, Some(e)),
+        },
+    };
+    let Fitted {
+        ref mut model,
+        ref binned,
+        design: ref d,
+        ..
+    } = fitted;
     // The settings the page sent; every other one is the method's default.
     model.settings = sets.iter().cloned().collect();
-    let rows = Rows::Binned(&binned);
+    let rows = Rows::Binned(binned);
     let training_curve = model.staged_errors(rows, &d.outcome).unwrap_or_default();
     let training_error = match training_curve.last() {
         Some(&e) => e,
@@ -416,10 +439,154 @@ fn fit(
         tree_shape,
         fit_seconds,
         worker_memory_bytes: wasm_memory_bytes(),
+        validation,
+        validation_refused,
         notices: d.notices.clone(),
     };
-    held.runs.push(Run { design, model });
+    held.runs.push(Run {
+        design,
+        model: fitted.model,
+    });
     Ok(result)
+}
+
+/// Judges a fitted run out of sample as `judging` asks: a forest by its out-of-bag rows
+/// (no second fit), any other scheme by refitting on its splits; with the computed warnings.
+#[allow(clippy::too_many_arguments)]
+fn judge_run(
+    held: &Held,
+    design: &FitDesign,
+    method: &str,
+    sets: &[(String, String)],
+    settings: &FitSettings,
+    fitted: &Fitted,
+    judging: &Judging,
+    progress: &mut dyn Progress,
+) -> Result<RunValidation, String> {
+    // The splits need the predictors' values, which the fitted design no longer holds.
+    let (full, _) = design_and_settings(held, design, method, sets)?;
+    let scheme = Scheme::parse(&judging.scheme).map_err(|e| e.to_string())?;
+    let plan = Plan {
+        scheme: scheme.clone(),
+        seed: judging.seed,
+        threshold: judging.threshold,
+        resamples: JUDGING_RESAMPLES,
+        baseline: judging.baseline,
+    };
+    let v = if scheme == Scheme::OutOfBag {
+        validate::out_of_bag(&full, fitted, &plan)
+    } else {
+        validate::validate(
+            &full,
+            settings,
+            &plan,
+            FitOptions::default(),
+            None,
+            progress,
+        )
+    }
+    .map_err(|e| e.to_string())?;
+    let table = held.loaded.as_ref().map(|l| &l.table);
+    let warnings = validate::warnings::warnings(&full, &scheme, table)
+        .into_iter()
+        .map(|w| w.message)
+        .collect();
+    Ok(run_validation(&v, &scheme, warnings))
+}
+
+/// A validation scheme in plain words, for the page.
+fn scheme_words(scheme: &Scheme) -> String {
+    match scheme {
+        Scheme::OutOfBag => "out-of-bag records".into(),
+        Scheme::Holdout { fraction } => format!("{:.0}% held out", 100.0 * fraction),
+        Scheme::Folds { k, repeats: 1 } => format!("{k}-fold cross-validation"),
+        Scheme::Folds { k, repeats } => format!("{k}-fold cross-validation, {repeats} times"),
+        Scheme::Groups { k, column } => format!("{k} folds keeping each {column} together"),
+        Scheme::Bootstrap { resamples } => {
+            format!("bootstrap optimism correction, {resamples} refits")
+        }
+    }
+}
+
+/// Bootstrap resamples for the intervals of figures without a closed form.
+const JUDGING_RESAMPLES: usize = 500;
+
+/// The page's view of a validation.
+fn run_validation(v: &Validation, scheme: &Scheme, warnings: Vec<String>) -> RunValidation {
+    let figures = |j: &Judged| -> Vec<Figure> {
+        j.metrics
+            .iter()
+            .map(|(name, e)| Figure {
+                name: name.clone(),
+                value: e.value,
+                low: e.low,
+                high: e.high,
+            })
+            .collect()
+    };
+    let roc = |j: &Judged| -> Vec<(f64, f64)> {
+        j.curves
+            .roc
+            .iter()
+            .map(|p| (p.false_positive_rate, p.true_positive_rate))
+            .collect()
+    };
+    let m = &v.model;
+    // Event probabilities (the second class) of the rows judged, for the histogram.
+    let mut histogram = vec![0u64; 20];
+    if v.outputs == 2 {
+        for p in v
+            .predictions
+            .chunks_exact(2)
+            .map(|p| p[1])
+            .filter(|p| p.is_finite())
+        {
+            histogram[((p * 20.0) as usize).min(19)] += 1;
+        }
+    }
+    RunValidation {
+        scheme: scheme_words(scheme),
+        judged_rows: v.judged_rows,
+        figures: figures(m),
+        baseline_name: if v.outputs == 1 {
+            "ridge regression".into()
+        } else {
+            "logistic regression".into()
+        },
+        baseline: v.baseline.as_ref().map(figures),
+        roc: roc(m),
+        baseline_roc: v.baseline.as_ref().map(roc).unwrap_or_default(),
+        calibration: m
+            .curves
+            .calibration
+            .iter()
+            .map(|g| CalibrationGroup {
+                lowest: g.lowest_prediction,
+                highest: g.highest_prediction,
+                mean_predicted: g.mean_prediction,
+                observed: g.observed.value,
+                low: g.observed.low,
+                high: g.observed.high,
+                rows: g.observed.total,
+            })
+            .collect(),
+        smoothed: m
+            .curves
+            .smoothed_calibration
+            .iter()
+            .map(|p| (p.predicted, p.observed))
+            .collect(),
+        histogram,
+        decision: m
+            .curves
+            .decision
+            .iter()
+            .map(|d| (d.threshold, d.model, d.treat_all))
+            .collect(),
+        error_by_size: v.error_by_size.clone().unwrap_or_default(),
+        warnings,
+        notes: v.notes.clone(),
+    }
 }
 
 /// The size of this worker's wasm memory (it only grows, so this is the peak so far).

@@ -8,7 +8,7 @@
 //! The main worker stays free meanwhile; a cancel stops these workers with it.
 
 use js_sys::{Reflect, Uint8Array};
-use spinney_web::protocol::{FitDesign, Reply, Request, PROTOCOL_VERSION};
+use spinney_web::protocol::{FitDesign, Judging, Reply, Request, PROTOCOL_VERSION};
 use wasm_bindgen::prelude::*;
 use web_sys::{MessageEvent, Worker};
 
@@ -30,6 +30,7 @@ struct Job {
     design: FitDesign,
     method: String,
     settings: Vec<(String, String)>,
+    judging: Option<Judging>,
     /// (first tree, count) of each helper's share.
     shares: Vec<(usize, usize)>,
     parts: Vec<Option<Uint8Array>>,
@@ -99,14 +100,16 @@ fn post(page: &Shared, index: usize, request: Request, bytes: Option<Uint8Array>
     }
 }
 
-/// Grows the forest of `Fit { id, design, method, settings }` (of `trees` trees) on
-/// `workers` extra workers, loading the table into those that do not hold it yet.
+/// Grows the forest of `Fit { id, design, method, settings, judging }` (of `trees` trees)
+/// on `workers` extra workers, loading the table into those that do not hold it yet.
+#[allow(clippy::too_many_arguments)]
 pub fn start(
     page: &Shared,
     id: u32,
     design: FitDesign,
     method: String,
     settings: Vec<(String, String)>,
+    judging: Option<Judging>,
     trees: usize,
     workers: usize,
 ) {
@@ -140,6 +143,7 @@ pub fn start(
             design,
             method,
             settings,
+            judging,
             parts: vec![None; n],
             done: vec![0; n],
             shares,
@@ -273,6 +277,7 @@ fn on_reply(page: &Shared, index: usize, reply: Reply, bytes: Option<Uint8Array>
                             design: job.design.clone(),
                             method: job.method.clone(),
                             settings: job.settings.clone(),
+                            judging: job.judging.clone(),
                         },
                         joined,
                     ))

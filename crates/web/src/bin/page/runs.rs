@@ -14,7 +14,7 @@ use plotters::prelude::IntoDrawingArea;
 use spinney_charts::{draw_error_curves, Curve, ErrorChart, COLOURS};
 use spinney_core::model::Method as FitMethod;
 use spinney_core::settings::FitSettings;
-use spinney_web::protocol::{Request, RunResult, PROTOCOL_VERSION};
+use spinney_web::protocol::{Judging, Request, RunResult, PROTOCOL_VERSION};
 use wasm_bindgen::JsCast;
 use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlInputElement};
 
@@ -56,6 +56,11 @@ pub struct Fits {
     charted: Option<usize>,
     /// Workers to grow a forest's trees on (`None`: the default for this machine).
     workers: Option<usize>,
+    /// How to judge the next run, in the command line's words (`None`: the method's
+    /// default: out-of-bag rows for bagging and forests, 5 folds otherwise; "none": not).
+    scheme: Option<String>,
+    /// Judge the baseline on the same splits (on unless the user unticks it).
+    no_baseline: bool,
 }
 
 impl Fits {
@@ -75,6 +80,18 @@ impl Fits {
 
     fn method(&self) -> FitMethod {
         self.method.unwrap_or(FitMethod::Forest)
+    }
+
+    /// The validation scheme for `method`: the user's choice where it applies, else the
+    /// method's default.
+    fn scheme(&self, method: FitMethod) -> String {
+        let bagged = matches!(method, FitMethod::Forest | FitMethod::Bagging);
+        match self.scheme.as_deref() {
+            Some("oob") if !bagged => "folds:5".into(),
+            Some(s) => s.into(),
+            None if bagged => "oob".into(),
+            None => "folds:5".into(),
+        }
     }
 
     /// Workers for bagging and forests: the user's choice, else up to 4 of the machine's
@@ -346,6 +363,7 @@ pub fn render(p: &Page) {
     render_form(p);
     render_runs(p);
     render_chart(p);
+    super::compare::render(p);
 }
 
 fn render_form(p: &Page) {
@@ -386,9 +404,52 @@ fn render_form(p: &Page) {
             "<label class=\"field\"><span class=\"name\">Workers</span><select id=\"workers\" aria-describedby=\"help-workers\">{options}</select><span class=\"help\" id=\"help-workers\">Browser threads growing trees at the same time; each holds its own copy of the table. The forest is the same whatever the number.</span></label>"
         );
     }
+    html += &judging_controls(p, method);
     html += "</div><p class=\"run-line\"><button type=\"button\" id=\"run-start\" class=\"button primary\">Grow this model</button> <span id=\"run-hint\" class=\"hint\"></span></p>";
     set_html(&p.doc, "run-form", &html);
     check_form(p);
+}
+
+/// The validation choice and the baseline tick box.
+fn judging_controls(p: &Page, method: FitMethod) -> String {
+    let chosen = p.fits.scheme(method);
+    let mut options: Vec<(String, String)> = Vec::new();
+    if matches!(method, FitMethod::Forest | FitMethod::Bagging) {
+        options.push(("oob".into(), "its out-of-bag records (no refitting)".into()));
+    }
+    for (value, words) in [
+        ("folds:5", "5-fold cross-validation, stratified"),
+        ("folds:10", "10-fold cross-validation, stratified"),
+        ("folds:10:5", "10 folds, repeated 5 times"),
+        ("holdout:0.25", "a quarter of the records held out"),
+        ("bootstrap:100", "bootstrap optimism correction, 100 refits"),
+    ] {
+        options.push((value.into(), words.into()));
+    }
+    if let Some((design, _)) = design_of(p) {
+        if let Some(g) = design.group {
+            options.push((
+                format!("groups:5:{g}"),
+                format!("5 folds keeping each {g} together"),
+            ));
+        }
+    }
+    options.push(("none".into(), "not judged (training figures only)".into()));
+    let list: String = options
+        .iter()
+        .map(|(v, w)| {
+            format!(
+                "<option value=\"{}\"{}>{}</option>",
+                esc(v),
+                if *v == chosen { " selected" } else { "" },
+                esc(w)
+            )
+        })
+        .collect();
+    format!(
+        "<label class=\"field\"><span class=\"name\">Judge it on</span><select id=\"judging\" aria-describedby=\"help-judging\">{list}</select><span class=\"help\" id=\"help-judging\">Records the model did not learn from give honest figures; step 4 compares the runs on them.</span></label><label class=\"field tick\"><input type=\"checkbox\" id=\"baseline\"{}> <span class=\"name\">Judge a baseline beside it</span><span class=\"help\">A penalised logistic (or linear) regression on the same splits, to show what the trees add.</span></label>",
+        if p.fits.no_baseline { "" } else { " checked" }
+    )
 }
 
 /// Shows each field's problem beside it and enables Run only when all is well.
@@ -433,7 +494,7 @@ fn fmt_error(x: f64) -> String {
     }
 }
 
-fn fmt_seconds(s: f64) -> String {
+pub fn fmt_seconds(s: f64) -> String {
     if s < 10.0 {
         format!("{s:.1} s")
     } else if s < 120.0 {
@@ -518,6 +579,16 @@ fn chart_of(r: &RunView) -> ErrorChart {
             colour: COLOURS[0],
             dashed: false,
         });
+    }
+    if let Some(v) = res.validation.as_ref().filter(|_| res.oob_curve.is_empty()) {
+        if !v.error_by_size.is_empty() {
+            curves.push(Curve {
+                name: format!("out-of-sample ({})", v.scheme),
+                values: v.error_by_size.clone(),
+                colour: COLOURS[0],
+                dashed: false,
+            });
+        }
     }
     if !res.training_curve.is_empty() {
         curves.push(Curve {
@@ -689,12 +760,20 @@ fn start(page: &Shared) {
             })
             .unwrap_or(0);
         let workers = p.fits.workers();
+        let scheme = p.fits.scheme(method);
+        let judging = (scheme != "none").then(|| Judging {
+            scheme,
+            threshold: 0.5,
+            baseline: !p.fits.no_baseline,
+            seed: 1,
+        });
         if matches!(method, FitMethod::Forest | FitMethod::Bagging) && workers > 1 && trees > 1 {
             Err((
                 id,
                 design,
                 method.word().to_string(),
                 settings,
+                judging,
                 trees,
                 workers,
             ))
@@ -705,13 +784,14 @@ fn start(page: &Shared) {
                 design,
                 method: method.word().to_string(),
                 settings,
+                judging,
             })
         }
     };
     match request {
         Ok(request) => send(page, request, None),
-        Err((id, design, method, settings, trees, workers)) => {
-            super::pool::start(page, id, design, method, settings, trees, workers)
+        Err((id, design, method, settings, judging, trees, workers)) => {
+            super::pool::start(page, id, design, method, settings, judging, trees, workers)
         }
     }
 }
@@ -769,6 +849,22 @@ pub fn fitted(page: &Shared, id: u32, mut result: RunResult) {
     render_runs(&p);
     render_chart(&p);
     check_form(&p);
+    super::compare::render(&p);
+}
+
+/// Every run with its plain label (method and settings) and result, in order.
+pub fn results(fits: &Fits) -> Vec<(usize, String, &RunResult)> {
+    fits.runs
+        .iter()
+        .enumerate()
+        .map(|(i, r)| {
+            (
+                i,
+                format!("{}, {}", method_label(r.method), r.summary),
+                &r.result,
+            )
+        })
+        .collect()
 }
 
 /// The fit failed: its message in the step, the runs as they were.
@@ -817,6 +913,14 @@ fn on_form(page: &Shared, event: Event) {
             let value = target.unchecked_ref::<HtmlInputElement>().value();
             p.fits.typed.insert((method.word(), f.name), value);
             check_form(&p);
+        }
+        "change" if target.id() == "judging" => {
+            let value = target.unchecked_ref::<web_sys::HtmlSelectElement>().value();
+            page.borrow_mut().fits.scheme = Some(value);
+        }
+        "change" if target.id() == "baseline" => {
+            let ticked = target.unchecked_ref::<HtmlInputElement>().checked();
+            page.borrow_mut().fits.no_baseline = !ticked;
         }
         "change" if target.id() == "workers" => {
             let value = target.unchecked_ref::<web_sys::HtmlSelectElement>().value();

@@ -1,0 +1,306 @@
+//! Step 4, comparing the runs on records they did not learn from: one table of every run's
+//! out-of-sample figures with their 95% intervals and the baseline judged on the same splits
+//! beside it, the computed warnings, and for two-class outcomes the ROC, calibration and
+//! decision curves of the judged runs (each chart with its numbers as a table, its text
+//! alternative). Runs fitted without a validation say so and show no figures here.
+
+use plotters::prelude::*;
+use spinney_charts::{
+    calibration_table, decision_table, draw_calibration, draw_decision, draw_roc, roc_table,
+    run_colour, CalibrationBin, CalibrationChart, CalibrationRun, DecisionChart, DecisionRun,
+    RocChart, RocRun, Table,
+};
+use spinney_web::protocol::{Figure, RunValidation};
+use wasm_bindgen::JsCast;
+use web_sys::HtmlCanvasElement;
+
+use super::measured::MeasuredCanvas;
+use super::{by_id, esc, set_html, show, Page};
+
+/// The figures shown for each kind of outcome, with their column headings.
+const TWO_CLASSES: [(&str, &str); 5] = [
+    ("auc", "AUC"),
+    ("brier", "Brier score"),
+    ("calibration_slope", "calibration slope"),
+    ("log_loss", "log loss"),
+    ("accuracy", "accuracy at 0.5"),
+];
+const CLASSES: [(&str, &str); 4] = [
+    ("macro_auc", "AUC, mean of one-vs-rest"),
+    ("accuracy", "accuracy"),
+    ("balanced_accuracy", "balanced accuracy"),
+    ("log_loss", "log loss"),
+];
+const NUMBERS: [(&str, &str); 3] = [("rmse", "RMSE"), ("mae", "MAE"), ("r_squared", "R²")];
+
+/// A figure with its interval: "0.812 (0.790 to 0.834)".
+fn cell(figures: &[Figure], name: &str) -> String {
+    let Some(f) = figures.iter().find(|f| f.name == name) else {
+        return "—".into();
+    };
+    let digits = if f.value.abs() >= 100.0 { 1 } else { 3 };
+    match (f.low, f.high) {
+        (Some(l), Some(h)) => format!(
+            "{:.d$} <span class=\"unit\">({:.d$} to {:.d$})</span>",
+            f.value,
+            l,
+            h,
+            d = digits
+        ),
+        _ => format!("{:.d$}", f.value, d = digits),
+    }
+}
+
+/// A chart's numbers as an HTML table.
+fn table_html(t: &Table) -> String {
+    let mut html = format!(
+        "<table class=\"curve-numbers\"><caption>{}</caption><thead><tr>",
+        esc(&t.caption)
+    );
+    for c in &t.columns {
+        html += &format!("<th scope=\"col\">{}</th>", esc(c));
+    }
+    html += "</tr></thead><tbody>";
+    for row in &t.rows {
+        html += "<tr>";
+        for (i, v) in row.iter().enumerate() {
+            if i == 0 {
+                html += &format!("<th scope=\"row\">{}</th>", esc(v));
+            } else {
+                html += &format!("<td class=\"num\">{}</td>", esc(v));
+            }
+        }
+        html += "</tr>";
+    }
+    html + "</tbody></table>"
+}
+
+/// A chart's drawing on an area of the page's canvas, at a pixel ratio.
+type Drawing<'a> =
+    &'a dyn Fn(&DrawingArea<MeasuredCanvas, plotters::coord::Shift>, f64) -> Result<(), String>;
+
+/// Draws on canvas `id` at the screen's pixel density, `aspect` high per unit of width.
+fn draw_on(doc: &web_sys::Document, id: &str, aspect: f64, draw: Drawing<'_>) {
+    let Ok(canvas) = by_id(doc, id).dyn_into::<HtmlCanvasElement>() else {
+        return;
+    };
+    let ratio = web_sys::window()
+        .map_or(1.0, |w| w.device_pixel_ratio())
+        .max(1.0);
+    let css_width = match canvas.client_width() {
+        w if w > 0 => w as f64,
+        _ => 560.0,
+    };
+    canvas.set_width((css_width * ratio).round() as u32);
+    canvas.set_height((css_width * aspect * ratio).round() as u32);
+    let Some(backend) = MeasuredCanvas::new(canvas) else {
+        return;
+    };
+    if let Err(e) = draw(&backend.into_drawing_area(), ratio) {
+        web_sys::console::error_1(&format!("the chart could not be drawn: {e}").into());
+    }
+}
+
+pub fn render(p: &Page) {
+    let runs = super::runs::results(&p.fits);
+    show(
+        &p.doc,
+        "step-compare",
+        p.report.is_some() && !runs.is_empty(),
+    );
+    if runs.is_empty() {
+        return;
+    }
+    // The figures follow the kind of the latest run's outcome.
+    let kind = runs.iter().rev().find_map(|(_, _, r)| {
+        r.validation.as_ref().map(|v| {
+            if v.figures.iter().any(|f| f.name == "auc") {
+                &TWO_CLASSES[..]
+            } else if v.figures.iter().any(|f| f.name == "rmse") {
+                &NUMBERS[..]
+            } else {
+                &CLASSES[..]
+            }
+        })
+    });
+    let columns = kind.unwrap_or(&TWO_CLASSES[..]);
+    let mut html = String::from(
+        "<table class=\"compare-runs\"><thead><tr><th scope=\"col\">Run</th><th scope=\"col\">Model</th><th scope=\"col\">Judged by</th>",
+    );
+    for (_, heading) in columns {
+        html +=
+            &format!("<th scope=\"col\">{heading} <span class=\"unit\">(95% interval)</span></th>");
+    }
+    html += "<th scope=\"col\">Fit time</th></tr></thead><tbody>";
+    let mut warnings: Vec<String> = Vec::new();
+    for (i, label, r) in &runs {
+        let blank = "<td class=\"num\">—</td>".repeat(columns.len());
+        let fit = super::runs::fmt_seconds(r.fit_seconds);
+        match &r.validation {
+            Some(v) => {
+                html += &format!(
+                    "<tr data-run=\"{}\" data-judged=\"yes\"><th scope=\"row\">{}</th><td>{}</td><td>{} <span class=\"unit\">({} records)</span></td>",
+                    i + 1,
+                    i + 1,
+                    esc(label),
+                    esc(&v.scheme),
+                    v.judged_rows
+                );
+                for (name, _) in columns {
+                    html += &format!(
+                        "<td class=\"num\" data-figure=\"{name}\">{}</td>",
+                        cell(&v.figures, name)
+                    );
+                }
+                html += &format!("<td class=\"num\">{fit}</td></tr>");
+                if let Some(b) = &v.baseline {
+                    html += &format!(
+                        "<tr class=\"baseline\" data-baseline-of=\"{}\"><th scope=\"row\"></th><td>baseline: {}</td><td>the same splits</td>",
+                        i + 1,
+                        esc(&v.baseline_name)
+                    );
+                    for (name, _) in columns {
+                        html += &format!("<td class=\"num\">{}</td>", cell(b, name));
+                    }
+                    html += "<td></td></tr>";
+                }
+                for w in &v.warnings {
+                    if !warnings.contains(w) {
+                        warnings.push(w.clone());
+                    }
+                }
+            }
+            None => {
+                let why = r.validation_refused.as_deref().map_or(
+                    "grown without a validation: its figures in step 3 are training figures, not a validation".to_string(),
+                    |e| format!("could not be judged as asked: {e}"),
+                );
+                html += &format!(
+                    "<tr data-run=\"{}\" data-judged=\"no\"><th scope=\"row\">{}</th><td>{}</td><td class=\"note\">{}</td>{blank}<td class=\"num\">{fit}</td></tr>",
+                    i + 1,
+                    i + 1,
+                    esc(label),
+                    esc(&why)
+                );
+            }
+        }
+    }
+    html += "</tbody></table>";
+    set_html(&p.doc, "compare-table", &html);
+    let warned = if warnings.is_empty() {
+        String::new()
+    } else {
+        let items: String = warnings
+            .iter()
+            .map(|w| format!("<li>{}</li>", esc(w)))
+            .collect();
+        format!("<h3>Warnings</h3><ul class=\"warnings\">{items}</ul>")
+    };
+    set_html(&p.doc, "compare-warnings", &warned);
+    render_charts(p, &runs);
+}
+
+/// The ROC, calibration and decision charts of the judged two-class runs.
+fn render_charts(p: &Page, runs: &[(usize, String, &spinney_web::protocol::RunResult)]) {
+    let judged: Vec<(usize, &String, &RunValidation)> = runs
+        .iter()
+        .filter_map(|(i, label, r)| {
+            let v = r.validation.as_ref()?;
+            (!v.roc.is_empty()).then_some((*i, label, v))
+        })
+        .collect();
+    show(&p.doc, "compare-charts", !judged.is_empty());
+    if judged.is_empty() {
+        return;
+    }
+    let name = |i: usize, label: &str| format!("run {}: {label}", i + 1);
+    let auc = |v: &RunValidation| v.figures.iter().find(|f| f.name == "auc").map(|f| f.value);
+    let mut roc = RocChart {
+        title: String::new(),
+        runs: judged
+            .iter()
+            .map(|(i, label, v)| RocRun {
+                name: name(*i, label),
+                auc: auc(v),
+                points: v.roc.clone(),
+                colour: run_colour(*i),
+            })
+            .collect(),
+    };
+    // The baseline of the latest judged run that has one, in grey.
+    if let Some((i, _, v)) = judged
+        .iter()
+        .rev()
+        .find(|(_, _, v)| !v.baseline_roc.is_empty())
+    {
+        roc.runs.push(RocRun {
+            name: format!("baseline of run {}: {}", i + 1, v.baseline_name),
+            auc: v
+                .baseline
+                .as_ref()
+                .and_then(|b| b.iter().find(|f| f.name == "auc"))
+                .map(|f| f.value),
+            points: v.baseline_roc.clone(),
+            colour: (150, 146, 136),
+        });
+    }
+    draw_on(&p.doc, "roc-canvas", 0.8, &|area, s| {
+        draw_roc(area, &roc, s)
+    });
+    set_html(&p.doc, "roc-numbers", &table_html(&roc_table(&roc)));
+
+    let calibration = CalibrationChart {
+        title: String::new(),
+        runs: judged
+            .iter()
+            .map(|(i, label, v)| CalibrationRun {
+                name: name(*i, label),
+                colour: run_colour(*i),
+                bins: v
+                    .calibration
+                    .iter()
+                    .map(|g| CalibrationBin {
+                        lowest_predicted: g.lowest,
+                        highest_predicted: g.highest,
+                        mean_predicted: g.mean_predicted,
+                        observed: g.observed,
+                        low: g.low,
+                        high: g.high,
+                        rows: g.rows,
+                    })
+                    .collect(),
+                smoothed: v.smoothed.clone(),
+                histogram: v.histogram.clone(),
+            })
+            .collect(),
+    };
+    draw_on(&p.doc, "calibration-canvas", 0.9, &|area, s| {
+        draw_calibration(area, &calibration, s)
+    });
+    set_html(
+        &p.doc,
+        "calibration-numbers",
+        &table_html(&calibration_table(&calibration)),
+    );
+
+    let decision = DecisionChart {
+        title: String::new(),
+        treat_all: judged[0].2.decision.iter().map(|d| (d.0, d.2)).collect(),
+        runs: judged
+            .iter()
+            .map(|(i, label, v)| DecisionRun {
+                name: name(*i, label),
+                colour: run_colour(*i),
+                points: v.decision.iter().map(|d| (d.0, d.1)).collect(),
+            })
+            .collect(),
+    };
+    draw_on(&p.doc, "decision-canvas", 0.7, &|area, s| {
+        draw_decision(area, &decision, s)
+    });
+    set_html(
+        &p.doc,
+        "decision-numbers",
+        &table_html(&decision_table(&decision)),
+    );
+}
