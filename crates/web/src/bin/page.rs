@@ -160,7 +160,7 @@ fn default_role(c: &ColumnSummary) -> Role {
 // ---------------------------------------------------------------------------- worker
 
 fn spawn_worker(page: &Shared) -> Worker {
-    let worker = match Worker::new("./worker_loader.js") {
+    let worker = match Worker::new(&worker_url()) {
         Ok(w) => w,
         Err(e) => {
             web_sys::console::error_2(&"cannot start the worker".into(), &e);
@@ -179,6 +179,66 @@ fn spawn_worker(page: &Shared) -> Worker {
     worker.set_onmessage(Some(on_message.as_ref().unchecked_ref()));
     on_message.forget();
     worker
+}
+
+/// A value the single-file build's start-up script put on `window` (scripts/build-single-file):
+/// `spinneyWorkerUrl`, the worker as a blob URL, and `spinneyEmbedded`, the demo files as
+/// data URLs by path. `None` in the ordinary build.
+fn single_file_global(path: &[&str]) -> Option<String> {
+    let mut value: JsValue = web_sys::window()?.into();
+    for key in path {
+        value = Reflect::get(&value, &(*key).into()).ok()?;
+    }
+    value.as_string()
+}
+
+/// The worker's script: the built worker_loader.js, or the single file's blob URL.
+fn worker_url() -> String {
+    single_file_global(&["spinneyWorkerUrl"]).unwrap_or_else(|| "./worker_loader.js".into())
+}
+
+/// Registers the service worker that keeps a copy of the page for use without a network
+/// (web/offline-worker.js), and says in the page what holds. Not from a file (browsers allow
+/// service workers only on http(s)), where the page needs no network anyway.
+fn keep_offline_copy(doc: &Document) {
+    let note = by_id(doc, "offline-note");
+    let Some(window) = web_sys::window() else {
+        return;
+    };
+    if window.location().protocol().is_ok_and(|p| p == "file:") {
+        note.set_text_content(Some(
+            "Opened from a file on this computer: it needs no network at all.",
+        ));
+        let _ = note.set_attribute("data-offline", "file");
+        return;
+    }
+    let navigator = window.navigator();
+    if !Reflect::has(&navigator, &"serviceWorker".into()).unwrap_or(false) {
+        note.set_text_content(Some("This browser keeps no offline copy of the page at this address (it is not a secure one); the page still sends nothing out."));
+        return;
+    }
+    let container = navigator.service_worker();
+    let registered = container.register("./offline-worker.js");
+    spawn_local(async move {
+        let ready = match JsFuture::from(registered).await {
+            Ok(_) => container.ready().map(JsFuture::from),
+            Err(e) => Err(e),
+        };
+        let ready = match ready {
+            Ok(r) => r.await,
+            Err(e) => Err(e),
+        };
+        match ready {
+            Ok(_) => {
+                note.set_text_content(Some("A copy of this page is kept in this browser, so it also opens and works with the network off."));
+                let _ = note.set_attribute("data-offline", "ready");
+            }
+            Err(e) => {
+                web_sys::console::warn_2(&"no offline copy".into(), &e);
+                note.set_text_content(Some("This browser did not keep an offline copy of the page; it needs this address to open again. Your data is not affected."));
+            }
+        }
+    });
 }
 
 fn send(page: &Shared, request: Request, bytes: Option<Uint8Array>) {
@@ -406,7 +466,9 @@ fn load_origin(page: &Shared, origin: Origin, settings: ReadSettings, restoring:
             Origin::Demo(path) => {
                 let name = path.rsplit('/').next().unwrap_or(path).to_string();
                 let window = web_sys::window().expect("window");
-                let response = match JsFuture::from(window.fetch_with_str(path)).await {
+                let url = single_file_global(&["spinneyEmbedded", path.as_str()])
+                    .unwrap_or_else(|| path.clone());
+                let response = match JsFuture::from(window.fetch_with_str(&url)).await {
                     Ok(r) => r.unchecked_into::<web_sys::Response>(),
                     Err(_) => {
                         show_message(&doc, &format!("The demo file {name} could not be loaded from this page's own folder."), true);
@@ -895,6 +957,7 @@ fn main() {
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;
     by_id(&doc, "version").set_text_content(Some(spinney_core::VERSION));
+    keep_offline_copy(&doc);
 
     let input = by_id(&doc, "file-input");
     let pg = page.clone();
