@@ -85,6 +85,16 @@ pub enum ErrorKind {
         written_by: String,
         reads: u64,
     },
+    /// A study file that cannot be used: not JSON, not a study, cut short, or inconsistent
+    /// contents. `at` holds the line and column when the JSON itself is at fault.
+    BadStudyFile { at: Where, reason: String },
+    /// A study file whose major format version is newer than this Spinney reads.
+    NewerStudyFile {
+        major: u64,
+        minor: u64,
+        written_by: String,
+        reads: u64,
+    },
     /// A model could not be written as a file (a value JSON cannot hold).
     ModelNotSaved { reason: String },
     /// A table to score lacks predictors the model needs, or holds them as another kind.
@@ -112,7 +122,8 @@ impl Error {
             ErrorKind::RaggedRow { at, .. }
             | ErrorKind::UnclosedQuote { at }
             | ErrorKind::NotText { at, .. }
-            | ErrorKind::BadModelFile { at, .. } => Some(at),
+            | ErrorKind::BadModelFile { at, .. }
+            | ErrorKind::BadStudyFile { at, .. } => Some(at),
             _ => None,
         }
     }
@@ -193,19 +204,13 @@ impl fmt::Display for Error {
                 )
             }
             ErrorKind::BadDesign { reason } => write!(f, "{reason}"),
-            ErrorKind::BadModelFile { at, reason } => {
-                let place = match (at.line, &at.column) {
-                    (Some(line), Some(column)) => format!(" (line {line}, column {column})"),
-                    (Some(line), None) => format!(" (line {line})"),
-                    _ => String::new(),
-                };
-                write!(
-                    f,
-                    "this model file cannot be used: {reason}{place}. Save the model again with \
-                     `spinney fit ... --save-model`; if the file was copied or edited, take the \
-                     original again"
-                )
-            }
+            ErrorKind::BadModelFile { at, reason } => write!(
+                f,
+                "this model file cannot be used: {reason}{}. Save the model again with \
+                 `spinney fit ... --save-model`; if the file was copied or edited, take the \
+                 original again",
+                place(at)
+            ),
             ErrorKind::NewerModelFile {
                 major,
                 minor,
@@ -216,6 +221,24 @@ impl fmt::Display for Error {
                 "this model file has format version {major}.{minor}, written by {written_by}; \
                  this Spinney ({}) reads format version {reads} and older. Update Spinney to \
                  read it",
+                crate::VERSION
+            ),
+            ErrorKind::BadStudyFile { at, reason } => write!(
+                f,
+                "this study file cannot be used: {reason}{}. Save the study again from the \
+                 page; if the file was copied or edited, take the original again",
+                place(at)
+            ),
+            ErrorKind::NewerStudyFile {
+                major,
+                minor,
+                written_by,
+                reads,
+            } => write!(
+                f,
+                "this study file has format version {major}.{minor}, written by {written_by}; \
+                 this Spinney ({}) reads format version {reads} and older. Update Spinney to \
+                 open it",
                 crate::VERSION
             ),
             ErrorKind::ModelNotSaved { reason } => write!(
@@ -249,6 +272,15 @@ impl fmt::Display for Error {
                 write!(f, "{}", parts.join("; "))
             }
         }
+    }
+}
+
+/// " (line L, column C)" where a JSON reader knows them.
+fn place(at: &Where) -> String {
+    match (at.line, &at.column) {
+        (Some(line), Some(column)) => format!(" (line {line}, column {column})"),
+        (Some(line), None) => format!(" (line {line})"),
+        _ => String::new(),
     }
 }
 

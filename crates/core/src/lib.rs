@@ -22,6 +22,7 @@ pub mod model_file;
 pub mod progress;
 pub mod random;
 pub mod settings;
+pub mod study;
 pub mod tree;
 
 pub use error::{Error, ErrorKind, Where};

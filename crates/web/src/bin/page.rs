@@ -21,6 +21,10 @@ use wasm_bindgen_futures::{spawn_local, JsFuture};
 mod measured;
 #[path = "page/runs.rs"]
 mod runs;
+#[path = "page/store.rs"]
+mod store;
+#[path = "page/study.rs"]
+mod study;
 
 use web_sys::{
     Document, DragEvent, Element, Event, File, HtmlInputElement, HtmlSelectElement, MessageEvent,
@@ -76,6 +80,9 @@ impl Role {
 enum Origin {
     File(File),
     Demo(String),
+    /// Bytes the page holds itself: a study's included data or the browser's kept copy
+    /// (name, bytes; copied each time, as sending to the worker hands the copy over).
+    Bytes(String, Uint8Array),
 }
 
 struct Page {
@@ -98,6 +105,8 @@ struct Page {
     roles: Vec<Role>,
     /// The model-runs step.
     fits: runs::Fits,
+    /// The study file and the browser's kept copy.
+    study: study::StudyState,
 }
 
 type Shared = Rc<RefCell<Page>>;
@@ -371,6 +380,8 @@ fn on_reply(page: &Shared, reply: Reply) {
                     .insert_adjacent_html("beforeend", &format!(" · read in {read_seconds:.2} s"));
             }
             render_columns(&p);
+            drop(p);
+            study::table_read(page);
         }
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
         Reply::Failed {
@@ -457,38 +468,72 @@ fn start_read(
     );
 }
 
+/// The bytes behind an origin, as a fresh array the caller may hand over to the worker.
+async fn origin_bytes(origin: &Origin) -> Result<(String, Uint8Array), String> {
+    let (name, buffer) = match origin {
+        Origin::File(file) => (file.name(), JsFuture::from(file.array_buffer()).await),
+        Origin::Bytes(name, bytes) => return Ok((name.clone(), bytes.slice(0, bytes.length()))),
+        Origin::Demo(path) => {
+            let name = path.rsplit('/').next().unwrap_or(path).to_string();
+            let window = web_sys::window().expect("window");
+            let url = single_file_global(&["spinneyEmbedded", path.as_str()])
+                .unwrap_or_else(|| path.clone());
+            let response = match JsFuture::from(window.fetch_with_str(&url)).await {
+                Ok(r) => r.unchecked_into::<web_sys::Response>(),
+                Err(_) => {
+                    return Err(format!(
+                        "The demo file {name} could not be loaded from this page's own folder."
+                    ))
+                }
+            };
+            match response.array_buffer() {
+                Ok(promise) => (name, JsFuture::from(promise).await),
+                Err(e) => (name, Err(e)),
+            }
+        }
+    };
+    match buffer {
+        Ok(buffer) => Ok((name, Uint8Array::new(&buffer))),
+        Err(_) => Err(format!("{name} could not be opened by the browser. Check that the file still exists and you may read it.")),
+    }
+}
+
 fn load_origin(page: &Shared, origin: Origin, settings: ReadSettings, restoring: bool) {
     let page = page.clone();
     spawn_local(async move {
         let doc = page.borrow().doc.clone();
-        let (name, buffer) = match &origin {
-            Origin::File(file) => (file.name(), JsFuture::from(file.array_buffer()).await),
-            Origin::Demo(path) => {
-                let name = path.rsplit('/').next().unwrap_or(path).to_string();
-                let window = web_sys::window().expect("window");
-                let url = single_file_global(&["spinneyEmbedded", path.as_str()])
-                    .unwrap_or_else(|| path.clone());
-                let response = match JsFuture::from(window.fetch_with_str(&url)).await {
-                    Ok(r) => r.unchecked_into::<web_sys::Response>(),
-                    Err(_) => {
-                        show_message(&doc, &format!("The demo file {name} could not be loaded from this page's own folder."), true);
-                        return;
-                    }
-                };
-                match response.array_buffer() {
-                    Ok(promise) => (name, JsFuture::from(promise).await),
-                    Err(e) => (name, Err(e)),
-                }
-            }
-        };
-        match buffer {
-            Ok(buffer) => {
-                let bytes = Uint8Array::new(&buffer);
-                start_read(&page, origin, name, bytes, settings, restoring);
-            }
-            Err(_) => show_message(&doc, &format!("{name} could not be opened by the browser. Check that the file still exists and you may read it."), true),
+        match origin_bytes(&origin).await {
+            Ok((name, bytes)) => start_read(&page, origin, name, bytes, settings, restoring),
+            Err(message) => show_message(&doc, &message, true),
         }
     });
+}
+
+/// Offers `bytes` to the user as a download named `name` (a Blob and an object URL: nothing
+/// leaves the machine).
+fn download(doc: &Document, name: &str, bytes: &[u8], mime: &str) {
+    let parts = Array::of1(&Uint8Array::from(bytes));
+    let options = web_sys::BlobPropertyBag::new();
+    options.set_type(mime);
+    let Ok(blob) = web_sys::Blob::new_with_u8_array_sequence_and_options(&parts, &options) else {
+        return;
+    };
+    let Ok(url) = web_sys::Url::create_object_url_with_blob(&blob) else {
+        return;
+    };
+    if let Ok(a) = doc.create_element("a") {
+        let _ = a.set_attribute("href", &url);
+        let _ = a.set_attribute("download", name);
+        a.unchecked_ref::<web_sys::HtmlElement>().click();
+    }
+    // Revoked after the browser has taken the download.
+    let revoke = Closure::once_into_js(move || {
+        let _ = web_sys::Url::revoke_object_url(&url);
+    });
+    if let Some(w) = web_sys::window() {
+        let _ =
+            w.set_timeout_with_callback_and_timeout_and_arguments_0(revoke.unchecked_ref(), 60_000);
+    }
 }
 
 fn reread(page: &Shared, settings: ReadSettings) {
@@ -867,6 +912,8 @@ fn on_column_change(page: &Shared, event: Event) {
             }
             p.fits.mark_stale();
             render_columns(&p);
+            drop(p);
+            study::autosave(page);
         }
         Some("kind") => {
             let settings = {
@@ -911,7 +958,8 @@ fn on_data_settings(page: &Shared, event: Event) {
 }
 
 fn take_file(page: &Shared, file: File) {
-    load_origin(page, Origin::File(file), ReadSettings::default(), false);
+    let settings = study::reading_for_new_file(&page.borrow());
+    load_origin(page, Origin::File(file), settings, false);
 }
 
 /// The model design the roles table describes: outcome, predictors and weight column, and
@@ -953,6 +1001,7 @@ fn main() {
         settings: ReadSettings::default(),
         roles: Vec::new(),
         fits: runs::Fits::default(),
+        study: study::StudyState::default(),
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;
@@ -1015,6 +1064,7 @@ fn main() {
         cancel(&pg, "Reading cancelled.")
     });
     runs::listen(&page);
+    study::listen(&page);
     let pg = page.clone();
     on(&by_id(&doc, "columns"), "change", move |e: Event| {
         on_column_change(&pg, e)
