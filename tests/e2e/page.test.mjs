@@ -195,6 +195,22 @@ try {
     expect(after[0].oob === firstRun.oob && /Bagging/.test(after[1].text), 'second run missing');
   });
 
+  await check('a gradient boosting run of 60 rounds is kept beside the others', async () => {
+    await page.check('input[name=method][value=boosting]');
+    await page.waitForSelector('#set-rounds');
+    expect((await page.inputValue('#set-rounds')) === '100', 'rounds default is not 100');
+    await page.fill('#set-rounds', '60');
+    await page.fill('#set-learning_rate', '0');
+    await page.waitForSelector('#err-learning_rate:not([hidden])');
+    await page.fill('#set-learning_rate', '0.1');
+    await page.waitForSelector('#err-learning_rate[hidden]', { state: 'attached' });
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="3"]', { timeout: 60000 });
+    const rows = await runRows();
+    expect(/Gradient boosting/.test(rows[2].text) && /rounds 60/.test(rows[2].text), rows[2].text);
+    expect(/ran every round/.test(rows[2].text), `no stopping words: ${rows[2].text}`);
+  });
+
   await check('a design the core refuses gives its message in the step, and the runs stay', async () => {
     expect(await page.$eval('#runs-stale', (e) => e.hidden), 'stale note shown before any change');
     await page.selectOption('select[data-field=role][data-col="0"]', 'predictor');
@@ -203,7 +219,7 @@ try {
     const msg = await page.textContent('#fit-message');
     expect(msg.includes("the predictor 'patient_id' is free text or an identifier"), msg);
     expect(msg.includes('runs kept so far are unchanged'), msg);
-    expect((await runRows()).length === 2, 'runs lost after a refused fit');
+    expect((await runRows()).length === 3, 'runs lost after a refused fit');
     await page.selectOption('select[data-field=role][data-col="0"]', 'group');
     // Putting the role back still counts as a change: the earlier runs are now marked.
     await page.waitForSelector('#runs-stale:not([hidden])');
@@ -214,7 +230,7 @@ try {
     await page.selectOption(`select[data-field=role][data-col="${names.indexOf('bmi')}"]`, 'ignore');
     await page.waitForSelector('#runs-stale:not([hidden])');
     const rows = await runRows();
-    expect(rows.length === 2 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
+    expect(rows.length === 3 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
     await page.locator('#step-runs').screenshot({ path: join(out, 'runs-step.png') });
     await page.screenshot({ path: join(out, 'runs-stale.png'), fullPage: true });
   });

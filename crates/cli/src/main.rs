@@ -2,7 +2,7 @@
 //! for a browser: `spinney inspect FILE` prints how a file reads and a summary of every column
 //! (a readable table, or JSON with `--json`); `spinney fit` fits and reports a model (and
 //! saves it with `--save-model`); `spinney predict MODEL FILE` scores a file with a saved
-//! model.
+//! model; `spinney export-onnx MODEL OUT` writes a saved model as an ONNX file.
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -55,6 +55,13 @@ enum Command {
     Fit(fit::FitArgs),
     /// Score every row of a file with a saved model and write the predictions as CSV.
     Predict(predict::PredictArgs),
+    /// Write a saved model as an ONNX file, to score it with any ONNX runtime.
+    ExportOnnx {
+        /// The model file, written by `spinney fit ... --save-model PATH`.
+        model: PathBuf,
+        /// The ONNX file to write.
+        output: PathBuf,
+    },
     /// Measure speed and memory on generated data, and print the figures.
     Bench {
         #[command(subcommand)]
@@ -93,6 +100,23 @@ fn run(args: Args) -> anyhow::Result<()> {
         } => bench::read(mb, repeats),
         Command::Fit(args) => fit::fit(args),
         Command::Predict(args) => predict::predict(args),
+        Command::ExportOnnx { model, output } => {
+            let bytes = std::fs::read(&model)
+                .with_context(|| format!("cannot read the model file {}", model.display()))?;
+            let fitted = spinney_core::model_file::read_model(&bytes)
+                .map_err(|e| anyhow::anyhow!("{}: {e}", model.display()))?;
+            let onnx = spinney_core::onnx::write_onnx(&fitted);
+            std::fs::write(&output, &onnx)
+                .with_context(|| format!("cannot write {}", output.display()))?;
+            println!(
+                "wrote {} ({} bytes): input 'predictors' holds {} columns, as its metadata entry \
+                 spinney.predictors describes",
+                output.display(),
+                onnx.len(),
+                fitted.predictors.len()
+            );
+            Ok(())
+        }
         Command::Inspect {
             file,
             sheet,

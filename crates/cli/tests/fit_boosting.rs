@@ -106,7 +106,7 @@ fn boosting_refuses_bad_choices_clearly() {
     );
     run(
         boost(&["--set", "huber_quantile=0.5"], "x"),
-        &["only with --set loss=huber"],
+        &["only with loss=huber"],
     );
     run(
         boost(&["--set", "validation_share=1"], "y"),
@@ -114,7 +114,7 @@ fn boosting_refuses_bad_choices_clearly() {
     );
     fails_with(
         &["fit", f, "--outcome", "y", "--set", "l2=1"],
-        &["only for --method boosting"],
+        &["only for gradient boosting"],
     );
     fails_with(
         &["fit", f, "--outcome", "y", "--staged", "--json"],

@@ -188,3 +188,28 @@ fn bad_models_and_tables_are_refused_clearly() {
         &["--keep nhs_number", "no column named 'nhs_number'"],
     );
 }
+
+#[test]
+fn export_onnx_writes_a_file_and_refuses_bad_models() {
+    let model = saved_tree("to-onnx.json", 3);
+    let out = path("to-onnx.onnx");
+    let said = succeeds(&["export-onnx", s(&model), s(&out)]);
+    assert!(String::from_utf8_lossy(&said.stdout).contains("spinney.predictors"));
+    // An ONNX model is a protobuf ModelProto: field 1 (ir_version) comes first, as a varint
+    // (key byte 0x08), and the operator set names ai.onnx.ml (onnx.proto3; the values
+    // themselves are checked with onnxruntime in tests/reference/check_onnx.py).
+    let bytes = std::fs::read(&out).unwrap();
+    assert_eq!(bytes[0], 0x08);
+    assert!(bytes.windows(10).any(|w| w == b"ai.onnx.ml"));
+    let cut = path("to-onnx-cut.json");
+    let text = std::fs::read_to_string(&model).unwrap();
+    std::fs::write(&cut, &text[..text.len() / 3]).unwrap();
+    fails_with(
+        &["export-onnx", s(&cut), s(&out)],
+        &["to-onnx-cut.json", "ends before the model is complete"],
+    );
+    fails_with(
+        &["export-onnx", s(&model), s(&path("no-such-dir/x.onnx"))],
+        &["cannot write", "x.onnx"],
+    );
+}

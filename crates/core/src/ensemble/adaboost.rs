@@ -45,6 +45,18 @@ pub enum Stop {
     Cancelled,
 }
 
+impl Stop {
+    /// Why it stopped, in words for people.
+    pub fn words(self) -> &'static str {
+        match self {
+            Stop::AllRounds => "ran every round",
+            Stop::Perfect => "stopped early: a round classified every training row correctly",
+            Stop::NoBetterThanChance => "stopped early: a round was no better than chance",
+            Stop::Cancelled => "cancelled before the last round",
+        }
+    }
+}
+
 #[derive(Debug, Clone)]
 pub struct AdaBoost {
     pub trees: Vec<Tree>,

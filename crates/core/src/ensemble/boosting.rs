@@ -112,6 +112,18 @@ pub struct Boosting {
 }
 
 impl Boosting {
+    /// Why it stopped, in words for people.
+    pub fn stopping_words(&self) -> String {
+        match self.stopping {
+            Stopping::AllRounds => "ran every round".into(),
+            Stopping::Early { best, last } => format!(
+                "stopped early at round {last}: the held-out loss was lowest after round {best}, \
+                 and the model keeps rounds 1 to {best}"
+            ),
+            Stopping::Cancelled => "cancelled before the last round (partial model)".into(),
+        }
+    }
+
     /// Rounds kept in the model.
     pub fn rounds(&self) -> usize {
         self.trees.len() / self.outputs.max(1)

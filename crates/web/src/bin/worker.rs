@@ -7,15 +7,12 @@ use std::cell::RefCell;
 use std::rc::Rc;
 
 use js_sys::{Object, Reflect, Uint8Array};
-use spinney_core::binning::bin_design;
 use spinney_core::data::{self, read_table, Kind, Loaded, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
-use spinney_core::ensemble::adaboost::{fit_adaboost, Stop};
-use spinney_core::ensemble::forest::fit_forest;
-use spinney_core::model::{is_partial, predictors_of, Ensemble, Method, Model};
+use spinney_core::fit::{fit_design, FitOptions, Fitted};
+use spinney_core::model::{Ensemble, Method, Model};
 use spinney_core::progress::{Flow, Progress};
 use spinney_core::settings::FitSettings;
-use spinney_core::tree::grower::grow;
 use spinney_core::tree::Rows;
 use spinney_web::protocol::{
     FitDesign, Preview, ReadSettings, Reply, Request, RunResult, PREVIEW_ROWS, PROTOCOL_VERSION,
@@ -222,18 +219,15 @@ fn fit(
         .loaded
         .as_ref()
         .ok_or("no table is loaded yet; choose a file first")?;
-    let method_kind = Method::from_word(method).ok_or_else(|| {
-        format!(
-            "{method}: choose tree, bagging, forest or adaboost (gradient boosting is being built)"
-        )
-    })?;
+    let method_kind = Method::from_word(method)
+        .ok_or_else(|| format!("{method}: choose tree, bagging, forest, adaboost or boosting"))?;
     let spec = DesignSpec {
         outcome: design.outcome.clone(),
         predictors: design.predictors.clone(),
         weight: design.weight.clone(),
         ..DesignSpec::default()
     };
-    let mut d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
+    let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
     // Fit time counts binning and fitting, as the command line's does.
     let start = js_sys::Date::now();
     let regression = matches!(d.outcome, Outcome::Numbers(_));
@@ -244,65 +238,23 @@ fn fit(
         &d.outcome_name,
         &sets,
     )?;
-    let binned = bin_design(&d, settings.bins).map_err(|e| e.to_string())?;
-    let predictors = predictors_of(&d, &binned);
-    d.predictors = Vec::new();
-    let (stats, width) = d.row_statistics(settings.balanced_classes);
     let mut progress = Reporter::new(id);
-    let ensemble = match method_kind {
-        Method::Tree => {
-            progress.step("tree", 0, 1);
-            let rows: Vec<u32> = (0..binned.rows as u32).collect();
-            let full = grow(&binned, &stats, width, &rows, &settings.grow, None);
-            progress.step("tree", 1, 1);
-            Ensemble::Tree(spinney_core::tree::prune::prune(full, settings.pruning))
-        }
-        Method::AdaBoost => {
-            let Outcome::Classes { codes, labels } = &d.outcome else {
-                return Err("AdaBoost predicts classes; the outcome is a number".into());
-            };
-            // Initial AdaBoost row weights: the row weights times the class weights.
-            let initial: Vec<f64> = (0..codes.len())
-                .map(|r| stats[r * width + codes[r] as usize])
-                .collect();
-            Ensemble::AdaBoost(fit_adaboost(
-                &binned,
-                codes,
-                labels.len(),
-                Some(&initial),
-                &settings.boost,
-                &mut progress,
-            ))
-        }
-        Method::Bagging | Method::Forest => Ensemble::Forest(fit_forest(
-            &binned,
-            &stats,
-            width,
-            &d.outcome,
-            &settings.forest,
-            &mut progress,
-        )),
-        // Refused by FitSettings::build above; kept here so a new method cannot slip by.
-        Method::Boosting => return Err("gradient boosting is not in the page yet".into()),
-    };
+    let Fitted {
+        mut model,
+        binned,
+        design: d,
+        ..
+    } = fit_design(
+        d,
+        &settings,
+        Some(loaded.fingerprint.clone()),
+        FitOptions::default(),
+        &mut progress,
+    )
+    .map_err(|e| e.to_string())?;
     let fit_seconds = (js_sys::Date::now() - start) / 1000.0;
-    let classes = match &d.outcome {
-        Outcome::Classes { labels, .. } => Some(labels.clone()),
-        Outcome::Numbers(_) => None,
-    };
-    let model = Model {
-        method: method_kind,
-        outcome: d.outcome_name.clone(),
-        classes,
-        predictors,
-        partial: is_partial(&ensemble),
-        ensemble,
-        // The settings the page sent; every other one is the method's default.
-        settings: sets.iter().cloned().collect(),
-        seed: settings.forest.seed,
-        training_fingerprint: Some(loaded.fingerprint.clone()),
-        training_rows: binned.rows,
-    };
+    // The settings the page sent; every other one is the method's default.
+    model.settings = sets.iter().cloned().collect();
     let rows = Rows::Binned(&binned);
     let training_curve = model.staged_errors(rows, &d.outcome).unwrap_or_default();
     let training_error = match training_curve.last() {
@@ -332,10 +284,10 @@ fn fit(
             None,
             Vec::new(),
             a.errors.clone(),
-            Some(stop_words(a.stop).to_string()),
+            Some(a.stop.words().to_string()),
             None,
         ),
-        Ensemble::Boosting(_) => (None, Vec::new(), Vec::new(), None, None),
+        Ensemble::Boosting(b) => (None, Vec::new(), Vec::new(), Some(b.stopping_words()), None),
     };
     let result = RunResult {
         run: held.runs.len() as u32,
@@ -350,7 +302,7 @@ fn fit(
         }
         .into(),
         members: model.members(),
-        member_name: if method_kind == Method::AdaBoost {
+        member_name: if matches!(method_kind, Method::AdaBoost | Method::Boosting) {
             "rounds"
         } else {
             "trees"
@@ -368,15 +320,6 @@ fn fit(
     };
     held.runs.push(Run { design, model });
     Ok(result)
-}
-
-fn stop_words(stop: Stop) -> &'static str {
-    match stop {
-        Stop::AllRounds => "ran every round",
-        Stop::Perfect => "stopped early: a round classified every training row correctly",
-        Stop::NoBetterThanChance => "stopped early: a round was no better than chance",
-        Stop::Cancelled => "cancelled before the last round",
-    }
 }
 
 fn main() {

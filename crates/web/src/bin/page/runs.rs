@@ -126,17 +126,52 @@ const SEED: Field = Field {
     optional: false,
 };
 
-/// The methods the page offers so far.
-const METHODS: [FitMethod; 4] = [
+/// The methods the page offers.
+const METHODS: [FitMethod; 5] = [
     FitMethod::Tree,
     FitMethod::Bagging,
     FitMethod::Forest,
     FitMethod::AdaBoost,
+    FitMethod::Boosting,
 ];
 
 fn fields(method: FitMethod) -> Vec<Field> {
     match method {
-        FitMethod::Boosting => Vec::new(),
+        FitMethod::Boosting => vec![
+            Field {
+                name: "rounds",
+                label: "Rounds",
+                help: "Trees added one after another, each correcting what the sum of the earlier ones still gets wrong (1 to 100,000).",
+                optional: false,
+            },
+            Field {
+                name: "learning_rate",
+                label: "Learning rate",
+                help: "The share of each new tree that is added, above 0 and at most 10; smaller values need more rounds and usually generalise better.",
+                optional: false,
+            },
+            Field {
+                name: "leaves",
+                label: "Leaves",
+                help: "Most answers (end groups) in each round's tree, best splits first (2 or more). Empty: no limit.",
+                optional: true,
+            },
+            DEPTH,
+            LEAF_SIZE,
+            Field {
+                name: "row_fraction",
+                label: "Row share",
+                help: "Share of the records drawn afresh for each round, above 0 and at most 1; below 1 adds randomness that often helps.",
+                optional: false,
+            },
+            Field {
+                name: "l2",
+                label: "Leaf shrinkage",
+                help: "Pulls each answer towards zero (an L2 penalty), 0 or more; larger values give more cautious trees.",
+                optional: false,
+            },
+            SEED,
+        ],
         FitMethod::Tree => vec![
             DEPTH,
             Field {
@@ -205,7 +240,7 @@ fn method_help(m: FitMethod) -> &'static str {
         FitMethod::Bagging => "many trees, each grown on a resample of the records, averaged",
         FitMethod::Forest => "bagging where every split may look at only a few columns drawn at random; judged on the records each tree did not see (out-of-bag)",
         FitMethod::AdaBoost => "small trees in sequence, each giving more weight to past mistakes (classes only)",
-        FitMethod::Boosting => "not in the page yet",
+        FitMethod::Boosting => "small trees in sequence, each fitted to what the sum of the earlier ones still gets wrong (gradient boosting)",
     }
 }
 
@@ -222,6 +257,8 @@ fn default_text(s: &FitSettings, name: &str) -> String {
         "predictors_per_split" => opt(s.forest.predictors_per_split),
         "seed" => s.forest.seed.to_string(),
         "pruning" => s.pruning.to_string(),
+        "row_fraction" => s.boosting.row_fraction.to_string(),
+        "l2" => s.boosting.l2.to_string(),
         _ => String::new(),
     }
 }
@@ -267,7 +304,6 @@ fn check(p: &Page, method: FitMethod) -> (Vec<(&'static str, String)>, Option<St
         Some(Err(e)) => return (Vec::new(), Some(format!("{e}."))),
         Some(Ok(s)) => s,
     };
-    let regression = design_of(p).is_some_and(|(_, r)| r);
     let mut errors = Vec::new();
     for (f, v) in values(p, method, Some(&base)) {
         if v.trim().is_empty() {
@@ -276,7 +312,7 @@ fn check(p: &Page, method: FitMethod) -> (Vec<(&'static str, String)>, Option<St
             }
             continue;
         }
-        if let Err(e) = base.clone().apply(f.name, &v, regression) {
+        if let Err(e) = base.clone().apply(f.name, &v) {
             errors.push((f.name, e));
         }
     }

@@ -407,7 +407,7 @@ fn result_of(run: &StudyRun) -> RunResult {
         predictors: r.predictors as usize,
         error_name: r.error_name.clone(),
         members: r.members as usize,
-        member_name: if run.method == "adaboost" {
+        member_name: if matches!(run.method.as_str(), "adaboost" | "boosting") {
             "rounds"
         } else {
             "trees"
@@ -518,13 +518,15 @@ fn restore(page: &Shared) {
         };
         let study = match read_study(text.as_bytes()) {
             Ok(s) => s,
-            Err(e) => return status(
-                &doc,
-                &format!(
+            Err(e) => {
+                return status(
+                    &doc,
+                    &format!(
                     "The copy kept in this browser could not be used ({e}); it was left as it is."
                 ),
-                true,
-            ),
+                    true,
+                )
+            }
         };
         let Some(data) = data.filter(|d| d.fingerprint == study.data.fingerprint) else {
             return;
