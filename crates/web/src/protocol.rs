@@ -51,6 +51,25 @@ pub enum Request {
         /// method's defaults.
         settings: Vec<(String, String)>,
     },
+    /// The per-row predictions of a kept two-class run (see [`RunPredictions`]).
+    Predictions { v: u32, id: u32, run: u32 },
+}
+
+/// The per-row predictions of a two-class run, for the threshold step.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct RunPredictions {
+    pub run: u32,
+    /// The outcome's two labels, codes 0 and 1.
+    pub classes: [String; 2],
+    /// Each row's outcome code.
+    pub outcomes: Vec<u32>,
+    /// Each row's probability of class 1.
+    pub probabilities: Vec<f64>,
+    /// Out-of-bag predictions (each row judged only by trees that did not see it), or
+    /// the training rows' own (apparent, not a validation).
+    pub out_of_bag: bool,
+    /// Rows without an out-of-bag prediction (every tree saw them), left out.
+    pub left_out: usize,
 }
 
 /// The columns of a fit, as the page's roles table gives them.
@@ -124,6 +143,11 @@ pub enum Reply {
     },
     /// A fit finished.
     Fitted { id: u32, result: Box<RunResult> },
+    /// A run's per-row predictions.
+    Predictions {
+        id: u32,
+        result: Box<RunPredictions>,
+    },
     /// The request failed; the worker still holds the table it had before, if any.
     Failed {
         id: u32,
@@ -135,7 +159,10 @@ pub enum Reply {
 impl Request {
     pub fn version(&self) -> u32 {
         match self {
-            Request::Read { v, .. } | Request::Reread { v, .. } | Request::Fit { v, .. } => *v,
+            Request::Read { v, .. }
+            | Request::Reread { v, .. }
+            | Request::Fit { v, .. }
+            | Request::Predictions { v, .. } => *v,
         }
     }
 }

@@ -25,6 +25,8 @@ mod runs;
 mod store;
 #[path = "page/study.rs"]
 mod study;
+#[path = "page/threshold.rs"]
+mod threshold;
 
 use web_sys::{
     Document, DragEvent, Element, Event, File, HtmlInputElement, HtmlSelectElement, MessageEvent,
@@ -107,6 +109,8 @@ struct Page {
     fits: runs::Fits,
     /// The study file and the browser's kept copy.
     study: study::StudyState,
+    /// The threshold step.
+    threshold: threshold::Threshold,
 }
 
 type Shared = Rc<RefCell<Page>>;
@@ -381,14 +385,20 @@ fn on_reply(page: &Shared, reply: Reply) {
             }
             render_columns(&p);
             drop(p);
+            threshold::refresh(page);
             study::table_read(page);
         }
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
+        Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
         Reply::Failed {
             id,
             message,
             kept_previous,
         } => {
+            if page.borrow().threshold.asked == Some(id) {
+                threshold::refused(page, &message);
+                return;
+            }
             if page
                 .borrow()
                 .fits
@@ -573,6 +583,8 @@ fn cancel(page: &Shared, note: &str) {
         p.pending_origin = None;
         p.fits.in_flight = None;
         p.fits.forget_models();
+        p.threshold.asked = None;
+        p.study.cancelled();
         reading_done(&p.doc);
         runs::fit_done(&p.doc);
         show_message(&p.doc, note, false);
@@ -582,6 +594,7 @@ fn cancel(page: &Shared, note: &str) {
         load_origin(page, origin, settings, true);
     }
     runs::render(&page.borrow());
+    threshold::refresh(page);
 }
 
 // ---------------------------------------------------------------------------- rendering
@@ -913,6 +926,7 @@ fn on_column_change(page: &Shared, event: Event) {
             p.fits.mark_stale();
             render_columns(&p);
             drop(p);
+            threshold::refresh(page);
             study::autosave(page);
         }
         Some("kind") => {
@@ -1002,6 +1016,7 @@ fn main() {
         roles: Vec::new(),
         fits: runs::Fits::default(),
         study: study::StudyState::default(),
+        threshold: threshold::Threshold::default(),
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;
@@ -1064,6 +1079,7 @@ fn main() {
         cancel(&pg, "Reading cancelled.")
     });
     runs::listen(&page);
+    threshold::listen(&page);
     study::listen(&page);
     let pg = page.clone();
     on(&by_id(&doc, "columns"), "change", move |e: Event| {

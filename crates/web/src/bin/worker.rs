@@ -15,7 +15,8 @@ use spinney_core::progress::{Flow, Progress};
 use spinney_core::settings::FitSettings;
 use spinney_core::tree::Rows;
 use spinney_web::protocol::{
-    FitDesign, Preview, ReadSettings, Reply, Request, RunResult, PREVIEW_ROWS, PROTOCOL_VERSION,
+    FitDesign, Preview, ReadSettings, Reply, Request, RunPredictions, RunResult, PREVIEW_ROWS,
+    PROTOCOL_VERSION,
 };
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
@@ -34,7 +35,6 @@ struct Held {
 }
 
 /// One kept run: the columns asked for and the model (its method and settings inside).
-#[allow(dead_code)] // read by the steps after model runs
 struct Run {
     design: FitDesign,
     model: Model,
@@ -133,6 +133,20 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             id, name, settings, ..
         } => (id, name, settings, bytes),
         Request::Reread { id, settings, .. } => (id, held.name.clone(), settings, None),
+        Request::Predictions { id, run, .. } => {
+            match predictions(held, run) {
+                Ok(result) => post(&Reply::Predictions {
+                    id,
+                    result: Box::new(result),
+                }),
+                Err(message) => post(&Reply::Failed {
+                    id,
+                    message,
+                    kept_previous: held.loaded.is_some(),
+                }),
+            }
+            return;
+        }
         Request::Fit {
             id,
             design,
@@ -320,6 +334,80 @@ fn fit(
     };
     held.runs.push(Run { design, model });
     Ok(result)
+}
+
+/// The per-row predictions of kept run `run` on the table it was fitted on: out-of-bag for
+/// bagging and forests (rows every tree saw left out), the training rows' own otherwise.
+fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
+    let loaded = held
+        .loaded
+        .as_ref()
+        .ok_or("no table is loaded yet; choose a file first")?;
+    let r = held.runs.get(run as usize).ok_or(
+        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
+    )?;
+    let model = &r.model;
+    if model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
+        return Err("the data changed after this run was grown; grow it again on this data".into());
+    }
+    let classes = match model.classes.as_deref() {
+        Some([a, b]) => [a.clone(), b.clone()],
+        Some(c) => {
+            return Err(format!(
+                "a decision threshold needs an outcome with two classes; this run's has {}",
+                c.len()
+            ))
+        }
+        None => return Err(
+            "a decision threshold needs an outcome with two classes; this run predicts a number"
+                .into(),
+        ),
+    };
+    let spec = DesignSpec {
+        outcome: r.design.outcome.clone(),
+        predictors: r.design.predictors.clone(),
+        weight: r.design.weight.clone(),
+        ..DesignSpec::default()
+    };
+    let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
+    let Outcome::Classes { codes, .. } = &d.outcome else {
+        return Err("the outcome is read as a number now; grow the run again".into());
+    };
+    let mut outcomes = Vec::with_capacity(codes.len());
+    let mut probabilities = Vec::with_capacity(codes.len());
+    let mut left_out = 0;
+    let out_of_bag = match &model.ensemble {
+        Ensemble::Forest(f) if f.oob_prediction.len() == 2 * codes.len() => {
+            for (i, &y) in codes.iter().enumerate() {
+                let p = f.oob_prediction[2 * i + 1];
+                if p.is_finite() {
+                    outcomes.push(y);
+                    probabilities.push(p.clamp(0.0, 1.0));
+                } else {
+                    left_out += 1;
+                }
+            }
+            true
+        }
+        _ => {
+            let (records, _) = model.records(&loaded.table).map_err(|e| e.to_string())?;
+            let mut out = vec![0.0; model.outputs()];
+            for (i, &y) in codes.iter().enumerate() {
+                model.predict(Rows::Records(&records), d.rows[i], &mut out);
+                outcomes.push(y);
+                probabilities.push(out[1].clamp(0.0, 1.0));
+            }
+            false
+        }
+    };
+    Ok(RunPredictions {
+        run,
+        classes,
+        outcomes,
+        probabilities,
+        out_of_bag,
+        left_out,
+    })
 }
 
 fn main() {

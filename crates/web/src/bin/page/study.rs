@@ -50,6 +50,13 @@ pub struct StudyState {
     saves: u32,
 }
 
+impl StudyState {
+    /// A cancel restarted the worker: no study re-run is under way any more.
+    pub fn cancelled(&mut self) {
+        self.regrowing = None;
+    }
+}
+
 fn status(doc: &web_sys::Document, text: &str, is_error: bool) {
     let el = by_id(doc, "study-status");
     el.set_text_content(Some(text));
@@ -451,6 +458,7 @@ pub fn runs_settled(page: &Shared) {
             status(&p.doc, &text, differ > 0);
         }
     }
+    super::threshold::refresh(page);
     autosave(page);
 }
 
