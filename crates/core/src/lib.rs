@@ -23,6 +23,7 @@ pub mod model_file;
 pub mod onnx;
 pub mod progress;
 pub mod random;
+pub mod scoring;
 pub mod settings;
 pub mod study;
 pub mod tree;

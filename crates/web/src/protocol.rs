@@ -53,6 +53,30 @@ pub enum Request {
     },
     /// The per-row predictions of a kept two-class run (see [`RunPredictions`]).
     Predictions { v: u32, id: u32, run: u32 },
+    /// Score the file whose bytes come with the message with kept run `run`, copying the
+    /// `keep` columns (those the file has) in front of the predictions.
+    Score {
+        v: u32,
+        id: u32,
+        run: u32,
+        name: String,
+        keep: Vec<String>,
+    },
+}
+
+/// Predictions for a file of new records (see spinney_core::scoring).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct ScoreResult {
+    pub run: u32,
+    pub file: String,
+    pub rows: usize,
+    /// The predictions as CSV, header first: what `spinney predict` writes.
+    pub csv: String,
+    pub header: Vec<String>,
+    /// The first rows' fields, for showing.
+    pub preview: Vec<Vec<String>>,
+    /// How the file was read, labels training never saw, a partial model.
+    pub notes: Vec<String>,
 }
 
 /// The per-row predictions of a two-class run, for the threshold step.
@@ -148,6 +172,8 @@ pub enum Reply {
         id: u32,
         result: Box<RunPredictions>,
     },
+    /// A file of new records scored.
+    Scored { id: u32, result: Box<ScoreResult> },
     /// The request failed; the worker still holds the table it had before, if any.
     Failed {
         id: u32,
@@ -162,7 +188,8 @@ impl Request {
             Request::Read { v, .. }
             | Request::Reread { v, .. }
             | Request::Fit { v, .. }
-            | Request::Predictions { v, .. } => *v,
+            | Request::Predictions { v, .. }
+            | Request::Score { v, .. } => *v,
         }
     }
 }

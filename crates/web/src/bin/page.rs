@@ -21,6 +21,8 @@ use wasm_bindgen_futures::{spawn_local, JsFuture};
 mod measured;
 #[path = "page/runs.rs"]
 mod runs;
+#[path = "page/score.rs"]
+mod score;
 #[path = "page/store.rs"]
 mod store;
 #[path = "page/study.rs"]
@@ -111,6 +113,8 @@ struct Page {
     study: study::StudyState,
     /// The threshold step.
     threshold: threshold::Threshold,
+    /// The scoring step.
+    scoring: score::Scoring,
 }
 
 type Shared = Rc<RefCell<Page>>;
@@ -385,11 +389,12 @@ fn on_reply(page: &Shared, reply: Reply) {
             }
             render_columns(&p);
             drop(p);
-            threshold::refresh(page);
+            runs_changed(page);
             study::table_read(page);
         }
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
         Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
+        Reply::Scored { id, result } => score::scored(page, id, *result),
         Reply::Failed {
             id,
             message,
@@ -397,6 +402,10 @@ fn on_reply(page: &Shared, reply: Reply) {
         } => {
             if page.borrow().threshold.asked == Some(id) {
                 threshold::refused(page, &message);
+                return;
+            }
+            if page.borrow().scoring.asked == Some(id) {
+                score::refused(page, &message);
                 return;
             }
             if page
@@ -568,6 +577,12 @@ fn reread(page: &Shared, settings: ReadSettings) {
     );
 }
 
+/// The runs changed (a fit, a cancel, new data or roles): the steps that use them redraw.
+fn runs_changed(page: &Shared) {
+    threshold::refresh(page);
+    score::refresh(&mut page.borrow_mut());
+}
+
 /// Stops the worker mid-read or mid-fit. The worker is replaced and the previous table read
 /// again from its origin, so nothing already loaded is lost; the runs table is the page's own
 /// and stays as it was.
@@ -584,6 +599,7 @@ fn cancel(page: &Shared, note: &str) {
         p.fits.in_flight = None;
         p.fits.forget_models();
         p.threshold.asked = None;
+        p.scoring.asked = None;
         p.study.cancelled();
         reading_done(&p.doc);
         runs::fit_done(&p.doc);
@@ -594,7 +610,7 @@ fn cancel(page: &Shared, note: &str) {
         load_origin(page, origin, settings, true);
     }
     runs::render(&page.borrow());
-    threshold::refresh(page);
+    runs_changed(page);
 }
 
 // ---------------------------------------------------------------------------- rendering
@@ -926,7 +942,7 @@ fn on_column_change(page: &Shared, event: Event) {
             p.fits.mark_stale();
             render_columns(&p);
             drop(p);
-            threshold::refresh(page);
+            runs_changed(page);
             study::autosave(page);
         }
         Some("kind") => {
@@ -1017,6 +1033,7 @@ fn main() {
         fits: runs::Fits::default(),
         study: study::StudyState::default(),
         threshold: threshold::Threshold::default(),
+        scoring: score::Scoring::default(),
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;
@@ -1080,6 +1097,7 @@ fn main() {
     });
     runs::listen(&page);
     threshold::listen(&page);
+    score::listen(&page);
     study::listen(&page);
     let pg = page.clone();
     on(&by_id(&doc, "columns"), "change", move |e: Event| {

@@ -12,11 +12,12 @@ use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::fit::{fit_design, FitOptions, Fitted};
 use spinney_core::model::{Ensemble, Method, Model};
 use spinney_core::progress::{Flow, Progress};
+use spinney_core::scoring::{partial_note, unseen_note, PredictionRows};
 use spinney_core::settings::FitSettings;
 use spinney_core::tree::Rows;
 use spinney_web::protocol::{
-    FitDesign, Preview, ReadSettings, Reply, Request, RunPredictions, RunResult, PREVIEW_ROWS,
-    PROTOCOL_VERSION,
+    FitDesign, Preview, ReadSettings, Reply, Request, RunPredictions, RunResult, ScoreResult,
+    PREVIEW_ROWS, PROTOCOL_VERSION,
 };
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
@@ -133,6 +134,33 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             id, name, settings, ..
         } => (id, name, settings, bytes),
         Request::Reread { id, settings, .. } => (id, held.name.clone(), settings, None),
+        Request::Score {
+            id,
+            run,
+            name,
+            keep,
+            ..
+        } => {
+            match score(
+                held,
+                id,
+                run,
+                &name,
+                bytes.as_deref().unwrap_or_default(),
+                &keep,
+            ) {
+                Ok(result) => post(&Reply::Scored {
+                    id,
+                    result: Box::new(result),
+                }),
+                Err(message) => post(&Reply::Failed {
+                    id,
+                    message,
+                    kept_previous: held.loaded.is_some(),
+                }),
+            }
+            return;
+        }
         Request::Predictions { id, run, .. } => {
             match predictions(held, run) {
                 Ok(result) => post(&Reply::Predictions {
@@ -334,6 +362,66 @@ fn fit(
     };
     held.runs.push(Run { design, model });
     Ok(result)
+}
+
+/// Rows of predictions shown in the page; the download has them all.
+const SCORE_PREVIEW_ROWS: usize = 100;
+
+/// Scores a file of new records with kept run `run`, as `spinney predict` does: the file's
+/// predictor columns read as the kinds they had in training, missing or mistyped ones
+/// refused in the core's words, labels never seen in training noted.
+fn score(
+    held: &Held,
+    id: u32,
+    run: u32,
+    name: &str,
+    bytes: &[u8],
+    keep: &[String],
+) -> Result<ScoreResult, String> {
+    let r = held.runs.get(run as usize).ok_or(
+        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
+    )?;
+    let model = &r.model;
+    let options = ReadOptions {
+        file_name: Some(name.to_string()),
+        kinds: model.reading_kinds(),
+        max_bytes: Some(MAX_BYTES),
+        ..ReadOptions::default()
+    };
+    let loaded =
+        read_table(bytes, &options, &mut Reporter::new(id)).map_err(|e| format!("{name}: {e}"))?;
+    let (records, unseen) = model
+        .records(&loaded.table)
+        .map_err(|e| format!("{name}: {e}"))?;
+    let mut notes: Vec<String> = loaded
+        .notices
+        .iter()
+        .map(|n| format!("{name}: {n}"))
+        .collect();
+    notes.extend(unseen.iter().map(unseen_note));
+    notes.extend(partial_note(model));
+    let mut rows = PredictionRows::new(model, &loaded.table, &records, keep);
+    let header = rows.header();
+    let mut csv = PredictionRows::csv_line(&header);
+    csv.push('\n');
+    let mut preview = Vec::new();
+    for row in 0..rows.rows() {
+        let fields = rows.fields(row);
+        csv += &PredictionRows::csv_line(&fields);
+        csv.push('\n');
+        if row < SCORE_PREVIEW_ROWS {
+            preview.push(fields);
+        }
+    }
+    Ok(ScoreResult {
+        run,
+        file: name.to_string(),
+        rows: rows.rows(),
+        csv,
+        header,
+        preview,
+        notes,
+    })
 }
 
 /// The per-row predictions of kept run `run` on the table it was fitted on: out-of-bag for

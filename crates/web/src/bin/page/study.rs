@@ -458,7 +458,7 @@ pub fn runs_settled(page: &Shared) {
             status(&p.doc, &text, differ > 0);
         }
     }
-    super::threshold::refresh(page);
+    super::runs_changed(page);
     autosave(page);
 }
 
