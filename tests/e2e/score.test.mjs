@@ -6,13 +6,11 @@
 // training are noted as the command line notes them, and the step's controls are reached by
 // keyboard. Screenshots go to tests/out/e2e/.
 //   node tests/e2e/score.test.mjs        (after trunk build and cargo build -p spinney-cli)
-import { spawnSync } from 'node:child_process';
-import { existsSync, readFileSync, writeFileSync } from 'node:fs';
+import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
-import { check, expect, finish, foreign, launch, out, root, watchedPage } from './harness.mjs';
+import { check, checkNothingLeft, chooseOutcome, expect, launch, openDemo, out, root, spinney, watchedPage, wrapUp } from './harness.mjs';
 
-const bin = process.env.SPINNEY_BIN ?? join(process.env.CARGO_TARGET_DIR ?? join(root, 'target'), 'debug', 'spinney');
 const demo = join(root, 'demo-data', 'surgery-complications.csv');
 const lines = readFileSync(demo, 'utf8').trimEnd().split('\n');
 const header = lines[0].split(',');
@@ -32,10 +30,6 @@ writeFileSync(oak, lines.slice(0, 51).map((l, i) => {
   return f.filter((_, k) => k !== outcomeAt).join(',');
 }).join('\n') + '\n');
 
-function cli(args) {
-  const r = spawnSync(bin, args, { encoding: 'utf8' });
-  return { status: r.status, stdout: r.stdout, stderr: r.stderr };
-}
 
 const server = await serve(join(root, 'dist'), 0);
 const origin = `http://127.0.0.1:${server.address().port}`;
@@ -51,11 +45,8 @@ async function score(file) {
 
 try {
   await check('a forest grown in the page scores a second file; the rows are shown', async () => {
-    await page.goto(`${origin}/`);
-    await page.waitForSelector('#app[data-ready=yes]', { timeout: 30000 });
-    await page.click('#demo-surgery');
-    await page.waitForFunction(() => document.querySelector('.facts')?.textContent.includes('surgery-complications.csv'));
-    await page.selectOption(`select[data-field=role][data-col="${outcomeAt}"]`, 'outcome');
+    await openDemo(page, origin);
+    await chooseOutcome(page);
     await page.check('input[name=method][value=forest]');
     await page.fill('#set-trees', '25');
     await page.click('#run-start');
@@ -71,16 +62,15 @@ try {
   });
 
   await check('the downloaded predictions equal `spinney predict` with the same forest, byte for byte', async () => {
-    expect(existsSync(bin), `${bin} is missing: run cargo build -p spinney-cli first (or set SPINNEY_BIN)`);
     const [file] = await Promise.all([page.waitForEvent('download'), page.click('#score-download')]);
     expect(file.suggestedFilename() === 'new-records.predictions.csv', file.suggestedFilename());
     const fromPage = readFileSync(await file.path(), 'utf8');
     // The page's form sends these settings; every other one is the default in both.
     const model = join(out, 'score-forest.model.json');
-    const fit = cli(['fit', demo, '--outcome', 'complication_30d', '--method', 'forest', '--set', 'trees=25',
+    const fit = spinney(['fit', demo, '--outcome', 'complication_30d', '--method', 'forest', '--set', 'trees=25',
       '--set', 'predictors_per_split=3', '--set', 'leaf_size=1', '--set', 'seed=1', '--save-model', model]);
     expect(fit.status === 0, `spinney fit: ${fit.stderr}`);
-    const predicted = cli(['predict', model, fresh, '--keep', 'patient_id']);
+    const predicted = spinney(['predict', model, fresh, '--keep', 'patient_id']);
     expect(predicted.status === 0, `spinney predict: ${predicted.stderr}`);
     writeFileSync(join(out, 'new-records.cli.csv'), predicted.stdout);
     expect(fromPage.split('\n').length === 302, `${fromPage.split('\n').length} lines`);
@@ -91,7 +81,7 @@ try {
     await score(noAge);
     const msg = await page.textContent('#score-message');
     const model = join(out, 'score-forest.model.json');
-    const fromCli = cli(['predict', model, noAge]).stderr.trim();
+    const fromCli = spinney(['predict', model, noAge]).stderr.trim();
     // The command line says "Error: PATH: <reason>"; the page "FILE: <reason>. Nothing was scored."
     const reason = fromCli.slice(fromCli.indexOf(noAge) + noAge.length + 2);
     expect(reason.includes("the model needs the column(s) 'age'"), `command line: ${fromCli}`);
@@ -103,7 +93,7 @@ try {
     await score(oak);
     const notes = await page.textContent('#score-notes');
     const model = join(out, 'score-forest.model.json');
-    const note = cli(['predict', model, oak]).stderr.split('\n').find((l) => /not seen in training/.test(l));
+    const note = spinney(['predict', model, oak]).stderr.split('\n').find((l) => /not seen in training/.test(l));
     expect(note && notes.includes(note.replace(/^note: /, '')), `page: ${notes} | command line: ${note}`);
   });
 
@@ -120,13 +110,7 @@ try {
     expect(/predictions\.csv$/.test(file.suggestedFilename()), file.suggestedFilename());
   });
 
-  await check('no request left the page\'s own origin, and no console errors', async () => {
-    const away = foreign(requests, origin);
-    expect(away.length === 0, `foreign requests: ${away.slice(0, 3)}`);
-    expect(consoleErrors.length === 0, consoleErrors.slice(0, 3).join(' | '));
-  });
+  await checkNothingLeft(requests, origin, consoleErrors);
 } finally {
-  await browser.close();
-  server.close();
+  await wrapUp(browser, server);
 }
-finish();

@@ -1,16 +1,17 @@
 // Browser test of the study file and the browser's kept copy (issue 7): grow two runs on the
 // demo records, save the study (without and with the data; the fingerprint checked against
-// Node's SHA-256, the included data against Node's base64), reload (the kept copy restores
+// Node's SHA-256, the included data against Node's base64; with the fitted models, which
+// `spinney predict` then reads), reload (the kept copy restores
 // the notebook and grows its runs again to the same figures), clear the kept copy, open the
 // saved study and choose the same data (same figures to the bit), choose other data (refused
 // with the reason, then run as new data on request), open broken studies (message, notebook
 // intact), and reach every new control by keyboard. Screenshots go to tests/out/e2e/.
-//   node tests/e2e/study.test.mjs        (after trunk build)
+//   node tests/e2e/study.test.mjs        (after trunk build and cargo build -p spinney-cli)
 import { createHash } from 'node:crypto';
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
-import { check, expect, finish, foreign, launch, out, root, watchedPage } from './harness.mjs';
+import { check, checkNothingLeft, chooseOutcome, expect, launch, openDemo, out, root, spinney, watchedPage, wrapUp } from './harness.mjs';
 
 const demo = join(root, 'demo-data', 'surgery-complications.csv');
 const demoBytes = readFileSync(demo);
@@ -53,13 +54,9 @@ async function regrown(n) {
 let saved, savedWithData, figures;
 try {
   await check('two runs grown on the demo records are kept in the browser after each change', async () => {
-    await page.goto(`${origin}/`);
-    await page.waitForSelector('#app[data-ready=yes]', { timeout: 30000 });
-    await page.click('#demo-surgery');
-    await page.waitForFunction(() => document.querySelector('.facts')?.textContent.includes('surgery-complications.csv'));
+    await openDemo(page, origin);
     await waitSaves(0);
-    const names = await page.$$eval('table.columns tbody th[scope=row]', (s) => s.map((x) => x.textContent));
-    await page.selectOption(`select[data-field=role][data-col="${names.indexOf('complication_30d')}"]`, 'outcome');
+    await chooseOutcome(page);
     await page.check('input[name=method][value=forest]');
     await page.fill('#set-trees', '30');
     await page.click('#run-start');
@@ -99,6 +96,21 @@ try {
     // Decoded by Node's base64 (RFC 4648).
     expect(Buffer.from(s.data.included, 'base64').equals(demoBytes), 'included data differs from the file');
     expect(/with the data itself inside/.test(await page.textContent('#study-status')), 'no word of the included data');
+  });
+
+  await check('ticking "put the fitted models in" adds model files that spinney predict reads', async () => {
+    await page.check('#study-include-models');
+    const withModels = await download(() => page.click('#study-save'), 'saved-with-models.spinney-study.json');
+    await page.uncheck('#study-include-models');
+    const s = JSON.parse(withModels.text);
+    expect(s.runs.every((r) => r.model?.format === 'spinney-model'), 'a run lacks its model');
+    expect(s.runs[0].model.method === 'forest' && s.runs[0].model.trees.length === 30, `${s.runs[0].model.method}, ${s.runs[0].model.trees?.length} trees`);
+    expect(/2 fitted model\(s\) inside/.test(await page.textContent('#study-status')), await page.textContent('#study-status'));
+    const modelPath = join(out, 'from-study.model.json');
+    writeFileSync(modelPath, JSON.stringify(s.runs[0].model));
+    const predicted = spinney(['predict', modelPath, demo]);
+    expect(predicted.status === 0, predicted.stderr);
+    expect(predicted.stdout.trimEnd().split('\n').length === 4001, 'not a prediction per record');
   });
 
   await check('a reload restores the notebook from the browser\'s copy, its runs grown to the same figures', async () => {
@@ -193,7 +205,7 @@ try {
   await check('keyboard: the study controls are reached with Tab, named, and work with keys', async () => {
     // Start from the bar's heading, as a reader arriving at it would.
     await page.evaluate(() => { const h = document.querySelector('#step-study-title'); h.tabIndex = -1; h.focus(); });
-    const want = ['study-save', 'study-include-data', 'study-input', 'study-forget'];
+    const want = ['study-save', 'study-include-data', 'study-include-models', 'study-input', 'study-forget'];
     const seen = new Set();
     for (let k = 0; k < 40 && want.some((w) => !seen.has(w)); k++) {
       await page.keyboard.press('Tab');
@@ -212,13 +224,7 @@ try {
     expect(/spinney-study\.json$/.test(file.suggestedFilename()), file.suggestedFilename());
   });
 
-  await check('no request left the page\'s own origin, and no console errors', async () => {
-    const away = foreign(requests, origin);
-    expect(away.length === 0, `foreign requests: ${away.slice(0, 3)}`);
-    expect(consoleErrors.length === 0, consoleErrors.slice(0, 3).join(' | '));
-  });
+  await checkNothingLeft(requests, origin, consoleErrors);
 } finally {
-  await browser.close();
-  server.close();
+  await wrapUp(browser, server);
 }
-finish();

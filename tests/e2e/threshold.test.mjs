@@ -8,7 +8,7 @@
 //   node tests/e2e/threshold.test.mjs    (after trunk build)
 import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
-import { check, expect, finish, foreign, launch, out, root, watchedPage } from './harness.mjs';
+import { check, checkNothingLeft, chooseOutcome, expect, launch, openDemo, out, root, watchedPage, wrapUp } from './harness.mjs';
 
 const server = await serve(join(root, 'dist'), 0);
 const origin = `http://127.0.0.1:${server.address().port}`;
@@ -34,12 +34,8 @@ const waitThreshold = (t) => page.waitForFunction((x) => Number(document.querySe
 let forestOob;
 try {
   await check('a forest\'s out-of-bag predictions at 0.5 agree with its out-of-bag error', async () => {
-    await page.goto(`${origin}/`);
-    await page.waitForSelector('#app[data-ready=yes]', { timeout: 30000 });
-    await page.click('#demo-surgery');
-    await page.waitForFunction(() => document.querySelector('.facts')?.textContent.includes('surgery-complications.csv'));
-    const names = await page.$$eval('table.columns tbody th[scope=row]', (s) => s.map((x) => x.textContent));
-    await page.selectOption(`select[data-field=role][data-col="${names.indexOf('complication_30d')}"]`, 'outcome');
+    await openDemo(page, origin);
+    await chooseOutcome(page);
     await page.check('input[name=method][value=forest]');
     await page.fill('#set-trees', '60');
     await page.click('#run-start');
@@ -138,13 +134,7 @@ try {
     await page.screenshot({ path: join(out, 'threshold-tree.png'), fullPage: true });
   });
 
-  await check('no request left the page\'s own origin, and no console errors', async () => {
-    const away = foreign(requests, origin);
-    expect(away.length === 0, `foreign requests: ${away.slice(0, 3)}`);
-    expect(consoleErrors.length === 0, consoleErrors.slice(0, 3).join(' | '));
-  });
+  await checkNothingLeft(requests, origin, consoleErrors);
 } finally {
-  await browser.close();
-  server.close();
+  await wrapUp(browser, server);
 }
-finish();

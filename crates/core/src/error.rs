@@ -216,13 +216,7 @@ impl fmt::Display for Error {
                 minor,
                 written_by,
                 reads,
-            } => write!(
-                f,
-                "this model file has format version {major}.{minor}, written by {written_by}; \
-                 this Spinney ({}) reads format version {reads} and older. Update Spinney to \
-                 read it",
-                crate::VERSION
-            ),
+            } => newer(f, "model", (*major, *minor), written_by, *reads, "read"),
             ErrorKind::BadStudyFile { at, reason } => write!(
                 f,
                 "this study file cannot be used: {reason}{}. Save the study again from the \
@@ -234,13 +228,7 @@ impl fmt::Display for Error {
                 minor,
                 written_by,
                 reads,
-            } => write!(
-                f,
-                "this study file has format version {major}.{minor}, written by {written_by}; \
-                 this Spinney ({}) reads format version {reads} and older. Update Spinney to \
-                 open it",
-                crate::VERSION
-            ),
+            } => newer(f, "study", (*major, *minor), written_by, *reads, "open"),
             ErrorKind::ModelNotSaved { reason } => write!(
                 f,
                 "the model cannot be saved: {reason}. This is a fault in Spinney; please report \
@@ -273,6 +261,23 @@ impl fmt::Display for Error {
             }
         }
     }
+}
+
+/// A file of a newer major format version than this Spinney reads.
+fn newer(
+    f: &mut fmt::Formatter<'_>,
+    kind: &str,
+    (major, minor): (u64, u64),
+    written_by: &str,
+    reads: u64,
+    verb: &str,
+) -> fmt::Result {
+    write!(
+        f,
+        "this {kind} file has format version {major}.{minor}, written by {written_by}; this \
+         Spinney ({}) reads format version {reads} and older. Update Spinney to {verb} it",
+        crate::VERSION
+    )
 }
 
 /// " (line L, column C)" where a JSON reader knows them.

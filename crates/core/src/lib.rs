@@ -15,6 +15,7 @@ pub mod binning;
 pub mod data;
 pub mod design;
 pub mod ensemble;
+mod envelope;
 pub mod error;
 pub mod fit;
 pub mod metrics;

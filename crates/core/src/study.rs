@@ -26,6 +26,7 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
 use crate::data::Kind;
+use crate::envelope::Refusal;
 use crate::error::{Error, ErrorKind, Result, Where};
 use crate::model::Method;
 
@@ -218,52 +219,23 @@ pub fn read_study(bytes: &[u8]) -> Result<Study> {
     }
     let value: serde_json::Value =
         serde_json::from_slice(bytes).map_err(|e| bad_json(&e, "it is not a study"))?;
-    let Some(object) = value.as_object() else {
-        return Err(bad(
-            "it is JSON but not a Spinney study (a study is one JSON object)",
-        ));
-    };
-    match object.get("format").and_then(|f| f.as_str()) {
-        Some(FORMAT) => {}
-        Some("spinney-model") => {
-            return Err(bad(
-                "it is a Spinney model file, not a study; open it where models are scored",
-            ))
-        }
-        Some(other) => {
-            return Err(bad(format!(
-                "it is JSON of format '{other}', not a Spinney study (format '{FORMAT}')"
-            )))
-        }
-        None => {
-            return Err(bad(format!(
-                "it is JSON but not a Spinney study (it has no \"format\": \"{FORMAT}\")"
-            )))
-        }
-    }
-    let version = object.get("version");
-    let number = |key: &str| version.and_then(|v| v.get(key)).and_then(|n| n.as_u64());
-    let (Some(major), Some(minor)) = (number("major"), number("minor")) else {
-        return Err(bad(
-            "its \"version\" is missing or is not {\"major\": N, \"minor\": N}",
-        ));
-    };
-    if major > MAJOR {
-        let written_by = object
-            .get("written_by")
-            .and_then(|w| w.as_str())
-            .unwrap_or("a newer Spinney")
-            .to_string();
-        return Err(Error::new(ErrorKind::NewerStudyFile {
+    let others = [(
+        crate::model_file::FORMAT,
+        "it is a Spinney model file, not a study; open it where models are scored",
+    )];
+    crate::envelope::check(&value, FORMAT, "study", MAJOR, &others).map_err(|r| match r {
+        Refusal::Bad(reason) => bad(reason),
+        Refusal::Newer {
+            major,
+            minor,
+            written_by,
+        } => Error::new(ErrorKind::NewerStudyFile {
             major,
             minor,
             written_by,
             reads: MAJOR,
-        }));
-    }
-    if major == 0 {
-        return Err(bad("it has format version 0, which no Spinney wrote"));
-    }
+        }),
+    })?;
     let study: Study = serde_json::from_value(value).map_err(|e| {
         bad(format!(
             "its contents do not fit study format version 1 ({e})"

@@ -53,6 +53,12 @@ pub enum Request {
     },
     /// The per-row predictions of a kept two-class run (see [`RunPredictions`]).
     Predictions { v: u32, id: u32, run: u32 },
+    /// The kept runs' models as model files (`None` asks for nothing in that place).
+    ModelFiles {
+        v: u32,
+        id: u32,
+        runs: Vec<Option<u32>>,
+    },
     /// Score the file whose bytes come with the message with kept run `run`, copying the
     /// `keep` columns (those the file has) in front of the predictions.
     Score {
@@ -172,6 +178,8 @@ pub enum Reply {
         id: u32,
         result: Box<RunPredictions>,
     },
+    /// Model files in the order asked, `None` where the worker holds no such run.
+    ModelFiles { id: u32, files: Vec<Option<String>> },
     /// A file of new records scored.
     Scored { id: u32, result: Box<ScoreResult> },
     /// The request failed; the worker still holds the table it had before, if any.
@@ -189,7 +197,8 @@ impl Request {
             | Request::Reread { v, .. }
             | Request::Fit { v, .. }
             | Request::Predictions { v, .. }
-            | Request::Score { v, .. } => *v,
+            | Request::Score { v, .. }
+            | Request::ModelFiles { v, .. } => *v,
         }
     }
 }

@@ -395,6 +395,7 @@ fn on_reply(page: &Shared, reply: Reply) {
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
         Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
         Reply::Scored { id, result } => score::scored(page, id, *result),
+        Reply::ModelFiles { id, files } => study::models_arrived(page, id, files),
         Reply::Failed {
             id,
             message,
@@ -406,6 +407,10 @@ fn on_reply(page: &Shared, reply: Reply) {
             }
             if page.borrow().scoring.asked == Some(id) {
                 score::refused(page, &message);
+                return;
+            }
+            if study::saving(page, id) {
+                study::models_refused(page, &message);
                 return;
             }
             if page
@@ -908,6 +913,48 @@ fn on<E: wasm_bindgen::convert::FromWasmAbi + 'static>(
     closure.forget();
 }
 
+/// Calls `take` with the file chosen in the file `input`, then empties it so the same file
+/// can be chosen again.
+fn on_file_chosen(input: &Element, take: impl Fn(File) + 'static) {
+    on(input, "change", move |e: Event| {
+        let Some(input) = e
+            .target()
+            .and_then(|t| t.dyn_into::<HtmlInputElement>().ok())
+        else {
+            return;
+        };
+        if let Some(file) = input.files().and_then(|f| f.get(0)) {
+            take(file);
+        }
+        input.set_value("");
+    });
+}
+
+/// Makes `zone` take a dropped file (marked while a file is dragged over it).
+fn on_file_dropped(zone: &Element, take: impl Fn(File) + 'static) {
+    let z = zone.clone();
+    on(zone, "dragover", move |e: DragEvent| {
+        e.prevent_default();
+        let _ = z.class_list().add_1("over");
+    });
+    let z = zone.clone();
+    on(zone, "dragleave", move |_: DragEvent| {
+        let _ = z.class_list().remove_1("over");
+    });
+    let z = zone.clone();
+    on(zone, "drop", move |e: DragEvent| {
+        e.prevent_default();
+        let _ = z.class_list().remove_1("over");
+        if let Some(file) = e
+            .data_transfer()
+            .and_then(|d| d.files())
+            .and_then(|f| f.get(0))
+        {
+            take(file);
+        }
+    });
+}
+
 fn on_column_change(page: &Shared, event: Event) {
     let Some(target) = event
         .target()
@@ -1040,43 +1087,10 @@ fn main() {
     by_id(&doc, "version").set_text_content(Some(spinney_core::VERSION));
     keep_offline_copy(&doc);
 
-    let input = by_id(&doc, "file-input");
     let pg = page.clone();
-    on(&input, "change", move |e: Event| {
-        let Some(input) = e
-            .target()
-            .and_then(|t| t.dyn_into::<HtmlInputElement>().ok())
-        else {
-            return;
-        };
-        if let Some(file) = input.files().and_then(|f| f.get(0)) {
-            take_file(&pg, file);
-        }
-        input.set_value("");
-    });
-    let drop_zone = by_id(&doc, "drop");
-    let zone = drop_zone.clone();
-    on(&drop_zone, "dragover", move |e: DragEvent| {
-        e.prevent_default();
-        let _ = zone.class_list().add_1("over");
-    });
-    let zone = drop_zone.clone();
-    on(&drop_zone, "dragleave", move |_: DragEvent| {
-        let _ = zone.class_list().remove_1("over");
-    });
+    on_file_chosen(&by_id(&doc, "file-input"), move |file| take_file(&pg, file));
     let pg = page.clone();
-    let zone = drop_zone.clone();
-    on(&drop_zone, "drop", move |e: DragEvent| {
-        e.prevent_default();
-        let _ = zone.class_list().remove_1("over");
-        if let Some(file) = e
-            .data_transfer()
-            .and_then(|d| d.files())
-            .and_then(|f| f.get(0))
-        {
-            take_file(&pg, file);
-        }
-    });
+    on_file_dropped(&by_id(&doc, "drop"), move |file| take_file(&pg, file));
     for (id, path) in [
         ("demo-surgery", "demo-data/surgery-complications.csv"),
         ("demo-survey", "demo-data/field-survey.csv"),

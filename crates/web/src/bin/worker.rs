@@ -11,6 +11,7 @@ use spinney_core::data::{self, read_table, Kind, Loaded, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::fit::{fit_design, FitOptions, Fitted};
 use spinney_core::model::{Ensemble, Method, Model};
+use spinney_core::model_file::write_model;
 use spinney_core::progress::{Flow, Progress};
 use spinney_core::scoring::{partial_note, unseen_note, PredictionRows};
 use spinney_core::settings::FitSettings;
@@ -128,6 +129,18 @@ async fn browser_sha256(bytes: &Uint8Array) -> Option<String> {
     Some(digest.iter().map(|b| format!("{b:02x}")).collect())
 }
 
+/// Posts a request's result, or its failure (the worker keeps what it held).
+fn answer<T>(held: &Held, id: u32, result: Result<T, String>, reply: impl FnOnce(Box<T>) -> Reply) {
+    post(&match result {
+        Ok(r) => reply(Box::new(r)),
+        Err(message) => Reply::Failed {
+            id,
+            message,
+            kept_previous: held.loaded.is_some(),
+        },
+    });
+}
+
 fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint: Option<String>) {
     let (id, name, settings, new_bytes) = match request {
         Request::Read {
@@ -141,39 +154,23 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             keep,
             ..
         } => {
-            match score(
-                held,
-                id,
-                run,
-                &name,
-                bytes.as_deref().unwrap_or_default(),
-                &keep,
-            ) {
-                Ok(result) => post(&Reply::Scored {
-                    id,
-                    result: Box::new(result),
-                }),
-                Err(message) => post(&Reply::Failed {
-                    id,
-                    message,
-                    kept_previous: held.loaded.is_some(),
-                }),
-            }
-            return;
+            let bytes = bytes.as_deref().unwrap_or_default();
+            let result = score(held, id, run, &name, bytes, &keep);
+            return answer(held, id, result, |result| Reply::Scored { id, result });
+        }
+        Request::ModelFiles { id, runs, .. } => {
+            let files = runs
+                .iter()
+                .map(|r| {
+                    let run = held.runs.get((*r)? as usize)?;
+                    write_model(&run.model).ok()
+                })
+                .collect();
+            return post(&Reply::ModelFiles { id, files });
         }
         Request::Predictions { id, run, .. } => {
-            match predictions(held, run) {
-                Ok(result) => post(&Reply::Predictions {
-                    id,
-                    result: Box::new(result),
-                }),
-                Err(message) => post(&Reply::Failed {
-                    id,
-                    message,
-                    kept_previous: held.loaded.is_some(),
-                }),
-            }
-            return;
+            let result = predictions(held, run);
+            return answer(held, id, result, |result| Reply::Predictions { id, result });
         }
         Request::Fit {
             id,

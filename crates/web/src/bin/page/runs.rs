@@ -894,3 +894,29 @@ pub fn summary_of(method: FitMethod, settings: &[(String, String)]) -> String {
         parts.join(" · ")
     }
 }
+
+/// A labelled choice among the runs numbered `runs` (indices in the runs table), for the
+/// steps that use one run.
+pub fn run_select(
+    p: &Page,
+    id: &str,
+    label: &str,
+    runs: &[usize],
+    chosen: Option<usize>,
+) -> String {
+    let mut html = format!("<label class=\"field-inline\">{label} <select id=\"{id}\">");
+    for &i in runs {
+        let Some(r) = p.fits.runs.get(i) else {
+            continue;
+        };
+        html += &format!(
+            "<option value=\"{i}\"{}>Run {}: {} of {} ({})</option>",
+            if Some(i) == chosen { " selected" } else { "" },
+            i + 1,
+            method_label(r.ask.method),
+            esc(&r.result.outcome),
+            esc(&r.ask.summary)
+        );
+    }
+    html + "</select></label>"
+}

@@ -8,10 +8,11 @@ use js_sys::Uint8Array;
 use spinney_web::protocol::{Request, ScoreResult, PROTOCOL_VERSION};
 use wasm_bindgen::JsCast;
 use wasm_bindgen_futures::spawn_local;
-use web_sys::{DragEvent, Event, File, HtmlInputElement, HtmlSelectElement};
+use web_sys::{Event, File, HtmlSelectElement};
 
 use super::{
-    by_id, download, esc, on, origin_bytes, send, set_html, show, Origin, Page, Role, Shared,
+    by_id, download, esc, on, on_file_chosen, on_file_dropped, origin_bytes, send, set_html, show,
+    Origin, Page, Role, Shared,
 };
 
 #[derive(Default)]
@@ -48,20 +49,7 @@ pub fn refresh(p: &mut Page) {
         .filter(|c| runs.contains(c))
         .or(runs.last().copied());
     p.scoring.chosen = chosen;
-    let mut html =
-        String::from("<label class=\"field-inline\">Score with <select id=\"score-run\">");
-    for &i in &runs {
-        let r = &p.fits.runs[i];
-        html += &format!(
-            "<option value=\"{i}\"{}>Run {}: {} of {} ({})</option>",
-            if Some(i) == chosen { " selected" } else { "" },
-            i + 1,
-            esc(&r.result.method),
-            esc(&r.result.outcome),
-            esc(&r.ask.summary)
-        );
-    }
-    html += "</select></label>";
+    let html = super::runs::run_select(p, "score-run", "Score with", &runs, chosen);
     set_html(&p.doc, "score-choice", &html);
 }
 
@@ -199,19 +187,9 @@ pub fn listen(page: &Shared) {
         else {
             return;
         };
-        match target.id().as_str() {
-            "score-run" => {
-                let value = target.unchecked_ref::<HtmlSelectElement>().value();
-                pg.borrow_mut().scoring.chosen = value.parse().ok();
-            }
-            "score-input" => {
-                let input = target.unchecked_ref::<HtmlInputElement>();
-                if let Some(file) = input.files().and_then(|f| f.get(0)) {
-                    take(&pg, file);
-                }
-                input.set_value("");
-            }
-            _ => {}
+        if target.id() == "score-run" {
+            let value = target.unchecked_ref::<HtmlSelectElement>().value();
+            pg.borrow_mut().scoring.chosen = value.parse().ok();
         }
     });
     let pg = page.clone();
@@ -225,27 +203,8 @@ pub fn listen(page: &Shared) {
             save(&pg.borrow());
         }
     });
-    let zone = by_id(&doc, "score-drop");
-    let z = zone.clone();
-    on(&zone, "dragover", move |e: DragEvent| {
-        e.prevent_default();
-        let _ = z.class_list().add_1("over");
-    });
-    let z = zone.clone();
-    on(&zone, "dragleave", move |_: DragEvent| {
-        let _ = z.class_list().remove_1("over");
-    });
     let pg = page.clone();
-    let z = zone.clone();
-    on(&zone, "drop", move |e: DragEvent| {
-        e.prevent_default();
-        let _ = z.class_list().remove_1("over");
-        if let Some(file) = e
-            .data_transfer()
-            .and_then(|d| d.files())
-            .and_then(|f| f.get(0))
-        {
-            take(&pg, file);
-        }
-    });
+    on_file_chosen(&by_id(&doc, "score-input"), move |file| take(&pg, file));
+    let pg = page.clone();
+    on_file_dropped(&by_id(&doc, "score-drop"), move |file| take(&pg, file));
 }

@@ -11,7 +11,7 @@ use spinney_core::settings::FitSettings;
 use spinney_core::study::{
     include_data, read_study, write_study, Study, StudyColumn, StudyData, StudyReading, StudyRun,
 };
-use spinney_web::protocol::{FitDesign, ReadSettings, RunResult};
+use spinney_web::protocol::{FitDesign, ReadSettings, Request, RunResult, PROTOCOL_VERSION};
 use wasm_bindgen::JsCast;
 use wasm_bindgen_futures::spawn_local;
 use web_sys::{Event, HtmlInputElement};
@@ -19,8 +19,8 @@ use web_sys::{Event, HtmlInputElement};
 use super::runs::{self, figures_of, FitAsk, RunView};
 use super::store::{self, KeptData};
 use super::{
-    by_id, default_role, download, esc, load_origin, on, origin_bytes, reread, show, Origin, Page,
-    Role, Shared,
+    by_id, default_role, download, esc, load_origin, on, on_file_chosen, origin_bytes, reread,
+    send, show, Origin, Page, Role, Shared,
 };
 
 /// Where a waiting study came from.
@@ -48,12 +48,16 @@ pub struct StudyState {
     kept_fingerprint: Option<String>,
     /// Autosaves done since the page opened (for the browser test).
     saves: u32,
+    /// A save waiting for the worker's model files: request id, the study, with data.
+    saving: Option<(u32, Study, bool)>,
 }
 
 impl StudyState {
-    /// A cancel restarted the worker: no study re-run is under way any more.
+    /// A cancel restarted the worker: no study re-run is under way any more, and a save
+    /// waiting for models will get none.
     pub fn cancelled(&mut self) {
         self.regrowing = None;
+        self.saving = None;
     }
 }
 
@@ -141,20 +145,103 @@ fn build(p: &Page) -> Option<Study> {
 
 /// Saves the study as a download, with the data if the box is ticked.
 fn save(page: &Shared) {
-    let (study, origin, doc, with_data) = {
+    let (study, doc, checked) = {
         let p = page.borrow();
-        let with_data = by_id(&p.doc, "study-include-data")
-            .unchecked_into::<HtmlInputElement>()
-            .checked();
-        (build(&p), p.good_origin.clone(), p.doc.clone(), with_data)
+        let checked = |id: &str| {
+            by_id(&p.doc, id)
+                .unchecked_into::<HtmlInputElement>()
+                .checked()
+        };
+        (
+            build(&p),
+            p.doc.clone(),
+            (
+                checked("study-include-data"),
+                checked("study-include-models"),
+            ),
+        )
     };
-    let Some(mut study) = study else {
+    let Some(study) = study else {
         status(
             &doc,
             "Load a data file first: a study describes work on one.",
             true,
         );
         return;
+    };
+    let (with_data, with_models) = checked;
+    if !with_models {
+        return finish_save(page, study, with_data, 0);
+    }
+    // The models are the worker's: ask for them, and finish when they come.
+    let request = {
+        let mut p = page.borrow_mut();
+        let runs = p
+            .fits
+            .runs
+            .iter()
+            .map(|r| r.held.then_some(r.result.run))
+            .collect();
+        p.next_id += 1;
+        let id = p.next_id;
+        p.study.saving = Some((id, study, with_data));
+        Request::ModelFiles {
+            v: PROTOCOL_VERSION,
+            id,
+            runs,
+        }
+    };
+    send(page, request, None);
+}
+
+/// The worker's model files (one per run of the table, `None` where it no longer holds the
+/// model): into the study being saved.
+pub fn models_arrived(page: &Shared, id: u32, files: Vec<Option<String>>) {
+    let Some((_, mut study, with_data)) = page
+        .borrow_mut()
+        .study
+        .saving
+        .take_if(|(asked, _, _)| *asked == id)
+    else {
+        return;
+    };
+    let mut missing = 0;
+    for (run, file) in study.runs.iter_mut().zip(files) {
+        run.model = file.and_then(|f| serde_json::from_str(&f).ok());
+        missing += usize::from(run.model.is_none());
+    }
+    finish_save(page, study, with_data, missing);
+}
+
+/// Whether a reply is the answer to a save in progress.
+pub fn saving(page: &Shared, id: u32) -> bool {
+    page.borrow()
+        .study
+        .saving
+        .as_ref()
+        .is_some_and(|(asked, _, _)| *asked == id)
+}
+
+/// The worker could not write the models: the study is saved without them.
+pub fn models_refused(page: &Shared, message: &str) {
+    let Some((_, study, with_data)) = page.borrow_mut().study.saving.take() else {
+        return;
+    };
+    let doc = page.borrow().doc.clone();
+    status(
+        &doc,
+        &format!("The models could not be written ({message})."),
+        true,
+    );
+    let runs = study.runs.len();
+    finish_save(page, study, with_data, runs);
+}
+
+/// Adds the data if asked, writes the study and offers it as a download.
+fn finish_save(page: &Shared, mut study: Study, with_data: bool, missing_models: usize) {
+    let (origin, doc) = {
+        let p = page.borrow();
+        (p.good_origin.clone(), p.doc.clone())
     };
     spawn_local(async move {
         if with_data {
@@ -173,15 +260,21 @@ fn save(page: &Shared) {
                     .map_or(study.data.file.as_str(), |(s, _)| s);
                 let name = format!("{stem}.spinney-study.json");
                 download(&doc, &name, text.as_bytes(), "application/json");
+                let models = study.runs.iter().filter(|r| r.model.is_some()).count();
                 status(
                     &doc,
                     &format!(
-                        "Saved {name}: {} run(s){}. It stays wherever your browser puts downloads.",
+                        "Saved {name}: {} run(s){}{}. It stays wherever your browser puts downloads.",
                         study.runs.len(),
                         if with_data {
                             ", with the data itself inside: keep it as carefully as the data"
                         } else {
                             "; the data is not in it, only its fingerprint"
+                        },
+                        match (models, missing_models) {
+                            (0, 0) => String::new(),
+                            (m, 0) => format!("; {m} fitted model(s) inside (a leaf can describe a single record: keep them with the same care)"),
+                            (m, n) => format!("; {m} fitted model(s) inside, {n} not (the worker no longer holds them after a cancel; grow them again to include them)"),
                         }
                     ),
                     false,
@@ -578,18 +671,7 @@ pub fn listen(page: &Shared) {
         save(&pg)
     });
     let pg = page.clone();
-    on(&by_id(&doc, "study-input"), "change", move |e: Event| {
-        let Some(input) = e
-            .target()
-            .and_then(|t| t.dyn_into::<HtmlInputElement>().ok())
-        else {
-            return;
-        };
-        if let Some(file) = input.files().and_then(|f| f.get(0)) {
-            open(&pg, file);
-        }
-        input.set_value("");
-    });
+    on_file_chosen(&by_id(&doc, "study-input"), move |file| open(&pg, file));
     let pg = page.clone();
     on(&by_id(&doc, "study-mismatch"), "click", move |e: Event| {
         let id = e

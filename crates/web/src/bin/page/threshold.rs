@@ -67,18 +67,7 @@ pub fn refresh(page: &Shared) {
 }
 
 fn render_choice(p: &Page, runs: &[usize], chosen: Option<usize>) {
-    let mut html = String::from("<label class=\"field-inline\">Run <select id=\"threshold-run\">");
-    for &i in runs {
-        let r = &p.fits.runs[i];
-        html += &format!(
-            "<option value=\"{i}\"{}>Run {}: {} ({})</option>",
-            if Some(i) == chosen { " selected" } else { "" },
-            i + 1,
-            esc(&r.result.method),
-            esc(&r.ask.summary)
-        );
-    }
-    html += "</select></label>";
+    let mut html = super::runs::run_select(p, "threshold-run", "Run", runs, chosen);
     if let Some(d) = &p.threshold.data {
         html += " <label class=\"field-inline\">Class called positive <select id=\"threshold-positive\">";
         for (code, label) in d.classes.iter().enumerate() {
