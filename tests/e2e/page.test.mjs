@@ -4,7 +4,8 @@
 // demo records, override a kind, grow a random forest on the demo records and see its run,
 // out-of-bag error and chart, cancel a long forest while the page stays responsive, see runs
 // marked stale when the roles change, read a large file while the page stays responsive, and
-// check that the page asked nothing of any other origin. Screenshots go to tests/out/e2e/.
+// check that the page asked nothing of any other origin; while models train, no main-thread
+// task may last over 200 ms (PerformanceObserver 'longtask'). Screenshots go to tests/out/e2e/.
 //
 // Runs with playwright-core and Debian's Chromium (/usr/bin/chromium); no browser download.
 //   node tests/e2e/page.test.mjs        (after `trunk build`; scripts/test does both through
@@ -20,8 +21,19 @@ const server = await serve(join(root, 'dist'), 0);
 const origin = `http://127.0.0.1:${server.address().port}`;
 const browser = await launch();
 const context = await browser.newContext({ viewport: { width: 1400, height: 1000 } });
+// Long tasks of the page's main thread (over 50 ms each, as the browser reports them).
+await context.addInitScript(() => {
+  window.__longTasks = [];
+  new PerformanceObserver((list) => {
+    for (const e of list.getEntries()) window.__longTasks.push({ start: e.startTime, duration: e.duration });
+  }).observe({ entryTypes: ['longtask'] });
+});
 const { page, requests, consoleErrors } = await watchedPage(context);
 
+const mainThreadNow = () => page.evaluate(() => performance.now());
+// The longest main-thread task that began between two performance.now() readings.
+const longestTask = (from, to) => page.evaluate(([a, b]) => Math.max(0, ...window.__longTasks
+  .filter((t) => t.start >= a && t.start <= b).map((t) => t.duration)), [from, to]);
 const kindsShown = () => page.$$eval('select[data-field=kind]', (s) => s.map((x) => x.value));
 const namesShown = () => page.$$eval('table.columns tbody th[scope=row]', (s) => s.map((x) => x.textContent));
 
@@ -137,12 +149,23 @@ try {
     expect(!(await page.$eval('#run-start', (b) => b.disabled)), 'Run stays disabled');
   });
 
+  await check('the long-task watch sees a deliberate 250 ms task (so its silence below means something)', async () => {
+    const t0 = await mainThreadNow();
+    await page.evaluate(() => setTimeout(() => { const t = performance.now(); while (performance.now() - t < 250) { /* busy */ } }, 0));
+    await page.waitForTimeout(600);
+    const longest = await longestTask(t0, await mainThreadNow());
+    expect(longest >= 250, `the watch saw ${longest} ms`);
+  });
+
   let firstRun;
   await check('a random forest of 50 trees is grown and kept as a run, with its chart', async () => {
     await page.check('input[name=method][value=forest]');
     await page.fill('#set-trees', '50');
+    const t0 = await mainThreadNow();
     await page.click('#run-start');
     await page.waitForSelector('#step-runs[data-runs="1"]', { timeout: 60000 });
+    const longest = await longestTask(t0, await mainThreadNow());
+    expect(longest <= 200, `the main thread was busy ${longest} ms at once while the forest grew`);
     const rows = await runRows();
     expect(rows.length === 1, `${rows.length} runs`);
     firstRun = rows[0];
@@ -165,6 +188,21 @@ try {
     await page.screenshot({ path: join(out, 'forest-run.png'), fullPage: true });
   });
 
+  await check('the same forest grown by one worker and by two is the same to the last digit', async () => {
+    const workers = await page.$$eval('#workers option', (o) => o.map((x) => x.value));
+    expect(workers.length >= 2, `workers offered: ${workers}`);
+    // The forest above was grown by the default number of workers (two on a two-thread
+    // machine); now by one.
+    await page.selectOption('#workers', '1');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 60000 });
+    const rows = await runRows();
+    expect(rows[1].oob === firstRun.oob && rows[1].training === firstRun.training,
+      `one worker: out-of-bag ${rows[1].oob}, training ${rows[1].training}; two: ${firstRun.oob}, ${firstRun.training}`);
+    console.log(`  50-tree forest: ${Number(firstRun.seconds).toFixed(2)} s on ${workers.length >= 2 ? 'two workers' : 'one'}, ${Number(rows[1].seconds).toFixed(2)} s on one`);
+    await page.selectOption('#workers', '2');
+  });
+
   await check('a 2,000-tree forest can be cancelled; the page answers and the runs stay', async () => {
     await page.fill('#set-trees', '2000');
     await page.click('#run-start');
@@ -183,16 +221,16 @@ try {
     await page.waitForSelector('#fit-status', { state: 'hidden', timeout: 1000 });
     expect(Date.now() - c0 < 1000, 'cancel took over 1 s');
     const rows = await runRows();
-    expect(rows.length === 1 && rows[0].oob === firstRun.oob, 'runs table changed by the cancel');
+    expect(rows.length === 2 && rows[0].oob === firstRun.oob, 'runs table changed by the cancel');
     expect(/Cancelled/.test(await page.textContent('#fit-message')), 'no word of the cancel');
     // The restarted worker has the table again: a small bagging run works.
     await page.check('input[name=method][value=bagging]');
     await page.fill('#set-trees', '10');
     await page.waitForFunction(() => !document.querySelector('#run-start').disabled && document.querySelector('#read-status').hidden);
     await page.click('#run-start');
-    await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 60000 });
+    await page.waitForSelector('#step-runs[data-runs="3"]', { timeout: 60000 });
     const after = await runRows();
-    expect(after[0].oob === firstRun.oob && /Bagging/.test(after[1].text), 'second run missing');
+    expect(after[0].oob === firstRun.oob && /Bagging/.test(after[2].text), 'bagging run missing');
   });
 
   await check('a gradient boosting run of 60 rounds is kept beside the others', async () => {
@@ -204,11 +242,14 @@ try {
     await page.waitForSelector('#err-learning_rate:not([hidden])');
     await page.fill('#set-learning_rate', '0.1');
     await page.waitForSelector('#err-learning_rate[hidden]', { state: 'attached' });
+    const t0 = await mainThreadNow();
     await page.click('#run-start');
-    await page.waitForSelector('#step-runs[data-runs="3"]', { timeout: 60000 });
+    await page.waitForSelector('#step-runs[data-runs="4"]', { timeout: 60000 });
+    const longest = await longestTask(t0, await mainThreadNow());
+    expect(longest <= 200, `the main thread was busy ${longest} ms at once while boosting ran`);
     const rows = await runRows();
-    expect(/Gradient boosting/.test(rows[2].text) && /rounds 60/.test(rows[2].text), rows[2].text);
-    expect(/ran every round/.test(rows[2].text), `no stopping words: ${rows[2].text}`);
+    expect(/Gradient boosting/.test(rows[3].text) && /rounds 60/.test(rows[3].text), rows[3].text);
+    expect(/ran every round/.test(rows[3].text), `no stopping words: ${rows[3].text}`);
   });
 
   await check('a design the core refuses gives its message in the step, and the runs stay', async () => {
@@ -219,7 +260,7 @@ try {
     const msg = await page.textContent('#fit-message');
     expect(msg.includes("the predictor 'patient_id' is free text or an identifier"), msg);
     expect(msg.includes('runs kept so far are unchanged'), msg);
-    expect((await runRows()).length === 3, 'runs lost after a refused fit');
+    expect((await runRows()).length === 4, 'runs lost after a refused fit');
     await page.selectOption('select[data-field=role][data-col="0"]', 'group');
     // Putting the role back still counts as a change: the earlier runs are now marked.
     await page.waitForSelector('#runs-stale:not([hidden])');
@@ -230,7 +271,7 @@ try {
     await page.selectOption(`select[data-field=role][data-col="${names.indexOf('bmi')}"]`, 'ignore');
     await page.waitForSelector('#runs-stale:not([hidden])');
     const rows = await runRows();
-    expect(rows.length === 3 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
+    expect(rows.length === 4 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
     await page.locator('#step-runs').screenshot({ path: join(out, 'runs-step.png') });
     await page.screenshot({ path: join(out, 'runs-stale.png'), fullPage: true });
   });

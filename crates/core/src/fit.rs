@@ -7,13 +7,15 @@
 //! [`ForestFitter`] that spreads a forest's trees over them, and gets the same forest bit for
 //! bit (each tree draws only from its own seeded streams).
 
+use std::ops::Range;
+
 use crate::binning::{bin_design, BinnedMatrix};
 use crate::design::{Design, Outcome};
 use crate::ensemble::adaboost::fit_adaboost;
 use crate::ensemble::boosting::fit_boosting;
-use crate::ensemble::forest::{fit_forest, Forest, ForestSettings};
+use crate::ensemble::forest::{fit_forest, fit_trees, FittedTree, Forest, ForestSettings};
 use crate::error::{Error, ErrorKind, Result};
-use crate::model::{is_partial, predictors_of, Ensemble, Method, Model};
+use crate::model::{is_partial, predictors_of, Ensemble, Method, Model, Predictor};
 use crate::progress::Progress;
 use crate::settings::FitSettings;
 use crate::tree::grower::grow;
@@ -51,6 +53,76 @@ pub struct Fitted {
     pub pruning_path: Option<Vec<PruneStep>>,
 }
 
+/// A design made ready for the learners.
+struct Prepared {
+    binned: BinnedMatrix,
+    /// How a saved model reads each predictor from a new table.
+    predictors: Vec<Predictor>,
+    /// Per-row statistics for the grower, `width` per row.
+    stats: Vec<f64>,
+    width: usize,
+}
+
+/// Checks the outcome against the settings, bins the predictors and frees their values
+/// (from here on the learners read the bins only), and computes the rows' statistics.
+fn prepare(design: &mut Design, settings: &FitSettings) -> Result<Prepared> {
+    let regression = matches!(design.outcome, Outcome::Numbers(_));
+    if regression != settings.regression {
+        return Err(Error::new(ErrorKind::BadSetting {
+            setting: "outcome".into(),
+            reason: format!(
+                "the settings were made for a {} outcome, but '{}' holds {}",
+                if settings.regression {
+                    "number"
+                } else {
+                    "class"
+                },
+                design.outcome_name,
+                if regression { "numbers" } else { "classes" }
+            ),
+        }));
+    }
+    let binned = bin_design(design, settings.bins)?;
+    let predictors = predictors_of(design, &binned);
+    design.predictors = Vec::new();
+    let (stats, width) = design.row_statistics(settings.balanced_classes);
+    Ok(Prepared {
+        binned,
+        predictors,
+        stats,
+        width,
+    })
+}
+
+/// Fits trees `range` of a bagged ensemble or forest on `design`, as [`fit_design`] would fit
+/// them (the same bins, statistics and seeded streams): one worker's share of a forest whose
+/// trees are tallied elsewhere (see [`crate::ensemble::tree_bytes`]).
+pub fn fit_forest_part(
+    mut design: Design,
+    settings: &FitSettings,
+    range: Range<usize>,
+    progress: &mut dyn Progress,
+) -> Result<Vec<FittedTree>> {
+    if !matches!(settings.method, Method::Bagging | Method::Forest) {
+        return Err(Error::new(ErrorKind::BadSetting {
+            setting: "method".into(),
+            reason: format!(
+                "only bagging and forests are fitted in parts, not {}",
+                settings.method.word()
+            ),
+        }));
+    }
+    let p = prepare(&mut design, settings)?;
+    Ok(fit_trees(
+        &p.binned,
+        &p.stats,
+        p.width,
+        &settings.forest,
+        range,
+        progress,
+    ))
+}
+
 /// Bins `design` and fits `settings.method` on it. `fingerprint` is the training file's, for
 /// the model to carry. Monotone constraints are matched to the predictors by name here.
 pub fn fit_design(
@@ -66,22 +138,6 @@ pub fn fit_design(
             reason,
         })
     };
-    let regression = matches!(design.outcome, Outcome::Numbers(_));
-    if regression != settings.regression {
-        return Err(bad(
-            "outcome",
-            format!(
-                "the settings were made for a {} outcome, but '{}' holds {}",
-                if settings.regression {
-                    "number"
-                } else {
-                    "class"
-                },
-                design.outcome_name,
-                if regression { "numbers" } else { "classes" }
-            ),
-        ));
-    }
     let mut boosting = settings.boosting.clone();
     if !settings.monotone.is_empty() {
         boosting.monotone = vec![0; design.predictors.len()];
@@ -100,12 +156,12 @@ pub fn fit_design(
             boosting.monotone[j] = *sign;
         }
     }
-    let binned = bin_design(&design, settings.bins)?;
-    // How a saved model reads each predictor from a new table.
-    let predictors = predictors_of(&design, &binned);
-    // From here on the learners read the bins only: free the predictors' values.
-    design.predictors = Vec::new();
-    let (stats, width) = design.row_statistics(settings.balanced_classes);
+    let Prepared {
+        binned,
+        predictors,
+        stats,
+        width,
+    } = prepare(&mut design, settings)?;
     let mut path = None;
     let ensemble = match settings.method {
         Method::Tree => {
@@ -208,4 +264,92 @@ pub fn fit_design(
         design,
         pruning_path: path,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::design::design_from_csv;
+    use crate::ensemble::forest::OobTally;
+    use crate::ensemble::tree_bytes::{decode_trees, encode_trees};
+    use crate::progress::Silent;
+    use crate::tree::Tree;
+
+    fn table() -> String {
+        let mut text = String::from("y,a,b,c\n");
+        for i in 0..300u32 {
+            let a = (i * 37 % 101) as f64 / 10.0;
+            let b = ["red", "green", "blue", "grey"][(i * 7 % 4) as usize];
+            let c = if i % 11 == 0 {
+                String::new()
+            } else {
+                ((i * 13) % 17).to_string()
+            };
+            let y = if a + (i % 3) as f64 > 6.0 {
+                "yes"
+            } else {
+                "no"
+            };
+            text += &format!("{y},{a},{b},{c}\n");
+        }
+        text
+    }
+
+    #[test]
+    fn a_forest_fitted_in_parts_and_tallied_elsewhere_is_the_same_forest() {
+        let text = table();
+        let design = || design_from_csv(&text, "y", &["a", "b", "c"]);
+        let sets = [("trees".to_string(), "23".to_string())];
+        let settings = FitSettings::build(Method::Forest, 3, false, "y", &sets).unwrap();
+        let whole = fit_design(
+            design(),
+            &settings,
+            None,
+            FitOptions::default(),
+            &mut Silent,
+        )
+        .unwrap();
+        // Three workers' shares, as bytes, joined in tree order.
+        let mut bytes = Vec::new();
+        for range in [0..8, 8..9, 9..23] {
+            let part = fit_forest_part(design(), &settings, range, &mut Silent).unwrap();
+            bytes.extend(encode_trees(&part));
+        }
+        let tally = |binned: &BinnedMatrix,
+                     _: &[f64],
+                     width: usize,
+                     outcome: &Outcome,
+                     forest: &ForestSettings,
+                     _: &mut dyn Progress| {
+            let trees = decode_trees(&bytes, binned.rows, binned.columns.len())
+                .map_err(|e| Error::new(ErrorKind::BadDesign { reason: e }))?;
+            let mut t = OobTally::new(
+                binned.rows,
+                crate::ensemble::forest::tree_outputs(forest, width),
+            );
+            for f in trees {
+                t.add(f, binned, outcome);
+            }
+            Ok(t.finish(false))
+        };
+        let options = FitOptions {
+            forest_fitter: Some(&tally),
+            ..FitOptions::default()
+        };
+        let parts = fit_design(design(), &settings, None, options, &mut Silent).unwrap();
+        let (Ensemble::Forest(a), Ensemble::Forest(b)) =
+            (&whole.model.ensemble, &parts.model.ensemble)
+        else {
+            panic!("not forests")
+        };
+        assert_eq!(a.trees, b.trees);
+        assert_eq!(a.oob_error, b.oob_error);
+        assert_eq!(a.oob_share, b.oob_share);
+        // Damaged bytes are refused, not read.
+        assert!(decode_trees(&bytes[..bytes.len() - 3], 300, 3).is_err());
+        assert!(decode_trees(&bytes, 299, 3).is_err());
+        let beyond_first = |t: &Tree| t.nodes.iter().any(|n| !n.is_leaf() && n.feature > 0);
+        assert!(a.trees.iter().any(beyond_first));
+        assert!(decode_trees(&bytes, 300, 1).is_err());
+    }
 }

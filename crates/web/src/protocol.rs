@@ -8,7 +8,7 @@ use serde::{Deserialize, Serialize};
 use spinney_core::data::TableReport;
 
 /// Bumped when a message changes incompatibly.
-pub const PROTOCOL_VERSION: u32 = 2;
+pub const PROTOCOL_VERSION: u32 = 3;
 
 /// Rows of the preview table.
 pub const PREVIEW_ROWS: usize = 20;
@@ -49,6 +49,26 @@ pub enum Request {
         method: String,
         /// (name, value) pairs by the command line's `--set` names; the rest keep the
         /// method's defaults.
+        settings: Vec<(String, String)>,
+    },
+    /// Fit trees `first .. first + count` of a bagged ensemble or forest on the table the
+    /// worker holds (one worker's share); answered by [`Reply::Part`] with the trees as bytes.
+    FitPart {
+        v: u32,
+        id: u32,
+        design: FitDesign,
+        method: String,
+        settings: Vec<(String, String)>,
+        first: usize,
+        count: usize,
+    },
+    /// Make the forest of `Fit`'s fields from trees fitted by several workers, whose bytes
+    /// (every share in tree order, joined) come with the message; answered like `Fit`.
+    Assemble {
+        v: u32,
+        id: u32,
+        design: FitDesign,
+        method: String,
         settings: Vec<(String, String)>,
     },
     /// The per-row predictions of a kept two-class run (see [`RunPredictions`]).
@@ -139,6 +159,8 @@ pub struct RunResult {
     pub tree_shape: Option<(usize, usize)>,
     /// Binning and fitting, not reading.
     pub fit_seconds: f64,
+    /// The worker's wasm memory after the fit (it never shrinks, so this is its peak).
+    pub worker_memory_bytes: u64,
     pub notices: Vec<String>,
 }
 
@@ -182,6 +204,8 @@ pub enum Reply {
     ModelFiles { id: u32, files: Vec<Option<String>> },
     /// A file of new records scored.
     Scored { id: u32, result: Box<ScoreResult> },
+    /// A share of a forest's trees is fitted; its bytes come with the message.
+    Part { id: u32, first: usize, count: usize },
     /// The request failed; the worker still holds the table it had before, if any.
     Failed {
         id: u32,
@@ -198,7 +222,9 @@ impl Request {
             | Request::Fit { v, .. }
             | Request::Predictions { v, .. }
             | Request::Score { v, .. }
-            | Request::ModelFiles { v, .. } => *v,
+            | Request::ModelFiles { v, .. }
+            | Request::FitPart { v, .. }
+            | Request::Assemble { v, .. } => *v,
         }
     }
 }

@@ -19,6 +19,8 @@ use wasm_bindgen_futures::{spawn_local, JsFuture};
 // it for another binary).
 #[path = "page/measured.rs"]
 mod measured;
+#[path = "page/pool.rs"]
+mod pool;
 #[path = "page/runs.rs"]
 mod runs;
 #[path = "page/score.rs"]
@@ -115,6 +117,8 @@ struct Page {
     threshold: threshold::Threshold,
     /// The scoring step.
     scoring: score::Scoring,
+    /// Extra workers growing shares of a forest.
+    pool: pool::Pool,
 }
 
 type Shared = Rc<RefCell<Page>>;
@@ -396,6 +400,8 @@ fn on_reply(page: &Shared, reply: Reply) {
         Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
         Reply::Scored { id, result } => score::scored(page, id, *result),
         Reply::ModelFiles { id, files } => study::models_arrived(page, id, files),
+        // Shares of a forest come from the extra workers (see pool.rs), not this one.
+        Reply::Part { .. } => {}
         Reply::Failed {
             id,
             message,
@@ -492,8 +498,10 @@ fn start_read(
     );
 }
 
-/// The bytes behind an origin, as a fresh array the caller may hand over to the worker.
-async fn origin_bytes(origin: &Origin) -> Result<(String, Uint8Array), String> {
+/// The file's name and bytes (a fresh array the caller may hand over to a worker), from the
+/// file the user chose, the demo file in this page's own folder (or embedded in the one-file
+/// build) or bytes the page holds; the message to show when they cannot be had.
+async fn fetch_origin(origin: &Origin) -> Result<(String, Uint8Array), String> {
     let (name, buffer) = match origin {
         Origin::File(file) => (file.name(), JsFuture::from(file.array_buffer()).await),
         Origin::Bytes(name, bytes) => return Ok((name.clone(), bytes.slice(0, bytes.length()))),
@@ -526,7 +534,7 @@ fn load_origin(page: &Shared, origin: Origin, settings: ReadSettings, restoring:
     let page = page.clone();
     spawn_local(async move {
         let doc = page.borrow().doc.clone();
-        match origin_bytes(&origin).await {
+        match fetch_origin(&origin).await {
             Ok((name, bytes)) => start_read(&page, origin, name, bytes, settings, restoring),
             Err(message) => show_message(&doc, &message, true),
         }
@@ -606,6 +614,7 @@ fn cancel(page: &Shared, note: &str) {
         p.threshold.asked = None;
         p.scoring.asked = None;
         p.study.cancelled();
+        p.pool.stop();
         reading_done(&p.doc);
         runs::fit_done(&p.doc);
         show_message(&p.doc, note, false);
@@ -1081,6 +1090,7 @@ fn main() {
         study: study::StudyState::default(),
         threshold: threshold::Threshold::default(),
         scoring: score::Scoring::default(),
+        pool: pool::Pool::default(),
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;

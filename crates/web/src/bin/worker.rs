@@ -7,9 +7,13 @@ use std::cell::RefCell;
 use std::rc::Rc;
 
 use js_sys::{Object, Reflect, Uint8Array};
+use spinney_core::binning::BinnedMatrix;
 use spinney_core::data::{self, read_table, Kind, Loaded, ReadOptions};
+use spinney_core::design::Design;
 use spinney_core::design::{build_design, DesignSpec, Outcome};
-use spinney_core::fit::{fit_design, FitOptions, Fitted};
+use spinney_core::ensemble::forest::{tree_outputs, ForestSettings, OobTally};
+use spinney_core::ensemble::tree_bytes::{decode_trees, encode_trees};
+use spinney_core::fit::{fit_design, fit_forest_part, FitOptions, Fitted, ForestFitter};
 use spinney_core::model::{Ensemble, Method, Model};
 use spinney_core::model_file::write_model;
 use spinney_core::progress::{Flow, Progress};
@@ -47,13 +51,24 @@ fn scope() -> DedicatedWorkerGlobalScope {
 }
 
 fn post(reply: &Reply) {
+    post_with_bytes(reply, None);
+}
+
+/// Posts `reply` with `bytes` beside it, transferred (not copied) to the page.
+fn post_with_bytes(reply: &Reply, bytes: Option<&[u8]>) {
     let msg = match serde_wasm_bindgen::to_value(reply) {
         Ok(m) => m,
         Err(e) => JsValue::from_str(&format!("internal error: {e}")),
     };
     let envelope = Object::new();
     let _ = Reflect::set(&envelope, &"msg".into(), &msg);
-    let _ = scope().post_message(&envelope);
+    let transfer = js_sys::Array::new();
+    if let Some(b) = bytes {
+        let array = Uint8Array::from(b);
+        let _ = Reflect::set(&envelope, &"bytes".into(), &array);
+        transfer.push(&array.buffer());
+    }
+    let _ = scope().post_message_with_transfer(&envelope, &transfer);
 }
 
 /// Reports progress to the page, at most about ten times a second (and always the last
@@ -180,7 +195,7 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             ..
         } => {
             let kept_previous = held.loaded.is_some();
-            match fit(held, id, design, &method, settings) {
+            match fit(held, id, design, &method, settings, None) {
                 Ok(result) => post(&Reply::Fitted {
                     id,
                     result: Box::new(result),
@@ -189,6 +204,47 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
                     id,
                     message,
                     kept_previous,
+                }),
+            }
+            return;
+        }
+        Request::Assemble {
+            id,
+            design,
+            method,
+            settings,
+            ..
+        } => {
+            let kept_previous = held.loaded.is_some();
+            let parts = bytes.unwrap_or_default();
+            match fit(held, id, design, &method, settings, Some(parts)) {
+                Ok(result) => post(&Reply::Fitted {
+                    id,
+                    result: Box::new(result),
+                }),
+                Err(message) => post(&Reply::Failed {
+                    id,
+                    message,
+                    kept_previous,
+                }),
+            }
+            return;
+        }
+        Request::FitPart {
+            id,
+            design,
+            method,
+            settings,
+            first,
+            count,
+            ..
+        } => {
+            match fit_part(held, id, &design, &method, &settings, first..first + count) {
+                Ok(bytes) => post_with_bytes(&Reply::Part { id, first, count }, Some(&bytes)),
+                Err(message) => post(&Reply::Failed {
+                    id,
+                    message,
+                    kept_previous: held.loaded.is_some(),
                 }),
             }
             return;
@@ -220,11 +276,7 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
     match read_table(source, &options, &mut Reporter::new(id)) {
         Ok(loaded) => {
             let read_seconds = (js_sys::Date::now() - start) / 1000.0;
-            let worker_memory_bytes = wasm_bindgen::memory()
-                .unchecked_into::<js_sys::WebAssembly::Memory>()
-                .buffer()
-                .unchecked_into::<js_sys::ArrayBuffer>()
-                .byte_length() as u64;
+            let worker_memory_bytes = wasm_memory_bytes();
             let report = data::report(&loaded, &name);
             let preview = preview(&loaded);
             if let Some(b) = new_bytes {
@@ -246,14 +298,13 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
     }
 }
 
-/// Fits `method` on the held table and keeps the model as a new run.
-fn fit(
-    held: &mut Held,
-    id: u32,
-    design: FitDesign,
+/// The design and settings of a fit request, on the held table.
+fn design_and_settings(
+    held: &Held,
+    design: &FitDesign,
     method: &str,
-    sets: Vec<(String, String)>,
-) -> Result<RunResult, String> {
+    sets: &[(String, String)],
+) -> Result<(Design, FitSettings), String> {
     let loaded = held
         .loaded
         .as_ref()
@@ -267,30 +318,78 @@ fn fit(
         ..DesignSpec::default()
     };
     let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
-    // Fit time counts binning and fitting, as the command line's does.
-    let start = js_sys::Date::now();
     let regression = matches!(d.outcome, Outcome::Numbers(_));
     let settings = FitSettings::build(
         method_kind,
         d.predictors.len(),
         regression,
         &d.outcome_name,
-        &sets,
+        sets,
     )?;
+    Ok((d, settings))
+}
+
+/// Fits one share of a forest's trees and returns them as bytes.
+fn fit_part(
+    held: &Held,
+    id: u32,
+    design: &FitDesign,
+    method: &str,
+    sets: &[(String, String)],
+    range: std::ops::Range<usize>,
+) -> Result<Vec<u8>, String> {
+    let (d, settings) = design_and_settings(held, design, method, sets)?;
+    let trees =
+        fit_forest_part(d, &settings, range, &mut Reporter::new(id)).map_err(|e| e.to_string())?;
+    Ok(encode_trees(&trees))
+}
+
+/// Fits `method` on the held table and keeps the model as a new run. With `parts` (the
+/// bytes of trees fitted by several workers), a forest is tallied from them instead.
+fn fit(
+    held: &mut Held,
+    id: u32,
+    design: FitDesign,
+    method: &str,
+    sets: Vec<(String, String)>,
+    parts: Option<Vec<u8>>,
+) -> Result<RunResult, String> {
+    let (d, settings) = design_and_settings(held, &design, method, &sets)?;
+    let method_kind = settings.method;
+    let fingerprint = held.loaded.as_ref().map(|l| l.fingerprint.clone());
+    // Fit time counts binning and fitting, as the command line's does.
+    let start = js_sys::Date::now();
     let mut progress = Reporter::new(id);
+    // Trees fitted elsewhere, tallied in tree order into the same forest as one worker's.
+    let tally = |binned: &BinnedMatrix,
+                 _: &[f64],
+                 width: usize,
+                 outcome: &Outcome,
+                 forest: &ForestSettings,
+                 _: &mut dyn Progress| {
+        let bytes = parts.as_deref().unwrap_or_default();
+        let trees = decode_trees(bytes, binned.rows, binned.columns.len()).map_err(|e| {
+            spinney_core::Error::new(spinney_core::ErrorKind::BadDesign {
+                reason: format!("the workers' trees could not be joined ({e}); run it again"),
+            })
+        })?;
+        let mut t = OobTally::new(binned.rows, tree_outputs(forest, width));
+        let partial = trees.len() < forest.trees;
+        for f in trees {
+            t.add(f, binned, outcome);
+        }
+        Ok(t.finish(partial))
+    };
+    let options = FitOptions {
+        forest_fitter: parts.is_some().then_some(&tally as ForestFitter<'_>),
+        ..FitOptions::default()
+    };
     let Fitted {
         mut model,
         binned,
         design: d,
         ..
-    } = fit_design(
-        d,
-        &settings,
-        Some(loaded.fingerprint.clone()),
-        FitOptions::default(),
-        &mut progress,
-    )
-    .map_err(|e| e.to_string())?;
+    } = fit_design(d, &settings, fingerprint, options, &mut progress).map_err(|e| e.to_string())?;
     let fit_seconds = (js_sys::Date::now() - start) / 1000.0;
     // The settings the page sent; every other one is the method's default.
     model.settings = sets.iter().cloned().collect();
@@ -334,7 +433,7 @@ fn fit(
         outcome: d.outcome_name.clone(),
         rows: binned.rows,
         predictors: binned.columns.len(),
-        error_name: if regression {
+        error_name: if settings.regression {
             "mean squared error"
         } else {
             "error rate"
@@ -355,6 +454,7 @@ fn fit(
         stop,
         tree_shape,
         fit_seconds,
+        worker_memory_bytes: wasm_memory_bytes(),
         notices: d.notices.clone(),
     };
     held.runs.push(Run { design, model });
@@ -495,6 +595,15 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
     })
 }
 
+/// The size of this worker's wasm memory (it only grows, so this is the peak so far).
+fn wasm_memory_bytes() -> u64 {
+    wasm_bindgen::memory()
+        .unchecked_into::<js_sys::WebAssembly::Memory>()
+        .buffer()
+        .unchecked_into::<js_sys::ArrayBuffer>()
+        .byte_length() as u64
+}
+
 fn main() {
     let held = Rc::new(RefCell::new(Held::default()));
     let on_message = Closure::<dyn FnMut(MessageEvent)>::new(move |event: MessageEvent| {
@@ -516,9 +625,10 @@ fn main() {
             Ok(request) => {
                 let held = held.clone();
                 wasm_bindgen_futures::spawn_local(async move {
-                    let fingerprint = match &bytes {
-                        Some(b) => browser_sha256(b).await,
-                        None => None,
+                    // Only a file being read has a fingerprint (not trees between workers).
+                    let fingerprint = match (&request, &bytes) {
+                        (Request::Read { .. }, Some(b)) => browser_sha256(b).await,
+                        _ => None,
                     };
                     let bytes = bytes.map(|b| b.to_vec());
                     // Borrowed only after the await: no two requests overlap.

@@ -68,6 +68,8 @@ pub struct Fits {
     typed: HashMap<(&'static str, &'static str), String>,
     /// The run whose curves the chart shows.
     pub charted: Option<usize>,
+    /// Workers to grow a forest's trees on (`None`: the default for this machine).
+    workers: Option<usize>,
 }
 
 impl Fits {
@@ -90,6 +92,19 @@ impl Fits {
     fn method(&self) -> FitMethod {
         self.method.unwrap_or(FitMethod::Forest)
     }
+
+    /// Workers for bagging and forests: the user's choice, else up to 4 of the machine's
+    /// threads.
+    fn workers(&self) -> usize {
+        self.workers.unwrap_or_else(|| max_workers().min(4))
+    }
+}
+
+/// The machine's threads as the browser reports them (at most 8 are offered).
+fn max_workers() -> usize {
+    web_sys::window()
+        .map_or(1.0_f64, |w| w.navigator().hardware_concurrency())
+        .clamp(1.0, 8.0) as usize
 }
 
 /// A setting in the form.
@@ -373,6 +388,20 @@ fn render_form(p: &Page) {
             n = f.name
         );
     }
+    if matches!(method, FitMethod::Forest | FitMethod::Bagging) {
+        let chosen = p.fits.workers();
+        let options: String = (1..=max_workers())
+            .map(|n| {
+                format!(
+                    "<option value=\"{n}\"{}>{n}</option>",
+                    if n == chosen { " selected" } else { "" }
+                )
+            })
+            .collect();
+        html += &format!(
+            "<label class=\"field\"><span class=\"name\">Workers</span><select id=\"workers\" aria-describedby=\"help-workers\">{options}</select><span class=\"help\" id=\"help-workers\">Browser threads growing trees at the same time; each holds its own copy of the table. The forest is the same whatever the number.</span></label>"
+        );
+    }
     html += "</div><p class=\"run-line\"><button type=\"button\" id=\"run-start\" class=\"button primary\">Grow this model</button> <span id=\"run-hint\" class=\"hint\"></span></p>";
     set_html(&p.doc, "run-form", &html);
     check_form(p);
@@ -469,7 +498,7 @@ fn render_runs(p: &Page) {
         ]
         .join(" ");
         html += &format!(
-            "<tr class=\"{}\" data-same=\"{}\" data-oob=\"{}\" data-training=\"{}\" data-fit-seconds=\"{}\"><th scope=\"row\">{}{}</th><td>{}{extra}</td><td class=\"settings\">{}</td><td class=\"num\">{}</td><td class=\"num\">{oob}</td><td class=\"num\">{} <span class=\"unit\">{}</span></td><td class=\"num\">{}</td><td>{}</td></tr>",
+            "<tr class=\"{}\" data-same=\"{}\" data-oob=\"{}\" data-training=\"{}\" data-fit-seconds=\"{}\" data-worker-memory=\"{}\"><th scope=\"row\">{}{}</th><td>{}{extra}</td><td class=\"settings\">{}</td><td class=\"num\">{}</td><td class=\"num\">{oob}</td><td class=\"num\">{} <span class=\"unit\">{}</span></td><td class=\"num\">{}</td><td>{}</td></tr>",
             classes.trim(),
             match r.same_as_study {
                 Some(true) => "yes",
@@ -479,6 +508,7 @@ fn render_runs(p: &Page) {
             res.oob_error.map_or(String::new(), |e| e.to_string()),
             res.training_error,
             res.fit_seconds,
+            res.worker_memory_bytes,
             i + 1,
             match (r.stale, r.same_as_study) {
                 (true, _) => " <span class=\"flag\" title=\"fitted before the data or roles changed\">earlier data</span>",
@@ -631,7 +661,7 @@ fn numbers_table(chart: &ErrorChart, res: &RunResult) -> String {
 
 // ---------------------------------------------------------------------------- fitting
 
-fn now() -> f64 {
+pub fn now() -> f64 {
     web_sys::window()
         .and_then(|w| w.performance())
         .map_or(0.0, |p| p.now())
@@ -689,22 +719,54 @@ pub fn start_fit(page: &Shared, ask: FitAsk) {
         let _ = by_id(&p.doc, "fit-progress").set_attribute("value", "0");
         by_id(&p.doc, "fit-time").set_text_content(Some("starting"));
         show(&p.doc, "fit-status", true);
-        let request = Request::Fit {
-            v: PROTOCOL_VERSION,
-            id,
-            design: ask.design.clone(),
-            method: ask.method.word().to_string(),
-            settings: ask.settings.clone(),
-        };
         p.fits.in_flight = Some(InFlight {
             id,
             started: now(),
-            ask,
+            ask: ask.clone(),
         });
         check_form(&p);
-        request
+        let FitAsk {
+            method,
+            design,
+            settings,
+            ..
+        } = ask;
+        let trees = defaults(&p, method)
+            .and_then(Result::ok)
+            .and_then(|mut d| {
+                settings
+                    .iter()
+                    .try_for_each(|(n, v)| d.apply(n, v))
+                    .ok()
+                    .map(|_| d.forest.trees)
+            })
+            .unwrap_or(0);
+        let workers = p.fits.workers();
+        if matches!(method, FitMethod::Forest | FitMethod::Bagging) && workers > 1 && trees > 1 {
+            Err((
+                id,
+                design,
+                method.word().to_string(),
+                settings,
+                trees,
+                workers,
+            ))
+        } else {
+            Ok(Request::Fit {
+                v: PROTOCOL_VERSION,
+                id,
+                design,
+                method: method.word().to_string(),
+                settings,
+            })
+        }
     };
-    send(page, request, None);
+    match request {
+        Ok(request) => send(page, request, None),
+        Err((id, design, method, settings, trees, workers)) => {
+            super::pool::start(page, id, design, method, settings, trees, workers)
+        }
+    }
 }
 
 /// A finished run's figures as a study keeps them.
@@ -726,7 +788,7 @@ pub fn progress(p: &Page, done: u64, total: u64) {
     let share = done as f64 / total.max(1) as f64;
     let _ = by_id(&p.doc, "fit-progress").set_attribute("value", &format!("{share:.3}"));
     let elapsed = (now() - f.started) / 1000.0;
-    let unit = if f.ask.method == FitMethod::AdaBoost {
+    let unit = if matches!(f.ask.method, FitMethod::AdaBoost | FitMethod::Boosting) {
         "rounds"
     } else {
         "trees"
@@ -750,12 +812,17 @@ pub fn fit_done(doc: &Document) {
 }
 
 /// A fit finished: keep it as a run and chart it, then send the next waiting fit.
-pub fn fitted(page: &Shared, id: u32, result: RunResult) {
+pub fn fitted(page: &Shared, id: u32, mut result: RunResult) {
     let next = {
         let mut p = page.borrow_mut();
         let Some(f) = p.fits.in_flight.take_if(|f| f.id == id) else {
             return;
         };
+        // Grown by several workers: the time from the shares sent to the last one back, plus
+        // the main worker's tally.
+        if let Some(shares) = p.pool.seconds(id) {
+            result.fit_seconds += shares;
+        }
         fit_done(&p.doc);
         let same_as_study = f
             .ask
@@ -830,6 +897,10 @@ fn on_form(page: &Shared, event: Event) {
             let value = target.unchecked_ref::<HtmlInputElement>().value();
             p.fits.typed.insert((method.word(), f.name), value);
             check_form(&p);
+        }
+        "change" if target.id() == "workers" => {
+            let value = target.unchecked_ref::<web_sys::HtmlSelectElement>().value();
+            page.borrow_mut().fits.workers = value.parse().ok();
         }
         "click" if target.id() == "run-start" => start(page),
         _ => {}

@@ -11,7 +11,7 @@ use wasm_bindgen_futures::spawn_local;
 use web_sys::{Event, File, HtmlSelectElement};
 
 use super::{
-    by_id, download, esc, on, on_file_chosen, on_file_dropped, origin_bytes, send, set_html, show,
+    by_id, download, esc, fetch_origin, on, on_file_chosen, on_file_dropped, send, set_html, show,
     Origin, Page, Role, Shared,
 };
 
@@ -64,7 +64,7 @@ fn take(page: &Shared, file: File) {
     let page = page.clone();
     spawn_local(async move {
         let doc = page.borrow().doc.clone();
-        let (name, bytes): (String, Uint8Array) = match origin_bytes(&Origin::File(file)).await {
+        let (name, bytes): (String, Uint8Array) = match fetch_origin(&Origin::File(file)).await {
             Ok(b) => b,
             Err(e) => return message(&doc, &e),
         };

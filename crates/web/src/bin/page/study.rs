@@ -19,7 +19,7 @@ use web_sys::{Event, HtmlInputElement};
 use super::runs::{self, figures_of, FitAsk, RunView};
 use super::store::{self, KeptData};
 use super::{
-    by_id, default_role, download, esc, load_origin, on, on_file_chosen, origin_bytes, reread,
+    by_id, default_role, download, esc, fetch_origin, load_origin, on, on_file_chosen, reread,
     send, show, Origin, Page, Role, Shared,
 };
 
@@ -246,7 +246,7 @@ fn finish_save(page: &Shared, mut study: Study, with_data: bool, missing_models:
     spawn_local(async move {
         if with_data {
             let Some(origin) = origin else { return };
-            match origin_bytes(&origin).await {
+            match fetch_origin(&origin).await {
                 Ok((_, bytes)) => study.data.included = Some(include_data(&bytes.to_vec())),
                 Err(e) => return status(&doc, &e, true),
             }
@@ -291,7 +291,7 @@ fn open(page: &Shared, file: web_sys::File) {
     spawn_local(async move {
         let doc = page.borrow().doc.clone();
         let name = file.name();
-        let bytes = match origin_bytes(&Origin::File(file)).await {
+        let bytes = match fetch_origin(&Origin::File(file)).await {
             Ok((_, b)) => b.to_vec(),
             Err(e) => return status(&doc, &e, true),
         };
@@ -522,6 +522,7 @@ fn result_of(run: &StudyRun) -> RunResult {
         tree_shape: None,
         fit_seconds: r.fit_seconds,
         notices: Vec::new(),
+        worker_memory_bytes: 0,
     }
 }
 
@@ -578,7 +579,7 @@ pub fn autosave(page: &Shared) {
         let mut data = None;
         if kept.as_deref() != Some(study.data.fingerprint.as_str()) {
             if let Some(origin) = origin {
-                if let Ok((name, bytes)) = origin_bytes(&origin).await {
+                if let Ok((name, bytes)) = fetch_origin(&origin).await {
                     data = Some(KeptData {
                         name,
                         fingerprint: study.data.fingerprint.clone(),
