@@ -436,6 +436,7 @@ fn on_reply(page: &Shared, reply: Reply) {
             p.busy = None;
             p.pending_origin = None;
             p.restoring = false;
+            p.study.read_failed();
             reading_done(&p.doc);
             let tail = if kept_previous && p.report.is_some() {
                 " The table below is still the one you loaded before."

@@ -59,6 +59,11 @@ impl StudyState {
         self.regrowing = None;
         self.saving = None;
     }
+
+    /// A read failed: if it was the kept copy's data, autosave goes on without it.
+    pub fn read_failed(&mut self) {
+        self.restoring = false;
+    }
 }
 
 fn status(doc: &web_sys::Document, text: &str, is_error: bool) {
