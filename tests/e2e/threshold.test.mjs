@@ -3,8 +3,8 @@
 // the shown intervals against the Wilson score formula (Wilson 1927, as in Newcombe 1998,
 // method 3) and net benefit against Vickers & Elkin (2006), move the threshold by number,
 // by keyboard on the slider, refuse a threshold outside (0, 1), and see a single tree's
-// figures labelled as training (apparent), never as a validation. Screenshots go to
-// tests/out/e2e/.
+// figures labelled as training (apparent), never as a validation, and a boosting run's too.
+// Screenshots go to tests/out/e2e/.
 //   node tests/e2e/threshold.test.mjs    (after trunk build)
 import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
@@ -132,6 +132,19 @@ try {
     const after = await shown();
     expect(after.tp + after.fn === before.tn + before.fp, `positives ${after.tp + after.fn} vs negatives before ${before.tn + before.fp}`);
     await page.screenshot({ path: join(out, 'threshold-tree.png'), fullPage: true });
+  });
+
+  await check('a gradient boosting run\'s probabilities work too (training, apparent)', async () => {
+    await page.check('input[name=method][value=boosting]');
+    await page.fill('#set-rounds', '20');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="3"]', { timeout: 60000 });
+    await page.selectOption('#threshold-run', '2');
+    await page.waitForFunction(() => /Gradient boosting/.test(document.querySelector('#threshold-run').selectedOptions[0].textContent)
+      && document.querySelector('.threshold-tables')?.dataset.outOfBag === 'false', null, { timeout: 30000 });
+    const s = await shown();
+    expect(s.tp + s.fp + s.tn + s.fn === 4000, `${s.tp + s.fp + s.tn + s.fn} records counted`);
+    expect(!(await page.$('#threshold-result .message.error')), await page.textContent('#threshold-result'));
   });
 
   await checkNothingLeft(requests, origin, consoleErrors);
