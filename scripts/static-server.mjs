@@ -1,5 +1,8 @@
 // A tiny static file server for dist/ on 127.0.0.1 only (Node's standard library, no
-// dependencies). Used by scripts/serve and by the browser tests.
+// dependencies). Used by scripts/serve and by the browser tests. Every response carries the
+// page's Content-Security-Policy as an HTTP header, the same policy as the meta tag in the
+// served index.html (read from it, so the two cannot drift apart); the header also covers the
+// worker and service-worker scripts, which a meta tag cannot reach.
 //   node scripts/static-server.mjs DIR [PORT]     (PORT 0 = any free port)
 // Prints "serving DIR at http://127.0.0.1:PORT/" once listening.
 import { createServer } from 'node:http';
@@ -14,6 +17,13 @@ const TYPES = {
   '.ico': 'image/x-icon', '.webmanifest': 'application/manifest+json',
 };
 
+/** The policy in DIR/index.html's meta tag, or the strictest one if there is none. */
+export async function pagePolicy(root) {
+  const html = await readFile(join(root, 'index.html'), 'utf8').catch(() => '');
+  const meta = html.match(/<meta\s+http-equiv="Content-Security-Policy"\s+content="([^"]*)"/i);
+  return meta ? meta[1] : "default-src 'none'";
+}
+
 export function serve(dir, port = 0) {
   const root = resolve(dir);
   const server = createServer(async (req, res) => {
@@ -23,14 +33,18 @@ export function serve(dir, port = 0) {
       if (!path.startsWith(root)) { res.writeHead(403).end(); return; }
       if ((await stat(path).catch(() => null))?.isDirectory()) path = join(path, 'index.html');
       const body = await readFile(path);
+      // Read per request: a rebuild changes the hashes of the inline scripts.
+      const policy = await pagePolicy(root);
       res.writeHead(200, {
+        'content-security-policy': policy,
         'content-type': TYPES[extname(path)] ?? 'application/octet-stream',
         'cache-control': 'no-cache',
         'x-content-type-options': 'nosniff',
+        'referrer-policy': 'no-referrer',
       });
       res.end(body);
     } catch {
-      res.writeHead(404, { 'content-type': 'text/plain' }).end('not found');
+      res.writeHead(404, { 'content-type': 'text/plain', 'content-security-policy': "default-src 'none'" }).end('not found');
     }
   });
   return new Promise((ok, fail) => {

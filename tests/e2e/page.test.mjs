@@ -8,42 +8,18 @@
 // task may last over 200 ms (PerformanceObserver 'longtask'). Screenshots go to tests/out/e2e/.
 //
 // Runs with playwright-core and Debian's Chromium (/usr/bin/chromium); no browser download.
-//   node tests/e2e/page.test.mjs        (after `trunk build`; scripts/test does both)
-import { chromium } from 'playwright-core';
+//   node tests/e2e/page.test.mjs        (after `trunk build`; scripts/test does both through
+//                                        tests/e2e/run.mjs, which runs every *.test.mjs)
 import { createHash } from 'node:crypto';
-import { mkdirSync, readFileSync } from 'node:fs';
-import { dirname, join } from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
+import { check, expect, finish, fixtures, foreign, launch, out, root, watchedPage } from './harness.mjs';
 
-const here = dirname(fileURLToPath(import.meta.url));
-const root = join(here, '..', '..');
-const fixtures = join(root, 'tests', 'fixtures');
-const out = join(root, 'tests', 'out', 'e2e');
-mkdirSync(out, { recursive: true });
 const manifest = JSON.parse(readFileSync(join(fixtures, 'manifest.json'), 'utf8'));
-
-let passed = 0, failed = 0;
-async function check(name, body) {
-  try {
-    await body();
-    passed++;
-    console.log(`PASS ${name}`);
-  } catch (e) {
-    failed++;
-    console.log(`FAIL ${name}: ${String(e?.message ?? e).split('\n')[0]}`);
-  }
-}
-function expect(cond, what) { if (!cond) throw new Error(what); }
-
 const server = await serve(join(root, 'dist'), 0);
 const origin = `http://127.0.0.1:${server.address().port}`;
-const browser = await chromium.launch({
-  executablePath: process.env.CHROMIUM ?? '/usr/bin/chromium',
-  args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run',
-    '--disable-background-networking', '--disable-component-update', '--disable-sync'],
-  // playwright gives every launch a fresh temporary profile (the --user-data-dir of toolchain.md).
-});
+const browser = await launch();
 const context = await browser.newContext({ viewport: { width: 1400, height: 1000 } });
 // Long tasks of the page's main thread (over 50 ms each, as the browser reports them).
 await context.addInitScript(() => {
@@ -52,13 +28,7 @@ await context.addInitScript(() => {
     for (const e of list.getEntries()) window.__longTasks.push({ start: e.startTime, duration: e.duration });
   }).observe({ entryTypes: ['longtask'] });
 });
-const page = await context.newPage();
-const requests = [];
-const consoleErrors = [];
-context.on('request', (r) => requests.push(r.url()));
-page.on('request', (r) => requests.push(r.url()));
-page.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
-page.on('pageerror', (e) => consoleErrors.push(String(e)));
+const { page, requests, consoleErrors } = await watchedPage(context);
 
 const mainThreadNow = () => page.evaluate(() => performance.now());
 // The longest main-thread task that began between two performance.now() readings.
@@ -367,8 +337,8 @@ try {
   });
 
   await check('no request left the page\'s own origin', async () => {
-    const foreign = requests.filter((u) => !u.startsWith(origin) && !u.startsWith('data:') && !u.startsWith('blob:'));
-    expect(foreign.length === 0, `foreign requests: ${foreign.slice(0, 3)}`);
+    const away = foreign(requests, origin);
+    expect(away.length === 0, `foreign requests: ${away.slice(0, 3)}`);
     expect(requests.length > 0, 'no requests recorded at all');
   });
 
@@ -379,5 +349,4 @@ try {
   await browser.close();
   server.close();
 }
-console.log(`${passed} passed, ${failed} failed`);
-process.exit(failed ? 1 : 0);
+finish();

@@ -10,10 +10,9 @@ use std::path::PathBuf;
 use anyhow::Context;
 use spinney_core::binning::Records;
 use spinney_core::data::Table;
-use spinney_core::ensemble::forest::argmax;
 use spinney_core::model::{Model, Unseen};
 use spinney_core::model_file::read_model;
-use spinney_core::tree::Rows;
+use spinney_core::scoring::{partial_note, unseen_note, PredictionRows};
 
 /// The arguments of `spinney predict`.
 #[derive(clap::Args)]
@@ -57,11 +56,8 @@ pub fn predict(args: PredictArgs) -> anyhow::Result<()> {
         eprintln!("note: {}: {n}", args.file.display());
     }
     report_unseen(&unseen);
-    if model.partial {
-        eprintln!(
-            "note: this model is partial (fitting was cancelled after {} member(s))",
-            model.members()
-        );
+    if let Some(note) = partial_note(&model) {
+        eprintln!("note: {note}");
     }
     match &args.output {
         Some(path) => {
@@ -90,20 +86,7 @@ pub fn predict(args: PredictArgs) -> anyhow::Result<()> {
 /// Tells, on stderr, how many rows hold labels training never saw, per predictor.
 pub fn report_unseen(unseen: &[Unseen]) {
     for u in unseen {
-        eprintln!(
-            "note: column '{}': {} row(s) hold labels not seen in training (the first: '{}'); \
-             they follow {}",
-            u.predictor, u.rows, u.example, u.follows
-        );
-    }
-}
-
-/// One CSV field, quoted when it holds a comma, quote or line break (RFC 4180).
-fn field(text: &str) -> String {
-    if text.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", text.replace('"', "\"\""))
-    } else {
-        text.to_string()
+        eprintln!("note: {}", unseen_note(u));
     }
 }
 
@@ -116,28 +99,11 @@ pub fn write_predictions(
     keep: &[String],
     out: &mut dyn Write,
 ) -> std::io::Result<()> {
-    let kept: Vec<_> = keep.iter().filter_map(|k| table.column(k)).collect();
-    let mut header: Vec<String> = kept.iter().map(|c| field(&c.name)).collect();
-    header.push(field(&format!("predicted_{}", model.outcome)));
-    if let Some(classes) = &model.classes {
-        header.extend(classes.iter().map(|c| field(&format!("probability_{c}"))));
-    }
-    writeln!(out, "{}", header.join(","))?;
-    let mut p = vec![0.0; model.outputs()];
-    for row in 0..records.rows {
-        let mut line: Vec<String> = kept
-            .iter()
-            .map(|c| field(&c.display(row).unwrap_or_default()))
-            .collect();
-        model.predict(Rows::Records(records), row, &mut p);
-        match &model.classes {
-            Some(classes) => {
-                line.push(field(classes.get(argmax(&p)).map_or("", String::as_str)));
-                line.extend(p.iter().map(|x| x.to_string()));
-            }
-            None => line.push(p[0].to_string()),
-        }
-        writeln!(out, "{}", line.join(","))?;
+    let mut rows = PredictionRows::new(model, table, records, keep);
+    writeln!(out, "{}", PredictionRows::csv_line(&rows.header()))?;
+    for row in 0..rows.rows() {
+        let fields = rows.fields(row);
+        writeln!(out, "{}", PredictionRows::csv_line(&fields))?;
     }
     Ok(())
 }

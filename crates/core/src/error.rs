@@ -85,6 +85,16 @@ pub enum ErrorKind {
         written_by: String,
         reads: u64,
     },
+    /// A study file that cannot be used: not JSON, not a study, cut short, or inconsistent
+    /// contents. `at` holds the line and column when the JSON itself is at fault.
+    BadStudyFile { at: Where, reason: String },
+    /// A study file whose major format version is newer than this Spinney reads.
+    NewerStudyFile {
+        major: u64,
+        minor: u64,
+        written_by: String,
+        reads: u64,
+    },
     /// A model could not be written as a file (a value JSON cannot hold).
     ModelNotSaved { reason: String },
     /// A table to score lacks predictors the model needs, or holds them as another kind.
@@ -112,7 +122,8 @@ impl Error {
             ErrorKind::RaggedRow { at, .. }
             | ErrorKind::UnclosedQuote { at }
             | ErrorKind::NotText { at, .. }
-            | ErrorKind::BadModelFile { at, .. } => Some(at),
+            | ErrorKind::BadModelFile { at, .. }
+            | ErrorKind::BadStudyFile { at, .. } => Some(at),
             _ => None,
         }
     }
@@ -193,31 +204,31 @@ impl fmt::Display for Error {
                 )
             }
             ErrorKind::BadDesign { reason } => write!(f, "{reason}"),
-            ErrorKind::BadModelFile { at, reason } => {
-                let place = match (at.line, &at.column) {
-                    (Some(line), Some(column)) => format!(" (line {line}, column {column})"),
-                    (Some(line), None) => format!(" (line {line})"),
-                    _ => String::new(),
-                };
-                write!(
-                    f,
-                    "this model file cannot be used: {reason}{place}. Save the model again with \
-                     `spinney fit ... --save-model`; if the file was copied or edited, take the \
-                     original again"
-                )
-            }
+            ErrorKind::BadModelFile { at, reason } => write!(
+                f,
+                "this model file cannot be used: {reason}{}. Save the model again with \
+                 `spinney fit ... --save-model`; if the file was copied or edited, take the \
+                 original again",
+                place(at)
+            ),
             ErrorKind::NewerModelFile {
                 major,
                 minor,
                 written_by,
                 reads,
-            } => write!(
+            } => newer(f, "model", (*major, *minor), written_by, *reads, "read"),
+            ErrorKind::BadStudyFile { at, reason } => write!(
                 f,
-                "this model file has format version {major}.{minor}, written by {written_by}; \
-                 this Spinney ({}) reads format version {reads} and older. Update Spinney to \
-                 read it",
-                crate::VERSION
+                "this study file cannot be used: {reason}{}. Save the study again from the \
+                 page; if the file was copied or edited, take the original again",
+                place(at)
             ),
+            ErrorKind::NewerStudyFile {
+                major,
+                minor,
+                written_by,
+                reads,
+            } => newer(f, "study", (*major, *minor), written_by, *reads, "open"),
             ErrorKind::ModelNotSaved { reason } => write!(
                 f,
                 "the model cannot be saved: {reason}. This is a fault in Spinney; please report \
@@ -249,6 +260,32 @@ impl fmt::Display for Error {
                 write!(f, "{}", parts.join("; "))
             }
         }
+    }
+}
+
+/// A file of a newer major format version than this Spinney reads.
+fn newer(
+    f: &mut fmt::Formatter<'_>,
+    kind: &str,
+    (major, minor): (u64, u64),
+    written_by: &str,
+    reads: u64,
+    verb: &str,
+) -> fmt::Result {
+    write!(
+        f,
+        "this {kind} file has format version {major}.{minor}, written by {written_by}; this \
+         Spinney ({}) reads format version {reads} and older. Update Spinney to {verb} it",
+        crate::VERSION
+    )
+}
+
+/// " (line L, column C)" where a JSON reader knows them.
+fn place(at: &Where) -> String {
+    match (at.line, &at.column) {
+        (Some(line), Some(column)) => format!(" (line {line}, column {column})"),
+        (Some(line), None) => format!(" (line {line})"),
+        _ => String::new(),
     }
 }
 

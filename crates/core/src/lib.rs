@@ -15,6 +15,7 @@ pub mod binning;
 pub mod data;
 pub mod design;
 pub mod ensemble;
+mod envelope;
 pub mod error;
 pub mod fit;
 pub mod metrics;
@@ -23,7 +24,9 @@ pub mod model_file;
 pub mod onnx;
 pub mod progress;
 pub mod random;
+pub mod scoring;
 pub mod settings;
+pub mod study;
 pub mod tree;
 pub mod validate;
 

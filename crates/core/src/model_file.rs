@@ -35,6 +35,7 @@ use crate::ensemble::adaboost::{AdaBoost, Stop};
 use crate::ensemble::boosting::{Boosting, Stopping};
 use crate::ensemble::forest::Forest;
 use crate::ensemble::loss::Loss;
+use crate::envelope::Refusal;
 use crate::error::{Error, ErrorKind, Result, Where};
 use crate::model::{Ensemble, Method, Model, Predictor, Reading};
 use crate::tree::{BinSet, Node, Tree};
@@ -460,47 +461,19 @@ pub fn read_model(bytes: &[u8]) -> Result<Model> {
     // First the envelope: is it JSON, a model, a version we read?
     let value: serde_json::Value =
         serde_json::from_slice(bytes).map_err(|e| bad_json(&e, "it is not a model"))?;
-    let Some(object) = value.as_object() else {
-        return Err(bad(
-            "it is JSON but not a Spinney model file (a model file is one JSON object)",
-        ));
-    };
-    match object.get("format").and_then(|f| f.as_str()) {
-        Some(FORMAT) => {}
-        Some(other) => {
-            return Err(bad(format!(
-                "it is JSON of format '{other}', not a Spinney model file (format '{FORMAT}')"
-            )))
-        }
-        None => {
-            return Err(bad(format!(
-                "it is JSON but not a Spinney model file (it has no \"format\": \"{FORMAT}\")"
-            )))
-        }
-    }
-    let version = object.get("version");
-    let number = |key: &str| version.and_then(|v| v.get(key)).and_then(|n| n.as_u64());
-    let (Some(major), Some(minor)) = (number("major"), number("minor")) else {
-        return Err(bad(
-            "its \"version\" is missing or is not {\"major\": N, \"minor\": N}",
-        ));
-    };
-    if major > MAJOR {
-        let written_by = object
-            .get("written_by")
-            .and_then(|w| w.as_str())
-            .unwrap_or("a newer Spinney")
-            .to_string();
-        return Err(Error::new(ErrorKind::NewerModelFile {
+    crate::envelope::check(&value, FORMAT, "model file", MAJOR, &[]).map_err(|r| match r {
+        Refusal::Bad(reason) => bad(reason),
+        Refusal::Newer {
+            major,
+            minor,
+            written_by,
+        } => Error::new(ErrorKind::NewerModelFile {
             major,
             minor,
             written_by,
             reads: MAJOR,
-        }));
-    }
-    if major == 0 {
-        return Err(bad("it has format version 0, which no Spinney wrote"));
-    }
+        }),
+    })?;
     drop(value);
     // Then the contents, with serde_json's line and column for any field of the wrong type.
     let file: FileV1 = serde_json::from_slice(bytes)

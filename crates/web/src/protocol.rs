@@ -74,6 +74,55 @@ pub enum Request {
         settings: Vec<(String, String)>,
         judging: Option<Judging>,
     },
+    /// The per-row predictions of a kept two-class run (see [`RunPredictions`]).
+    Predictions { v: u32, id: u32, run: u32 },
+    /// The kept runs' models as model files (`None` asks for nothing in that place).
+    ModelFiles {
+        v: u32,
+        id: u32,
+        runs: Vec<Option<u32>>,
+    },
+    /// Score the file whose bytes come with the message with kept run `run`, copying the
+    /// `keep` columns (those the file has) in front of the predictions.
+    Score {
+        v: u32,
+        id: u32,
+        run: u32,
+        name: String,
+        keep: Vec<String>,
+    },
+}
+
+/// Predictions for a file of new records (see spinney_core::scoring).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct ScoreResult {
+    pub run: u32,
+    pub file: String,
+    pub rows: usize,
+    /// The predictions as CSV, header first: what `spinney predict` writes.
+    pub csv: String,
+    pub header: Vec<String>,
+    /// The first rows' fields, for showing.
+    pub preview: Vec<Vec<String>>,
+    /// How the file was read, labels training never saw, a partial model.
+    pub notes: Vec<String>,
+}
+
+/// The per-row predictions of a two-class run, for the threshold step.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct RunPredictions {
+    pub run: u32,
+    /// The outcome's two labels, codes 0 and 1.
+    pub classes: [String; 2],
+    /// Each row's outcome code.
+    pub outcomes: Vec<u32>,
+    /// Each row's probability of class 1.
+    pub probabilities: Vec<f64>,
+    /// Out-of-bag predictions (each row judged only by trees that did not see it), or
+    /// the training rows' own (apparent, not a validation).
+    pub out_of_bag: bool,
+    /// Rows without an out-of-bag prediction (every tree saw them), left out.
+    pub left_out: usize,
 }
 
 /// The columns of a fit, as the page's roles table gives them.
@@ -218,6 +267,15 @@ pub enum Reply {
     },
     /// A fit finished.
     Fitted { id: u32, result: Box<RunResult> },
+    /// A run's per-row predictions.
+    Predictions {
+        id: u32,
+        result: Box<RunPredictions>,
+    },
+    /// Model files in the order asked, `None` where the worker holds no such run.
+    ModelFiles { id: u32, files: Vec<Option<String>> },
+    /// A file of new records scored.
+    Scored { id: u32, result: Box<ScoreResult> },
     /// A share of a forest's trees is fitted; its bytes come with the message.
     Part { id: u32, first: usize, count: usize },
     /// The request failed; the worker still holds the table it had before, if any.
@@ -234,6 +292,9 @@ impl Request {
             Request::Read { v, .. }
             | Request::Reread { v, .. }
             | Request::Fit { v, .. }
+            | Request::Predictions { v, .. }
+            | Request::Score { v, .. }
+            | Request::ModelFiles { v, .. }
             | Request::FitPart { v, .. }
             | Request::Assemble { v, .. } => *v,
         }

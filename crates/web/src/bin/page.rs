@@ -25,6 +25,14 @@ mod measured;
 mod pool;
 #[path = "page/runs.rs"]
 mod runs;
+#[path = "page/score.rs"]
+mod score;
+#[path = "page/store.rs"]
+mod store;
+#[path = "page/study.rs"]
+mod study;
+#[path = "page/threshold.rs"]
+mod threshold;
 
 use web_sys::{
     Document, DragEvent, Element, Event, File, HtmlInputElement, HtmlSelectElement, MessageEvent,
@@ -80,6 +88,9 @@ impl Role {
 enum Origin {
     File(File),
     Demo(String),
+    /// Bytes the page holds itself: a study's included data or the browser's kept copy
+    /// (name, bytes; copied each time, as sending to the worker hands the copy over).
+    Bytes(String, Uint8Array),
 }
 
 struct Page {
@@ -102,6 +113,12 @@ struct Page {
     roles: Vec<Role>,
     /// The model-runs step.
     fits: runs::Fits,
+    /// The study file and the browser's kept copy.
+    study: study::StudyState,
+    /// The threshold step.
+    threshold: threshold::Threshold,
+    /// The scoring step.
+    scoring: score::Scoring,
     /// Extra workers growing shares of a forest.
     pool: pool::Pool,
 }
@@ -166,7 +183,7 @@ fn default_role(c: &ColumnSummary) -> Role {
 // ---------------------------------------------------------------------------- worker
 
 fn spawn_worker(page: &Shared) -> Worker {
-    let worker = match Worker::new("./worker_loader.js") {
+    let worker = match Worker::new(&worker_url()) {
         Ok(w) => w,
         Err(e) => {
             web_sys::console::error_2(&"cannot start the worker".into(), &e);
@@ -185,6 +202,66 @@ fn spawn_worker(page: &Shared) -> Worker {
     worker.set_onmessage(Some(on_message.as_ref().unchecked_ref()));
     on_message.forget();
     worker
+}
+
+/// A value the single-file build's start-up script put on `window` (scripts/build-single-file):
+/// `spinneyWorkerUrl`, the worker as a blob URL, and `spinneyEmbedded`, the demo files as
+/// data URLs by path. `None` in the ordinary build.
+fn single_file_global(path: &[&str]) -> Option<String> {
+    let mut value: JsValue = web_sys::window()?.into();
+    for key in path {
+        value = Reflect::get(&value, &(*key).into()).ok()?;
+    }
+    value.as_string()
+}
+
+/// The worker's script: the built worker_loader.js, or the single file's blob URL.
+fn worker_url() -> String {
+    single_file_global(&["spinneyWorkerUrl"]).unwrap_or_else(|| "./worker_loader.js".into())
+}
+
+/// Registers the service worker that keeps a copy of the page for use without a network
+/// (web/offline-worker.js), and says in the page what holds. Not from a file (browsers allow
+/// service workers only on http(s)), where the page needs no network anyway.
+fn keep_offline_copy(doc: &Document) {
+    let note = by_id(doc, "offline-note");
+    let Some(window) = web_sys::window() else {
+        return;
+    };
+    if window.location().protocol().is_ok_and(|p| p == "file:") {
+        note.set_text_content(Some(
+            "Opened from a file on this computer: it needs no network at all.",
+        ));
+        let _ = note.set_attribute("data-offline", "file");
+        return;
+    }
+    let navigator = window.navigator();
+    if !Reflect::has(&navigator, &"serviceWorker".into()).unwrap_or(false) {
+        note.set_text_content(Some("This browser keeps no offline copy of the page at this address (it is not a secure one); the page still sends nothing out."));
+        return;
+    }
+    let container = navigator.service_worker();
+    let registered = container.register("./offline-worker.js");
+    spawn_local(async move {
+        let ready = match JsFuture::from(registered).await {
+            Ok(_) => container.ready().map(JsFuture::from),
+            Err(e) => Err(e),
+        };
+        let ready = match ready {
+            Ok(r) => r.await,
+            Err(e) => Err(e),
+        };
+        match ready {
+            Ok(_) => {
+                note.set_text_content(Some("A copy of this page is kept in this browser, so it also opens and works with the network off."));
+                let _ = note.set_attribute("data-offline", "ready");
+            }
+            Err(e) => {
+                web_sys::console::warn_2(&"no offline copy".into(), &e);
+                note.set_text_content(Some("This browser did not keep an offline copy of the page; it needs this address to open again. Your data is not affected."));
+            }
+        }
+    });
 }
 
 fn send(page: &Shared, request: Request, bytes: Option<Uint8Array>) {
@@ -317,8 +394,14 @@ fn on_reply(page: &Shared, reply: Reply) {
                     .insert_adjacent_html("beforeend", &format!(" · read in {read_seconds:.2} s"));
             }
             render_columns(&p);
+            drop(p);
+            runs_changed(page);
+            study::table_read(page);
         }
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
+        Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
+        Reply::Scored { id, result } => score::scored(page, id, *result),
+        Reply::ModelFiles { id, files } => study::models_arrived(page, id, files),
         // Shares of a forest come from the extra workers (see pool.rs), not this one.
         Reply::Part { .. } => {}
         Reply::Failed {
@@ -326,6 +409,18 @@ fn on_reply(page: &Shared, reply: Reply) {
             message,
             kept_previous,
         } => {
+            if page.borrow().threshold.asked == Some(id) {
+                threshold::refused(page, &message);
+                return;
+            }
+            if page.borrow().scoring.asked == Some(id) {
+                score::refused(page, &message);
+                return;
+            }
+            if study::saving(page, id) {
+                study::models_refused(page, &message);
+                return;
+            }
             if page
                 .borrow()
                 .fits
@@ -343,6 +438,7 @@ fn on_reply(page: &Shared, reply: Reply) {
             p.busy = None;
             p.pending_origin = None;
             p.restoring = false;
+            p.study.read_failed();
             reading_done(&p.doc);
             let tail = if kept_previous && p.report.is_some() {
                 " The table below is still the one you loaded before."
@@ -405,15 +501,19 @@ fn start_read(
     );
 }
 
-/// The file's name and bytes, from the file the user chose or the demo file on this page's
-/// own folder; the message to show when they cannot be had.
+/// The file's name and bytes (a fresh array the caller may hand over to a worker), from the
+/// file the user chose, the demo file in this page's own folder (or embedded in the one-file
+/// build) or bytes the page holds; the message to show when they cannot be had.
 async fn fetch_origin(origin: &Origin) -> Result<(String, Uint8Array), String> {
     let (name, buffer) = match origin {
         Origin::File(file) => (file.name(), JsFuture::from(file.array_buffer()).await),
+        Origin::Bytes(name, bytes) => return Ok((name.clone(), bytes.slice(0, bytes.length()))),
         Origin::Demo(path) => {
             let name = path.rsplit('/').next().unwrap_or(path).to_string();
             let window = web_sys::window().expect("window");
-            let response = match JsFuture::from(window.fetch_with_str(path)).await {
+            let url = single_file_global(&["spinneyEmbedded", path.as_str()])
+                .unwrap_or_else(|| path.clone());
+            let response = match JsFuture::from(window.fetch_with_str(&url)).await {
                 Ok(r) => r.unchecked_into::<web_sys::Response>(),
                 Err(_) => {
                     return Err(format!(
@@ -436,11 +536,39 @@ async fn fetch_origin(origin: &Origin) -> Result<(String, Uint8Array), String> {
 fn load_origin(page: &Shared, origin: Origin, settings: ReadSettings, restoring: bool) {
     let page = page.clone();
     spawn_local(async move {
+        let doc = page.borrow().doc.clone();
         match fetch_origin(&origin).await {
             Ok((name, bytes)) => start_read(&page, origin, name, bytes, settings, restoring),
-            Err(message) => show_message(&page.borrow().doc, &message, true),
+            Err(message) => show_message(&doc, &message, true),
         }
     });
+}
+
+/// Offers `bytes` to the user as a download named `name` (a Blob and an object URL: nothing
+/// leaves the machine).
+fn download(doc: &Document, name: &str, bytes: &[u8], mime: &str) {
+    let parts = Array::of1(&Uint8Array::from(bytes));
+    let options = web_sys::BlobPropertyBag::new();
+    options.set_type(mime);
+    let Ok(blob) = web_sys::Blob::new_with_u8_array_sequence_and_options(&parts, &options) else {
+        return;
+    };
+    let Ok(url) = web_sys::Url::create_object_url_with_blob(&blob) else {
+        return;
+    };
+    if let Ok(a) = doc.create_element("a") {
+        let _ = a.set_attribute("href", &url);
+        let _ = a.set_attribute("download", name);
+        a.unchecked_ref::<web_sys::HtmlElement>().click();
+    }
+    // Revoked after the browser has taken the download.
+    let revoke = Closure::once_into_js(move || {
+        let _ = web_sys::Url::revoke_object_url(&url);
+    });
+    if let Some(w) = web_sys::window() {
+        let _ =
+            w.set_timeout_with_callback_and_timeout_and_arguments_0(revoke.unchecked_ref(), 60_000);
+    }
 }
 
 fn reread(page: &Shared, settings: ReadSettings) {
@@ -465,6 +593,12 @@ fn reread(page: &Shared, settings: ReadSettings) {
     );
 }
 
+/// The runs changed (a fit, a cancel, new data or roles): the steps that use them redraw.
+fn runs_changed(page: &Shared) {
+    threshold::refresh(page);
+    score::refresh(&mut page.borrow_mut());
+}
+
 /// Stops the worker mid-read or mid-fit. The worker is replaced and the previous table read
 /// again from its origin, so nothing already loaded is lost; the runs table is the page's own
 /// and stays as it was.
@@ -480,6 +614,9 @@ fn cancel(page: &Shared, note: &str) {
         p.pending_origin = None;
         p.fits.in_flight = None;
         p.fits.forget_models();
+        p.threshold.asked = None;
+        p.scoring.asked = None;
+        p.study.cancelled();
         p.pool.stop();
         reading_done(&p.doc);
         runs::fit_done(&p.doc);
@@ -490,6 +627,7 @@ fn cancel(page: &Shared, note: &str) {
         load_origin(page, origin, settings, true);
     }
     runs::render(&page.borrow());
+    runs_changed(page);
 }
 
 // ---------------------------------------------------------------------------- rendering
@@ -787,6 +925,48 @@ fn on<E: wasm_bindgen::convert::FromWasmAbi + 'static>(
     closure.forget();
 }
 
+/// Calls `take` with the file chosen in the file `input`, then empties it so the same file
+/// can be chosen again.
+fn on_file_chosen(input: &Element, take: impl Fn(File) + 'static) {
+    on(input, "change", move |e: Event| {
+        let Some(input) = e
+            .target()
+            .and_then(|t| t.dyn_into::<HtmlInputElement>().ok())
+        else {
+            return;
+        };
+        if let Some(file) = input.files().and_then(|f| f.get(0)) {
+            take(file);
+        }
+        input.set_value("");
+    });
+}
+
+/// Makes `zone` take a dropped file (marked while a file is dragged over it).
+fn on_file_dropped(zone: &Element, take: impl Fn(File) + 'static) {
+    let z = zone.clone();
+    on(zone, "dragover", move |e: DragEvent| {
+        e.prevent_default();
+        let _ = z.class_list().add_1("over");
+    });
+    let z = zone.clone();
+    on(zone, "dragleave", move |_: DragEvent| {
+        let _ = z.class_list().remove_1("over");
+    });
+    let z = zone.clone();
+    on(zone, "drop", move |e: DragEvent| {
+        e.prevent_default();
+        let _ = z.class_list().remove_1("over");
+        if let Some(file) = e
+            .data_transfer()
+            .and_then(|d| d.files())
+            .and_then(|f| f.get(0))
+        {
+            take(file);
+        }
+    });
+}
+
 fn on_column_change(page: &Shared, event: Event) {
     let Some(target) = event
         .target()
@@ -820,6 +1000,9 @@ fn on_column_change(page: &Shared, event: Event) {
             }
             p.fits.mark_stale();
             render_columns(&p);
+            drop(p);
+            runs_changed(page);
+            study::autosave(page);
         }
         Some("kind") => {
             let settings = {
@@ -864,7 +1047,8 @@ fn on_data_settings(page: &Shared, event: Event) {
 }
 
 fn take_file(page: &Shared, file: File) {
-    load_origin(page, Origin::File(file), ReadSettings::default(), false);
+    let settings = study::reading_for_new_file(&page.borrow());
+    load_origin(page, Origin::File(file), settings, false);
 }
 
 /// The model design the roles table describes: outcome, predictors and weight column, and
@@ -908,49 +1092,20 @@ fn main() {
         settings: ReadSettings::default(),
         roles: Vec::new(),
         fits: runs::Fits::default(),
+        study: study::StudyState::default(),
+        threshold: threshold::Threshold::default(),
+        scoring: score::Scoring::default(),
         pool: pool::Pool::default(),
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;
     by_id(&doc, "version").set_text_content(Some(spinney_core::VERSION));
+    keep_offline_copy(&doc);
 
-    let input = by_id(&doc, "file-input");
     let pg = page.clone();
-    on(&input, "change", move |e: Event| {
-        let Some(input) = e
-            .target()
-            .and_then(|t| t.dyn_into::<HtmlInputElement>().ok())
-        else {
-            return;
-        };
-        if let Some(file) = input.files().and_then(|f| f.get(0)) {
-            take_file(&pg, file);
-        }
-        input.set_value("");
-    });
-    let drop_zone = by_id(&doc, "drop");
-    let zone = drop_zone.clone();
-    on(&drop_zone, "dragover", move |e: DragEvent| {
-        e.prevent_default();
-        let _ = zone.class_list().add_1("over");
-    });
-    let zone = drop_zone.clone();
-    on(&drop_zone, "dragleave", move |_: DragEvent| {
-        let _ = zone.class_list().remove_1("over");
-    });
+    on_file_chosen(&by_id(&doc, "file-input"), move |file| take_file(&pg, file));
     let pg = page.clone();
-    let zone = drop_zone.clone();
-    on(&drop_zone, "drop", move |e: DragEvent| {
-        e.prevent_default();
-        let _ = zone.class_list().remove_1("over");
-        if let Some(file) = e
-            .data_transfer()
-            .and_then(|d| d.files())
-            .and_then(|f| f.get(0))
-        {
-            take_file(&pg, file);
-        }
-    });
+    on_file_dropped(&by_id(&doc, "drop"), move |file| take_file(&pg, file));
     for (id, path) in [
         ("demo-surgery", "demo-data/surgery-complications.csv"),
         ("demo-survey", "demo-data/field-survey.csv"),
@@ -970,6 +1125,9 @@ fn main() {
         cancel(&pg, "Reading cancelled.")
     });
     runs::listen(&page);
+    threshold::listen(&page);
+    score::listen(&page);
+    study::listen(&page);
     let pg = page.clone();
     on(&by_id(&doc, "columns"), "change", move |e: Event| {
         on_column_change(&pg, e)

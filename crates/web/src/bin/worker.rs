@@ -15,13 +15,15 @@ use spinney_core::ensemble::forest::{tree_outputs, ForestSettings, OobTally};
 use spinney_core::ensemble::tree_bytes::{decode_trees, encode_trees};
 use spinney_core::fit::{fit_design, fit_forest_part, FitOptions, Fitted, ForestFitter};
 use spinney_core::model::{Ensemble, Method, Model};
+use spinney_core::model_file::write_model;
 use spinney_core::progress::{Flow, Progress};
+use spinney_core::scoring::{partial_note, unseen_note, PredictionRows};
 use spinney_core::settings::FitSettings;
 use spinney_core::tree::Rows;
 use spinney_core::validate::{self, judge::Judged, Plan, Scheme, Validation};
 use spinney_web::protocol::{
-    CalibrationGroup, Figure, FitDesign, Judging, Preview, ReadSettings, Reply, Request, RunResult,
-    RunValidation, PREVIEW_ROWS, PROTOCOL_VERSION,
+    CalibrationGroup, Figure, FitDesign, Judging, Preview, ReadSettings, Reply, Request,
+    RunPredictions, RunResult, RunValidation, ScoreResult, PREVIEW_ROWS, PROTOCOL_VERSION,
 };
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
@@ -40,7 +42,6 @@ struct Held {
 }
 
 /// One kept run: the columns asked for and the model (its method and settings inside).
-#[allow(dead_code)] // read by the steps after model runs
 struct Run {
     design: FitDesign,
     model: Model,
@@ -144,12 +145,49 @@ async fn browser_sha256(bytes: &Uint8Array) -> Option<String> {
     Some(digest.iter().map(|b| format!("{b:02x}")).collect())
 }
 
+/// Posts a request's result, or its failure (the worker keeps what it held).
+fn answer<T>(held: &Held, id: u32, result: Result<T, String>, reply: impl FnOnce(Box<T>) -> Reply) {
+    post(&match result {
+        Ok(r) => reply(Box::new(r)),
+        Err(message) => Reply::Failed {
+            id,
+            message,
+            kept_previous: held.loaded.is_some(),
+        },
+    });
+}
+
 fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint: Option<String>) {
     let (id, name, settings, new_bytes) = match request {
         Request::Read {
             id, name, settings, ..
         } => (id, name, settings, bytes),
         Request::Reread { id, settings, .. } => (id, held.name.clone(), settings, None),
+        Request::Score {
+            id,
+            run,
+            name,
+            keep,
+            ..
+        } => {
+            let bytes = bytes.as_deref().unwrap_or_default();
+            let result = score(held, id, run, &name, bytes, &keep);
+            return answer(held, id, result, |result| Reply::Scored { id, result });
+        }
+        Request::ModelFiles { id, runs, .. } => {
+            let files = runs
+                .iter()
+                .map(|r| {
+                    let run = held.runs.get((*r)? as usize)?;
+                    write_model(&run.model).ok()
+                })
+                .collect();
+            return post(&Reply::ModelFiles { id, files });
+        }
+        Request::Predictions { id, run, .. } => {
+            let result = predictions(held, run);
+            return answer(held, id, result, |result| Reply::Predictions { id, result });
+        }
         Request::Fit {
             id,
             design,
@@ -587,6 +625,140 @@ fn run_validation(v: &Validation, scheme: &Scheme, warnings: Vec<String>) -> Run
         warnings,
         notes: v.notes.clone(),
     }
+}
+
+/// Rows of predictions shown in the page; the download has them all.
+const SCORE_PREVIEW_ROWS: usize = 100;
+
+/// Scores a file of new records with kept run `run`, as `spinney predict` does: the file's
+/// predictor columns read as the kinds they had in training, missing or mistyped ones
+/// refused in the core's words, labels never seen in training noted.
+fn score(
+    held: &Held,
+    id: u32,
+    run: u32,
+    name: &str,
+    bytes: &[u8],
+    keep: &[String],
+) -> Result<ScoreResult, String> {
+    let r = held.runs.get(run as usize).ok_or(
+        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
+    )?;
+    let model = &r.model;
+    let options = ReadOptions {
+        file_name: Some(name.to_string()),
+        kinds: model.reading_kinds(),
+        max_bytes: Some(MAX_BYTES),
+        ..ReadOptions::default()
+    };
+    let loaded =
+        read_table(bytes, &options, &mut Reporter::new(id)).map_err(|e| format!("{name}: {e}"))?;
+    let (records, unseen) = model
+        .records(&loaded.table)
+        .map_err(|e| format!("{name}: {e}"))?;
+    let mut notes: Vec<String> = loaded
+        .notices
+        .iter()
+        .map(|n| format!("{name}: {n}"))
+        .collect();
+    notes.extend(unseen.iter().map(unseen_note));
+    notes.extend(partial_note(model));
+    let mut rows = PredictionRows::new(model, &loaded.table, &records, keep);
+    let header = rows.header();
+    let mut csv = PredictionRows::csv_line(&header);
+    csv.push('\n');
+    let mut preview = Vec::new();
+    for row in 0..rows.rows() {
+        let fields = rows.fields(row);
+        csv += &PredictionRows::csv_line(&fields);
+        csv.push('\n');
+        if row < SCORE_PREVIEW_ROWS {
+            preview.push(fields);
+        }
+    }
+    Ok(ScoreResult {
+        run,
+        file: name.to_string(),
+        rows: rows.rows(),
+        csv,
+        header,
+        preview,
+        notes,
+    })
+}
+
+/// The per-row predictions of kept run `run` on the table it was fitted on: out-of-bag for
+/// bagging and forests (rows every tree saw left out), the training rows' own otherwise.
+fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
+    let loaded = held
+        .loaded
+        .as_ref()
+        .ok_or("no table is loaded yet; choose a file first")?;
+    let r = held.runs.get(run as usize).ok_or(
+        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
+    )?;
+    let model = &r.model;
+    if model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
+        return Err("the data changed after this run was grown; grow it again on this data".into());
+    }
+    let classes = match model.classes.as_deref() {
+        Some([a, b]) => [a.clone(), b.clone()],
+        Some(c) => {
+            return Err(format!(
+                "a decision threshold needs an outcome with two classes; this run's has {}",
+                c.len()
+            ))
+        }
+        None => return Err(
+            "a decision threshold needs an outcome with two classes; this run predicts a number"
+                .into(),
+        ),
+    };
+    let spec = DesignSpec {
+        outcome: r.design.outcome.clone(),
+        predictors: r.design.predictors.clone(),
+        weight: r.design.weight.clone(),
+        ..DesignSpec::default()
+    };
+    let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
+    let Outcome::Classes { codes, .. } = &d.outcome else {
+        return Err("the outcome is read as a number now; grow the run again".into());
+    };
+    let mut outcomes = Vec::with_capacity(codes.len());
+    let mut probabilities = Vec::with_capacity(codes.len());
+    let mut left_out = 0;
+    let out_of_bag = match &model.ensemble {
+        Ensemble::Forest(f) if f.oob_prediction.len() == 2 * codes.len() => {
+            for (i, &y) in codes.iter().enumerate() {
+                let p = f.oob_prediction[2 * i + 1];
+                if p.is_finite() {
+                    outcomes.push(y);
+                    probabilities.push(p.clamp(0.0, 1.0));
+                } else {
+                    left_out += 1;
+                }
+            }
+            true
+        }
+        _ => {
+            let (records, _) = model.records(&loaded.table).map_err(|e| e.to_string())?;
+            let mut out = vec![0.0; model.outputs()];
+            for (i, &y) in codes.iter().enumerate() {
+                model.predict(Rows::Records(&records), d.rows[i], &mut out);
+                outcomes.push(y);
+                probabilities.push(out[1].clamp(0.0, 1.0));
+            }
+            false
+        }
+    };
+    Ok(RunPredictions {
+        run,
+        classes,
+        outcomes,
+        probabilities,
+        out_of_bag,
+        left_out,
+    })
 }
 
 /// The size of this worker's wasm memory (it only grows, so this is the peak so far).

@@ -64,7 +64,7 @@ impl Pool {
 }
 
 fn spawn(page: &Shared, index: usize) -> Worker {
-    let worker = match Worker::new("./worker_loader.js") {
+    let worker = match Worker::new(&super::worker_url()) {
         Ok(w) => w,
         Err(e) => {
             web_sys::console::error_2(&"cannot start an extra worker".into(), &e);

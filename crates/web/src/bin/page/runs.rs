@@ -8,52 +8,79 @@
 //! Cancel restarts the worker (see `cancel` in page.rs); the runs table is the page's own and
 //! survives it.
 
-use std::collections::HashMap;
+use std::collections::{HashMap, VecDeque};
 
 use plotters::prelude::IntoDrawingArea;
 use spinney_charts::{draw_error_curves, Curve, ErrorChart, COLOURS};
 use spinney_core::model::Method as FitMethod;
 use spinney_core::settings::FitSettings;
-use spinney_web::protocol::{Judging, Request, RunResult, PROTOCOL_VERSION};
+use spinney_core::study::RunFigures;
+use spinney_web::protocol::{FitDesign, Judging, Request, RunResult, PROTOCOL_VERSION};
 use wasm_bindgen::JsCast;
 use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlInputElement};
 
 use super::measured::MeasuredCanvas;
 use super::{by_id, cancel, design_of, esc, on, send, set_html, show, Page, Shared};
 
+/// A fit to send: what the form (or a study being re-run) asks for.
+#[derive(Clone)]
+pub struct FitAsk {
+    pub method: FitMethod,
+    pub design: FitDesign,
+    /// The settings given, by their `--set` names; the rest are the method's defaults.
+    pub settings: Vec<(String, String)>,
+    pub summary: String,
+    /// How to judge it out of sample (`None`: not judged).
+    pub judging: Option<Judging>,
+    /// A study's saved figures this fit should give again.
+    pub expected: Option<RunFigures>,
+}
+
+/// Judging by `scheme` (the command line's words) at threshold 0.5 with the splits' seed 1,
+/// the baseline beside it when `baseline`.
+pub fn judging(scheme: String, baseline: bool) -> Judging {
+    Judging {
+        scheme,
+        threshold: 0.5,
+        baseline,
+        seed: 1,
+    }
+}
+
 /// The fit the worker is working on.
 pub struct InFlight {
     pub id: u32,
     /// `performance.now()` when it was sent, in ms.
     started: f64,
-    method: FitMethod,
-    summary: String,
+    ask: FitAsk,
 }
 
 /// One finished run as the page shows it.
-struct RunView {
-    result: RunResult,
-    method: FitMethod,
-    summary: String,
+pub struct RunView {
+    pub result: RunResult,
+    pub ask: FitAsk,
     /// The data or the roles changed after this run.
-    stale: bool,
+    pub stale: bool,
     /// The worker still holds the fitted model (as run `result.run`); a cancel restarts the
     /// worker, which forgets its models, while the page keeps their figures.
-    #[allow(dead_code)] // read by the steps after model runs
-    held: bool,
+    pub held: bool,
+    /// Re-run from a study: whether every figure came out the same to the bit.
+    pub same_as_study: Option<bool>,
 }
 
 /// The step's state.
 #[derive(Default)]
 pub struct Fits {
     pub in_flight: Option<InFlight>,
-    runs: Vec<RunView>,
+    pub runs: Vec<RunView>,
+    /// Fits waiting for the one in flight (a study's runs being grown again).
+    pub queue: VecDeque<FitAsk>,
     /// The method chosen in the form (a random forest until the user picks another).
     method: Option<FitMethod>,
     /// What the user typed, by (method, setting); untouched settings show their defaults.
     typed: HashMap<(&'static str, &'static str), String>,
     /// The run whose curves the chart shows.
-    charted: Option<usize>,
+    pub charted: Option<usize>,
     /// Workers to grow a forest's trees on (`None`: the default for this machine).
     workers: Option<usize>,
     /// How to judge the next run, in the command line's words (`None`: the method's
@@ -71,11 +98,13 @@ impl Fits {
         }
     }
 
-    /// The worker was restarted: it holds none of the models any more.
+    /// The worker was restarted: it holds none of the models any more, and fits waiting
+    /// for it are dropped.
     pub fn forget_models(&mut self) {
         for r in &mut self.runs {
             r.held = false;
         }
+        self.queue.clear();
     }
 
     fn method(&self) -> FitMethod {
@@ -543,16 +572,26 @@ fn render_runs(p: &Page) {
         ]
         .join(" ");
         html += &format!(
-            "<tr class=\"{}\" data-oob=\"{}\" data-training=\"{}\" data-fit-seconds=\"{}\" data-worker-memory=\"{}\"><th scope=\"row\">{}{}</th><td>{}{extra}</td><td class=\"settings\">{}</td><td class=\"num\">{}</td><td class=\"num\">{oob}</td><td class=\"num\">{} <span class=\"unit\">{}</span></td><td class=\"num\">{}</td><td>{}</td></tr>",
+            "<tr class=\"{}\" data-same=\"{}\" data-oob=\"{}\" data-training=\"{}\" data-fit-seconds=\"{}\" data-worker-memory=\"{}\"><th scope=\"row\">{}{}</th><td>{}{extra}</td><td class=\"settings\">{}</td><td class=\"num\">{}</td><td class=\"num\">{oob}</td><td class=\"num\">{} <span class=\"unit\">{}</span></td><td class=\"num\">{}</td><td>{}</td></tr>",
             classes.trim(),
+            match r.same_as_study {
+                Some(true) => "yes",
+                Some(false) => "no",
+                None => "",
+            },
             res.oob_error.map_or(String::new(), |e| e.to_string()),
             res.training_error,
             res.fit_seconds,
             res.worker_memory_bytes,
             i + 1,
-            if r.stale { " <span class=\"flag\" title=\"fitted before the data or roles changed\">earlier data</span>" } else { "" },
-            method_label(r.method),
-            esc(&r.summary),
+            match (r.stale, r.same_as_study) {
+                (true, _) => " <span class=\"flag\" title=\"fitted before the data or roles changed\">earlier data</span>",
+                (false, Some(true)) => " <span class=\"same\" title=\"grown again from the study: every figure equal to the saved one\">same as the study</span>",
+                (false, Some(false)) => " <span class=\"flag\" title=\"grown again from the study: the figures differ from the saved ones\">differs from the study</span>",
+                (false, None) => "",
+            },
+            method_label(r.ask.method),
+            esc(&r.ask.summary),
             res.rows,
             fmt_error(res.training_error),
             esc(&res.error_name),
@@ -715,8 +754,8 @@ pub fn now() -> f64 {
 }
 
 fn start(page: &Shared) {
-    let request = {
-        let mut p = page.borrow_mut();
+    let ask = {
+        let p = page.borrow();
         let method = p.fits.method();
         let (errors, blocked) = check(&p, method);
         if p.fits.in_flight.is_some() || blocked.is_some() || !errors.is_empty() {
@@ -732,23 +771,55 @@ fn start(page: &Shared) {
             return;
         };
         let (settings, summary) = chosen(&p, method);
+        let scheme = p.fits.scheme(method);
+        FitAsk {
+            method,
+            design,
+            settings,
+            summary,
+            judging: (scheme != "none").then(|| judging(scheme, !p.fits.no_baseline)),
+            expected: None,
+        }
+    };
+    start_fit(page, ask);
+}
+
+/// Sends one fit to the worker, or queues it behind the one in flight.
+pub fn start_fit(page: &Shared, ask: FitAsk) {
+    let request = {
+        let mut p = page.borrow_mut();
+        if p.fits.in_flight.is_some() {
+            p.fits.queue.push_back(ask);
+            return;
+        }
         p.next_id += 1;
         let id = p.next_id;
-        p.fits.in_flight = Some(InFlight {
-            id,
-            started: now(),
-            method,
-            summary,
-        });
         show(&p.doc, "fit-message", false);
         by_id(&p.doc, "fit-what").set_text_content(Some(&format!(
-            "Growing a {}…",
-            method_label(method).to_lowercase()
+            "Growing a {}{}…",
+            method_label(ask.method).to_lowercase(),
+            if p.fits.queue.is_empty() {
+                String::new()
+            } else {
+                format!(" ({} more waiting)", p.fits.queue.len())
+            }
         )));
         let _ = by_id(&p.doc, "fit-progress").set_attribute("value", "0");
         by_id(&p.doc, "fit-time").set_text_content(Some("starting"));
         show(&p.doc, "fit-status", true);
+        p.fits.in_flight = Some(InFlight {
+            id,
+            started: now(),
+            ask: ask.clone(),
+        });
         check_form(&p);
+        let FitAsk {
+            method,
+            design,
+            settings,
+            judging,
+            ..
+        } = ask;
         let trees = defaults(&p, method)
             .and_then(Result::ok)
             .and_then(|mut d| {
@@ -760,13 +831,6 @@ fn start(page: &Shared) {
             })
             .unwrap_or(0);
         let workers = p.fits.workers();
-        let scheme = p.fits.scheme(method);
-        let judging = (scheme != "none").then(|| Judging {
-            scheme,
-            threshold: 0.5,
-            baseline: !p.fits.no_baseline,
-            seed: 1,
-        });
         if matches!(method, FitMethod::Forest | FitMethod::Bagging) && workers > 1 && trees > 1 {
             Err((
                 id,
@@ -796,13 +860,26 @@ fn start(page: &Shared) {
     }
 }
 
+/// A finished run's figures as a study keeps them.
+pub fn figures_of(res: &RunResult) -> RunFigures {
+    RunFigures {
+        error_name: res.error_name.clone(),
+        rows: res.rows as u64,
+        predictors: res.predictors as u64,
+        members: res.members as u64,
+        training_error: res.training_error,
+        out_of_bag_error: res.oob_error,
+        fit_seconds: res.fit_seconds,
+    }
+}
+
 /// Progress of the fit in flight: the bar, members done, elapsed and remaining time.
 pub fn progress(p: &Page, done: u64, total: u64) {
     let Some(f) = &p.fits.in_flight else { return };
     let share = done as f64 / total.max(1) as f64;
     let _ = by_id(&p.doc, "fit-progress").set_attribute("value", &format!("{share:.3}"));
     let elapsed = (now() - f.started) / 1000.0;
-    let unit = if matches!(f.method, FitMethod::AdaBoost | FitMethod::Boosting) {
+    let unit = if matches!(f.ask.method, FitMethod::AdaBoost | FitMethod::Boosting) {
         "rounds"
     } else {
         "trees"
@@ -825,31 +902,44 @@ pub fn fit_done(doc: &Document) {
     show(doc, "fit-status", false);
 }
 
-/// A fit finished: keep it as a run and chart it.
+/// A fit finished: keep it as a run and chart it, then send the next waiting fit.
 pub fn fitted(page: &Shared, id: u32, mut result: RunResult) {
-    let mut p = page.borrow_mut();
-    let Some(f) = p.fits.in_flight.take_if(|f| f.id == id) else {
-        return;
+    let next = {
+        let mut p = page.borrow_mut();
+        let Some(f) = p.fits.in_flight.take_if(|f| f.id == id) else {
+            return;
+        };
+        // Grown by several workers: the time from the shares sent to the last one back, plus
+        // the main worker's tally.
+        if let Some(shares) = p.pool.seconds(id) {
+            result.fit_seconds += shares;
+        }
+        fit_done(&p.doc);
+        let same_as_study = f
+            .ask
+            .expected
+            .as_ref()
+            .map(|e| e.same_as(&figures_of(&result)));
+        p.fits.runs.push(RunView {
+            result,
+            ask: f.ask,
+            stale: false,
+            held: true,
+            same_as_study,
+        });
+        p.fits.charted = Some(p.fits.runs.len() - 1);
+        let _ =
+            by_id(&p.doc, "step-runs").set_attribute("data-runs", &p.fits.runs.len().to_string());
+        render_runs(&p);
+        render_chart(&p);
+        check_form(&p);
+        super::compare::render(&p);
+        p.fits.queue.pop_front()
     };
-    // Grown by several workers: the time from the shares sent to the last one back, plus
-    // the main worker's tally.
-    if let Some(shares) = p.pool.seconds(id) {
-        result.fit_seconds += shares;
+    match next {
+        Some(ask) => start_fit(page, ask),
+        None => super::study::runs_settled(page),
     }
-    fit_done(&p.doc);
-    p.fits.runs.push(RunView {
-        result,
-        method: f.method,
-        summary: f.summary,
-        stale: false,
-        held: true,
-    });
-    p.fits.charted = Some(p.fits.runs.len() - 1);
-    let _ = by_id(&p.doc, "step-runs").set_attribute("data-runs", &p.fits.runs.len().to_string());
-    render_runs(&p);
-    render_chart(&p);
-    check_form(&p);
-    super::compare::render(&p);
 }
 
 /// Every run with its plain label (method and settings) and result, in order.
@@ -860,7 +950,7 @@ pub fn results(fits: &Fits) -> Vec<(usize, String, &RunResult)> {
         .map(|(i, r)| {
             (
                 i,
-                format!("{}, {}", method_label(r.method), r.summary),
+                format!("{}, {}", method_label(r.ask.method), r.ask.summary),
                 &r.result,
             )
         })
@@ -871,6 +961,7 @@ pub fn results(fits: &Fits) -> Vec<(usize, String, &RunResult)> {
 pub fn failed(page: &Shared, message: &str) {
     let mut p = page.borrow_mut();
     p.fits.in_flight = None;
+    p.fits.queue.clear();
     fit_done(&p.doc);
     note(
         &p.doc,
@@ -968,4 +1059,50 @@ pub fn listen(page: &Shared) {
             false,
         );
     });
+}
+
+/// The plain summary of a run's settings, in the form's words (for runs from a study).
+pub fn summary_of(method: FitMethod, settings: &[(String, String)]) -> String {
+    let fields = fields(method);
+    let parts: Vec<String> = settings
+        .iter()
+        .map(|(n, v)| {
+            let label = fields
+                .iter()
+                .find(|f| f.name == n)
+                .map_or_else(|| n.replace('_', " "), |f| f.label.to_lowercase());
+            format!("{label} {v}")
+        })
+        .collect();
+    if parts.is_empty() {
+        "the method's defaults".into()
+    } else {
+        parts.join(" · ")
+    }
+}
+
+/// A labelled choice among the runs numbered `runs` (indices in the runs table), for the
+/// steps that use one run.
+pub fn run_select(
+    p: &Page,
+    id: &str,
+    label: &str,
+    runs: &[usize],
+    chosen: Option<usize>,
+) -> String {
+    let mut html = format!("<label class=\"field-inline\">{label} <select id=\"{id}\">");
+    for &i in runs {
+        let Some(r) = p.fits.runs.get(i) else {
+            continue;
+        };
+        html += &format!(
+            "<option value=\"{i}\"{}>Run {}: {} of {} ({})</option>",
+            if Some(i) == chosen { " selected" } else { "" },
+            i + 1,
+            method_label(r.ask.method),
+            esc(&r.result.outcome),
+            esc(&r.ask.summary)
+        );
+    }
+    html + "</select></label>"
 }

@@ -1,0 +1,119 @@
+//! Scoring new records with a fitted model, in the words and columns `spinney predict` and
+//! the page's scoring step share: the predictions as CSV rows (RFC 4180 quoting), and the
+//! notes about the scored file (labels training never saw, a model cut short by a cancel).
+//!
+//! Columns: the `keep` columns as the file shows them, then `predicted_<outcome>` and, for
+//! classes, one `probability_<class>` per class. Numbers are written in the shortest form
+//! that reads back to the same bits.
+
+use crate::binning::Records;
+use crate::data::{Column, Table};
+use crate::ensemble::forest::argmax;
+use crate::model::{Model, Unseen};
+use crate::tree::Rows;
+
+/// One CSV field, quoted when it holds a comma, quote or line break (RFC 4180).
+pub fn csv_field(text: &str) -> String {
+    if text.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", text.replace('"', "\"\""))
+    } else {
+        text.to_string()
+    }
+}
+
+/// Writes the predictions of `model` for the rows of `table` (read as `records`), a line at
+/// a time.
+pub struct PredictionRows<'a> {
+    model: &'a Model,
+    records: &'a Records,
+    kept: Vec<&'a Column>,
+    out: Vec<f64>,
+}
+
+impl<'a> PredictionRows<'a> {
+    /// `keep`: columns of `table` to copy in front (names not in the table are skipped;
+    /// callers check them first).
+    pub fn new(model: &'a Model, table: &'a Table, records: &'a Records, keep: &[String]) -> Self {
+        PredictionRows {
+            model,
+            records,
+            kept: keep.iter().filter_map(|k| table.column(k)).collect(),
+            out: vec![0.0; model.outputs()],
+        }
+    }
+
+    pub fn rows(&self) -> usize {
+        self.records.rows
+    }
+
+    /// The header line's fields.
+    pub fn header(&self) -> Vec<String> {
+        let mut header: Vec<String> = self.kept.iter().map(|c| c.name.clone()).collect();
+        header.push(format!("predicted_{}", self.model.outcome));
+        if let Some(classes) = &self.model.classes {
+            header.extend(classes.iter().map(|c| format!("probability_{c}")));
+        }
+        header
+    }
+
+    /// Row `row`'s fields, unquoted: kept values, the prediction, the class probabilities.
+    pub fn fields(&mut self, row: usize) -> Vec<String> {
+        let mut line: Vec<String> = self
+            .kept
+            .iter()
+            .map(|c| c.display(row).unwrap_or_default())
+            .collect();
+        self.model
+            .predict(Rows::Records(self.records), row, &mut self.out);
+        match &self.model.classes {
+            Some(classes) => {
+                line.push(classes.get(argmax(&self.out)).cloned().unwrap_or_default());
+                line.extend(self.out.iter().map(|x| x.to_string()));
+            }
+            None => line.push(self.out[0].to_string()),
+        }
+        line
+    }
+
+    /// A line of CSV (no line break).
+    pub fn csv_line(fields: &[String]) -> String {
+        fields
+            .iter()
+            .map(|f| csv_field(f))
+            .collect::<Vec<_>>()
+            .join(",")
+    }
+}
+
+/// How many rows of a scored file hold labels training never saw, for one predictor.
+pub fn unseen_note(u: &Unseen) -> String {
+    format!(
+        "column '{}': {} row(s) hold labels not seen in training (the first: '{}'); they \
+         follow {}",
+        u.predictor, u.rows, u.example, u.follows
+    )
+}
+
+/// A note for a model whose fitting was cancelled part way.
+pub fn partial_note(model: &Model) -> Option<String> {
+    model.partial.then(|| {
+        format!(
+            "this model is partial (fitting was cancelled after {} member(s))",
+            model.members()
+        )
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fields_are_quoted_as_rfc_4180_asks() {
+        // RFC 4180, section 2, rules 6 and 7.
+        assert_eq!(csv_field("plain"), "plain");
+        assert_eq!(csv_field("a,b"), "\"a,b\"");
+        assert_eq!(csv_field("say \"hi\""), "\"say \"\"hi\"\"\"");
+        assert_eq!(csv_field("two\nlines"), "\"two\nlines\"");
+    }
+}
