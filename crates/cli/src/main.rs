@@ -2,13 +2,14 @@
 //! for a browser: `spinney inspect FILE` prints how a file reads and a summary of every column
 //! (a readable table, or JSON with `--json`); `spinney fit` fits and reports a model (and
 //! saves it with `--save-model`); `spinney predict MODEL FILE` scores a file with a saved
-//! model.
+//! model; `spinney evaluate` validates a model honestly.
 
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 mod bench;
+mod evaluate;
 mod fit;
 mod predict;
 
@@ -53,6 +54,9 @@ enum Command {
     },
     /// Fit a model (tree, bagging, forest, AdaBoost) on every row of a file and report it.
     Fit(fit::FitArgs),
+    /// Validate a model honestly (out-of-bag, holdout, k-fold, grouped folds, bootstrap) and
+    /// report its metrics with intervals beside a baseline.
+    Evaluate(evaluate::EvaluateArgs),
     /// Score every row of a file with a saved model and write the predictions as CSV.
     Predict(predict::PredictArgs),
     /// Measure speed and memory on generated data, and print the figures.
@@ -92,6 +96,7 @@ fn run(args: Args) -> anyhow::Result<()> {
             what: BenchWhat::Read { mb, repeats },
         } => bench::read(mb, repeats),
         Command::Fit(args) => fit::fit(args),
+        Command::Evaluate(args) => evaluate::evaluate(args),
         Command::Predict(args) => predict::predict(args),
         Command::Inspect {
             file,
