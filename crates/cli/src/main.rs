@@ -2,7 +2,7 @@
 //! for a browser: `spinney inspect FILE` prints how a file reads and a summary of every column
 //! (a readable table, or JSON with `--json`); `spinney fit` fits and reports a model (and
 //! saves it with `--save-model`); `spinney predict MODEL FILE` scores a file with a saved
-//! model; `spinney evaluate` validates a model honestly.
+//! model; `spinney evaluate` validates a model honestly and `spinney tune` searches its settings.
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -12,6 +12,7 @@ mod bench;
 mod evaluate;
 mod fit;
 mod predict;
+mod tune;
 
 use anyhow::Context;
 use clap::{Parser, Subcommand};
@@ -57,6 +58,9 @@ enum Command {
     /// Validate a model honestly (out-of-bag, holdout, k-fold, grouped folds, bootstrap) and
     /// report its metrics with intervals beside a baseline.
     Evaluate(evaluate::EvaluateArgs),
+    /// Search settings (a grid or a random sample), each scored by a validation scheme;
+    /// optionally nested cross-validation for an honest figure.
+    Tune(tune::TuneArgs),
     /// Score every row of a file with a saved model and write the predictions as CSV.
     Predict(predict::PredictArgs),
     /// Measure speed and memory on generated data, and print the figures.
@@ -97,6 +101,7 @@ fn run(args: Args) -> anyhow::Result<()> {
         } => bench::read(mb, repeats),
         Command::Fit(args) => fit::fit(args),
         Command::Evaluate(args) => evaluate::evaluate(args),
+        Command::Tune(args) => tune::tune_command(args),
         Command::Predict(args) => predict::predict(args),
         Command::Inspect {
             file,

@@ -150,3 +150,45 @@ fn bad_validation_requests_are_refused_clearly() {
     );
     fails_with(&with(&["--validate", "jackknife"]), &["not a scheme"]);
 }
+
+#[test]
+fn tune_keeps_the_table_and_nesting_gives_each_outer_choice() {
+    let run = |threads: &str| {
+        let out = spinney()
+            .args([
+                "tune",
+                demo(),
+                "--outcome",
+                "complication_30d",
+                "--method",
+                "tree",
+                "--try",
+                "depth=1,4",
+                "--try",
+                "leaf_size=1,30",
+                "--validate",
+                "folds:3",
+                "--nested",
+                "3",
+                "--threads",
+                threads,
+                "--json",
+            ])
+            .output()
+            .unwrap();
+        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        let mut v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        v["seconds"] = serde_json::Value::Null;
+        v
+    };
+    let v = run("1");
+    assert_eq!(v["table"].as_array().unwrap().len(), 4);
+    assert_eq!(v["metric"], "auc");
+    assert_eq!(v["nested"].as_array().unwrap().len(), 3);
+    assert!(v["nested_score"].as_f64().unwrap() > 0.6);
+    assert_eq!(v, run("2"));
+    fails_with(
+        &["tune", demo(), "--outcome", "complication_30d", "--try", "depth"],
+        &["--try", "NAME=V1,V2"],
+    );
+}
