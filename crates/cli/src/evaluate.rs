@@ -102,7 +102,11 @@ pub fn run_fits(
                 (0..count)
                     .into_par_iter()
                     .map(|i| {
-                        let run = job(i, FitOptions::default(), &mut spinney_core::progress::Silent);
+                        let run = job(
+                            i,
+                            FitOptions::default(),
+                            &mut spinney_core::progress::Silent,
+                        );
                         let d = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
                         if let Ok(mut b) = bar.lock() {
                             b.step("fits", d, count as u64);
@@ -390,7 +394,13 @@ fn print_report(args: &EvaluateArgs, e: &Evaluated) {
         lines.push([name.clone(), format!("{:.3}", m.value), interval(m), b]);
     }
     let widths: Vec<usize> = (0..4)
-        .map(|i| lines.iter().map(|l| l[i].chars().count()).max().unwrap_or(0))
+        .map(|i| {
+            lines
+                .iter()
+                .map(|l| l[i].chars().count())
+                .max()
+                .unwrap_or(0)
+        })
         .collect();
     println!();
     for l in &lines {

@@ -4,7 +4,7 @@
 //! one (spinney_core::validate::tune).
 
 use spinney_core::progress::Progress;
-use spinney_core::validate::tune::{default_metric, grid, random_candidates, tune, Axis};
+use spinney_core::validate::tune::{default_metric, grid, random_candidates, tune, Axis, Space};
 use spinney_core::validate::{FoldJob, Plan};
 
 use crate::evaluate::{run_fits, scheme_and_group, CAUTION};
@@ -128,11 +128,13 @@ pub fn tune_command(args: TuneArgs) -> anyhow::Result<()> {
     let start = std::time::Instant::now();
     let tuned = tune(
         &prepared.design,
-        prepared.method,
-        &base,
-        &candidates,
+        &Space {
+            method: prepared.method,
+            base: &base,
+            candidates: &candidates,
+            metric: &metric,
+        },
         &plan,
-        &metric,
         args.nested,
         Some(&runner),
         &mut Bar::new(),
@@ -166,7 +168,11 @@ pub fn tune_command(args: TuneArgs) -> anyhow::Result<()> {
         seconds
     );
     for (i, row) in tuned.table.iter().enumerate() {
-        let s: Vec<String> = row.settings.iter().map(|(n, v)| format!("{n}={v}")).collect();
+        let s: Vec<String> = row
+            .settings
+            .iter()
+            .map(|(n, v)| format!("{n}={v}"))
+            .collect();
         println!(
             "  {} {:.4}  {}",
             if i == tuned.best { "*" } else { " " },
@@ -183,7 +189,10 @@ pub fn tune_command(args: TuneArgs) -> anyhow::Result<()> {
         }
     );
     if let (Some(folds), Some(score)) = (&tuned.nested, tuned.nested_score) {
-        println!("nested cross-validation ({} outer folds): {metric} {score:.4}", folds.len());
+        println!(
+            "nested cross-validation ({} outer folds): {metric} {score:.4}",
+            folds.len()
+        );
         for f in folds {
             let s: Vec<String> = f.chosen.iter().map(|(n, v)| format!("{n}={v}")).collect();
             println!(

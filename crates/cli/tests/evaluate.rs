@@ -69,7 +69,10 @@ fn folds_on_one_thread_and_on_three_give_the_same_report() {
             .len(),
         15
     );
-    assert!(one["caution"].as_str().unwrap().contains("external validation"));
+    assert!(one["caution"]
+        .as_str()
+        .unwrap()
+        .contains("external validation"));
 }
 
 #[test]
@@ -176,7 +179,11 @@ fn tune_keeps_the_table_and_nesting_gives_each_outer_choice() {
             ])
             .output()
             .unwrap();
-        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
         let mut v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
         v["seconds"] = serde_json::Value::Null;
         v
@@ -188,7 +195,14 @@ fn tune_keeps_the_table_and_nesting_gives_each_outer_choice() {
     assert!(v["nested_score"].as_f64().unwrap() > 0.6);
     assert_eq!(v, run("2"));
     fails_with(
-        &["tune", demo(), "--outcome", "complication_30d", "--try", "depth"],
+        &[
+            "tune",
+            demo(),
+            "--outcome",
+            "complication_30d",
+            "--try",
+            "depth",
+        ],
         &["--try", "NAME=V1,V2"],
     );
 }

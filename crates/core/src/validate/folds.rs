@@ -344,7 +344,8 @@ pub fn splits(design: &Design, scheme: &Scheme, seed: u64) -> Result<Vec<Split>>
                     )));
                 }
                 shuffle(&mut rows, &mut rng);
-                let take = ((fraction * rows.len() as f64).round() as usize).clamp(1, rows.len() - 1);
+                let take =
+                    ((fraction * rows.len() as f64).round() as usize).clamp(1, rows.len() - 1);
                 for &r in &rows[..take] {
                     held[r] = true;
                 }
@@ -416,7 +417,10 @@ mod tests {
         assert_eq!(s.len(), 10);
         for split in &s {
             let c = class_counts(&d, &split.test);
-            assert!((4..=5).contains(&c[1]) && (20..=21).contains(&c[0]), "{c:?}");
+            assert!(
+                (4..=5).contains(&c[1]) && (20..=21).contains(&c[0]),
+                "{c:?}"
+            );
             assert_eq!(split.train.len() + split.test.len(), 124);
         }
         // Every row is tested exactly once per repeat.
@@ -430,7 +434,10 @@ mod tests {
             assert_eq!(tested, (0..124).collect::<Vec<_>>());
         }
         assert_ne!(s[0].test, s[5].test, "repeats reshuffle");
-        assert_eq!(s, splits(&d, &Scheme::Folds { k: 5, repeats: 2 }, 3).unwrap());
+        assert_eq!(
+            s,
+            splits(&d, &Scheme::Folds { k: 5, repeats: 2 }, 3).unwrap()
+        );
     }
 
     #[test]

@@ -174,7 +174,17 @@ fn bootstrapped(
     let mut values = vec![None; names.len()];
     fill(&vec![1.0; rows], &mut values);
     let intervals = (settings.resamples >= 2)
-        .then(|| bootstrap_many(rows, settings.resamples, 0.95, settings.seed, names.len(), fill).ok())
+        .then(|| {
+            bootstrap_many(
+                rows,
+                settings.resamples,
+                0.95,
+                settings.seed,
+                names.len(),
+                fill,
+            )
+            .ok()
+        })
         .flatten();
     for (i, name) in names.iter().enumerate() {
         let Some(value) = values[i].filter(|v| v.is_finite()) else {
@@ -287,7 +297,11 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
                         value: a.value,
                         low: a.interval.map(|i| i.low),
                         high: a.interval.map(|i| i.high),
-                        interval: if a.interval.is_some() { "DeLong" } else { "none" },
+                        interval: if a.interval.is_some() {
+                            "DeLong"
+                        } else {
+                            "none"
+                        },
                     },
                 );
             }

@@ -123,7 +123,8 @@ pub struct Validation {
 }
 
 /// A split's fitting job: `(split index, fit options, progress)`.
-pub type FoldJob<'a> = dyn Fn(usize, FitOptions<'_>, &mut dyn Progress) -> Result<FoldRun> + Sync + 'a;
+pub type FoldJob<'a> =
+    dyn Fn(usize, FitOptions<'_>, &mut dyn Progress) -> Result<FoldRun> + Sync + 'a;
 
 /// Runs `count` jobs and returns their results in index order; [`run_in_order`] runs them
 /// one after another, the command line on threads.
@@ -466,14 +467,22 @@ pub fn validate(
             let s = splits(design, &scheme, plan.seed)?;
             let mut pooled = vec![f64::NAN; n * outputs];
             for split in &s {
-                let (p, _) = fit_baseline(&design.select_rows(&split.train), &design.select_rows(&split.test))?;
+                let (p, _) = fit_baseline(
+                    &design.select_rows(&split.train),
+                    &design.select_rows(&split.test),
+                )?;
                 for (pos, &r) in split.test.iter().enumerate() {
                     pooled[r * outputs..(r + 1) * outputs]
                         .copy_from_slice(&p[pos * outputs..(pos + 1) * outputs]);
                 }
             }
-            notes.push("the baseline, having no out-of-bag rows, is judged by 10 stratified folds".into());
-            (Some(judge_pooled(design, &pooled, outputs, plan)), Some(pooled))
+            notes.push(
+                "the baseline, having no out-of-bag rows, is judged by 10 stratified folds".into(),
+            );
+            (
+                Some(judge_pooled(design, &pooled, outputs, plan)),
+                Some(pooled),
+            )
         } else {
             (None, None)
         };
@@ -503,8 +512,8 @@ pub fn validate(
 
     let s = splits(design, &plan.scheme, plan.seed)?;
     let runs = run_splits(&s, plan, progress)?;
-    let predictions = pool(n, outputs, &s, |i| Some(runs[i].predictions.clone()))
-        .unwrap_or_default();
+    let predictions =
+        pool(n, outputs, &s, |i| Some(runs[i].predictions.clone())).unwrap_or_default();
     let baseline_predictions = pool(n, outputs, &s, |i| runs[i].baseline.clone());
     let mut model = judge_pooled(design, &predictions, outputs, plan);
     let mut baseline = baseline_predictions
@@ -519,8 +528,11 @@ pub fn validate(
     }
     let weights = |i: usize| s[i].out_of_sample.iter().filter(|&&o| o).count() as f64;
     let curve = |f: &dyn Fn(&FoldRun) -> Option<Vec<f64>>, w: &dyn Fn(usize) -> f64| {
-        let c: Option<Vec<(Vec<f64>, f64)>> =
-            runs.iter().enumerate().map(|(i, r)| Some((f(r)?, w(i)))).collect();
+        let c: Option<Vec<(Vec<f64>, f64)>> = runs
+            .iter()
+            .enumerate()
+            .map(|(i, r)| Some((f(r)?, w(i))))
+            .collect();
         c.and_then(|c| mean_curve(&c))
     };
     let error_by_size = curve(&|r| r.error_by_size.clone(), &weights);
@@ -549,7 +561,9 @@ pub fn validate(
                 let ba = figures(&design.outcome, &train_pred, plan.threshold);
                 let pairs: Vec<(&Figures, &Figures)> = runs
                     .iter()
-                    .filter_map(|r| Some((r.baseline_apparent.as_ref()?, r.baseline_figures.as_ref()?)))
+                    .filter_map(|r| {
+                        Some((r.baseline_apparent.as_ref()?, r.baseline_figures.as_ref()?))
+                    })
                     .collect();
                 let bo = optimism(&pairs);
                 if let Some(b) = baseline.as_mut() {
@@ -630,7 +644,9 @@ mod tests {
         let mut rng = stream(5, Purpose::TreeRows, 0);
         let mut text = String::from("y,a,b,c,w\n");
         for _ in 0..400 {
-            let x: Vec<f64> = (0..3).map(|_| below(&mut rng, 1000) as f64 / 1000.0).collect();
+            let x: Vec<f64> = (0..3)
+                .map(|_| below(&mut rng, 1000) as f64 / 1000.0)
+                .collect();
             let flip = below(&mut rng, 10) == 0;
             let y = (x[0] + x[1] > 1.0) != flip;
             let w = ["k", "l", "m"][below(&mut rng, 3)];
@@ -650,8 +666,14 @@ mod tests {
     }
 
     fn forest(trees: usize) -> FitSettings {
-        FitSettings::build(Method::Forest, 4, false, "y", &[("trees".into(), trees.to_string())])
-            .unwrap()
+        FitSettings::build(
+            Method::Forest,
+            4,
+            false,
+            "y",
+            &[("trees".into(), trees.to_string())],
+        )
+        .unwrap()
     }
 
     #[test]
@@ -680,7 +702,15 @@ mod tests {
             out.reverse();
             Ok(out)
         };
-        let w = validate(&d, &s, &p, FitOptions::default(), Some(&backwards), &mut Silent).unwrap();
+        let w = validate(
+            &d,
+            &s,
+            &p,
+            FitOptions::default(),
+            Some(&backwards),
+            &mut Silent,
+        )
+        .unwrap();
         assert_eq!(v, w);
         assert!(v.fold_of_row.iter().all(Option::is_some));
     }
@@ -689,13 +719,27 @@ mod tests {
     fn out_of_bag_holdout_and_bootstrap() {
         let d = problem();
         let s = forest(40);
-        let oob = validate(&d, &s, &plan("oob"), FitOptions::default(), None, &mut Silent).unwrap();
+        let oob = validate(
+            &d,
+            &s,
+            &plan("oob"),
+            FitOptions::default(),
+            None,
+            &mut Silent,
+        )
+        .unwrap();
         assert!(oob.judged_rows > 390, "{}", oob.judged_rows);
         assert!(oob.model.metrics["auc"].value > 0.8);
         assert!(oob.baseline.is_some());
-        let hold =
-            validate(&d, &s, &plan("holdout:0.25"), FitOptions::default(), None, &mut Silent)
-                .unwrap();
+        let hold = validate(
+            &d,
+            &s,
+            &plan("holdout:0.25"),
+            FitOptions::default(),
+            None,
+            &mut Silent,
+        )
+        .unwrap();
         assert_eq!(hold.judged_rows, 100);
         let mut p = plan("bootstrap:8");
         p.baseline = false;
@@ -704,8 +748,18 @@ mod tests {
         let apparent = boot.apparent.as_ref().unwrap()["auc"];
         let corrected = boot.model.metrics["auc"].value;
         // A fully grown tree fits its rows almost perfectly; its optimism is large.
-        assert!(apparent > 0.97 && corrected < apparent - 0.05, "{apparent} {corrected}");
-        let tree_oob = validate(&d, &tree, &plan("oob"), FitOptions::default(), None, &mut Silent);
+        assert!(
+            apparent > 0.97 && corrected < apparent - 0.05,
+            "{apparent} {corrected}"
+        );
+        let tree_oob = validate(
+            &d,
+            &tree,
+            &plan("oob"),
+            FitOptions::default(),
+            None,
+            &mut Silent,
+        );
         assert!(tree_oob.unwrap_err().to_string().contains("Use folds:10"));
     }
 
@@ -713,7 +767,14 @@ mod tests {
     fn a_stop_cancels_and_a_bad_threshold_is_refused() {
         let d = problem();
         let s = forest(20);
-        let e = validate(&d, &s, &plan("folds:5"), FitOptions::default(), None, &mut StopAfter(3));
+        let e = validate(
+            &d,
+            &s,
+            &plan("folds:5"),
+            FitOptions::default(),
+            None,
+            &mut StopAfter(3),
+        );
         assert!(matches!(e.unwrap_err().kind(), ErrorKind::Cancelled));
         let mut p = plan("folds:5");
         p.threshold = 1.2;
@@ -732,8 +793,15 @@ mod tests {
             test: (300..400).collect(),
             out_of_sample: vec![true; 100],
         };
-        let run = run_split(&d, &forest(5), &plan("folds:4"), &split, FitOptions::default(), &mut Silent)
-            .unwrap();
+        let run = run_split(
+            &d,
+            &forest(5),
+            &plan("folds:4"),
+            &split,
+            FitOptions::default(),
+            &mut Silent,
+        )
+        .unwrap();
         assert_eq!(run.predictions.len(), 200);
         assert!(run.figures.contains_key("auc"));
     }

@@ -115,6 +115,16 @@ fn bad(reason: String) -> Error {
     })
 }
 
+/// What is searched: the method, fixed settings, the candidates and the metric to rank by.
+#[derive(Debug, Clone, Copy)]
+pub struct Space<'a> {
+    pub method: Method,
+    /// Settings every candidate shares (NAME, VALUE), applied before the candidate's.
+    pub base: &'a [(String, String)],
+    pub candidates: &'a [Candidate],
+    pub metric: &'a str,
+}
+
 fn settings_for(
     design: &Design,
     method: Method,
@@ -135,14 +145,17 @@ fn settings_for(
 /// Scores every candidate on `design` by `plan` and returns the table and the best.
 fn search(
     design: &Design,
-    method: Method,
-    base: &[(String, String)],
-    candidates: &[Candidate],
+    space: &Space<'_>,
     plan: &Plan,
-    metric: &str,
     runner: Option<FoldRunner<'_>>,
     progress: &mut dyn Progress,
 ) -> Result<(Vec<Scored>, usize)> {
+    let Space {
+        method,
+        base,
+        candidates,
+        metric,
+    } = *space;
     let mut table = Vec::with_capacity(candidates.len());
     for (i, c) in candidates.iter().enumerate() {
         let settings = settings_for(design, method, base, c)?;
@@ -151,8 +164,20 @@ fn search(
             index: i,
             count: candidates.len(),
         };
-        let v = validate(design, &settings, plan, FitOptions::default(), runner, &mut inner)?;
-        let figures: Figures = v.model.metrics.iter().map(|(k, e)| (k.clone(), e.value)).collect();
+        let v = validate(
+            design,
+            &settings,
+            plan,
+            FitOptions::default(),
+            runner,
+            &mut inner,
+        )?;
+        let figures: Figures = v
+            .model
+            .metrics
+            .iter()
+            .map(|(k, e)| (k.clone(), e.value))
+            .collect();
         table.push(Scored {
             settings: c.clone(),
             score: figures.get(metric).copied().unwrap_or(f64::NAN),
@@ -178,29 +203,29 @@ fn search(
     Ok((table, best))
 }
 
-/// Scores `candidates` (settings on top of `base`) by `plan`; with `nested` = Some(k), also
-/// the nested k-fold estimate (outer folds grouped when the plan's are).
-#[allow(clippy::too_many_arguments)]
+/// Scores the candidates of `space` by `plan`; with `nested` = Some(k), also the nested
+/// k-fold estimate (outer folds grouped when the plan's are).
 pub fn tune(
     design: &Design,
-    method: Method,
-    base: &[(String, String)],
-    candidates: &[Candidate],
+    space: &Space<'_>,
     plan: &Plan,
-    metric: &str,
     nested: Option<usize>,
     runner: Option<FoldRunner<'_>>,
     progress: &mut dyn Progress,
 ) -> Result<Tuned> {
+    let (method, base, metric) = (space.method, space.base, space.metric);
+    let candidates = space.candidates;
     if candidates.is_empty() {
-        return Err(bad("no candidate settings to try; give at least one value".into()));
+        return Err(bad(
+            "no candidate settings to try; give at least one value".into()
+        ));
     }
     // Judge with point values only: the intervals are not needed to rank candidates.
     let quick = Plan {
         resamples: 0,
         ..plan.clone()
     };
-    let (table, best) = search(design, method, base, candidates, &quick, metric, runner, progress)?;
+    let (table, best) = search(design, space, &quick, runner, progress)?;
     let (mut outer_folds, mut nested_score) = (None, None);
     if let Some(k) = nested {
         let outer_scheme = match &plan.scheme {
@@ -219,18 +244,16 @@ pub fn tune(
         let mut folds = Vec::with_capacity(outer.len());
         for split in &outer {
             let inner_design = design.select_rows(&split.train);
-            let (t, b) = search(
-                &inner_design,
-                method,
-                base,
-                candidates,
+            let (t, b) = search(&inner_design, space, &quick, runner, &mut Silent)?;
+            let settings = settings_for(design, method, base, &t[b].settings)?;
+            let run = run_split(
+                design,
+                &settings,
                 &quick,
-                metric,
-                runner,
+                split,
+                FitOptions::default(),
                 &mut Silent,
             )?;
-            let settings = settings_for(design, method, base, &t[b].settings)?;
-            let run = run_split(design, &settings, &quick, split, FitOptions::default(), &mut Silent)?;
             for (pos, &r) in split.test.iter().enumerate() {
                 pooled[r * outputs..(r + 1) * outputs]
                     .copy_from_slice(&run.predictions[pos * outputs..(pos + 1) * outputs]);
@@ -269,12 +292,18 @@ mod tests {
     #[test]
     fn grids_and_random_samples() {
         let axes = vec![
-            ("depth".to_string(), vec!["2".to_string(), "4".into(), "8".into()]),
+            (
+                "depth".to_string(),
+                vec!["2".to_string(), "4".into(), "8".into()],
+            ),
             ("trees".to_string(), vec!["10".to_string(), "50".into()]),
         ];
         let g = grid(&axes);
         assert_eq!(g.len(), 6);
-        assert_eq!(g[1], vec![("depth".into(), "2".into()), ("trees".into(), "50".into())]);
+        assert_eq!(
+            g[1],
+            vec![("depth".into(), "2".into()), ("trees".into(), "50".into())]
+        );
         let r = random_candidates(&axes, 4, 1);
         assert_eq!(r.len(), 4);
         assert!(r.iter().all(|c| g.contains(c)));
@@ -293,8 +322,20 @@ mod tests {
             resamples: 0,
             baseline: false,
         };
-        let t = tune(&d, Method::Tree, &[], &grid(&axes), &plan, "auc", Some(3), None, &mut Silent)
-            .unwrap();
+        let t = tune(
+            &d,
+            &Space {
+                method: Method::Tree,
+                base: &[],
+                candidates: &grid(&axes),
+                metric: "auc",
+            },
+            &plan,
+            Some(3),
+            None,
+            &mut Silent,
+        )
+        .unwrap();
         assert_eq!(t.table.len(), 2);
         // y depends on a + b: one split (depth 1) cannot follow the diagonal; depth 4 can.
         assert_eq!(t.table[t.best].settings[0].1, "4", "{:?}", t.table);

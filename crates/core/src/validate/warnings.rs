@@ -222,7 +222,8 @@ pub fn warnings(design: &Design, scheme: &Scheme, table: Option<&Table>) -> Vec<
                 if c.name == design.outcome_name || !looks_like_id_name(&c.name) {
                     continue;
                 }
-                let mut keys: Vec<String> = design.rows.iter().filter_map(|&r| c.display(r)).collect();
+                let mut keys: Vec<String> =
+                    design.rows.iter().filter_map(|&r| c.display(r)).collect();
                 let present = keys.len();
                 keys.sort_unstable();
                 keys.dedup();
@@ -285,9 +286,13 @@ mod tests {
         assert!(kinds.contains(&"leakage"), "{w:?}");
         assert!(w.iter().any(|w| w.message.contains("'leak' alone")));
         assert!(!w.iter().any(|w| w.message.contains("'noise' alone")));
-        assert!(w.iter().any(|w| w.kind == "identifier" && w.message.contains("'record'")));
+        assert!(w
+            .iter()
+            .any(|w| w.kind == "identifier" && w.message.contains("'record'")));
         assert!(kinds.contains(&"imbalance"), "{w:?}");
-        assert!(w.iter().any(|w| w.kind == "grouped_rows" && w.message.contains("groups:K:patient_id")));
+        assert!(w
+            .iter()
+            .any(|w| w.kind == "grouped_rows" && w.message.contains("groups:K:patient_id")));
         // 30 events for 3 parameters is exactly 10: no events-per-predictor warning;
         // 300 rows < Riley's 139 for 10%? (1.96/0.05)² · 0.09 = 138.3 → 139: no warning.
         assert!(!kinds.contains(&"events_per_predictor") && !kinds.contains(&"sample_size"));
