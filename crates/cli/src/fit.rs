@@ -60,13 +60,13 @@ pub struct FitArgs {
 }
 
 /// A one-line progress bar on stderr, drawn only when stderr is a terminal.
-struct Bar {
+pub struct Bar {
     tty: bool,
     start: std::time::Instant,
 }
 
 impl Bar {
-    fn new() -> Self {
+    pub fn new() -> Self {
         use std::io::IsTerminal;
         Bar {
             tty: std::io::stderr().is_terminal(),
@@ -140,41 +140,64 @@ fn tree_json(tree: &Tree, binned: &BinnedMatrix) -> serde_json::Value {
     serde_json::json!(nodes)
 }
 
-pub fn fit(args: FitArgs) -> anyhow::Result<()> {
+/// What `fit`, `evaluate` and `tune` make from a file and the column and method options.
+pub struct Prepared {
+    pub table: spinney_core::data::Table,
+    pub fingerprint: String,
+    pub design: spinney_core::design::Design,
+    pub settings: FitSettings,
+    pub method: Method,
+}
+
+/// The columns and method options, as each command takes them.
+pub struct Choice<'a> {
+    pub file: &'a std::path::Path,
+    pub outcome: &'a str,
+    pub predictors: Option<&'a [String]>,
+    pub weight: Option<&'a str>,
+    pub group: Option<&'a str>,
+    pub method: &'a str,
+    /// NAME=VALUE settings, applied after `defaults` (NAME, VALUE) and the method's own.
+    pub sets: &'a [String],
+    pub defaults: &'a [(String, String)],
+}
+
+/// Reads the file, builds the design (by default every other column but text, the weight
+/// and the group column) and the settings (the method's defaults, then `--set`).
+pub fn prepare(choice: &Choice<'_>) -> anyhow::Result<Prepared> {
     let Loaded {
         table, fingerprint, ..
-    } = read(&args.file, Vec::new())?;
-    // By default every other column, except free text and identifiers.
-    let predictors = args.predictors.clone().unwrap_or_else(|| {
-        table
+    } = read(choice.file, Vec::new())?;
+    let predictors: Vec<String> = match choice.predictors {
+        Some(p) => p.to_vec(),
+        None => table
             .columns
             .iter()
-            .filter(|c| c.name != args.outcome && c.kind != spinney_core::data::Kind::Text)
+            .filter(|c| c.name != choice.outcome && c.kind != spinney_core::data::Kind::Text)
             .map(|c| c.name.clone())
-            .collect()
-    });
+            .filter(|c| Some(c.as_str()) != choice.group)
+            .collect(),
+    };
     let spec = DesignSpec {
-        outcome: args.outcome.clone(),
+        outcome: choice.outcome.to_string(),
         predictors: predictors
             .into_iter()
-            .filter(|p| Some(p) != args.weight.as_ref())
+            .filter(|p| Some(p.as_str()) != choice.weight)
             .collect(),
-        weight: args.weight.clone(),
-        ..DesignSpec::default()
+        weight: choice.weight.map(str::to_string),
+        group: choice.group.map(str::to_string),
     };
     let design = build_design(&table, &spec)?;
-    // The design holds its own copy of the predictors; the table is no longer needed.
-    drop(table);
     let regression = matches!(design.outcome, Outcome::Numbers(_));
-    let method = Method::from_word(&args.method).with_context(|| {
+    let method = Method::from_word(choice.method).with_context(|| {
         format!(
             "--method {}: choose tree, bagging, forest, adaboost or boosting",
-            args.method
+            choice.method
         )
     })?;
     // Defaults first (the method's own), then the user's --set choices on top.
-    let mut sets = Vec::with_capacity(args.sets.len());
-    for s in &args.sets {
+    let mut sets = choice.defaults.to_vec();
+    for s in choice.sets {
         let (name, value) = s
             .split_once('=')
             .with_context(|| format!("--set {s:?}: write NAME=VALUE"))?;
@@ -189,25 +212,62 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
     )
     .map_err(|e| {
         if e.contains("predicts classes") {
-            anyhow::anyhow!("--method {}: {e}", args.method)
+            anyhow::anyhow!("--method {}: {e}", choice.method)
         } else {
             anyhow::anyhow!("--set {e}")
         }
     })?;
+    Ok(Prepared {
+        table,
+        fingerprint,
+        design,
+        settings,
+        method,
+    })
+}
+
+/// A forest fitter for [`fit_design`] spreading the trees over `threads` threads.
+pub fn threaded_forests(
+    threads: Option<usize>,
+) -> impl Fn(
+    &BinnedMatrix,
+    &[f64],
+    usize,
+    &Outcome,
+    &ForestSettings,
+    &mut dyn Progress,
+) -> spinney_core::error::Result<Forest> {
+    move |binned, stats, width, outcome, forest, progress| {
+        fit_forest_on_threads(binned, stats, width, outcome, forest, threads, progress)
+    }
+}
+
+pub fn fit(args: FitArgs) -> anyhow::Result<()> {
+    let Prepared {
+        table,
+        fingerprint,
+        design,
+        settings,
+        method,
+    } = prepare(&Choice {
+        file: &args.file,
+        outcome: &args.outcome,
+        predictors: args.predictors.as_deref(),
+        weight: args.weight.as_deref(),
+        group: None,
+        method: &args.method,
+        sets: &args.sets,
+        defaults: &[],
+    })?;
+    // The design holds its own copy of the predictors; the table is no longer needed.
+    drop(table);
+    let regression = settings.regression;
     if args.staged && method != Method::Boosting {
         bail!("--staged: only for --method boosting (predictions after every round)");
     }
     // Fit time counts binning and fitting, not reading the file.
     let fit_start = std::time::Instant::now();
-    let threads = args.threads;
-    let fitter = move |binned: &BinnedMatrix,
-                       stats: &[f64],
-                       width: usize,
-                       outcome: &Outcome,
-                       forest: &ForestSettings,
-                       progress: &mut dyn spinney_core::progress::Progress| {
-        fit_forest_on_threads(binned, stats, width, outcome, forest, threads, progress)
-    };
+    let fitter = threaded_forests(args.threads);
     let Fitted {
         model,
         binned,

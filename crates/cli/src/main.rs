@@ -2,15 +2,18 @@
 //! for a browser: `spinney inspect FILE` prints how a file reads and a summary of every column
 //! (a readable table, or JSON with `--json`); `spinney fit` fits and reports a model (and
 //! saves it with `--save-model`); `spinney predict MODEL FILE` scores a file with a saved
-//! model; `spinney export-onnx MODEL OUT` writes a saved model as an ONNX file.
+//! model; `spinney evaluate` validates a model honestly and `spinney tune` searches its settings;
+//! `spinney export-onnx MODEL OUT` writes a saved model as an ONNX file.
 
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 mod bench;
+mod evaluate;
 mod fit;
 mod predict;
+mod tune;
 
 use anyhow::Context;
 use clap::{Parser, Subcommand};
@@ -53,6 +56,12 @@ enum Command {
     },
     /// Fit a model (tree, bagging, forest, AdaBoost) on every row of a file and report it.
     Fit(fit::FitArgs),
+    /// Validate a model honestly (out-of-bag, holdout, k-fold, grouped folds, bootstrap) and
+    /// report its metrics with intervals beside a baseline.
+    Evaluate(evaluate::EvaluateArgs),
+    /// Search settings (a grid or a random sample), each scored by a validation scheme;
+    /// optionally nested cross-validation for an honest figure.
+    Tune(tune::TuneArgs),
     /// Score every row of a file with a saved model and write the predictions as CSV.
     Predict(predict::PredictArgs),
     /// Write a saved model as an ONNX file, to score it with any ONNX runtime.
@@ -99,6 +108,8 @@ fn run(args: Args) -> anyhow::Result<()> {
             what: BenchWhat::Read { mb, repeats },
         } => bench::read(mb, repeats),
         Command::Fit(args) => fit::fit(args),
+        Command::Evaluate(args) => evaluate::evaluate(args),
+        Command::Tune(args) => tune::tune_command(args),
         Command::Predict(args) => predict::predict(args),
         Command::ExportOnnx { model, output } => {
             let bytes = std::fs::read(&model)

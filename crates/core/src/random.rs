@@ -27,6 +27,8 @@ pub enum Purpose {
     FoldRows = 9,
     /// The rows of bootstrap resample `index` of bootstrap validation (optimism correction).
     ValidationResample = 10,
+    /// The candidates of a random tuning search (`index` 0).
+    TuneDraws = 11,
 }
 
 /// The stream for (`seed`, `purpose`, `index`).

@@ -70,6 +70,27 @@ pub fn bootstrap<F>(
 where
     F: FnMut(&[f64]) -> Option<f64>,
 {
+    let mut one = bootstrap_many(rows, resamples, level, seed, 1, |w, out| out[0] = metric(w))?;
+    one.pop()
+        .unwrap_or_else(|| Err(bad("the bootstrap interval", "no figure")))
+}
+
+/// Percentile bootstrap intervals of `figures` metrics at once, from the same resamples as
+/// [`bootstrap`] (resample b is the same rows for every metric, and the same as
+/// [`bootstrap`]'s): `metric` fills one value per figure (None where undefined) for the
+/// resample given as weights, so work shared by several figures is done once per resample.
+/// Each figure's interval (or why it has none) in order.
+pub fn bootstrap_many<F>(
+    rows: usize,
+    resamples: usize,
+    level: f64,
+    seed: u64,
+    figures: usize,
+    mut metric: F,
+) -> Result<Vec<Result<BootstrapInterval>>>
+where
+    F: FnMut(&[f64], &mut [Option<f64>]),
+{
     const WHAT: &str = "the bootstrap interval";
     if rows == 0 {
         return Err(bad(WHAT, "there are no rows to resample"));
@@ -87,43 +108,56 @@ where
         ));
     }
     let mut counts = vec![1.0; rows];
-    let estimate = metric(&counts).ok_or_else(|| {
-        bad(
-            WHAT,
-            "the metric is undefined on the rows themselves, so it has no interval",
-        )
-    })?;
-    let mut values = Vec::with_capacity(resamples);
+    let mut out = vec![None; figures];
+    metric(&counts, &mut out);
+    let estimates = out.clone();
+    let mut values: Vec<Vec<f64>> = vec![Vec::with_capacity(resamples); figures];
     for b in 0..resamples {
         counts.iter_mut().for_each(|c| *c = 0.0);
         let mut rng = stream(seed, Purpose::MetricResample, b as u64);
         for _ in 0..rows {
             counts[below(&mut rng, rows)] += 1.0;
         }
-        match metric(&counts) {
-            Some(v) if v.is_finite() => values.push(v),
-            _ => {}
+        out.iter_mut().for_each(|o| *o = None);
+        metric(&counts, &mut out);
+        for (v, o) in values.iter_mut().zip(&out) {
+            match o {
+                Some(x) if x.is_finite() => v.push(*x),
+                _ => {}
+            }
         }
     }
-    let undefined = resamples - values.len();
-    if values.len() * 2 < resamples {
-        return Err(bad(
-            WHAT,
-            format!(
-                "the metric was undefined on {undefined} of {resamples} resamples (too few \
-                 events, or one class only). Use more rows, or report no interval"
-            ),
-        ));
-    }
-    values.sort_by(f64::total_cmp);
-    Ok(BootstrapInterval {
-        estimate,
-        low: quantile_sorted(&values, (1.0 - level) / 2.0),
-        high: quantile_sorted(&values, (1.0 + level) / 2.0),
-        level,
-        used: values.len(),
-        undefined,
-    })
+    Ok(estimates
+        .into_iter()
+        .zip(values)
+        .map(|(estimate, mut values)| {
+            let estimate = estimate.ok_or_else(|| {
+                bad(
+                    WHAT,
+                    "the metric is undefined on the rows themselves, so it has no interval",
+                )
+            })?;
+            let undefined = resamples - values.len();
+            if values.len() * 2 < resamples {
+                return Err(bad(
+                    WHAT,
+                    format!(
+                        "the metric was undefined on {undefined} of {resamples} resamples (too \
+                         few events, or one class only). Use more rows, or report no interval"
+                    ),
+                ));
+            }
+            values.sort_by(f64::total_cmp);
+            Ok(BootstrapInterval {
+                estimate,
+                low: quantile_sorted(&values, (1.0 - level) / 2.0),
+                high: quantile_sorted(&values, (1.0 + level) / 2.0),
+                level,
+                used: values.len(),
+                undefined,
+            })
+        })
+        .collect())
 }
 
 #[cfg(test)]

@@ -31,7 +31,7 @@ pub mod multiclass;
 pub mod regression;
 pub mod sample_size;
 
-pub use intervals::{bootstrap, wilson, BootstrapInterval, Interval};
+pub use intervals::{bootstrap, bootstrap_many, wilson, BootstrapInterval, Interval};
 
 use crate::error::{Error, ErrorKind, Result};
 

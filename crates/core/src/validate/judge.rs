@@ -8,7 +8,7 @@ use std::collections::BTreeMap;
 
 use crate::design::Outcome;
 use crate::metrics::binary::{self, Proportion};
-use crate::metrics::{bootstrap, curves, multiclass, regression};
+use crate::metrics::{bootstrap_many, curves, multiclass, regression};
 
 /// Point figures by metric name.
 pub type Figures = BTreeMap<String, f64>;
@@ -158,36 +158,71 @@ pub fn figures(outcome: &Outcome, predictions: &[f64], threshold: f64) -> Figure
     f
 }
 
+/// Figures with a bootstrap interval: their names and one function filling all of them for
+/// a resample (given as row weights), so shared work (a calibration fit, a confusion
+/// table) is done once per resample.
+type Filler<'a> = Box<dyn FnMut(&[f64], &mut [Option<f64>]) + 'a>;
+
+/// Point values and, with resamples, percentile intervals of the figures `fill` computes.
+fn bootstrapped(
+    names: &[&str],
+    mut fill: Filler<'_>,
+    rows: usize,
+    settings: &JudgeSettings,
+    metrics: &mut BTreeMap<String, Estimate>,
+) {
+    let mut values = vec![None; names.len()];
+    fill(&vec![1.0; rows], &mut values);
+    let intervals = (settings.resamples >= 2)
+        .then(|| {
+            bootstrap_many(
+                rows,
+                settings.resamples,
+                0.95,
+                settings.seed,
+                names.len(),
+                fill,
+            )
+            .ok()
+        })
+        .flatten();
+    for (i, name) in names.iter().enumerate() {
+        let Some(value) = values[i].filter(|v| v.is_finite()) else {
+            continue;
+        };
+        let (low, high) = match intervals.as_ref().and_then(|v| v[i].as_ref().ok()) {
+            Some(b) => (Some(b.low), Some(b.high)),
+            None => (None, None),
+        };
+        metrics.insert(
+            name.to_string(),
+            Estimate {
+                value,
+                low,
+                high,
+                interval: if low.is_some() { "bootstrap" } else { "none" },
+            },
+        );
+    }
+}
+
+/// Balanced accuracy from a two-class confusion table.
+fn balanced(c: &binary::Confusion) -> Option<f64> {
+    let pos = c.true_positives + c.false_negatives;
+    let neg = c.true_negatives + c.false_positives;
+    (pos > 0.0 && neg > 0.0).then(|| 0.5 * (c.true_positives / pos + c.true_negatives / neg))
+}
+
+/// F1 from a two-class confusion table.
+fn f1(c: &binary::Confusion) -> Option<f64> {
+    let d = 2.0 * c.true_positives + c.false_positives + c.false_negatives;
+    (d > 0.0).then(|| 2.0 * c.true_positives / d)
+}
+
 /// Every figure of `predictions` with its interval, and the curves.
 pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -> Judged {
     let rows = outcome.len();
     let mut metrics = BTreeMap::new();
-    // Figures with closed-form intervals, added after the bootstrapped ones.
-    let mut later: Vec<(String, Estimate)> = Vec::new();
-    let boot = |f: &mut dyn FnMut(&[f64]) -> Option<f64>| -> (Option<f64>, Option<f64>) {
-        if settings.resamples < 2 {
-            return (None, None);
-        }
-        match bootstrap(rows, settings.resamples, 0.95, settings.seed, f) {
-            Ok(b) => (Some(b.low), Some(b.high)),
-            Err(_) => (None, None),
-        }
-    };
-    let mut put_boot =
-        |name: &str, value: Option<f64>, f: &mut dyn FnMut(&[f64]) -> Option<f64>| {
-            if let Some(value) = value.filter(|v| v.is_finite()) {
-                let (low, high) = boot(f);
-                metrics.insert(
-                    name.to_string(),
-                    Estimate {
-                        value,
-                        low,
-                        high,
-                        interval: if low.is_some() { "bootstrap" } else { "none" },
-                    },
-                );
-            }
-        };
     let mut judged = Judged {
         rows,
         metrics: BTreeMap::new(),
@@ -197,80 +232,46 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
         class_auc: None,
         residuals: None,
     };
-    let matrix = |codes: &[u32], probs: &[f64], k: usize| {
-        multiclass::confusion_matrix(codes, probs, k, None)
-            .ok()
-            .map(|m| m.chunks(k).map(<[f64]>::to_vec).collect())
-    };
     match outcome {
         Outcome::Classes { codes, labels } if labels.len() == 2 => {
             let p = event_probabilities(predictions, 2);
             let t = settings.threshold;
-            put_boot(
-                "average_precision",
-                binary::average_precision(codes, &p, None).ok(),
-                &mut |w| binary::average_precision(codes, &p, Some(w)).ok(),
+            let (c, p) = (&codes[..], &p[..]);
+            bootstrapped(
+                &[
+                    "average_precision",
+                    "log_loss",
+                    "brier",
+                    "scaled_brier",
+                    "calibration_intercept",
+                    "calibration_slope",
+                    "observed_expected",
+                    "balanced_accuracy",
+                    "f1",
+                ],
+                Box::new(move |w, out| {
+                    let w = Some(w);
+                    out[0] = binary::average_precision(c, p, w).ok();
+                    out[1] = binary::log_loss(c, p, w).ok();
+                    if let Ok(b) = binary::brier(c, p, w) {
+                        out[2] = Some(b.score);
+                        out[3] = Some(b.scaled);
+                    }
+                    if let Ok(k) = binary::calibration(c, p, w) {
+                        out[4] = Some(k.in_the_large);
+                        out[5] = Some(k.slope);
+                        out[6] = Some(k.observed_expected);
+                    }
+                    if let Ok(k) = binary::confusion(c, p, t, w) {
+                        out[7] = balanced(&k);
+                        out[8] = f1(&k);
+                    }
+                }),
+                rows,
+                settings,
+                &mut metrics,
             );
-            put_boot(
-                "log_loss",
-                binary::log_loss(codes, &p, None).ok(),
-                &mut |w| binary::log_loss(codes, &p, Some(w)).ok(),
-            );
-            let brier = binary::brier(codes, &p, None).ok();
-            put_boot("brier", brier.as_ref().map(|b| b.score), &mut |w| {
-                binary::brier(codes, &p, Some(w)).ok().map(|b| b.score)
-            });
-            put_boot("scaled_brier", brier.as_ref().map(|b| b.scaled), &mut |w| {
-                binary::brier(codes, &p, Some(w)).ok().map(|b| b.scaled)
-            });
-            let cal = binary::calibration(codes, &p, None).ok();
-            put_boot(
-                "calibration_intercept",
-                cal.as_ref().map(|c| c.in_the_large),
-                &mut |w| {
-                    binary::calibration(codes, &p, Some(w))
-                        .ok()
-                        .map(|c| c.in_the_large)
-                },
-            );
-            put_boot(
-                "calibration_slope",
-                cal.as_ref().map(|c| c.slope),
-                &mut |w| {
-                    binary::calibration(codes, &p, Some(w))
-                        .ok()
-                        .map(|c| c.slope)
-                },
-            );
-            put_boot(
-                "observed_expected",
-                cal.as_ref().map(|c| c.observed_expected),
-                &mut |w| {
-                    binary::calibration(codes, &p, Some(w))
-                        .ok()
-                        .map(|c| c.observed_expected)
-                },
-            );
-            let from_confusion = |w: &[f64], f: fn(&binary::Confusion) -> Option<f64>| {
-                binary::confusion(codes, &p, t, Some(w))
-                    .ok()
-                    .and_then(|c| f(&c))
-            };
-            fn balanced(c: &binary::Confusion) -> Option<f64> {
-                let pos = c.true_positives + c.false_negatives;
-                let neg = c.true_negatives + c.false_positives;
-                (pos > 0.0 && neg > 0.0)
-                    .then(|| 0.5 * (c.true_positives / pos + c.true_negatives / neg))
-            }
-            fn f1(c: &binary::Confusion) -> Option<f64> {
-                let d = 2.0 * c.true_positives + c.false_positives + c.false_negatives;
-                (d > 0.0).then(|| 2.0 * c.true_positives / d)
-            }
-            if let Ok(at) = binary::at_threshold(codes, &p, t) {
-                put_boot("balanced_accuracy", at.balanced_accuracy, &mut |w| {
-                    from_confusion(w, balanced)
-                });
-                put_boot("f1", at.f1, &mut |w| from_confusion(w, f1));
+            if let Ok(at) = binary::at_threshold(c, p, t) {
                 for (name, prop) in [
                     ("sensitivity", at.sensitivity),
                     ("specificity", at.specificity),
@@ -279,12 +280,18 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
                     ("accuracy", Some(at.accuracy)),
                 ] {
                     if let Some(prop) = prop {
-                        later.push((name.to_string(), Estimate::wilson(&prop)));
+                        metrics.insert(name.to_string(), Estimate::wilson(&prop));
                     }
                 }
+                let m = &at.confusion;
+                // Observed class by row, called class by column (event at or above t).
+                judged.confusion_matrix = Some(vec![
+                    vec![m.true_negatives, m.false_positives],
+                    vec![m.false_negatives, m.true_positives],
+                ]);
             }
-            if let Ok(a) = binary::auc(codes, &p) {
-                later.push((
+            if let Ok(a) = binary::auc(c, p) {
+                metrics.insert(
                     "auc".into(),
                     Estimate {
                         value: a.value,
@@ -296,81 +303,66 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
                             "none"
                         },
                     },
-                ));
+                );
             }
-            judged.youden = binary::youden(codes, &p).ok();
-            judged.confusion_matrix = {
-                // Two classes: called positive at or above the threshold.
-                binary::confusion(codes, &p, t, None).ok().map(|c| {
-                    vec![
-                        vec![c.true_negatives, c.false_positives],
-                        vec![c.false_negatives, c.true_positives],
-                    ]
-                })
-            };
-            let c = &mut judged.curves;
-            c.roc = curves::roc_points(codes, &p, None).unwrap_or_default();
-            c.precision_recall =
-                curves::precision_recall_points(codes, &p, None).unwrap_or_default();
-            c.calibration = curves::calibration_groups(codes, &p, 10).unwrap_or_default();
-            c.smoothed_calibration =
-                curves::smoothed_calibration(codes, &p, 50).unwrap_or_default();
+            judged.youden = binary::youden(c, p).ok();
+            let cv = &mut judged.curves;
+            cv.roc = curves::roc_points(c, p, None).unwrap_or_default();
+            cv.precision_recall = curves::precision_recall_points(c, p, None).unwrap_or_default();
+            cv.calibration = curves::calibration_groups(c, p, 10).unwrap_or_default();
+            cv.smoothed_calibration = curves::smoothed_calibration(c, p, 50).unwrap_or_default();
             let thresholds: Vec<f64> = (1..100).map(|i| i as f64 / 100.0).collect();
-            c.decision = curves::decision_curve(codes, &p, &thresholds).unwrap_or_default();
+            cv.decision = curves::decision_curve(c, p, &thresholds).unwrap_or_default();
         }
         Outcome::Classes { codes, labels } => {
             let k = labels.len();
-            let pr = predictions;
-            if let Ok(acc) = multiclass::accuracy(codes, pr, k, None) {
+            let (c, pr) = (&codes[..], predictions);
+            bootstrapped(
+                &["balanced_accuracy", "macro_auc", "log_loss"],
+                Box::new(move |w, out| {
+                    let w = Some(w);
+                    out[0] = multiclass::balanced_accuracy(c, pr, k, w).ok();
+                    out[1] = multiclass::one_vs_rest_auc(c, pr, k, w)
+                        .ok()
+                        .map(|o| o.macro_mean);
+                    out[2] = multiclass::log_loss(c, pr, k, w).ok();
+                }),
+                rows,
+                settings,
+                &mut metrics,
+            );
+            if let Ok(acc) = multiclass::accuracy(c, pr, k, None) {
                 let right = (acc * rows as f64).round() as u64;
                 if let Some(p) = Proportion::wilson95(right, rows as u64) {
-                    later.push(("accuracy".into(), Estimate::wilson(&p)));
+                    metrics.insert("accuracy".into(), Estimate::wilson(&p));
                 }
             }
-            put_boot(
-                "balanced_accuracy",
-                multiclass::balanced_accuracy(codes, pr, k, None).ok(),
-                &mut |w| multiclass::balanced_accuracy(codes, pr, k, Some(w)).ok(),
-            );
-            let ovr = multiclass::one_vs_rest_auc(codes, pr, k, None).ok();
-            put_boot("macro_auc", ovr.as_ref().map(|o| o.macro_mean), &mut |w| {
-                multiclass::one_vs_rest_auc(codes, pr, k, Some(w))
-                    .ok()
-                    .map(|o| o.macro_mean)
-            });
-            put_boot(
-                "log_loss",
-                multiclass::log_loss(codes, pr, k, None).ok(),
-                &mut |w| multiclass::log_loss(codes, pr, k, Some(w)).ok(),
-            );
-            judged.class_auc = ovr.map(|o| o.per_class);
-            judged.confusion_matrix = matrix(codes, pr, k);
+            judged.class_auc = multiclass::one_vs_rest_auc(c, pr, k, None)
+                .ok()
+                .map(|o| o.per_class);
+            judged.confusion_matrix = multiclass::confusion_matrix(c, pr, k, None)
+                .ok()
+                .map(|m| m.chunks(k).map(<[f64]>::to_vec).collect());
         }
         Outcome::Numbers(y) => {
-            let fit = regression::fit(y, predictions, None).ok();
-            put_boot("rmse", fit.as_ref().map(|f| f.rmse), &mut |w| {
-                regression::fit(y, predictions, Some(w))
-                    .ok()
-                    .map(|f| f.rmse)
-            });
-            put_boot("mae", fit.as_ref().map(|f| f.mae), &mut |w| {
-                regression::fit(y, predictions, Some(w)).ok().map(|f| f.mae)
-            });
-            put_boot(
-                "r_squared",
-                fit.as_ref().and_then(|f| f.r_squared),
-                &mut |w| {
-                    regression::fit(y, predictions, Some(w))
-                        .ok()
-                        .and_then(|f| f.r_squared)
-                },
+            bootstrapped(
+                &["rmse", "mae", "r_squared"],
+                Box::new(move |w, out| {
+                    if let Ok(f) = regression::fit(y, predictions, Some(w)) {
+                        out[0] = Some(f.rmse);
+                        out[1] = Some(f.mae);
+                        out[2] = f.r_squared;
+                    }
+                }),
+                rows,
+                settings,
+                &mut metrics,
             );
             judged.residuals = regression::residuals(y, predictions).ok();
             judged.curves.mean_calibration =
                 regression::mean_calibration(y, predictions, 10).unwrap_or_default();
         }
     }
-    metrics.extend(later);
     judged.metrics = metrics;
     judged
 }

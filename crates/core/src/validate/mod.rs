@@ -3,7 +3,8 @@
 //! [`crate::fit::fit_design`] on its training rows only (so the bins, too, are learnt from
 //! them) and predicts its held-out rows. The out-of-sample predictions of every row are
 //! pooled and judged ([`judge`]), each split's own figures kept, and the error by ensemble
-//! size averaged over the splits. [`warnings`] says what the figures cannot show.
+//! size averaged over the splits. [`warnings`] says what the figures cannot show; [`tune`]
+//! searches settings by the same schemes, nested if asked.
 //!
 //! Out-of-bag (bagging, forests) fits once and takes each row's prediction from the trees
 //! that did not see it. Bootstrap validation reports the optimism-corrected figures of
@@ -18,6 +19,7 @@
 
 pub mod folds;
 pub mod judge;
+pub mod tune;
 pub mod warnings;
 
 pub use folds::{splits, Scheme, Split};
@@ -655,7 +657,7 @@ mod tests {
     use crate::random::{below, stream, Purpose};
 
     /// 400 rows: y depends on a + b (10% flipped), c is noise, w a category.
-    fn problem() -> Design {
+    pub(super) fn problem() -> Design {
         let mut rng = stream(5, Purpose::TreeRows, 0);
         let mut text = String::from("y,a,b,c,w\n");
         for _ in 0..400 {

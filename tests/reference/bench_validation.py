@@ -1,0 +1,46 @@
+#!/usr/bin/env python3
+"""Benchmark (figures printed, nothing asserted): `spinney evaluate` with 5-fold
+cross-validation of a 300-tree random forest on generated data (ROWS x 30 numbers, a
+two-class outcome from a logistic model of 6 of them), on one thread and on every core,
+without and with bootstrap intervals of the metrics. Target (tracker issue 5): under 10 s on
+one core for 50,000 rows. Usage: bench_validation.py [ROWS]."""
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+
+import numpy as np
+
+BIN = os.environ.get("SPINNEY_BIN", os.path.join(os.path.dirname(__file__), "..", "..", "target", "release", "spinney"))
+
+
+def main():
+    rows = int(sys.argv[1]) if len(sys.argv) > 1 else 50_000
+    rng = np.random.default_rng(0)
+    X = rng.normal(size=(rows, 30))
+    eta = X[:, :6] @ np.array([1.0, -0.8, 0.6, 0.5, -0.4, 0.3]) - 1.0
+    y = (rng.random(rows) < 1 / (1 + np.exp(-eta))).astype(int)
+    cores = os.cpu_count() or 1
+    with tempfile.TemporaryDirectory() as tmp:
+        path = os.path.join(tmp, "bench.csv")
+        with open(path, "w") as f:
+            f.write(",".join(["x%d" % j for j in range(30)] + ["y"]) + "\n")
+            for row, t in zip(X, y):
+                f.write(",".join("%.6g" % v for v in row) + ",%d\n" % t)
+        print("5-fold CV, 300-tree forest, %d x 30, %d core(s) on this machine" % (rows, cores))
+        for threads, resamples in [(1, 0), (cores, 0), (cores, 1000)]:
+            start = time.perf_counter()
+            out = subprocess.run([BIN, "evaluate", path, "--outcome", "y", "--method", "forest",
+                                  "--set", "trees=300", "--validate", "folds:5", "--threads", str(threads),
+                                  "--resamples", str(resamples), "--json"],
+                                 capture_output=True, text=True, check=True)
+            wall = time.perf_counter() - start
+            report = json.loads(out.stdout)
+            print("  threads %d, interval resamples %4d: validation %.2f s (wall with reading %.2f s); AUC %.4f"
+                  % (threads, resamples, report["seconds"], wall, report["metrics"]["auc"]["value"]))
+
+
+if __name__ == "__main__":
+    main()
