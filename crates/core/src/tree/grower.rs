@@ -138,6 +138,28 @@ pub fn grow_with<'a>(
     choose: Option<PredictorChooser<'_>>,
     constraints: Constraints<'a>,
 ) -> Tree {
+    grow_rows(binned, stats, width, rows, settings, choose, constraints).tree
+}
+
+/// A grown tree and where its rows went: `rows` (the rows grown on, reordered) holds node
+/// `i`'s rows at `rows[spans[i].0..spans[i].1]`, in their given order, so a caller can update
+/// the rows of each leaf without walking them down the tree.
+pub struct Grown {
+    pub tree: Tree,
+    pub rows: Vec<u32>,
+    pub spans: Vec<(usize, usize)>,
+}
+
+/// [`grow_with`], also handing back which rows ended in which node.
+pub fn grow_rows<'a>(
+    binned: &'a BinnedMatrix,
+    stats: &'a [f64],
+    width: usize,
+    rows: &[u32],
+    settings: &'a GrowSettings,
+    choose: Option<PredictorChooser<'_>>,
+    constraints: Constraints<'a>,
+) -> Grown {
     let monotone = constraints.monotone;
     match &binned.cells {
         Cells::Narrow(cells) => Grower::new(
@@ -180,6 +202,8 @@ struct Grower<'a, 'c, B: Bin> {
     dense_offsets: Option<Vec<usize>>,
     /// Dense histogram buffers free for reuse.
     pool: Vec<Vec<f64>>,
+    /// Each node's rows, `work[start..end]`, by node id.
+    spans: Vec<(usize, usize)>,
 }
 
 impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
@@ -224,6 +248,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 offsets
             }),
             pool: Vec::new(),
+            spans: Vec::new(),
         }
     }
 
@@ -232,7 +257,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         &self.cells[j * n..(j + 1) * n]
     }
 
-    fn run(mut self) -> Tree {
+    fn run(mut self) -> Grown {
         let mut frontier: Vec<Candidate> = Vec::new();
         let n = self.work.len();
         if let Some(c) = self.evaluate(0, 0, n, 0, FREE, None) {
@@ -310,7 +335,11 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             frontier.extend(r);
             frontier.extend(l);
         }
-        self.tree
+        Grown {
+            tree: self.tree,
+            rows: self.work,
+            spans: self.spans,
+        }
     }
 
     /// Fills node `id`'s values from its rows `work[start..end]` and finds its best split
@@ -328,6 +357,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         let criterion = settings.criterion;
         let width = self.width;
         let stats = self.stats;
+        if self.spans.len() <= id {
+            self.spans.resize(id + 1, (0, 0));
+        }
+        self.spans[id] = (start, end);
         self.totals.iter_mut().for_each(|t| *t = 0.0);
         let (mut y_min, mut y_max) = (f64::INFINITY, f64::NEG_INFINITY);
         for &r in &self.work[start..end] {
@@ -406,6 +439,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             };
             if let (Some(h), Some(offsets)) = (&dense, &self.dense_offsets) {
                 let h = &h[offsets[j]..offsets[j + 1]];
+                if numeric && width == 2 && !bounded && limits.monotone == 0 {
+                    scan_dense_numbers(h, bins, j, parent_cost, settings, &mut best);
+                    continue;
+                }
                 self.order.clear();
                 self.order.extend(
                     (0..bins)
@@ -816,6 +853,87 @@ fn scan<B: Bin>(
                 ));
             }
         }
+    }
+}
+
+/// [`scan`]'s two-statistic path for a number predictor's dense histogram (`bins + 1` slots
+/// of `(s0, s1, rows)`, missing last): the bins holding rows are visited in bin order straight
+/// from the histogram, with no list of bins built first. The same additions in the same order
+/// as [`scan`], and the same tie rule, so the same split.
+fn scan_dense_numbers(
+    h: &[f64],
+    bins: usize,
+    feature: usize,
+    parent_cost: f64,
+    settings: &GrowSettings,
+    best: &mut Option<Split>,
+) {
+    let criterion = settings.criterion;
+    let h = &h[..(bins + 1) * 3];
+    let missing = &h[bins * 3..];
+    let (mut t0, mut t1, mut tc) = (missing[0], missing[1], missing[2]);
+    for at in h[..bins * 3].chunks_exact(3) {
+        if at[2] > 0.0 {
+            t0 += at[0];
+            t1 += at[1];
+            tc += at[2];
+        }
+    }
+    let min_leaf = settings.min_rows_leaf.max(1) as f64;
+    let sides: &[bool] = if missing[2] > 0.0 {
+        &[true, false]
+    } else {
+        &[false]
+    };
+    // The best split of this predictor so far: gain, last bin on the left, missing side.
+    let mut found: Option<(f64, usize, bool)> = None;
+    for &missing_left in sides {
+        let (mut l0, mut l1, mut lc) = match missing_left {
+            true => (missing[0], missing[1], missing[2]),
+            false => (0.0, 0.0, 0.0),
+        };
+        for (b, at) in h[..bins * 3].chunks_exact(3).enumerate() {
+            if at[2] <= 0.0 {
+                continue;
+            }
+            l0 += at[0];
+            l1 += at[1];
+            lc += at[2];
+            if lc < min_leaf {
+                continue;
+            }
+            if tc - lc < min_leaf {
+                break;
+            }
+            let (l, r) = ([l0, l1], [t0 - l0, t1 - l1]);
+            if criterion.weight(&l) < settings.min_weight_leaf
+                || criterion.weight(&r) < settings.min_weight_leaf
+            {
+                continue;
+            }
+            let gain = parent_cost - criterion.cost(&l) - criterion.cost(&r);
+            let beats = match (found, best.as_ref()) {
+                (Some((g, _, _)), _) => gain > g,
+                (None, Some(bb)) => gain > bb.gain,
+                (None, None) => true,
+            };
+            if beats {
+                found = Some((gain, b, missing_left));
+            }
+        }
+    }
+    if let Some((gain, b, missing_left)) = found {
+        let next_bin = (b + 1..bins).find(|&nb| h[nb * 3 + 2] > 0.0);
+        *best = Some(Split {
+            gain,
+            feature,
+            numeric: true,
+            threshold_bin: b,
+            next_bin,
+            categories: BinSet::default(),
+            missing_left,
+            values: (0.0, 0.0),
+        });
     }
 }
 
