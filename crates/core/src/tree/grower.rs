@@ -105,6 +105,9 @@ struct Candidate {
 /// the bins its rows touch. (Common practice, no source, for the value.)
 const DENSE_MIN_ROWS: usize = 1024;
 
+/// Slots per predictor in a dense histogram: one per u8 cell value, missing (255) included.
+const DENSE_SLOTS: usize = 256;
+
 /// No bounds on a node's value.
 const FREE: (f64, f64) = (f64::NEG_INFINITY, f64::INFINITY);
 
@@ -196,10 +199,14 @@ struct Grower<'a, 'c, B: Bin> {
     sums: ScanSums,
     totals: Vec<f64>,
     candidates: Vec<usize>,
-    /// Dense histograms: predictor `j`'s bins start at `dense_offsets[j]` (`bins + 1` slots
-    /// of `width + 1` numbers, the last slot for missing values); `None` in exact mode, where
-    /// bins are too many to keep densely.
+    /// Dense histograms: predictor `j`'s bins start at `dense_offsets[j]` (256 slots of
+    /// `width + 1` numbers, one per cell value, so slot 255 holds missing values); `None` in
+    /// exact mode, where bins are too many to keep densely.
     dense_offsets: Option<Vec<usize>>,
+    /// The node's `(g, h)` pairs in the order of its rows, gathered once for its histograms.
+    ordered: Vec<[f64; 2]>,
+    /// The split points of one dense scan.
+    points: Points,
     /// Dense histogram buffers free for reuse.
     pool: Vec<Vec<f64>>,
     /// Each node's rows, `work[start..end]`, by node id.
@@ -240,13 +247,13 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             sums: ScanSums::new(width),
             totals: vec![0.0; width],
             candidates: Vec::new(),
-            dense_offsets: (B::MISSING.index() < 256).then(|| {
-                let mut offsets = vec![0];
-                for c in &binned.columns {
-                    offsets.push(offsets[offsets.len() - 1] + (c.bins + 1) * (width + 1));
-                }
-                offsets
+            dense_offsets: (B::MISSING.index() < DENSE_SLOTS).then(|| {
+                (0..=binned.columns.len())
+                    .map(|j| j * DENSE_SLOTS * (width + 1))
+                    .collect()
             }),
+            ordered: Vec::new(),
+            points: Points::default(),
             pool: Vec::new(),
             spans: Vec::new(),
         }
@@ -440,7 +447,15 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             if let (Some(h), Some(offsets)) = (&dense, &self.dense_offsets) {
                 let h = &h[offsets[j]..offsets[j + 1]];
                 if numeric && width == 2 && !bounded && limits.monotone == 0 {
-                    scan_dense_numbers(h, bins, j, parent_cost, settings, &mut best);
+                    scan_dense_numbers(
+                        h,
+                        bins,
+                        j,
+                        parent_cost,
+                        settings,
+                        &mut self.points,
+                        &mut best,
+                    );
                     continue;
                 }
                 self.order.clear();
@@ -455,7 +470,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 scan(
                     h,
                     &self.order,
-                    bins,
+                    B::MISSING.index(),
                     &mut self.sums,
                     j,
                     numeric,
@@ -536,7 +551,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
     }
 
     /// Dense histograms of every predictor over the rows `work[start..end]` (a buffer from
-    /// the pool, laid out by `dense_offsets`).
+    /// the pool, laid out by `dense_offsets`). Each bin sums its rows in their order in
+    /// `work`, whichever loop below fills it.
     fn dense_histograms(&mut self, start: usize, end: usize) -> Vec<f64> {
         let offsets = self.dense_offsets.as_ref().expect("dense mode");
         let len = offsets[offsets.len() - 1];
@@ -545,25 +561,37 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         h.resize(len, 0.0);
         let (width, stats, rows) = (self.width, self.stats, &self.work[start..end]);
         let stride = width + 1;
-        for (j, col) in self.binned.columns.iter().enumerate() {
+        let n = self.binned.rows;
+        if width == 2 {
+            // The common case (two classes, numbers, gradients): the node's pairs gathered
+            // once in row order, then four predictors filled per pass over the rows (their
+            // histograms together fit in the first-level cache). The root of a tree on every
+            // row in order reads the columns straight through.
+            self.ordered.clear();
+            self.ordered.extend(
+                rows.iter()
+                    .map(|&r| [stats[2 * r as usize], stats[2 * r as usize + 1]]),
+            );
+            let all = rows.len() == n && rows.iter().enumerate().all(|(i, &r)| r as usize == i);
+            let rows = (!all).then_some(rows);
+            let mut columns = self.cells.chunks_exact(n.max(1));
+            let mut hists = h.chunks_exact_mut(DENSE_SLOTS * 3).map(slots);
+            let p = self.binned.columns.len();
+            for _ in 0..p / 4 {
+                let c = [(); 4].map(|_| columns.next().expect("a column per predictor"));
+                let hs = [(); 4].map(|_| hists.next().expect("a histogram per predictor"));
+                add_pairs(hs, c, rows, &self.ordered);
+            }
+            for (c, hj) in columns.zip(hists).take(p % 4) {
+                add_pairs([hj], [c], rows, &self.ordered);
+            }
+            return h;
+        }
+        for j in 0..self.binned.columns.len() {
             let column = self.column(j);
             let hj = &mut h[offsets[j]..offsets[j + 1]];
-            // Missing values (the largest cell value) land in the last slot, `bins`.
-            let missing_slot = col.bins;
-            if width == 2 {
-                // The common case (two classes, numbers, gradients), without inner loops.
-                for &r in rows {
-                    let slot = column[r as usize].index().min(missing_slot);
-                    let (s0, s1) = (stats[2 * r as usize], stats[2 * r as usize + 1]);
-                    let at = &mut hj[slot * 3..slot * 3 + 3];
-                    at[0] += s0;
-                    at[1] += s1;
-                    at[2] += 1.0;
-                }
-                continue;
-            }
             for &r in rows {
-                let slot = column[r as usize].index().min(missing_slot);
+                let slot = column[r as usize].index();
                 let s = &stats[r as usize * width..(r as usize + 1) * width];
                 let at = &mut hj[slot * stride..(slot + 1) * stride];
                 for (a, v) in at.iter_mut().zip(s) {
@@ -637,6 +665,42 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             node.threshold_bin = last as u16;
         }
         k
+    }
+}
+
+/// One predictor's dense histogram as its 256 slots of `(s0, s1, rows)`.
+fn slots(h: &mut [f64]) -> &mut [[f64; 3]; DENSE_SLOTS] {
+    let (slots, _) = h.as_chunks_mut::<3>();
+    slots.try_into().expect("256 slots of three")
+}
+
+/// Adds the pairs `ordered[i]` (and a row count) to the slots of `K` predictors' cells of row
+/// `rows[i]` (`None`: row `i`), in row order.
+fn add_pairs<B: Bin, const K: usize>(
+    mut hists: [&mut [[f64; 3]; DENSE_SLOTS]; K],
+    columns: [&[B]; K],
+    rows: Option<&[u32]>,
+    ordered: &[[f64; 2]],
+) {
+    let mut add = |cells: [B; K], [g, h]: [f64; 2]| {
+        for (hist, b) in hists.iter_mut().zip(cells) {
+            let at = &mut hist[b.index() & (DENSE_SLOTS - 1)];
+            at[0] += g;
+            at[1] += h;
+            at[2] += 1.0;
+        }
+    };
+    match rows {
+        Some(rows) => {
+            for (&r, &pair) in rows.iter().zip(ordered) {
+                add(columns.map(|c| c[r as usize]), pair);
+            }
+        }
+        None => {
+            for (i, &pair) in ordered.iter().enumerate() {
+                add(columns.map(|c| c[i]), pair);
+            }
+        }
     }
 }
 
@@ -856,30 +920,69 @@ fn scan<B: Bin>(
     }
 }
 
-/// [`scan`]'s two-statistic path for a number predictor's dense histogram (`bins + 1` slots
-/// of `(s0, s1, rows)`, missing last): the bins holding rows are visited in bin order straight
-/// from the histogram, with no list of bins built first. The same additions in the same order
-/// as [`scan`], and the same tie rule, so the same split.
+/// Scratch of [`scan_dense_numbers`], one entry per bin (flat arrays, so the gain loop
+/// vectorises): the bin's rows, the running sums `s0`, `s1` and rows up to and including the
+/// bin with the missing values counted on the left (`a`) and without (`b`), and the gain of
+/// splitting after the bin.
+#[derive(Default)]
+struct Points {
+    rows: Vec<f64>,
+    a: [Vec<f64>; 3],
+    b: [Vec<f64>; 3],
+    gain: Vec<f64>,
+}
+
+/// [`scan`]'s two-statistic path for a number predictor's dense histogram (256 slots of
+/// `(s0, s1, rows)`, missing in slot 255), in three flat loops: the running sums of both
+/// sides of the missing values at once, bins with no rows adding nothing; every split
+/// point's gain on its own (independent divisions the compiler can vectorise); the first best.
+/// Row counts are whole numbers, so the running count only rises, and the points [`scan`]
+/// visits before it stops (the right side too small) are exactly those with enough rows on
+/// both sides. The same additions and divisions as [`scan`] (adding zero changes no sum) and
+/// the same tie rule, so the same split.
+#[allow(clippy::too_many_arguments)]
 fn scan_dense_numbers(
     h: &[f64],
     bins: usize,
     feature: usize,
     parent_cost: f64,
     settings: &GrowSettings,
+    points: &mut Points,
     best: &mut Option<Split>,
 ) {
     let criterion = settings.criterion;
-    let h = &h[..(bins + 1) * 3];
-    let missing = &h[bins * 3..];
-    let (mut t0, mut t1, mut tc) = (missing[0], missing[1], missing[2]);
-    for at in h[..bins * 3].chunks_exact(3) {
-        if at[2] > 0.0 {
-            t0 += at[0];
-            t1 += at[1];
-            tc += at[2];
-        }
-    }
+    let min_weight = settings.min_weight_leaf;
     let min_leaf = settings.min_rows_leaf.max(1) as f64;
+    let (present, _) = h[..bins * 3].as_chunks::<3>();
+    let m = (DENSE_SLOTS - 1) * 3;
+    let missing = [h[m], h[m + 1], h[m + 2]];
+    for v in std::iter::once(&mut points.rows)
+        .chain(&mut points.a)
+        .chain(&mut points.b)
+        .chain(std::iter::once(&mut points.gain))
+    {
+        v.resize(bins, 0.0);
+    }
+    let Points { rows, a, b, gain } = points;
+    let (mut sa, mut sb) = (missing, [0.0; 3]);
+    let [a0, a1, ac] = a;
+    let [b0, b1, bc] = b;
+    let outs = rows
+        .iter_mut()
+        .zip(a0.iter_mut().zip(a1.iter_mut()).zip(ac.iter_mut()));
+    let outs = outs.zip(b0.iter_mut().zip(b1.iter_mut()).zip(bc.iter_mut()));
+    for (at, ((n, ((a0, a1), ac)), ((b0, b1), bc))) in present.iter().zip(outs) {
+        let x = if at[2] > 0.0 { *at } else { [0.0; 3] };
+        *n = at[2];
+        for k in 0..3 {
+            sa[k] += x[k];
+            sb[k] += x[k];
+        }
+        (*a0, *a1, *ac) = (sa[0], sa[1], sa[2]);
+        (*b0, *b1, *bc) = (sb[0], sb[1], sb[2]);
+    }
+    // The node's totals as this predictor sums them.
+    let t = sa;
     let sides: &[bool] = if missing[2] > 0.0 {
         &[true, false]
     } else {
@@ -888,38 +991,63 @@ fn scan_dense_numbers(
     // The best split of this predictor so far: gain, last bin on the left, missing side.
     let mut found: Option<(f64, usize, bool)> = None;
     for &missing_left in sides {
-        let (mut l0, mut l1, mut lc) = match missing_left {
-            true => (missing[0], missing[1], missing[2]),
-            false => (0.0, 0.0, 0.0),
-        };
-        for (b, at) in h[..bins * 3].chunks_exact(3).enumerate() {
-            if at[2] <= 0.0 {
-                continue;
-            }
-            l0 += at[0];
-            l1 += at[1];
-            lc += at[2];
-            if lc < min_leaf {
-                continue;
-            }
-            if tc - lc < min_leaf {
-                break;
-            }
-            let (l, r) = ([l0, l1], [t0 - l0, t1 - l1]);
-            if criterion.weight(&l) < settings.min_weight_leaf
-                || criterion.weight(&r) < settings.min_weight_leaf
-            {
-                continue;
-            }
-            let gain = parent_cost - criterion.cost(&l) - criterion.cost(&r);
-            let beats = match (found, best.as_ref()) {
-                (Some((g, _, _)), _) => gain > g,
-                (None, Some(bb)) => gain > bb.gain,
-                (None, None) => true,
+        let [l0, l1, lc] = if missing_left { &*a } else { &*b };
+        // Not a split point, or too light a side: no gain (−∞, which no real gain equals:
+        // costs are finite). `&` rather than `&&`, and selects, keep the loop free of branches.
+        let lanes = gain.iter_mut().zip(rows.iter()).zip(l0).zip(l1).zip(lc);
+        if let Criterion::Gradient { l2 } = criterion {
+            // [`Criterion::cost`] and [`Criterion::weight`] written out for gradients.
+            let cost = |g: f64, h: f64| {
+                let d = h + l2;
+                let c = -(g * g) / d;
+                if d <= 0.0 {
+                    0.0
+                } else {
+                    c
+                }
             };
-            if beats {
-                found = Some((gain, b, missing_left));
+            for ((((out, &n), &s0), &s1), &sc) in lanes {
+                let (r0, r1) = (t[0] - s0, t[1] - s1);
+                let v = parent_cost - cost(s0, s1) - cost(r0, r1);
+                let ok = (n > 0.0)
+                    & !(sc < min_leaf)
+                    & !(t[2] - sc < min_leaf)
+                    & !(s1 < min_weight)
+                    & !(r1 < min_weight);
+                *out = if ok { v } else { f64::NEG_INFINITY };
             }
+        } else {
+            for ((((out, &n), &s0), &s1), &sc) in lanes {
+                let (l, r) = ([s0, s1], [t[0] - s0, t[1] - s1]);
+                let ok = (n > 0.0)
+                    & !(sc < min_leaf)
+                    & !(t[2] - sc < min_leaf)
+                    & !(criterion.weight(&l) < min_weight)
+                    & !(criterion.weight(&r) < min_weight);
+                *out = if ok {
+                    parent_cost - criterion.cost(&l) - criterion.cost(&r)
+                } else {
+                    f64::NEG_INFINITY
+                };
+            }
+        }
+        // The first of the largest gains of this side, then against the best so far.
+        let (mut at, mut g) = (0, f64::NEG_INFINITY);
+        for (i, &v) in gain.iter().enumerate() {
+            if v > g {
+                (at, g) = (i, v);
+            }
+        }
+        if g == f64::NEG_INFINITY {
+            continue;
+        }
+        let beats = match (found, best.as_ref()) {
+            (Some((f, _, _)), _) => g > f,
+            (None, Some(bb)) => g > bb.gain,
+            (None, None) => true,
+        };
+        if beats {
+            found = Some((g, at, missing_left));
         }
     }
     if let Some((gain, b, missing_left)) = found {
