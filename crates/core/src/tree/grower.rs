@@ -617,18 +617,23 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 b.index() < 256 && split.categories.contains(b.index() as u8)
             }
         };
-        self.scratch.clear();
-        let mut k = c.start;
-        for i in c.start..c.end {
-            let r = self.work[i];
-            if goes_left(column[r as usize]) {
-                self.work[k] = r;
-                k += 1;
-            } else {
-                self.scratch.push(r);
-            }
+        let len = c.end - c.start;
+        if self.scratch.len() < len {
+            self.scratch.resize(len, 0);
         }
-        self.work[k..c.end].copy_from_slice(&self.scratch);
+        let (work, scratch) = (&mut self.work[c.start..c.end], &mut self.scratch[..len]);
+        let left = if B::MISSING.index() < 256 {
+            // Small cells look their side up in a table of all 256 values.
+            let mut table = [false; 256];
+            for (v, t) in table.iter_mut().enumerate() {
+                *t = goes_left(B::from_bin((v != B::MISSING.index()).then_some(v)));
+            }
+            partition(work, scratch, column, |b| table[b.index() & 255])
+        } else {
+            partition(work, scratch, column, goes_left)
+        };
+        work[left..].copy_from_slice(&scratch[..len - left]);
+        let k = c.start + left;
         let node = &mut self.tree.nodes[c.id];
         node.feature = split.feature as u32;
         node.numeric = split.numeric;
@@ -666,6 +671,29 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         }
         k
     }
+}
+
+/// Puts the rows of `work` whose cell goes left first and the others after, both in their
+/// order, and returns how many go left. Every row is written to both `work` and `scratch`
+/// and only one cursor advances, so the loop has no branch on the side (rows go either way
+/// at random). The right rows are left at the start of `scratch`.
+fn partition<B: Bin>(
+    work: &mut [u32],
+    scratch: &mut [u32],
+    column: &[B],
+    goes_left: impl Fn(B) -> bool,
+) -> usize {
+    let (mut k, mut j) = (0, 0);
+    for i in 0..work.len() {
+        let r = work[i];
+        let left = goes_left(column[r as usize]);
+        // `k <= i`: the row read is never one already written.
+        work[k] = r;
+        scratch[j] = r;
+        k += left as usize;
+        j += !left as usize;
+    }
+    k
 }
 
 /// One predictor's dense histogram as its 256 slots of `(s0, s1, rows)`.
@@ -965,24 +993,37 @@ fn scan_dense_numbers(
     }
     let Points { rows, a, b, gain } = points;
     let (mut sa, mut sb) = (missing, [0.0; 3]);
-    let [a0, a1, ac] = a;
     let [b0, b1, bc] = b;
     let outs = rows
         .iter_mut()
-        .zip(a0.iter_mut().zip(a1.iter_mut()).zip(ac.iter_mut()));
-    let outs = outs.zip(b0.iter_mut().zip(b1.iter_mut()).zip(bc.iter_mut()));
-    for (at, ((n, ((a0, a1), ac)), ((b0, b1), bc))) in present.iter().zip(outs) {
-        let x = if at[2] > 0.0 { *at } else { [0.0; 3] };
-        *n = at[2];
-        for k in 0..3 {
-            sa[k] += x[k];
-            sb[k] += x[k];
+        .zip(b0.iter_mut().zip(b1.iter_mut()).zip(bc.iter_mut()));
+    // The node's totals as this predictor sums them: the missing slot, then the bins.
+    let t = if missing == [0.0; 3] {
+        // Nothing in the missing slot: one running sum serves as both.
+        for (at, (n, ((b0, b1), bc))) in present.iter().zip(outs) {
+            let x = if at[2] > 0.0 { *at } else { [0.0; 3] };
+            *n = at[2];
+            for k in 0..3 {
+                sb[k] += x[k];
+            }
+            (*b0, *b1, *bc) = (sb[0], sb[1], sb[2]);
         }
-        (*a0, *a1, *ac) = (sa[0], sa[1], sa[2]);
-        (*b0, *b1, *bc) = (sb[0], sb[1], sb[2]);
-    }
-    // The node's totals as this predictor sums them.
-    let t = sa;
+        sb
+    } else {
+        let [a0, a1, ac] = a;
+        let outs = outs.zip(a0.iter_mut().zip(a1.iter_mut()).zip(ac.iter_mut()));
+        for (at, ((n, ((b0, b1), bc)), ((a0, a1), ac))) in present.iter().zip(outs) {
+            let x = if at[2] > 0.0 { *at } else { [0.0; 3] };
+            *n = at[2];
+            for k in 0..3 {
+                sa[k] += x[k];
+                sb[k] += x[k];
+            }
+            (*a0, *a1, *ac) = (sa[0], sa[1], sa[2]);
+            (*b0, *b1, *bc) = (sb[0], sb[1], sb[2]);
+        }
+        sa
+    };
     let sides: &[bool] = if missing[2] > 0.0 {
         &[true, false]
     } else {
