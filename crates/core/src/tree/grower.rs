@@ -992,37 +992,13 @@ fn scan_dense_numbers(
         v.resize(bins, 0.0);
     }
     let Points { rows, a, b, gain } = points;
-    let (mut sa, mut sb) = (missing, [0.0; 3]);
-    let [b0, b1, bc] = b;
-    let outs = rows
-        .iter_mut()
-        .zip(b0.iter_mut().zip(b1.iter_mut()).zip(bc.iter_mut()));
     // The node's totals as this predictor sums them: the missing slot, then the bins.
     let t = if missing == [0.0; 3] {
         // Nothing in the missing slot: one running sum serves as both.
-        for (at, (n, ((b0, b1), bc))) in present.iter().zip(outs) {
-            let x = if at[2] > 0.0 { *at } else { [0.0; 3] };
-            *n = at[2];
-            for k in 0..3 {
-                sb[k] += x[k];
-            }
-            (*b0, *b1, *bc) = (sb[0], sb[1], sb[2]);
-        }
-        sb
+        running_sums(present, [0.0; 3], rows, b)
     } else {
-        let [a0, a1, ac] = a;
-        let outs = outs.zip(a0.iter_mut().zip(a1.iter_mut()).zip(ac.iter_mut()));
-        for (at, ((n, ((b0, b1), bc)), ((a0, a1), ac))) in present.iter().zip(outs) {
-            let x = if at[2] > 0.0 { *at } else { [0.0; 3] };
-            *n = at[2];
-            for k in 0..3 {
-                sa[k] += x[k];
-                sb[k] += x[k];
-            }
-            (*a0, *a1, *ac) = (sa[0], sa[1], sa[2]);
-            (*b0, *b1, *bc) = (sb[0], sb[1], sb[2]);
-        }
-        sa
+        running_sums(present, [0.0; 3], rows, b);
+        running_sums(present, missing, rows, a)
     };
     let sides: &[bool] = if missing[2] > 0.0 {
         &[true, false]
@@ -1104,6 +1080,34 @@ fn scan_dense_numbers(
             values: (0.0, 0.0),
         });
     }
+}
+
+/// The running sums of `present`'s slots `(s0, s1, rows)` from `start`, bins with no rows
+/// adding nothing, into `sums` (three flat arrays), and each bin's rows into `rows`. Returns
+/// the last sums. Scalar accumulators, and a function of its own so that they stay in
+/// registers (inlined, the row count was kept on the stack: profiled).
+#[inline(never)]
+fn running_sums(
+    present: &[[f64; 3]],
+    start: [f64; 3],
+    rows: &mut [f64],
+    sums: &mut [Vec<f64>; 3],
+) -> [f64; 3] {
+    let [mut s0, mut s1, mut sc] = start;
+    let [o0, o1, oc] = sums;
+    let outs = rows
+        .iter_mut()
+        .zip(o0.iter_mut().zip(o1.iter_mut()).zip(oc.iter_mut()));
+    for (at, (n, ((o0, o1), oc))) in present.iter().zip(outs) {
+        let c = at[2];
+        let present = c > 0.0;
+        s0 += if present { at[0] } else { 0.0 };
+        s1 += if present { at[1] } else { 0.0 };
+        sc += if present { c } else { 0.0 };
+        *n = c;
+        (*o0, *o1, *oc) = (s0, s1, sc);
+    }
+    [s0, s1, sc]
 }
 
 /// The split after the `i`-th bin of `order`.
