@@ -203,8 +203,11 @@ struct Grower<'a, 'c, B: Bin> {
     /// `width + 1` numbers, one per cell value, so slot 255 holds missing values); `None` in
     /// exact mode, where bins are too many to keep densely.
     dense_offsets: Option<Vec<usize>>,
-    /// The node's `(g, h)` pairs in the order of its rows, gathered once for its histograms.
-    ordered: Vec<[f64; 2]>,
+    /// With two statistics per row: each row's pair beside it, `pairs[i]` the statistics of
+    /// row `work[i]`, partitioned with the rows, so a node reads its statistics in order
+    /// instead of scattered over the whole data (empty otherwise).
+    pairs: Vec<[f64; 2]>,
+    pairs_scratch: Vec<[f64; 2]>,
     /// The split points of one dense scan.
     points: Points,
     /// Dense histogram buffers free for reuse.
@@ -252,7 +255,14 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .map(|j| j * DENSE_SLOTS * (width + 1))
                     .collect()
             }),
-            ordered: Vec::new(),
+            pairs: match width {
+                2 => rows
+                    .iter()
+                    .map(|&r| [stats[2 * r as usize], stats[2 * r as usize + 1]])
+                    .collect(),
+                _ => Vec::new(),
+            },
+            pairs_scratch: Vec::new(),
             points: Points::default(),
             pool: Vec::new(),
             spans: Vec::new(),
@@ -370,19 +380,35 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         self.spans[id] = (start, end);
         self.totals.iter_mut().for_each(|t| *t = 0.0);
         let (mut y_min, mut y_max) = (f64::INFINITY, f64::NEG_INFINITY);
-        for &r in &self.work[start..end] {
-            let s = &stats[r as usize * width..(r as usize + 1) * width];
-            for (t, v) in self.totals.iter_mut().zip(s) {
-                *t += v;
+        // The value a row alone would give a node (mean, or Newton step direction).
+        let alone = |s: &[f64]| match criterion {
+            Criterion::SquaredError if s[0] > 0.0 => Some(s[1] / s[0]),
+            Criterion::Gradient { .. } if s[1] > 0.0 => Some(s[0] / s[1]),
+            _ => None,
+        };
+        if width == 2 {
+            // The same sums in the same order, from the pairs kept beside the rows.
+            let [mut t0, mut t1] = [0.0; 2];
+            for s in &self.pairs[start..end] {
+                t0 += s[0];
+                t1 += s[1];
+                if let Some(a) = alone(s) {
+                    y_min = y_min.min(a);
+                    y_max = y_max.max(a);
+                }
             }
-            // The value this row alone would give a node (mean, or Newton step direction).
-            let alone = match criterion {
-                Criterion::SquaredError if s[0] > 0.0 => s[1] / s[0],
-                Criterion::Gradient { .. } if s[1] > 0.0 => s[0] / s[1],
-                _ => continue,
-            };
-            y_min = y_min.min(alone);
-            y_max = y_max.max(alone);
+            self.totals.copy_from_slice(&[t0, t1]);
+        } else {
+            for &r in &self.work[start..end] {
+                let s = &stats[r as usize * width..(r as usize + 1) * width];
+                for (t, v) in self.totals.iter_mut().zip(s) {
+                    *t += v;
+                }
+                if let Some(a) = alone(s) {
+                    y_min = y_min.min(a);
+                    y_max = y_max.max(a);
+                }
+            }
         }
         let weight = criterion.weight(&self.totals);
         self.tree.nodes[id].value = self.tree.values.len() as u32;
@@ -563,15 +589,11 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         let stride = width + 1;
         let n = self.binned.rows;
         if width == 2 {
-            // The common case (two classes, numbers, gradients): the node's pairs gathered
-            // once in row order, then four predictors filled per pass over the rows (their
-            // histograms together fit in the first-level cache). The root of a tree on every
-            // row in order reads the columns straight through.
-            self.ordered.clear();
-            self.ordered.extend(
-                rows.iter()
-                    .map(|&r| [stats[2 * r as usize], stats[2 * r as usize + 1]]),
-            );
+            // The common case (two classes, numbers, gradients): the node's pairs, kept in
+            // row order beside the rows, then four predictors filled per pass over the rows
+            // (their histograms together fit in the first-level cache). The root of a tree
+            // on every row in order reads the columns straight through.
+            let ordered = &self.pairs[start..end];
             let all = rows.len() == n && rows.iter().enumerate().all(|(i, &r)| r as usize == i);
             let rows = (!all).then_some(rows);
             let mut columns = self.cells.chunks_exact(n.max(1));
@@ -580,10 +602,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             for _ in 0..p / 4 {
                 let c = [(); 4].map(|_| columns.next().expect("a column per predictor"));
                 let hs = [(); 4].map(|_| hists.next().expect("a histogram per predictor"));
-                add_pairs(hs, c, rows, &self.ordered);
+                add_pairs(hs, c, rows, ordered);
             }
             for (c, hj) in columns.zip(hists).take(p % 4) {
-                add_pairs([hj], [c], rows, &self.ordered);
+                add_pairs([hj], [c], rows, ordered);
             }
             return h;
         }
@@ -621,18 +643,39 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         if self.scratch.len() < len {
             self.scratch.resize(len, 0);
         }
+        let pairs = !self.pairs.is_empty();
+        if pairs && self.pairs_scratch.len() < len {
+            self.pairs_scratch.resize(len, [0.0; 2]);
+        }
         let (work, scratch) = (&mut self.work[c.start..c.end], &mut self.scratch[..len]);
+        let (pw, ps) = match pairs {
+            true => (
+                &mut self.pairs[c.start..c.end],
+                &mut self.pairs_scratch[..len],
+            ),
+            false => (&mut [][..], &mut [][..]),
+        };
         let left = if B::MISSING.index() < 256 {
             // Small cells look their side up in a table of all 256 values.
             let mut table = [false; 256];
             for (v, t) in table.iter_mut().enumerate() {
                 *t = goes_left(B::from_bin((v != B::MISSING.index()).then_some(v)));
             }
-            partition(work, scratch, column, |b| table[b.index() & 255])
+            let side = |b: B| table[b.index() & 255];
+            match pairs {
+                true => partition::<B, true>(work, scratch, pw, ps, column, side),
+                false => partition::<B, false>(work, scratch, pw, ps, column, side),
+            }
         } else {
-            partition(work, scratch, column, goes_left)
+            match pairs {
+                true => partition::<B, true>(work, scratch, pw, ps, column, goes_left),
+                false => partition::<B, false>(work, scratch, pw, ps, column, goes_left),
+            }
         };
         work[left..].copy_from_slice(&scratch[..len - left]);
+        if pairs {
+            pw[left..].copy_from_slice(&ps[..len - left]);
+        }
         let k = c.start + left;
         let node = &mut self.tree.nodes[c.id];
         node.feature = split.feature as u32;
@@ -674,12 +717,15 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
 }
 
 /// Puts the rows of `work` whose cell goes left first and the others after, both in their
-/// order, and returns how many go left. Every row is written to both `work` and `scratch`
-/// and only one cursor advances, so the loop has no branch on the side (rows go either way
-/// at random). The right rows are left at the start of `scratch`.
-fn partition<B: Bin>(
+/// order, and returns how many go left; with `PAIRS`, `pairs` (one per row) moves alike.
+/// Every row is written to both `work` and `scratch` and only one cursor advances, so the
+/// loop has no branch on the side (rows go either way at random). The right rows (and
+/// pairs) are left at the start of `scratch` (`pairs_scratch`).
+fn partition<B: Bin, const PAIRS: bool>(
     work: &mut [u32],
     scratch: &mut [u32],
+    pairs: &mut [[f64; 2]],
+    pairs_scratch: &mut [[f64; 2]],
     column: &[B],
     goes_left: impl Fn(B) -> bool,
 ) -> usize {
@@ -690,6 +736,11 @@ fn partition<B: Bin>(
         // `k <= i`: the row read is never one already written.
         work[k] = r;
         scratch[j] = r;
+        if PAIRS {
+            let p = pairs[i];
+            pairs[k] = p;
+            pairs_scratch[j] = p;
+        }
         k += left as usize;
         j += !left as usize;
     }
