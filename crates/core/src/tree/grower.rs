@@ -1018,8 +1018,9 @@ struct Points {
 /// Row counts are whole numbers, so the running count only rises, and the points [`scan`]
 /// visits before it stops (the right side too small) are exactly those with enough rows on
 /// both sides. The same additions and divisions as [`scan`] (adding zero changes no sum) and
-/// the same tie rule, so the same split.
-#[allow(clippy::too_many_arguments)]
+/// the same tie rule, so the same split ("not below" written `!(x < least)`, as the plain
+/// loop skips a point only when a sum is below its least).
+#[allow(clippy::too_many_arguments, clippy::neg_cmp_op_on_partial_ord)]
 fn scan_dense_numbers(
     h: &[f64],
     bins: usize,
