@@ -9,9 +9,11 @@ data: ROWS x 28 numbers, a binary outcome from a known non-linear rule with labe
 - boosting: gradient boosting, logistic loss, 255 bins, 31 leaves best-first and then depth 6
   (no other leaf limit), 200 rounds, learning rate 0.1, L2 1, at least 20 rows per leaf,
   least hessian 0.001: Spinney against LightGBM, XGBoost (hist) and scikit-learn's
-  HistGradientBoostingClassifier, each peer in a process of its own; time per round, total
-  time, test AUC, memory (peak growth beyond holding the data: Spinney's peak minus reading
-  the file, a peer's peak after fit() minus before) and the time ratio to the fastest peer.
+  HistGradientBoostingClassifier, each peer in a process of its own, at one thread and at
+  all cores (Spinney's boosting runs on one thread either way); time per round, total time,
+  test AUC, memory (peak growth beyond holding the data: Spinney's peak minus reading the
+  file, a peer's peak after fit() minus before) and the time ratio to the fastest peer at
+  the same thread count. Issue 4's size: `scripts/bench boosting 500000`.
 Spinney's time is its own fit time (binning included, reading the CSV excluded), as printed
 by `spinney fit --json`; the peers' is their fit() call on arrays (their binning included);
 peak memory from /usr/bin/time.
@@ -136,10 +138,10 @@ PEER = r"""
 import json, resource, sys, time
 import numpy as np
 from sklearn.metrics import roc_auc_score
-name, folder, shape, rounds = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4])
+name, folder, shape, rounds, threads = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4]), int(sys.argv[5])
 Xtr, ytr, Xte, yte = (np.load("%s/%s.npy" % (folder, k)) for k in ("Xtr", "ytr", "Xte", "yte"))
 leaves, depth = (31, None) if shape == "leaves" else (64, 6)
-common = dict(learning_rate=0.1, n_jobs=1)
+common = dict(learning_rate=0.1, n_jobs=threads)
 if name == "lightgbm":
     import lightgbm as lib
     model = lib.LGBMClassifier(n_estimators=rounds, num_leaves=leaves, max_depth=depth or -1, reg_lambda=1.0,
@@ -171,26 +173,31 @@ def boosting(train, test, Xtr, Xte, tmp):
     for k, v in (("Xtr", Xtr), ("ytr", y[:cut]), ("Xte", Xte), ("yte", y[cut:])):
         np.save(os.path.join(tmp, k + ".npy"), v)
     reading = peak_of_reading(train)
-    for shape, words, ours_shape in [("leaves", "31 leaves (best-first)", ["leaves=31"]),
-                                     ("depth", "depth 6 (no other leaf limit)", ["depth=6", "leaves=64"])]:
-        j = spinney(train, test, "boosting", ["loss=logistic", "leaf_size=20", "min_hessian=0.001", "l2=1",
-                                              "rounds=%d" % ROUNDS, "learning_rate=0.1", "bins=255"] + ours_shape,
-                    ["--predictions"])
-        rows_ = [("Spinney", j["fit_seconds"], roc_auc_score(y[cut:], np.array(j["predictions"])[:, 1]),
-                  (j["peak_kb"] - reading) / 1024)]
-        for name, label in (("lightgbm", "LightGBM"), ("xgboost", "XGBoost (hist)"),
-                            ("sklearn", "scikit-learn HistGradientBoosting")):
-            out = subprocess.run([sys.executable, "-c", PEER, name, tmp, shape, str(ROUNDS)], capture_output=True,
-                                 text=True, check=True, env=dict(os.environ, OMP_NUM_THREADS="1"))
-            r = json.loads(out.stdout.strip().splitlines()[-1])
-            rows_.append(("%s %s" % (label, r["version"]), r["seconds"], r["auc"],
-                          (r["after_kb"] - r["before_kb"]) / 1024))
-        fastest = min(t for _, t, _, _ in rows_[1:])
-        print("gradient boosting, logistic, %s, 255 bins, %d rounds, learning rate 0.1, 1 thread "
-              "(memory: peak growth beyond holding the data):" % (words, ROUNDS))
-        for name, t, auc, mb in rows_:
-            print("  %-40s %8.1f ms/round %8.2f s total  test AUC %.4f  memory %6.0f MB  time / fastest peer %.2f" % (
-                name, 1000 * t / ROUNDS, t, auc, mb, t / fastest))
+    cores = os.cpu_count() or 1
+    for threads in [1, cores] if cores > 1 else [1]:
+        for shape, words, ours_shape in [("leaves", "31 leaves (best-first)", ["leaves=31"]),
+                                         ("depth", "depth 6 (no other leaf limit)", ["depth=6", "leaves=64"])]:
+            j = spinney(train, test, "boosting", ["loss=logistic", "leaf_size=20", "min_hessian=0.001", "l2=1",
+                                                  "rounds=%d" % ROUNDS, "learning_rate=0.1", "bins=255"] + ours_shape,
+                        ["--predictions"], threads=threads)
+            rows_ = [("Spinney", j["fit_seconds"], roc_auc_score(y[cut:], np.array(j["predictions"])[:, 1]),
+                      (j["peak_kb"] - reading) / 1024)]
+            for name, label in (("lightgbm", "LightGBM"), ("xgboost", "XGBoost (hist)"),
+                                ("sklearn", "scikit-learn HistGradientBoosting")):
+                out = subprocess.run([sys.executable, "-c", PEER, name, tmp, shape, str(ROUNDS), str(threads)],
+                                     capture_output=True, text=True, check=True,
+                                     env=dict(os.environ, OMP_NUM_THREADS=str(threads)))
+                r = json.loads(out.stdout.strip().splitlines()[-1])
+                rows_.append(("%s %s" % (label, r["version"]), r["seconds"], r["auc"],
+                              (r["after_kb"] - r["before_kb"]) / 1024))
+            fastest = min(t for _, t, _, _ in rows_[1:])
+            print("gradient boosting, logistic, %s, 255 bins, %d rounds, learning rate 0.1, %d thread(s)%s "
+                  "(memory: peak growth beyond holding the data; load %s):" % (
+                      words, ROUNDS, threads, " (Spinney: one)" if threads > 1 else "",
+                      " ".join(open("/proc/loadavg").read().split()[:3]) if os.path.exists("/proc/loadavg") else "?"))
+            for name, t, auc, mb in rows_:
+                print("  %-40s %8.1f ms/round %8.2f s total  test AUC %.4f  memory %6.0f MB  time / fastest peer %.2f" % (
+                    name, 1000 * t / ROUNDS, t, auc, mb, t / fastest), flush=True)
 
 
 print("scikit-learn %s; %d rows x 28, %d to fit, %d to score; %d cores" % (sklearn.__version__, rows, cut, rows - cut, os.cpu_count() or 1))

@@ -21,7 +21,7 @@ use crate::error::{Error, ErrorKind, Result};
 use crate::progress::{Flow, Progress};
 use crate::random::{below, stream, Purpose};
 use crate::tree::criterion::Criterion;
-use crate::tree::grower::{grow_with, Constraints, GrowSettings};
+use crate::tree::grower::{grow_rows, Constraints, GrowSettings, Grown};
 use crate::tree::{Rows, Tree};
 
 /// Settings of gradient boosting. `grow.criterion` is set to [`Criterion::Gradient`] with
@@ -392,7 +392,7 @@ pub fn fit_boosting(
         ((settings.predictor_fraction * p as f64).round() as usize).clamp(1, p.max(1));
     let mut stats = vec![0.0; 2 * n * m];
     let mut sample = fit_rows.clone();
-    let mut residuals: Vec<Vec<(f64, f64)>> = Vec::new();
+    let mut in_sample = vec![false; if take < n { n } else { 0 }];
     // The lowest validation loss so far and its round (0: the starting constant).
     let mut best = (
         model.validation_loss.first().copied().unwrap_or(0.0),
@@ -432,7 +432,11 @@ pub fn fit_boosting(
                 }
             }
             let mut choose = |c: &mut Vec<usize>| c.retain(|&j| chosen[j]);
-            let mut tree = grow_with(
+            let Grown {
+                mut tree,
+                rows: placed,
+                spans,
+            } = grow_rows(
                 binned,
                 &stats[2 * n * k..2 * n * (k + 1)],
                 2,
@@ -441,18 +445,22 @@ pub fn fit_boosting(
                 Some(&mut choose),
                 constraints,
             );
+            // The leaves of the tree and the round's rows in each (the grower's partition).
+            let leaves: Vec<(usize, &[u32])> = (0..tree.nodes.len())
+                .filter(|&i| tree.nodes[i].is_leaf())
+                .map(|i| (i, &placed[spans[i].0..spans[i].1]))
+                .collect();
             if matches!(loss, Loss::AbsoluteError | Loss::Huber { .. }) {
                 // Median-type leaf values from the residuals of the round's rows per leaf.
-                residuals.resize(tree.nodes.len(), Vec::new());
-                residuals.iter_mut().for_each(Vec::clear);
-                for &r in &sample {
-                    let r = r as usize;
-                    let w = weights.map_or(1.0, |w| w[r]);
-                    residuals[tree.leaf(Rows::Binned(binned), r)].push((y[r] - scores[r], w));
-                }
-                for (i, res) in residuals.iter_mut().enumerate() {
+                let mut res = Vec::new();
+                for &(i, rows) in &leaves {
+                    res.clear();
+                    res.extend(rows.iter().map(|&r| {
+                        let r = r as usize;
+                        (y[r] - scores[r], weights.map_or(1.0, |w| w[r]))
+                    }));
                     if !res.is_empty() {
-                        if let Some(v) = loss.leaf_value(res, delta) {
+                        if let Some(v) = loss.leaf_value(&mut res, delta) {
                             tree.values[tree.nodes[i].value as usize] = v;
                         }
                     }
@@ -461,9 +469,24 @@ pub fn fit_boosting(
             tree.values
                 .iter_mut()
                 .for_each(|v| *v *= settings.learning_rate);
+            // Scores: the round's rows from their leaves, the others down the tree.
+            for &(i, rows) in &leaves {
+                let v = tree.values[tree.nodes[i].value as usize];
+                for &r in rows {
+                    scores[r as usize * m + k] += v;
+                }
+            }
+            if sample.len() < n {
+                in_sample.iter_mut().for_each(|s| *s = false);
+                for &r in &sample {
+                    in_sample[r as usize] = true;
+                }
+                for r in (0..n).filter(|&r| !in_sample[r]) {
+                    scores[r * m + k] += tree.predict(Rows::Binned(binned), r)[0];
+                }
+            }
             model.trees.push(tree);
         }
-        model.add_round(Rows::Binned(binned), round, &mut scores);
         model.training_loss.push(value(&scores, &fit_rows, delta));
         if !held.is_empty() {
             let v = value(&scores, &held, delta);

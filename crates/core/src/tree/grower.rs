@@ -105,6 +105,9 @@ struct Candidate {
 /// the bins its rows touch. (Common practice, no source, for the value.)
 const DENSE_MIN_ROWS: usize = 1024;
 
+/// Slots per predictor in a dense histogram: one per u8 cell value, missing (255) included.
+const DENSE_SLOTS: usize = 256;
+
 /// No bounds on a node's value.
 const FREE: (f64, f64) = (f64::NEG_INFINITY, f64::INFINITY);
 
@@ -138,6 +141,28 @@ pub fn grow_with<'a>(
     choose: Option<PredictorChooser<'_>>,
     constraints: Constraints<'a>,
 ) -> Tree {
+    grow_rows(binned, stats, width, rows, settings, choose, constraints).tree
+}
+
+/// A grown tree and where its rows went: `rows` (the rows grown on, reordered) holds node
+/// `i`'s rows at `rows[spans[i].0..spans[i].1]`, in their given order, so a caller can update
+/// the rows of each leaf without walking them down the tree.
+pub struct Grown {
+    pub tree: Tree,
+    pub rows: Vec<u32>,
+    pub spans: Vec<(usize, usize)>,
+}
+
+/// [`grow_with`], also handing back which rows ended in which node.
+pub fn grow_rows<'a>(
+    binned: &'a BinnedMatrix,
+    stats: &'a [f64],
+    width: usize,
+    rows: &[u32],
+    settings: &'a GrowSettings,
+    choose: Option<PredictorChooser<'_>>,
+    constraints: Constraints<'a>,
+) -> Grown {
     let monotone = constraints.monotone;
     match &binned.cells {
         Cells::Narrow(cells) => Grower::new(
@@ -174,12 +199,21 @@ struct Grower<'a, 'c, B: Bin> {
     sums: ScanSums,
     totals: Vec<f64>,
     candidates: Vec<usize>,
-    /// Dense histograms: predictor `j`'s bins start at `dense_offsets[j]` (`bins + 1` slots
-    /// of `width + 1` numbers, the last slot for missing values); `None` in exact mode, where
-    /// bins are too many to keep densely.
+    /// Dense histograms: predictor `j`'s bins start at `dense_offsets[j]` (256 slots of
+    /// `width + 1` numbers, one per cell value, so slot 255 holds missing values); `None` in
+    /// exact mode, where bins are too many to keep densely.
     dense_offsets: Option<Vec<usize>>,
+    /// With two statistics per row: each row's pair beside it, `pairs[i]` the statistics of
+    /// row `work[i]`, partitioned with the rows, so a node reads its statistics in order
+    /// instead of scattered over the whole data (empty otherwise).
+    pairs: Vec<[f64; 2]>,
+    pairs_scratch: Vec<[f64; 2]>,
+    /// The split points of one dense scan.
+    points: Points,
     /// Dense histogram buffers free for reuse.
     pool: Vec<Vec<f64>>,
+    /// Each node's rows, `work[start..end]`, by node id.
+    spans: Vec<(usize, usize)>,
 }
 
 impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
@@ -216,14 +250,22 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             sums: ScanSums::new(width),
             totals: vec![0.0; width],
             candidates: Vec::new(),
-            dense_offsets: (B::MISSING.index() < 256).then(|| {
-                let mut offsets = vec![0];
-                for c in &binned.columns {
-                    offsets.push(offsets[offsets.len() - 1] + (c.bins + 1) * (width + 1));
-                }
-                offsets
+            dense_offsets: (B::MISSING.index() < DENSE_SLOTS).then(|| {
+                (0..=binned.columns.len())
+                    .map(|j| j * DENSE_SLOTS * (width + 1))
+                    .collect()
             }),
+            pairs: match width {
+                2 => rows
+                    .iter()
+                    .map(|&r| [stats[2 * r as usize], stats[2 * r as usize + 1]])
+                    .collect(),
+                _ => Vec::new(),
+            },
+            pairs_scratch: Vec::new(),
+            points: Points::default(),
             pool: Vec::new(),
+            spans: Vec::new(),
         }
     }
 
@@ -232,7 +274,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         &self.cells[j * n..(j + 1) * n]
     }
 
-    fn run(mut self) -> Tree {
+    fn run(mut self) -> Grown {
         let mut frontier: Vec<Candidate> = Vec::new();
         let n = self.work.len();
         if let Some(c) = self.evaluate(0, 0, n, 0, FREE, None) {
@@ -310,7 +352,11 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             frontier.extend(r);
             frontier.extend(l);
         }
-        self.tree
+        Grown {
+            tree: self.tree,
+            rows: self.work,
+            spans: self.spans,
+        }
     }
 
     /// Fills node `id`'s values from its rows `work[start..end]` and finds its best split
@@ -328,21 +374,41 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         let criterion = settings.criterion;
         let width = self.width;
         let stats = self.stats;
+        if self.spans.len() <= id {
+            self.spans.resize(id + 1, (0, 0));
+        }
+        self.spans[id] = (start, end);
         self.totals.iter_mut().for_each(|t| *t = 0.0);
         let (mut y_min, mut y_max) = (f64::INFINITY, f64::NEG_INFINITY);
-        for &r in &self.work[start..end] {
-            let s = &stats[r as usize * width..(r as usize + 1) * width];
-            for (t, v) in self.totals.iter_mut().zip(s) {
-                *t += v;
+        // The value a row alone would give a node (mean, or Newton step direction).
+        let alone = |s: &[f64]| match criterion {
+            Criterion::SquaredError if s[0] > 0.0 => Some(s[1] / s[0]),
+            Criterion::Gradient { .. } if s[1] > 0.0 => Some(s[0] / s[1]),
+            _ => None,
+        };
+        if width == 2 {
+            // The same sums in the same order, from the pairs kept beside the rows.
+            let [mut t0, mut t1] = [0.0; 2];
+            for s in &self.pairs[start..end] {
+                t0 += s[0];
+                t1 += s[1];
+                if let Some(a) = alone(s) {
+                    y_min = y_min.min(a);
+                    y_max = y_max.max(a);
+                }
             }
-            // The value this row alone would give a node (mean, or Newton step direction).
-            let alone = match criterion {
-                Criterion::SquaredError if s[0] > 0.0 => s[1] / s[0],
-                Criterion::Gradient { .. } if s[1] > 0.0 => s[0] / s[1],
-                _ => continue,
-            };
-            y_min = y_min.min(alone);
-            y_max = y_max.max(alone);
+            self.totals.copy_from_slice(&[t0, t1]);
+        } else {
+            for &r in &self.work[start..end] {
+                let s = &stats[r as usize * width..(r as usize + 1) * width];
+                for (t, v) in self.totals.iter_mut().zip(s) {
+                    *t += v;
+                }
+                if let Some(a) = alone(s) {
+                    y_min = y_min.min(a);
+                    y_max = y_max.max(a);
+                }
+            }
         }
         let weight = criterion.weight(&self.totals);
         self.tree.nodes[id].value = self.tree.values.len() as u32;
@@ -406,6 +472,18 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             };
             if let (Some(h), Some(offsets)) = (&dense, &self.dense_offsets) {
                 let h = &h[offsets[j]..offsets[j + 1]];
+                if numeric && width == 2 && !bounded && limits.monotone == 0 {
+                    scan_dense_numbers(
+                        h,
+                        bins,
+                        j,
+                        parent_cost,
+                        settings,
+                        &mut self.points,
+                        &mut best,
+                    );
+                    continue;
+                }
                 self.order.clear();
                 self.order.extend(
                     (0..bins)
@@ -418,7 +496,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 scan(
                     h,
                     &self.order,
-                    bins,
+                    B::MISSING.index(),
                     &mut self.sums,
                     j,
                     numeric,
@@ -499,7 +577,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
     }
 
     /// Dense histograms of every predictor over the rows `work[start..end]` (a buffer from
-    /// the pool, laid out by `dense_offsets`).
+    /// the pool, laid out by `dense_offsets`). Each bin sums its rows in their order in
+    /// `work`, whichever loop below fills it.
     fn dense_histograms(&mut self, start: usize, end: usize) -> Vec<f64> {
         let offsets = self.dense_offsets.as_ref().expect("dense mode");
         let len = offsets[offsets.len() - 1];
@@ -508,25 +587,33 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         h.resize(len, 0.0);
         let (width, stats, rows) = (self.width, self.stats, &self.work[start..end]);
         let stride = width + 1;
-        for (j, col) in self.binned.columns.iter().enumerate() {
+        let n = self.binned.rows;
+        if width == 2 {
+            // The common case (two classes, numbers, gradients): the node's pairs, kept in
+            // row order beside the rows, then four predictors filled per pass over the rows
+            // (their histograms together fit in the first-level cache). The root of a tree
+            // on every row in order reads the columns straight through.
+            let ordered = &self.pairs[start..end];
+            let all = rows.len() == n && rows.iter().enumerate().all(|(i, &r)| r as usize == i);
+            let rows = (!all).then_some(rows);
+            let mut columns = self.cells.chunks_exact(n.max(1));
+            let mut hists = h.chunks_exact_mut(DENSE_SLOTS * 3).map(slots);
+            let p = self.binned.columns.len();
+            for _ in 0..p / 4 {
+                let c = [(); 4].map(|_| columns.next().expect("a column per predictor"));
+                let hs = [(); 4].map(|_| hists.next().expect("a histogram per predictor"));
+                add_pairs(hs, c, rows, ordered);
+            }
+            for (c, hj) in columns.zip(hists).take(p % 4) {
+                add_pairs([hj], [c], rows, ordered);
+            }
+            return h;
+        }
+        for j in 0..self.binned.columns.len() {
             let column = self.column(j);
             let hj = &mut h[offsets[j]..offsets[j + 1]];
-            // Missing values (the largest cell value) land in the last slot, `bins`.
-            let missing_slot = col.bins;
-            if width == 2 {
-                // The common case (two classes, numbers, gradients), without inner loops.
-                for &r in rows {
-                    let slot = column[r as usize].index().min(missing_slot);
-                    let (s0, s1) = (stats[2 * r as usize], stats[2 * r as usize + 1]);
-                    let at = &mut hj[slot * 3..slot * 3 + 3];
-                    at[0] += s0;
-                    at[1] += s1;
-                    at[2] += 1.0;
-                }
-                continue;
-            }
             for &r in rows {
-                let slot = column[r as usize].index().min(missing_slot);
+                let slot = column[r as usize].index();
                 let s = &stats[r as usize * width..(r as usize + 1) * width];
                 let at = &mut hj[slot * stride..(slot + 1) * stride];
                 for (a, v) in at.iter_mut().zip(s) {
@@ -552,18 +639,44 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 b.index() < 256 && split.categories.contains(b.index() as u8)
             }
         };
-        self.scratch.clear();
-        let mut k = c.start;
-        for i in c.start..c.end {
-            let r = self.work[i];
-            if goes_left(column[r as usize]) {
-                self.work[k] = r;
-                k += 1;
-            } else {
-                self.scratch.push(r);
-            }
+        let len = c.end - c.start;
+        if self.scratch.len() < len {
+            self.scratch.resize(len, 0);
         }
-        self.work[k..c.end].copy_from_slice(&self.scratch);
+        let pairs = !self.pairs.is_empty();
+        if pairs && self.pairs_scratch.len() < len {
+            self.pairs_scratch.resize(len, [0.0; 2]);
+        }
+        let (work, scratch) = (&mut self.work[c.start..c.end], &mut self.scratch[..len]);
+        let (pw, ps) = match pairs {
+            true => (
+                &mut self.pairs[c.start..c.end],
+                &mut self.pairs_scratch[..len],
+            ),
+            false => (&mut [][..], &mut [][..]),
+        };
+        let left = if B::MISSING.index() < 256 {
+            // Small cells look their side up in a table of all 256 values.
+            let mut table = [false; 256];
+            for (v, t) in table.iter_mut().enumerate() {
+                *t = goes_left(B::from_bin((v != B::MISSING.index()).then_some(v)));
+            }
+            let side = |b: B| table[b.index() & 255];
+            match pairs {
+                true => partition::<B, true>(work, scratch, pw, ps, column, side),
+                false => partition::<B, false>(work, scratch, pw, ps, column, side),
+            }
+        } else {
+            match pairs {
+                true => partition::<B, true>(work, scratch, pw, ps, column, goes_left),
+                false => partition::<B, false>(work, scratch, pw, ps, column, goes_left),
+            }
+        };
+        work[left..].copy_from_slice(&scratch[..len - left]);
+        if pairs {
+            pw[left..].copy_from_slice(&ps[..len - left]);
+        }
+        let k = c.start + left;
         let node = &mut self.tree.nodes[c.id];
         node.feature = split.feature as u32;
         node.numeric = split.numeric;
@@ -600,6 +713,73 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             node.threshold_bin = last as u16;
         }
         k
+    }
+}
+
+/// Puts the rows of `work` whose cell goes left first and the others after, both in their
+/// order, and returns how many go left; with `PAIRS`, `pairs` (one per row) moves alike.
+/// Every row is written to both `work` and `scratch` and only one cursor advances, so the
+/// loop has no branch on the side (rows go either way at random). The right rows (and
+/// pairs) are left at the start of `scratch` (`pairs_scratch`).
+fn partition<B: Bin, const PAIRS: bool>(
+    work: &mut [u32],
+    scratch: &mut [u32],
+    pairs: &mut [[f64; 2]],
+    pairs_scratch: &mut [[f64; 2]],
+    column: &[B],
+    goes_left: impl Fn(B) -> bool,
+) -> usize {
+    let (mut k, mut j) = (0, 0);
+    for i in 0..work.len() {
+        let r = work[i];
+        let left = goes_left(column[r as usize]);
+        // `k <= i`: the row read is never one already written.
+        work[k] = r;
+        scratch[j] = r;
+        if PAIRS {
+            let p = pairs[i];
+            pairs[k] = p;
+            pairs_scratch[j] = p;
+        }
+        k += left as usize;
+        j += !left as usize;
+    }
+    k
+}
+
+/// One predictor's dense histogram as its 256 slots of `(s0, s1, rows)`.
+fn slots(h: &mut [f64]) -> &mut [[f64; 3]; DENSE_SLOTS] {
+    let (slots, _) = h.as_chunks_mut::<3>();
+    slots.try_into().expect("256 slots of three")
+}
+
+/// Adds the pairs `ordered[i]` (and a row count) to the slots of `K` predictors' cells of row
+/// `rows[i]` (`None`: row `i`), in row order.
+fn add_pairs<B: Bin, const K: usize>(
+    mut hists: [&mut [[f64; 3]; DENSE_SLOTS]; K],
+    columns: [&[B]; K],
+    rows: Option<&[u32]>,
+    ordered: &[[f64; 2]],
+) {
+    let mut add = |cells: [B; K], [g, h]: [f64; 2]| {
+        for (hist, b) in hists.iter_mut().zip(cells) {
+            let at = &mut hist[b.index() & (DENSE_SLOTS - 1)];
+            at[0] += g;
+            at[1] += h;
+            at[2] += 1.0;
+        }
+    };
+    match rows {
+        Some(rows) => {
+            for (&r, &pair) in rows.iter().zip(ordered) {
+                add(columns.map(|c| c[r as usize]), pair);
+            }
+        }
+        None => {
+            for (i, &pair) in ordered.iter().enumerate() {
+                add(columns.map(|c| c[i]), pair);
+            }
+        }
     }
 }
 
@@ -817,6 +997,169 @@ fn scan<B: Bin>(
             }
         }
     }
+}
+
+/// Scratch of [`scan_dense_numbers`], one entry per bin (flat arrays, so the gain loop
+/// vectorises): the bin's rows, the running sums `s0`, `s1` and rows up to and including the
+/// bin with the missing values counted on the left (`a`) and without (`b`), and the gain of
+/// splitting after the bin.
+#[derive(Default)]
+struct Points {
+    rows: Vec<f64>,
+    a: [Vec<f64>; 3],
+    b: [Vec<f64>; 3],
+    gain: Vec<f64>,
+}
+
+/// [`scan`]'s two-statistic path for a number predictor's dense histogram (256 slots of
+/// `(s0, s1, rows)`, missing in slot 255), in three flat loops: the running sums of both
+/// sides of the missing values at once, bins with no rows adding nothing; every split
+/// point's gain on its own (independent divisions the compiler can vectorise); the first best.
+/// Row counts are whole numbers, so the running count only rises, and the points [`scan`]
+/// visits before it stops (the right side too small) are exactly those with enough rows on
+/// both sides. The same additions and divisions as [`scan`] (adding zero changes no sum) and
+/// the same tie rule, so the same split ("not below" written `!(x < least)`, as the plain
+/// loop skips a point only when a sum is below its least).
+#[allow(clippy::too_many_arguments, clippy::neg_cmp_op_on_partial_ord)]
+fn scan_dense_numbers(
+    h: &[f64],
+    bins: usize,
+    feature: usize,
+    parent_cost: f64,
+    settings: &GrowSettings,
+    points: &mut Points,
+    best: &mut Option<Split>,
+) {
+    let criterion = settings.criterion;
+    let min_weight = settings.min_weight_leaf;
+    let min_leaf = settings.min_rows_leaf.max(1) as f64;
+    let (present, _) = h[..bins * 3].as_chunks::<3>();
+    let m = (DENSE_SLOTS - 1) * 3;
+    let missing = [h[m], h[m + 1], h[m + 2]];
+    for v in std::iter::once(&mut points.rows)
+        .chain(&mut points.a)
+        .chain(&mut points.b)
+        .chain(std::iter::once(&mut points.gain))
+    {
+        v.resize(bins, 0.0);
+    }
+    let Points { rows, a, b, gain } = points;
+    // The node's totals as this predictor sums them: the missing slot, then the bins.
+    let t = if missing == [0.0; 3] {
+        // Nothing in the missing slot: one running sum serves as both.
+        running_sums(present, [0.0; 3], rows, b)
+    } else {
+        running_sums(present, [0.0; 3], rows, b);
+        running_sums(present, missing, rows, a)
+    };
+    let sides: &[bool] = if missing[2] > 0.0 {
+        &[true, false]
+    } else {
+        &[false]
+    };
+    // The best split of this predictor so far: gain, last bin on the left, missing side.
+    let mut found: Option<(f64, usize, bool)> = None;
+    for &missing_left in sides {
+        let [l0, l1, lc] = if missing_left { &*a } else { &*b };
+        // Not a split point, or too light a side: no gain (−∞, which no real gain equals:
+        // costs are finite). `&` rather than `&&`, and selects, keep the loop free of branches.
+        let lanes = gain.iter_mut().zip(rows.iter()).zip(l0).zip(l1).zip(lc);
+        if let Criterion::Gradient { l2 } = criterion {
+            // [`Criterion::cost`] and [`Criterion::weight`] written out for gradients.
+            let cost = |g: f64, h: f64| {
+                let d = h + l2;
+                let c = -(g * g) / d;
+                if d <= 0.0 {
+                    0.0
+                } else {
+                    c
+                }
+            };
+            for ((((out, &n), &s0), &s1), &sc) in lanes {
+                let (r0, r1) = (t[0] - s0, t[1] - s1);
+                let v = parent_cost - cost(s0, s1) - cost(r0, r1);
+                let ok = (n > 0.0)
+                    & !(sc < min_leaf)
+                    & !(t[2] - sc < min_leaf)
+                    & !(s1 < min_weight)
+                    & !(r1 < min_weight);
+                *out = if ok { v } else { f64::NEG_INFINITY };
+            }
+        } else {
+            for ((((out, &n), &s0), &s1), &sc) in lanes {
+                let (l, r) = ([s0, s1], [t[0] - s0, t[1] - s1]);
+                let ok = (n > 0.0)
+                    & !(sc < min_leaf)
+                    & !(t[2] - sc < min_leaf)
+                    & !(criterion.weight(&l) < min_weight)
+                    & !(criterion.weight(&r) < min_weight);
+                *out = if ok {
+                    parent_cost - criterion.cost(&l) - criterion.cost(&r)
+                } else {
+                    f64::NEG_INFINITY
+                };
+            }
+        }
+        // The first of the largest gains of this side, then against the best so far.
+        let (mut at, mut g) = (0, f64::NEG_INFINITY);
+        for (i, &v) in gain.iter().enumerate() {
+            if v > g {
+                (at, g) = (i, v);
+            }
+        }
+        if g == f64::NEG_INFINITY {
+            continue;
+        }
+        let beats = match (found, best.as_ref()) {
+            (Some((f, _, _)), _) => g > f,
+            (None, Some(bb)) => g > bb.gain,
+            (None, None) => true,
+        };
+        if beats {
+            found = Some((g, at, missing_left));
+        }
+    }
+    if let Some((gain, b, missing_left)) = found {
+        let next_bin = (b + 1..bins).find(|&nb| h[nb * 3 + 2] > 0.0);
+        *best = Some(Split {
+            gain,
+            feature,
+            numeric: true,
+            threshold_bin: b,
+            next_bin,
+            categories: BinSet::default(),
+            missing_left,
+            values: (0.0, 0.0),
+        });
+    }
+}
+
+/// The running sums of `present`'s slots `(s0, s1, rows)` from `start`, bins with no rows
+/// adding nothing, into `sums` (three flat arrays), and each bin's rows into `rows`. Returns
+/// the last sums. Scalar accumulators, and a function of its own so that they stay in
+/// registers (inlined, the row count was kept on the stack: profiled).
+#[inline(never)]
+fn running_sums(
+    present: &[[f64; 3]],
+    start: [f64; 3],
+    rows: &mut [f64],
+    sums: &mut [Vec<f64>; 3],
+) -> [f64; 3] {
+    let [mut s0, mut s1, mut sc] = start;
+    let [o0, o1, oc] = sums;
+    let outs = rows
+        .iter_mut()
+        .zip(o0.iter_mut().zip(o1.iter_mut()).zip(oc.iter_mut()));
+    for (at, (n, ((o0, o1), oc))) in present.iter().zip(outs) {
+        let c = at[2];
+        let present = c > 0.0;
+        s0 += if present { at[0] } else { 0.0 };
+        s1 += if present { at[1] } else { 0.0 };
+        sc += if present { c } else { 0.0 };
+        *n = c;
+        (*o0, *o1, *oc) = (s0, s1, sc);
+    }
+    [s0, s1, sc]
 }
 
 /// The split after the `i`-th bin of `order`.
