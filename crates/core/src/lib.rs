@@ -16,6 +16,7 @@ pub mod data;
 pub mod design;
 pub mod ensemble;
 pub mod error;
+pub mod explain;
 pub mod metrics;
 pub mod model;
 pub mod model_file;
