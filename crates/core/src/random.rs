@@ -22,6 +22,13 @@ pub enum Purpose {
     /// The rows of bootstrap resample `index` of a metric's percentile interval
     /// (metrics::intervals).
     MetricResample = 8,
+    /// The row order of permutation `index` in permutation importance (explain).
+    Permutation = 9,
+    /// The order of a tree's out-of-bag rows in out-of-bag permutation importance
+    /// (`index`: tree × predictors + predictor).
+    OutOfBagPermutation = 10,
+    /// The records sampled for ICE curves and the H statistic (`index` 0).
+    ExplainSample = 11,
 }
 
 /// The stream for (`seed`, `purpose`, `index`).

@@ -206,16 +206,17 @@ impl<'a> Additive<'a> {
         self.offset.len()
     }
 
-    /// Adds member `m`'s leaf `leaf` to `sums`.
+    /// Adds `factor` × member `m`'s leaf `leaf` to `sums`.
     #[inline]
-    pub fn add_leaf(&self, m: usize, leaf: usize, sums: &mut [f64]) {
+    pub fn add_leaf(&self, m: usize, leaf: usize, factor: f64, sums: &mut [f64]) {
         let member = &self.members[m];
         let values = member.tree.node_values(leaf);
+        let scale = factor * member.scale;
         match member.output {
-            Some(k) => sums[k] += member.scale * values[0],
+            Some(k) => sums[k] += scale * values[0],
             None => {
                 for (s, v) in sums.iter_mut().zip(values) {
-                    *s += member.scale * v;
+                    *s += scale * v;
                 }
             }
         }
@@ -225,8 +226,22 @@ impl<'a> Additive<'a> {
     pub fn sums(&self, rows: Rows<'_>, row: usize, out: &mut [f64]) {
         out.copy_from_slice(&self.offset);
         for (m, member) in self.members.iter().enumerate() {
-            self.add_leaf(m, member.tree.leaf(rows, row), out);
+            self.add_leaf(m, member.tree.leaf(rows, row), 1.0, out);
         }
+    }
+
+    /// The model's predictions (`outputs` per row, as [`Model::predict`]) from the sums of
+    /// many rows (`width()` per row).
+    pub fn finish_all(&self, sums: &[f64], outputs: usize) -> Vec<f64> {
+        let rows = sums.len() / self.width().max(1);
+        let mut out = vec![0.0; rows * outputs];
+        for (s, o) in sums
+            .chunks_exact(self.width().max(1))
+            .zip(out.chunks_exact_mut(outputs.max(1)))
+        {
+            self.finish(s, o);
+        }
+        out
     }
 
     /// The model's prediction (as [`Model::predict`]) from one record's sums.
