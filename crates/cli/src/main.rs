@@ -2,13 +2,14 @@
 //! for a browser: `spinney inspect FILE` prints how a file reads and a summary of every column
 //! (a readable table, or JSON with `--json`); `spinney fit` fits and reports a model (and
 //! saves it with `--save-model`); `spinney predict MODEL FILE` scores a file with a saved
-//! model.
+//! model; `spinney explain MODEL FILE` shows what drives it.
 
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 mod bench;
+mod explain;
 mod fit;
 mod predict;
 
@@ -55,6 +56,9 @@ enum Command {
     Fit(fit::FitArgs),
     /// Score every row of a file with a saved model and write the predictions as CSV.
     Predict(predict::PredictArgs),
+    /// What drives a saved model, and why single records scored as they did: importance,
+    /// per-record contributions, partial dependence, interactions.
+    Explain(explain::ExplainArgs),
     /// Measure speed and memory on generated data, and print the figures.
     Bench {
         #[command(subcommand)]
@@ -93,6 +97,7 @@ fn run(args: Args) -> anyhow::Result<()> {
         } => bench::read(mb, repeats),
         Command::Fit(args) => fit::fit(args),
         Command::Predict(args) => predict::predict(args),
+        Command::Explain(args) => explain::explain(args),
         Command::Inspect {
             file,
             sheet,

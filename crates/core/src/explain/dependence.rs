@@ -434,19 +434,19 @@ mod tests {
                     let mut mean = vec![0.0; k];
                     for r in 0..n {
                         model.predict(Rows::Records(&set), r, &mut p);
-                        for o in 0..k {
-                            mean[o] += p[o] / n as f64;
+                        for (m, q) in mean.iter_mut().zip(&p) {
+                            *m += q / n as f64;
                         }
                         if r == 3 {
                             let c = a * g2.values.len() + b;
-                            for o in 0..k {
-                                assert!((d.ice[c * k + o] - p[o]).abs() < 1e-12, "{name} ice");
+                            for (o, q) in p.iter().enumerate() {
+                                assert!((d.ice[c * k + o] - q).abs() < 1e-12, "{name} ice");
                             }
                         }
                     }
                     let c = a * g2.values.len() + b;
-                    for o in 0..k {
-                        assert!((d.average[c * k + o] - mean[o]).abs() < 1e-12, "{name}");
+                    for (o, m) in mean.iter().enumerate() {
+                        assert!((d.average[c * k + o] - m).abs() < 1e-12, "{name}");
                     }
                 }
             }

@@ -104,25 +104,32 @@ impl Metric {
         matches!(self, Metric::Auc | Metric::Accuracy)
     }
 
-    /// The figure for `predictions` (`outputs` per row, as [`Model::predict`] gives them).
-    pub fn score(self, outcome: &Outcome, predictions: &[f64], outputs: usize) -> Result<f64> {
-        let refuse = |reason: String| {
-            Err(Error::new(ErrorKind::BadSetting {
-                setting: "metric".into(),
-                reason,
-            }))
-        };
-        match (outcome, self) {
-            (Outcome::Numbers(y), Metric::Rmse) => Ok(regression::fit(y, predictions, None)?.rmse),
-            (Outcome::Numbers(_), m) => refuse(format!(
+    /// Refuses a figure for classes on numbers and the other way round.
+    pub fn check(self, classes: bool) -> Result<()> {
+        let reason = match (classes, self) {
+            (false, Metric::Rmse)
+            | (true, Metric::Auc | Metric::LogLoss | Metric::Brier | Metric::Accuracy) => {
+                return Ok(())
+            }
+            (false, m) => format!(
                 "{} is for classes; this model predicts a number: use rmse",
                 m.word()
-            )),
-            (Outcome::Classes { .. }, Metric::Rmse) => refuse(
-                "rmse is for numbers; this model predicts classes: use auc, log_loss, brier or \
-                 accuracy"
-                    .into(),
             ),
+            (true, _) => "rmse is for numbers; this model predicts classes: use auc, log_loss, \
+                          brier or accuracy"
+                .into(),
+        };
+        Err(Error::new(ErrorKind::BadSetting {
+            setting: "metric".into(),
+            reason,
+        }))
+    }
+
+    /// The figure for `predictions` (`outputs` per row, as [`Model::predict`] gives them).
+    pub fn score(self, outcome: &Outcome, predictions: &[f64], outputs: usize) -> Result<f64> {
+        self.check(matches!(outcome, Outcome::Classes { .. }))?;
+        match (outcome, self) {
+            (Outcome::Numbers(y), _) => Ok(regression::fit(y, predictions, None)?.rmse),
             (Outcome::Classes { codes, .. }, m) => {
                 let k = outputs;
                 let event: Vec<f64> = predictions.chunks_exact(k).map(|p| p[k - 1]).collect();
@@ -221,20 +228,34 @@ fn path_bits(tree: &Tree, records: &Records, r: usize, bits: &mut [u64]) -> usiz
     }
 }
 
+/// How permutation importance shuffles and what it watches.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Shuffles {
+    pub metric: Metric,
+    /// Shuffles per entry (at least 1).
+    pub repeats: usize,
+    pub seed: u64,
+}
+
 /// Permutation importance of each entry of `groups` (predictor indices; one predictor per
 /// entry for the usual form) on `records`, whose outcome is `outcome` (class codes in the
-/// model's order), with `repeats` seeded shuffles each. Progress per tree; may cancel.
+/// model's order), with `shuffles.repeats` seeded shuffles each. Progress per tree; may
+/// cancel.
 pub fn permutation(
     model: &Model,
     records: &Records,
     outcome: &Outcome,
-    metric: Metric,
     groups: &[Vec<usize>],
-    repeats: usize,
-    seed: u64,
+    shuffles: Shuffles,
     progress: &mut dyn Progress,
 ) -> Result<Permutation> {
+    let Shuffles {
+        metric,
+        repeats,
+        seed,
+    } = shuffles;
     check_groups(model, groups)?;
+    metric.check(model.classes.is_some())?;
     let n = records.rows;
     if outcome.len() != n {
         return Err(Error::new(ErrorKind::BadSetting {
@@ -249,7 +270,7 @@ pub fn permutation(
     let p = model.predictors.len();
     let words = p.div_ceil(64);
     // One shuffle (a row order) per group and repeat, each from its own stream.
-    let shuffles: Vec<Vec<u32>> = (0..groups.len() * repeats)
+    let orders: Vec<Vec<u32>> = (0..groups.len() * repeats)
         .map(|i| {
             let mut rng = stream(seed, Purpose::Permutation, i as u64);
             let mut order: Vec<u32> = (0..n as u32).collect();
@@ -292,7 +313,7 @@ pub fn permutation(
         for (g, (gbits, member_of)) in masks.iter().enumerate() {
             for rep in 0..repeats {
                 let s = g * repeats + rep;
-                let order = &shuffles[s];
+                let order = &orders[s];
                 let slot = &mut sums[(s + 1) * n * width..(s + 2) * n * width];
                 for r in 0..n {
                     let path = &bits[r * words..(r + 1) * words];
@@ -580,10 +601,12 @@ mod tests {
                 &model,
                 &records,
                 &outcome,
-                metric,
                 &groups,
-                2,
-                9,
+                Shuffles {
+                    metric,
+                    repeats: 2,
+                    seed: 9,
+                },
                 &mut Silent,
             )
             .unwrap();
@@ -646,10 +669,12 @@ mod tests {
             &model,
             &records,
             &outcome,
-            Metric::Rmse,
             &singles(5),
-            3,
-            1,
+            Shuffles {
+                metric: Metric::Rmse,
+                repeats: 3,
+                seed: 1,
+            },
             &mut Silent,
         )
         .unwrap();

@@ -468,9 +468,11 @@ pub(crate) mod testing {
                 ))
             }
             Method::Boosting => {
-                let mut s = BoostingSettings::default();
-                s.loss = loss;
-                s.rounds = 20;
+                let mut s = BoostingSettings {
+                    loss,
+                    rounds: 20,
+                    ..BoostingSettings::default()
+                };
                 s.grow.max_leaves = Some(8);
                 s.grow.min_weight_leaf = 0.0;
                 Ensemble::Boosting(fit_boosting(&binned, &design, None, &s, &mut Silent).unwrap())

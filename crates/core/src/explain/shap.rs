@@ -429,15 +429,14 @@ mod tests {
             let mut s = vec![0.0; add.width()];
             for (i, &r) in c.rows.iter().enumerate() {
                 add.sums(rows, r, &mut s);
-                for k in 0..c.outputs {
+                for (k, &sum) in s.iter().enumerate() {
                     let total: f64 = c.base[k]
                         + (0..c.predictors)
                             .map(|j| c.row(i)[j * c.outputs + k])
                             .sum::<f64>();
                     assert!(
-                        (total - s[k]).abs() < 1e-9,
-                        "{name}, row {r}, output {k}: {total} vs {}",
-                        s[k]
+                        (total - sum).abs() < 1e-9,
+                        "{name}, row {r}, output {k}: {total} vs {sum}"
                     );
                 }
             }
