@@ -8,7 +8,8 @@
 //! ensembles built on them ([`ensemble`]), the fitted model of any method ([`model`]) and its
 //! file ([`model_file`]); and the means of judging a model: validation figures over plain
 //! slices of outcomes and predictions ([`metrics`]) and the baseline models to compare
-//! against ([`baseline`]).
+//! against ([`baseline`]); and insight into a fitted model: importance, per-record
+//! contributions, partial dependence ([`explain`]).
 
 pub mod baseline;
 pub mod binning;

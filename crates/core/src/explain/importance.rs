@@ -16,7 +16,8 @@
 //!   drawn again from the model's seed ([`crate::ensemble::forest::tree_rows`]).
 //!
 //! Permutation importance walks each tree once per row and re-walks only the rows whose path
-//! meets a shuffled predictor, tree by tree.
+//! meets a shuffled predictor, tree by tree, adding the changes in fixed point (exact, so
+//! rows with the same leaves keep equal sums).
 
 use crate::binning::Records;
 use crate::design::Outcome;
@@ -292,40 +293,69 @@ pub fn permutation(
             (bits, member)
         })
         .collect();
-    // The sums of the rows as they are (slot 0) and under each (group, repeat) shuffle,
-    // each added up tree by tree in the same order, so rows that reach the same leaves get
-    // the same bits (ties between rows stay ties, which AUC counts).
-    let slots = 1 + groups.len() * repeats;
-    let mut sums = vec![0.0; slots * n * width];
-    for row in sums.chunks_exact_mut(width.max(1)) {
-        row.copy_from_slice(&add.offset);
-    }
+    // Sums in fixed point: a shuffle's changed leaves are added and taken away exactly, so
+    // rows that reach the same leaves keep the same bits (ties between rows stay ties,
+    // which AUC counts) while only the rows whose path meets the shuffled group are
+    // walked again. The unit keeps the largest possible sum (and change) under 2^60.
+    let bound: f64 = add.offset.iter().map(|o| o.abs()).sum::<f64>()
+        + add
+            .members
+            .iter()
+            .map(|m| m.scale.abs() * m.tree.values.iter().fold(0.0f64, |a, v| a.max(v.abs())))
+            .sum::<f64>();
+    let unit = (2.0f64).powi(60 - bound.max(1e-300).log2().ceil().clamp(-900.0, 59.0) as i32);
+    let fixed = |x: f64| (x * unit).round() as i64;
+    let add_fixed = |m: usize, leaf: usize, sign: i64, to: &mut [i64]| {
+        let member = &add.members[m];
+        let values = member.tree.node_values(leaf);
+        match member.output {
+            Some(k) => to[k] += sign * fixed(member.scale * values[0]),
+            None => {
+                for (t, v) in to.iter_mut().zip(values) {
+                    *t += sign * fixed(member.scale * v);
+                }
+            }
+        }
+    };
+    let slots = groups.len() * repeats;
+    let mut base: Vec<i64> = (0..n)
+        .flat_map(|_| add.offset.iter().map(|&o| fixed(o)))
+        .collect();
+    let mut deltas = vec![0i64; slots * n * width];
     let mut leaves = vec![0u32; n];
     let mut bits = vec![0u64; n * words];
+    let mut met: Vec<usize> = Vec::with_capacity(n);
     let total = add.members.len() as u64;
     for (m, member) in add.members.iter().enumerate() {
         let tree: &Tree = &member.tree;
         for r in 0..n {
             let leaf = path_bits(tree, records, r, &mut bits[r * words..(r + 1) * words]);
             leaves[r] = leaf as u32;
-            add.add_leaf(m, leaf, 1.0, &mut sums[r * width..(r + 1) * width]);
+            add_fixed(m, leaf, 1, &mut base[r * width..(r + 1) * width]);
         }
         for (g, (gbits, member_of)) in masks.iter().enumerate() {
+            // The rows whose path meets the group: the only ones a shuffle can move.
+            met.clear();
+            met.extend((0..n).filter(|&r| {
+                bits[r * words..(r + 1) * words]
+                    .iter()
+                    .zip(gbits)
+                    .any(|(a, b)| a & b != 0)
+            }));
             for rep in 0..repeats {
                 let s = g * repeats + rep;
                 let order = &orders[s];
-                let slot = &mut sums[(s + 1) * n * width..(s + 2) * n * width];
-                for r in 0..n {
-                    let path = &bits[r * words..(r + 1) * words];
-                    let leaf = if path.iter().zip(gbits).all(|(a, b)| a & b == 0) {
-                        leaves[r] as usize
-                    } else {
-                        let from = order[r] as usize;
-                        leaf_by(tree, |j| {
-                            records.value(j, if member_of[j] { from } else { r })
-                        })
-                    };
-                    add.add_leaf(m, leaf, 1.0, &mut slot[r * width..(r + 1) * width]);
+                let delta = &mut deltas[s * n * width..(s + 1) * n * width];
+                for &r in &met {
+                    let from = order[r] as usize;
+                    let leaf = leaf_by(tree, |j| {
+                        records.value(j, if member_of[j] { from } else { r })
+                    });
+                    if leaf != leaves[r] as usize {
+                        let d = &mut delta[r * width..(r + 1) * width];
+                        add_fixed(m, leaf, 1, d);
+                        add_fixed(m, leaves[r] as usize, -1, d);
+                    }
                 }
             }
         }
@@ -333,16 +363,20 @@ pub fn permutation(
             return Err(Error::new(ErrorKind::Cancelled));
         }
     }
-    let score = |s: usize| {
-        let slot = &sums[s * n * width..(s + 1) * n * width];
-        metric.score(outcome, &add.finish_all(slot, outputs), outputs)
+    let mut sums = vec![0.0; n * width];
+    let mut score = |s: Option<usize>| {
+        for (i, o) in sums.iter_mut().enumerate() {
+            let d = s.map_or(0, |s| deltas[s * n * width + i]);
+            *o = (base[i] + d) as f64 / unit;
+        }
+        metric.score(outcome, &add.finish_all(&sums, outputs), outputs)
     };
-    let baseline = score(0)?;
+    let baseline = score(None)?;
     let mut losses = Vec::with_capacity(groups.len());
     for g in 0..groups.len() {
         let mut each = Vec::with_capacity(repeats);
         for rep in 0..repeats {
-            let value = score(1 + g * repeats + rep)?;
+            let value = score(Some(g * repeats + rep))?;
             each.push(if metric.higher_is_better() {
                 baseline - value
             } else {

@@ -105,11 +105,11 @@ pub fn contributions(
             outputs: k,
         };
         target.add(&mut base, 0, &expected);
-        match Table::build(tree, chosen.len()) {
+        match Table::build(tree, &target, chosen.len()) {
             Some(table) => {
                 for (i, &r) in chosen.iter().enumerate() {
                     let phi = &mut values[i * p * k..(i + 1) * p * k];
-                    table.explain(tree, &target, phi, |j| records.value(j, r), &mut stack);
+                    table.explain(tree, phi, |j| records.value(j, r), &mut stack);
                 }
             }
             None => {
@@ -193,15 +193,24 @@ struct Table {
     first: Vec<u32>,
     count: Vec<u8>,
     features: Vec<usize>,
-    /// Leaves: where the leaf's factors start in `factors` (2^count patterns × count).
+    /// Leaves: where the leaf's factors start in `factors` (2^count patterns × count ×
+    /// `per`), each already times the member's scale and the leaf's value(s).
     start: Vec<usize>,
     factors: Vec<f64>,
+    /// Values per factor (1, or every output) and the first output they go to.
+    per: usize,
+    offset: usize,
+    outputs: usize,
 }
 
 impl Table {
     /// The table of `tree`, when it is cheaper for `rows` records than Algorithm 2 and fits
     /// in [`TABLE_LIMIT`].
-    fn build(tree: &Tree, rows: usize) -> Option<Table> {
+    fn build(tree: &Tree, target: &Target, rows: usize) -> Option<Table> {
+        let (per, offset) = match target.output {
+            Some(k) => (1, k),
+            None => (target.outputs, 0),
+        };
         let n = tree.nodes.len();
         // Each node's path: predictors and zero fractions (products of cover shares).
         let mut slot = vec![0u8; n];
@@ -226,7 +235,7 @@ impl Table {
                     features.push(f);
                     zeros.push(z);
                 }
-                entries += (1usize << d) * d;
+                entries += (1usize << d) * d * per;
                 algorithm2 += (d + 1) * (d + 1);
                 leaves.push(i);
                 if entries > TABLE_LIMIT {
@@ -271,9 +280,11 @@ impl Table {
                     let one = (pattern >> k & 1) as f64;
                     extend(&mut path, k + 1, zk, one, k);
                 }
+                let values = tree.node_values(leaf);
                 for k in 0..d {
                     let el = path[k + 1];
-                    factors.push(unwound_sum(&path, d, k + 1) * (el.one - el.zero));
+                    let w = unwound_sum(&path, d, k + 1) * (el.one - el.zero) * target.scale;
+                    factors.extend(values.iter().take(per).map(|v| w * v));
                 }
             }
         }
@@ -284,19 +295,23 @@ impl Table {
             features,
             start,
             factors,
+            per,
+            offset,
+            outputs: target.outputs,
         })
     }
 
     /// Adds one record's contributions for this tree to `phi`: a walk over every node,
-    /// clearing a slot's bit on the side the record does not take.
+    /// clearing a slot's bit on the side the record does not take (without a branch on the
+    /// record's side, which no predictor can guess).
     fn explain(
         &self,
         tree: &Tree,
-        target: &Target,
         phi: &mut [f64],
         value: impl Fn(usize) -> f64,
         stack: &mut Vec<(u32, u32)>,
     ) {
+        let per = self.per;
         stack.clear();
         stack.push((0, u32::MAX));
         while let Some((i, pattern)) = stack.pop() {
@@ -308,33 +323,21 @@ impl Table {
                     continue;
                 }
                 let p = (pattern as usize) & ((1usize << d) - 1);
-                let at = self.start[i] + p * d;
-                let factors = &self.factors[at..at + d];
+                let at = self.start[i] + p * d * per;
+                let factors = &self.factors[at..at + d * per];
                 let features = &self.features[self.first[i] as usize..][..d];
-                let values = tree.node_values(i);
-                for (&f, &w) in features.iter().zip(factors) {
-                    if w != 0.0 {
-                        let at = f * target.outputs;
-                        match target.output {
-                            Some(k) => phi[at + k] += w * target.scale * values[0],
-                            None => {
-                                for (o, v) in phi[at..at + target.outputs].iter_mut().zip(values) {
-                                    *o += w * target.scale * v;
-                                }
-                            }
-                        }
+                for (&f, w) in features.iter().zip(factors.chunks_exact(per)) {
+                    let to = &mut phi[f * self.outputs + self.offset..][..per];
+                    for (o, v) in to.iter_mut().zip(w) {
+                        *o += v;
                     }
                 }
                 continue;
             }
-            let cold = pattern & !(1u32 << self.slot[i]);
-            if n.value_goes_left(value(n.feature as usize)) {
-                stack.push((n.left, pattern));
-                stack.push((n.right, cold));
-            } else {
-                stack.push((n.left, cold));
-                stack.push((n.right, pattern));
-            }
+            let bit = 1u32 << self.slot[i];
+            let left = n.value_goes_left(value(n.feature as usize)) as u32;
+            stack.push((n.left, pattern & !(bit * (1 - left))));
+            stack.push((n.right, pattern & !(bit * left)));
         }
     }
 }
@@ -731,19 +734,20 @@ mod tests {
             let mut stack = Vec::new();
             for member in &add.members {
                 let tree: &Tree = &member.tree;
-                let table = Table::build(tree, 1 << 20).expect("a small tree takes the table");
-                let mut walker = Walker::default();
-                walker.prepare(tree, p);
                 let target = Target {
                     scale: 1.0,
                     output: None,
                     outputs: tree.outputs,
                 };
+                let table =
+                    Table::build(tree, &target, 1 << 20).expect("a small tree takes the table");
+                let mut walker = Walker::default();
+                walker.prepare(tree, p);
                 for r in (0..records.rows).step_by(7) {
                     let mut a = vec![0.0; p * tree.outputs];
                     let mut b = a.clone();
                     walker.explain(tree, &target, &mut a, |j| records.value(j, r));
-                    table.explain(tree, &target, &mut b, |j| records.value(j, r), &mut stack);
+                    table.explain(tree, &mut b, |j| records.value(j, r), &mut stack);
                     for (x, y) in a.iter().zip(&b) {
                         assert!((x - y).abs() < 1e-12, "{name} row {r}: {a:?} vs {b:?}");
                     }
