@@ -95,7 +95,7 @@ pub fn contributions(
     let mut base = add.offset.clone();
     let total = add.members.len() as u64;
     let mut walker = Walker::default();
-    let mut stack = Vec::new();
+    let mut scratch = Scratch::default();
     for (m, member) in add.members.iter().enumerate() {
         let tree: &Tree = &member.tree;
         let expected = expected_value(tree);
@@ -107,9 +107,11 @@ pub fn contributions(
         target.add(&mut base, 0, &expected);
         match Table::build(tree, &target, chosen.len()) {
             Some(table) => {
-                for (i, &r) in chosen.iter().enumerate() {
-                    let phi = &mut values[i * p * k..(i + 1) * p * k];
-                    table.explain(tree, phi, |j| records.value(j, r), &mut stack);
+                // Blocks of records, so one leaf's factors serve the whole block from cache.
+                for (block, rows) in chosen.chunks(BLOCK).enumerate() {
+                    let at = block * BLOCK * p * k;
+                    let phi = &mut values[at..at + rows.len() * p * k];
+                    table.explain_block(tree, phi, rows, records, &mut scratch);
                 }
             }
             None => {
@@ -184,8 +186,22 @@ pub fn expected_value(tree: &Tree) -> Vec<f64> {
 /// Most table entries a tree may take (32 MB of factors); larger trees use Algorithm 2.
 const TABLE_LIMIT: usize = 1 << 22;
 
+/// Records explained together through a [`Table`].
+const BLOCK: usize = 256;
+
+/// Reusable buffers for [`Table::explain_block`].
+#[derive(Default)]
+struct Scratch {
+    stack: Vec<(u32, u32)>,
+    /// Per leaf, per record of the block: the record's pattern at that leaf.
+    patterns: Vec<u32>,
+}
+
 /// A tree's contribution factors per leaf and pattern (see the module notes).
 struct Table {
+    /// The leaves (node indices) in order, and each leaf node's place in it.
+    leaves: Vec<usize>,
+    leaf_id: Vec<u32>,
     /// Internal nodes: the slot of the node's predictor on its path (its order of first
     /// appearance from the root).
     slot: Vec<u8>,
@@ -268,6 +284,10 @@ impl Table {
             return None;
         }
         let mut start = vec![0usize; n];
+        let mut leaf_id = vec![0u32; n];
+        for (id, &leaf) in leaves.iter().enumerate() {
+            leaf_id[leaf] = id as u32;
+        }
         let mut factors = Vec::with_capacity(entries);
         let mut path = vec![PathElement::default(); 26];
         for &leaf in &leaves {
@@ -289,6 +309,8 @@ impl Table {
             }
         }
         Some(Table {
+            leaves,
+            leaf_id,
             slot,
             first,
             count,
@@ -301,43 +323,61 @@ impl Table {
         })
     }
 
-    /// Adds one record's contributions for this tree to `phi`: a walk over every node,
-    /// clearing a slot's bit on the side the record does not take (without a branch on the
-    /// record's side, which no predictor can guess).
-    fn explain(
+    /// Adds the contributions of records `rows` for this tree to `phi` (one
+    /// `predictors × outputs` slice per record, in order): first each record's pattern at
+    /// every leaf, by a walk over every node clearing a slot's bit on the side the record
+    /// does not take (without a branch on that side, which no predictor can guess); then
+    /// leaf by leaf, each record's factors from the leaf's part of the table.
+    fn explain_block(
         &self,
         tree: &Tree,
         phi: &mut [f64],
-        value: impl Fn(usize) -> f64,
-        stack: &mut Vec<(u32, u32)>,
+        rows: &[usize],
+        records: &Records,
+        scratch: &mut Scratch,
     ) {
-        let per = self.per;
-        stack.clear();
-        stack.push((0, u32::MAX));
-        while let Some((i, pattern)) = stack.pop() {
-            let i = i as usize;
-            let n = &tree.nodes[i];
-            if n.is_leaf() {
-                let d = self.count[i] as usize;
-                if d == 0 {
+        let b = rows.len();
+        let width = phi.len() / b.max(1);
+        let Scratch { stack, patterns } = scratch;
+        patterns.clear();
+        patterns.resize(self.leaves.len() * b, 0);
+        for (i, &r) in rows.iter().enumerate() {
+            stack.clear();
+            stack.push((0, u32::MAX));
+            while let Some((node, pattern)) = stack.pop() {
+                let n = &tree.nodes[node as usize];
+                if n.is_leaf() {
+                    patterns[self.leaf_id[node as usize] as usize * b + i] = pattern;
                     continue;
                 }
-                let p = (pattern as usize) & ((1usize << d) - 1);
-                let at = self.start[i] + p * d * per;
-                let factors = &self.factors[at..at + d * per];
-                let features = &self.features[self.first[i] as usize..][..d];
-                for (&f, w) in features.iter().zip(factors.chunks_exact(per)) {
-                    let to = &mut phi[f * self.outputs + self.offset..][..per];
+                let bit = 1u32 << self.slot[node as usize];
+                let left = n.value_goes_left(records.value(n.feature as usize, r)) as u32;
+                stack.push((n.left, pattern & !(bit * (1 - left))));
+                stack.push((n.right, pattern & !(bit * left)));
+            }
+        }
+        let per = self.per;
+        for (id, &leaf) in self.leaves.iter().enumerate() {
+            let d = self.count[leaf] as usize;
+            if d == 0 {
+                continue;
+            }
+            let mask = (1u32 << d) - 1;
+            let table = &self.factors[self.start[leaf]..self.start[leaf] + (d * per << d)];
+            let features = &self.features[self.first[leaf] as usize..][..d];
+            for (i, &pattern) in patterns[id * b..(id + 1) * b].iter().enumerate() {
+                let at = (pattern & mask) as usize * d * per;
+                let row = &mut phi[i * width..(i + 1) * width];
+                for (&f, w) in features
+                    .iter()
+                    .zip(table[at..at + d * per].chunks_exact(per))
+                {
+                    let to = &mut row[f * self.outputs + self.offset..][..per];
                     for (o, v) in to.iter_mut().zip(w) {
                         *o += v;
                     }
                 }
-                continue;
             }
-            let bit = 1u32 << self.slot[i];
-            let left = n.value_goes_left(value(n.feature as usize)) as u32;
-            stack.push((n.left, pattern & !(bit * (1 - left))));
-            stack.push((n.right, pattern & !(bit * left)));
         }
     }
 }
@@ -731,7 +771,7 @@ mod tests {
         for (name, model, records, _) in testing::every_kind() {
             let add = Additive::of(&model);
             let p = model.predictors.len();
-            let mut stack = Vec::new();
+            let mut scratch = Scratch::default();
             for member in &add.members {
                 let tree: &Tree = &member.tree;
                 let target = Target {
@@ -747,7 +787,7 @@ mod tests {
                     let mut a = vec![0.0; p * tree.outputs];
                     let mut b = a.clone();
                     walker.explain(tree, &target, &mut a, |j| records.value(j, r));
-                    table.explain(tree, &mut b, |j| records.value(j, r), &mut stack);
+                    table.explain_block(tree, &mut b, &[r], &records, &mut scratch);
                     for (x, y) in a.iter().zip(&b) {
                         assert!((x - y).abs() < 1e-12, "{name} row {r}: {a:?} vs {b:?}");
                     }
