@@ -96,15 +96,35 @@ pub fn contributions(
     let total = add.members.len() as u64;
     let mut walker = Walker::default();
     let mut scratch = Scratch::default();
+    let mirror = k == 2
+        && model.classes.as_ref().is_some_and(|c| c.len() == 2)
+        && add.members.iter().all(|m| {
+            m.output.is_none()
+                && (0..m.tree.nodes.len())
+                    .filter(|&i| m.tree.nodes[i].is_leaf())
+                    .all(|i| (m.tree.node_values(i).iter().sum::<f64>() - 1.0).abs() < 1e-12)
+        });
     for (m, member) in add.members.iter().enumerate() {
         let tree: &Tree = &member.tree;
         let expected = expected_value(tree);
-        let target = Target {
+        let whole = Target {
             scale: member.scale,
             output: member.output,
+            from: 0,
             outputs: k,
         };
-        target.add(&mut base, 0, &expected);
+        whole.add(&mut base, 0, &expected);
+        // Two class probabilities (or vote shares) add up to 1 in every leaf, so the first
+        // class's contributions are minus the second's: only the second is computed.
+        let target = if mirror {
+            Target {
+                output: Some(1),
+                from: 1,
+                ..whole
+            }
+        } else {
+            whole
+        };
         match Table::build(tree, &target, chosen.len()) {
             Some(table) => {
                 // Blocks of records, so one leaf's factors serve the whole block from cache.
@@ -126,6 +146,11 @@ pub fn contributions(
             return Err(Error::new(ErrorKind::Cancelled));
         }
     }
+    if mirror {
+        for pair in values.chunks_exact_mut(2) {
+            pair[0] = -pair[1];
+        }
+    }
     Ok(Contributions {
         rows: chosen,
         predictors: p,
@@ -140,7 +165,10 @@ pub fn contributions(
 /// Where a member's leaf values go in the sums.
 struct Target {
     scale: f64,
+    /// `Some(k)`: the leaf's value `from` goes to output `k`; `None`: every value to its
+    /// own output.
     output: Option<usize>,
+    from: usize,
     outputs: usize,
 }
 
@@ -150,7 +178,7 @@ impl Target {
     fn add(&self, phi: &mut [f64], j: usize, values: &[f64]) {
         let at = j * self.outputs;
         match self.output {
-            Some(k) => phi[at + k] += self.scale * values[0],
+            Some(k) => phi[at + k] += self.scale * values[self.from],
             None => {
                 for (o, v) in phi[at..at + self.outputs].iter_mut().zip(values) {
                     *o += self.scale * v;
@@ -304,7 +332,7 @@ impl Table {
                 for k in 0..d {
                     let el = path[k + 1];
                     let w = unwound_sum(&path, d, k + 1) * (el.one - el.zero) * target.scale;
-                    factors.extend(values.iter().take(per).map(|v| w * v));
+                    factors.extend(values[target.from..].iter().take(per).map(|v| w * v));
                 }
             }
         }
@@ -458,7 +486,7 @@ impl Walker {
                 if factor != 0.0 {
                     let at = el.feature * target.outputs;
                     match target.output {
-                        Some(k) => phi[at + k] += factor * target.scale * values[0],
+                        Some(k) => phi[at + k] += factor * target.scale * values[target.from],
                         None => {
                             for (o, v) in phi[at..at + target.outputs].iter_mut().zip(values) {
                                 *o += factor * target.scale * v;
@@ -675,6 +703,7 @@ mod tests {
                 let target = Target {
                     scale: 1.0,
                     output: None,
+                    from: 0,
                     outputs: tree.outputs,
                 };
                 for r in (0..records.rows).step_by(23) {
@@ -736,6 +765,7 @@ mod tests {
         let target = Target {
             scale: 1.0,
             output: None,
+            from: 0,
             outputs: 1,
         };
         let mut phi = vec![0.0; 2];
@@ -777,6 +807,7 @@ mod tests {
                 let target = Target {
                     scale: 1.0,
                     output: None,
+                    from: 0,
                     outputs: tree.outputs,
                 };
                 let table =
