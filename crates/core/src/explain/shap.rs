@@ -223,6 +223,8 @@ struct Scratch {
     stack: Vec<(u32, u32)>,
     /// Per leaf, per record of the block: the record's pattern at that leaf.
     patterns: Vec<u32>,
+    /// The block's contributions, predictor by predictor (`predictors × per × records`).
+    sums: Vec<f64>,
 }
 
 /// A tree's contribution factors per leaf and pattern (see the module notes).
@@ -366,7 +368,11 @@ impl Table {
     ) {
         let b = rows.len();
         let width = phi.len() / b.max(1);
-        let Scratch { stack, patterns } = scratch;
+        let Scratch {
+            stack,
+            patterns,
+            sums,
+        } = scratch;
         patterns.clear();
         patterns.resize(self.leaves.len() * b, 0);
         for (i, &r) in rows.iter().enumerate() {
@@ -384,7 +390,12 @@ impl Table {
                 stack.push((n.right, pattern & !(bit * left)));
             }
         }
+        // Leaf by leaf, slot by slot, record by record: the records' sums for one predictor
+        // lie side by side and the leaf's factors stay in cache.
         let per = self.per;
+        let predictors = width / self.outputs.max(1);
+        sums.clear();
+        sums.resize(predictors * per * b, 0.0);
         for (id, &leaf) in self.leaves.iter().enumerate() {
             let d = self.count[leaf] as usize;
             if d == 0 {
@@ -393,17 +404,20 @@ impl Table {
             let mask = (1u32 << d) - 1;
             let table = &self.factors[self.start[leaf]..self.start[leaf] + (d * per << d)];
             let features = &self.features[self.first[leaf] as usize..][..d];
-            for (i, &pattern) in patterns[id * b..(id + 1) * b].iter().enumerate() {
-                let at = (pattern & mask) as usize * d * per;
-                let row = &mut phi[i * width..(i + 1) * width];
-                for (&f, w) in features
-                    .iter()
-                    .zip(table[at..at + d * per].chunks_exact(per))
-                {
-                    let to = &mut row[f * self.outputs + self.offset..][..per];
-                    for (o, v) in to.iter_mut().zip(w) {
-                        *o += v;
+            let block = &patterns[id * b..(id + 1) * b];
+            for (k, &f) in features.iter().enumerate() {
+                for o in 0..per {
+                    let to = &mut sums[(f * per + o) * b..][..b];
+                    for (t, &pattern) in to.iter_mut().zip(block) {
+                        *t += table[((pattern & mask) as usize * d + k) * per + o];
                     }
+                }
+            }
+        }
+        for (i, row) in phi.chunks_exact_mut(width).enumerate() {
+            for f in 0..predictors {
+                for o in 0..per {
+                    row[f * self.outputs + self.offset + o] += sums[(f * per + o) * b + i];
                 }
             }
         }
