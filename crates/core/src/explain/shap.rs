@@ -402,7 +402,7 @@ impl Table {
                 continue;
             }
             let mask = (1u32 << d) - 1;
-            let table = &self.factors[self.start[leaf]..self.start[leaf] + (d * per << d)];
+            let table = &self.factors[self.start[leaf]..self.start[leaf] + ((d * per) << d)];
             let features = &self.features[self.first[leaf] as usize..][..d];
             let block = &patterns[id * b..(id + 1) * b];
             for (k, &f) in features.iter().enumerate() {
