@@ -220,8 +220,7 @@ const BLOCK: usize = 256;
 /// Reusable buffers for [`Table::explain_block`].
 #[derive(Default)]
 struct Scratch {
-    stack: Vec<(u32, u32)>,
-    /// Per leaf, per record of the block: the record's pattern at that leaf.
+    /// Per node, per record of the block: the record's pattern there.
     patterns: Vec<u32>,
     /// The block's contributions, predictor by predictor (`predictors × per × records`).
     sums: Vec<f64>,
@@ -229,9 +228,8 @@ struct Scratch {
 
 /// A tree's contribution factors per leaf and pattern (see the module notes).
 struct Table {
-    /// The leaves (node indices) in order, and each leaf node's place in it.
+    /// The leaves (node indices).
     leaves: Vec<usize>,
-    leaf_id: Vec<u32>,
     /// Internal nodes: the slot of the node's predictor on its path (its order of first
     /// appearance from the root).
     slot: Vec<u8>,
@@ -314,10 +312,6 @@ impl Table {
             return None;
         }
         let mut start = vec![0usize; n];
-        let mut leaf_id = vec![0u32; n];
-        for (id, &leaf) in leaves.iter().enumerate() {
-            leaf_id[leaf] = id as u32;
-        }
         let mut factors = Vec::with_capacity(entries);
         let mut path = vec![PathElement::default(); 26];
         for &leaf in &leaves {
@@ -340,7 +334,6 @@ impl Table {
         }
         Some(Table {
             leaves,
-            leaf_id,
             slot,
             first,
             count,
@@ -355,9 +348,9 @@ impl Table {
 
     /// Adds the contributions of records `rows` for this tree to `phi` (one
     /// `predictors × outputs` slice per record, in order): first each record's pattern at
-    /// every leaf, by a walk over every node clearing a slot's bit on the side the record
-    /// does not take (without a branch on that side, which no predictor can guess); then
-    /// leaf by leaf, each record's factors from the leaf's part of the table.
+    /// every node, clearing a slot's bit on the side the record does not take (without a
+    /// branch on that side, which no predictor can guess); then leaf by leaf, each record's
+    /// factors from the leaf's part of the table.
     fn explain_block(
         &self,
         tree: &Tree,
@@ -368,26 +361,25 @@ impl Table {
     ) {
         let b = rows.len();
         let width = phi.len() / b.max(1);
-        let Scratch {
-            stack,
-            patterns,
-            sums,
-        } = scratch;
+        let Scratch { patterns, sums } = scratch;
+        // Node by node (children come after their parents), every record of the block at
+        // once: its pattern at each node, from its parent's.
         patterns.clear();
-        patterns.resize(self.leaves.len() * b, 0);
-        for (i, &r) in rows.iter().enumerate() {
-            stack.clear();
-            stack.push((0, u32::MAX));
-            while let Some((node, pattern)) = stack.pop() {
-                let n = &tree.nodes[node as usize];
-                if n.is_leaf() {
-                    patterns[self.leaf_id[node as usize] as usize * b + i] = pattern;
-                    continue;
-                }
-                let bit = 1u32 << self.slot[node as usize];
-                let left = n.value_goes_left(records.value(n.feature as usize, r)) as u32;
-                stack.push((n.left, pattern & !(bit * (1 - left))));
-                stack.push((n.right, pattern & !(bit * left)));
+        patterns.resize(tree.nodes.len() * b, 0);
+        patterns[..b].fill(u32::MAX);
+        for (i, n) in tree.nodes.iter().enumerate() {
+            if n.is_leaf() {
+                continue;
+            }
+            let bit = 1u32 << self.slot[i];
+            let f = n.feature as usize;
+            let (done, below) = patterns.split_at_mut((i + 1) * b);
+            let parent = &done[i * b..];
+            let (l, r) = (n.left as usize - i - 1, n.right as usize - i - 1);
+            for (k, &row) in rows.iter().enumerate() {
+                let left = n.value_goes_left(records.value(f, row)) as u32;
+                below[l * b + k] = parent[k] & !(bit * (1 - left));
+                below[r * b + k] = parent[k] & !(bit * left);
             }
         }
         // Leaf by leaf, slot by slot, record by record: the records' sums for one predictor
@@ -396,7 +388,7 @@ impl Table {
         let predictors = width / self.outputs.max(1);
         sums.clear();
         sums.resize(predictors * per * b, 0.0);
-        for (id, &leaf) in self.leaves.iter().enumerate() {
+        for &leaf in &self.leaves {
             let d = self.count[leaf] as usize;
             if d == 0 {
                 continue;
@@ -404,7 +396,7 @@ impl Table {
             let mask = (1u32 << d) - 1;
             let table = &self.factors[self.start[leaf]..self.start[leaf] + ((d * per) << d)];
             let features = &self.features[self.first[leaf] as usize..][..d];
-            let block = &patterns[id * b..(id + 1) * b];
+            let block = &patterns[leaf * b..(leaf + 1) * b];
             for (k, &f) in features.iter().enumerate() {
                 for o in 0..per {
                     let to = &mut sums[(f * per + o) * b..][..b];
