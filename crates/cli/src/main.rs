@@ -3,7 +3,8 @@
 //! (a readable table, or JSON with `--json`); `spinney fit` fits and reports a model (and
 //! saves it with `--save-model`); `spinney predict MODEL FILE` scores a file with a saved
 //! model; `spinney evaluate` validates a model honestly and `spinney tune` searches its settings;
-//! `spinney export-onnx MODEL OUT` writes a saved model as an ONNX file.
+//! `spinney explain MODEL FILE` shows what drives it; `spinney export-onnx MODEL OUT` writes a
+//! saved model as an ONNX file.
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -11,6 +12,7 @@ use std::process::ExitCode;
 
 mod bench;
 mod evaluate;
+mod explain;
 mod fit;
 mod predict;
 mod tune;
@@ -71,6 +73,9 @@ enum Command {
         /// The ONNX file to write.
         output: PathBuf,
     },
+    /// What drives a saved model, and why single records scored as they did: importance,
+    /// per-record contributions, partial dependence, interactions.
+    Explain(explain::ExplainArgs),
     /// Measure speed and memory on generated data, and print the figures.
     Bench {
         #[command(subcommand)]
@@ -128,6 +133,7 @@ fn run(args: Args) -> anyhow::Result<()> {
             );
             Ok(())
         }
+        Command::Explain(args) => explain::explain(args),
         Command::Inspect {
             file,
             sheet,

@@ -8,7 +8,8 @@
 //! ensembles built on them ([`ensemble`]), the fitted model of any method ([`model`]) and its
 //! file ([`model_file`]); and the means of judging a model: validation figures over plain
 //! slices of outcomes and predictions ([`metrics`]) and the baseline models to compare
-//! against ([`baseline`]), and honest validation by held-out rows ([`validate`]).
+//! against ([`baseline`]), and honest validation by held-out rows ([`validate`]); and insight
+//! into a fitted model: importance, per-record contributions, partial dependence ([`explain`]).
 
 pub mod baseline;
 pub mod binning;
@@ -17,6 +18,7 @@ pub mod design;
 pub mod ensemble;
 mod envelope;
 pub mod error;
+pub mod explain;
 pub mod fit;
 pub mod metrics;
 pub mod model;

@@ -29,6 +29,13 @@ pub enum Purpose {
     ValidationResample = 10,
     /// The candidates of a random tuning search (`index` 0).
     TuneDraws = 11,
+    /// The row order of permutation `index` in permutation importance (explain).
+    Permutation = 12,
+    /// The order of a tree's out-of-bag rows in out-of-bag permutation importance
+    /// (`index`: tree × predictors + predictor).
+    OutOfBagPermutation = 13,
+    /// The records sampled for ICE curves and the H statistic (`index` 0).
+    ExplainSample = 14,
 }
 
 /// The stream for (`seed`, `purpose`, `index`).

@@ -78,46 +78,20 @@ pub fn fit_trees(
 ) -> Vec<FittedTree> {
     let n = binned.rows;
     let p = binned.columns.len();
-    let take = ((settings.row_fraction * n as f64).round() as usize).clamp(1, n);
     let total = range.len() as u64;
-    // For a class-balanced bootstrap: the rows of each class (a row's class is where its
-    // statistics put its weight).
-    let by_class: Vec<Vec<u32>> =
-        if settings.balanced && settings.grow.criterion != Criterion::SquaredError {
-            let mut groups = vec![Vec::new(); width];
-            for r in 0..n {
-                groups[argmax(&stats[r * width..(r + 1) * width])].push(r as u32);
-            }
-            groups.retain(|g| !g.is_empty());
-            groups
-        } else {
-            Vec::new()
-        };
+    let by_class = if settings.balanced && settings.grow.criterion != Criterion::SquaredError {
+        // A row's class is where its statistics put its weight.
+        let classes: Vec<u32> = (0..n)
+            .map(|r| argmax(&stats[r * width..(r + 1) * width]) as u32)
+            .collect();
+        class_rows(&classes, width)
+    } else {
+        Vec::new()
+    };
     let mut out = Vec::with_capacity(range.len());
     for i in range {
-        let mut rows_rng = stream(settings.seed, Purpose::TreeRows, i as u64);
+        let rows = tree_rows(settings, n, &by_class, i);
         let mut in_bag = vec![0u32; n];
-        let rows: Vec<u32> = if !by_class.is_empty() {
-            let each = (take / by_class.len()).max(1);
-            by_class
-                .iter()
-                .flat_map(|g| {
-                    (0..each)
-                        .map(|_| g[below(&mut rows_rng, g.len())])
-                        .collect::<Vec<_>>()
-                })
-                .collect()
-        } else if settings.replace {
-            (0..take).map(|_| below(&mut rows_rng, n) as u32).collect()
-        } else {
-            let mut all: Vec<u32> = (0..n as u32).collect();
-            for k in 0..take {
-                let j = k + below(&mut rows_rng, n - k);
-                all.swap(k, j);
-            }
-            all.truncate(take);
-            all
-        };
         for &r in &rows {
             in_bag[r as usize] += 1;
         }
@@ -148,6 +122,49 @@ pub fn fit_trees(
         }
     }
     out
+}
+
+/// The rows of each class (classes `0..classes`, empty classes left out), for a
+/// class-balanced bootstrap.
+pub fn class_rows(classes: &[u32], count: usize) -> Vec<Vec<u32>> {
+    let mut groups = vec![Vec::new(); count];
+    for (r, &c) in classes.iter().enumerate() {
+        if let Some(g) = groups.get_mut(c as usize) {
+            g.push(r as u32);
+        }
+    }
+    groups.retain(|g| !g.is_empty());
+    groups
+}
+
+/// The rows tree `i` of an ensemble on `n` rows grows on (with repeats), drawn from its own
+/// stream alone, so the out-of-bag rows of any tree can be found again from the settings:
+/// a class-balanced bootstrap when `by_class` is not empty (see [`class_rows`]), else a
+/// bootstrap or a subsample without replacement of `row_fraction · n` rows.
+pub fn tree_rows(settings: &ForestSettings, n: usize, by_class: &[Vec<u32>], i: usize) -> Vec<u32> {
+    let take = ((settings.row_fraction * n as f64).round() as usize).clamp(1, n);
+    let mut rows_rng = stream(settings.seed, Purpose::TreeRows, i as u64);
+    if !by_class.is_empty() {
+        let each = (take / by_class.len()).max(1);
+        by_class
+            .iter()
+            .flat_map(|g| {
+                (0..each)
+                    .map(|_| g[below(&mut rows_rng, g.len())])
+                    .collect::<Vec<_>>()
+            })
+            .collect()
+    } else if settings.replace {
+        (0..take).map(|_| below(&mut rows_rng, n) as u32).collect()
+    } else {
+        let mut all: Vec<u32> = (0..n as u32).collect();
+        for k in 0..take {
+            let j = k + below(&mut rows_rng, n - k);
+            all.swap(k, j);
+        }
+        all.truncate(take);
+        all
+    }
 }
 
 /// A fitted bagged ensemble with its out-of-bag record.
