@@ -270,8 +270,7 @@ pub fn fit_design(
 mod tests {
     use super::*;
     use crate::design::design_from_csv;
-    use crate::ensemble::forest::OobTally;
-    use crate::ensemble::tree_bytes::{decode_trees, encode_trees};
+    use crate::ensemble::tree_bytes::{decode_trees, encode_trees, tally_trees};
     use crate::progress::Silent;
     use crate::tree::Tree;
 
@@ -321,16 +320,7 @@ mod tests {
                      outcome: &Outcome,
                      forest: &ForestSettings,
                      _: &mut dyn Progress| {
-            let trees = decode_trees(&bytes, binned.rows, binned.columns.len())
-                .map_err(|e| Error::new(ErrorKind::BadDesign { reason: e }))?;
-            let mut t = OobTally::new(
-                binned.rows,
-                crate::ensemble::forest::tree_outputs(forest, width),
-            );
-            for f in trees {
-                t.add(f, binned, outcome);
-            }
-            Ok(t.finish(false))
+            tally_trees(&bytes, binned, width, outcome, forest)
         };
         let options = FitOptions {
             forest_fitter: Some(&tally),

@@ -8,7 +8,10 @@
 //! value index (u32); the leaf values (f64 each); and one bit per row, set when the row was
 //! in the tree's sample (the out-of-bag tally needs no more than that).
 
-use super::forest::FittedTree;
+use super::forest::{tree_outputs, FittedTree, Forest, ForestSettings, OobTally};
+use crate::binning::BinnedMatrix;
+use crate::design::Outcome;
+use crate::error::{Error, ErrorKind, Result};
 use crate::tree::{BinSet, Node, Tree};
 
 const MAGIC: &[u8; 4] = b"SPTB";
@@ -54,6 +57,30 @@ pub fn encode_trees(trees: &[FittedTree]) -> Vec<u8> {
     out
 }
 
+/// The forest of trees fitted elsewhere (`bytes`: every share in tree order, joined),
+/// tallied here into the same forest, out-of-bag record and all, that one fit would give;
+/// partial when fewer trees came than `settings` asks for. It has the shape of a
+/// [`crate::fit::ForestFitter`] once `bytes` is bound.
+pub fn tally_trees(
+    bytes: &[u8],
+    binned: &BinnedMatrix,
+    width: usize,
+    outcome: &Outcome,
+    settings: &ForestSettings,
+) -> Result<Forest> {
+    let trees = decode_trees(bytes, binned.rows, binned.columns.len()).map_err(|e| {
+        Error::new(ErrorKind::BadDesign {
+            reason: format!("the workers' trees could not be joined ({e}); run it again"),
+        })
+    })?;
+    let mut tally = OobTally::new(binned.rows, tree_outputs(settings, width));
+    let partial = trees.len() < settings.trees;
+    for f in trees {
+        tally.add(f, binned, outcome);
+    }
+    Ok(tally.finish(partial))
+}
+
 /// A reader over the bytes that fails instead of running past the end.
 struct Reader<'a> {
     bytes: &'a [u8],
@@ -61,32 +88,32 @@ struct Reader<'a> {
 }
 
 impl Reader<'_> {
-    fn take(&mut self, n: usize) -> Result<&[u8], String> {
+    fn take(&mut self, n: usize) -> std::result::Result<&[u8], String> {
         let end = self.at.checked_add(n).filter(|&e| e <= self.bytes.len());
         let end = end.ok_or_else(|| format!("the trees' bytes end early (at byte {})", self.at))?;
         let s = &self.bytes[self.at..end];
         self.at = end;
         Ok(s)
     }
-    fn u8(&mut self) -> Result<u8, String> {
+    fn u8(&mut self) -> std::result::Result<u8, String> {
         Ok(self.take(1)?[0])
     }
-    fn u16(&mut self) -> Result<u16, String> {
+    fn u16(&mut self) -> std::result::Result<u16, String> {
         Ok(u16::from_le_bytes(
             self.take(2)?.try_into().unwrap_or_default(),
         ))
     }
-    fn u32(&mut self) -> Result<u32, String> {
+    fn u32(&mut self) -> std::result::Result<u32, String> {
         Ok(u32::from_le_bytes(
             self.take(4)?.try_into().unwrap_or_default(),
         ))
     }
-    fn u64(&mut self) -> Result<u64, String> {
+    fn u64(&mut self) -> std::result::Result<u64, String> {
         Ok(u64::from_le_bytes(
             self.take(8)?.try_into().unwrap_or_default(),
         ))
     }
-    fn f64(&mut self) -> Result<f64, String> {
+    fn f64(&mut self) -> std::result::Result<f64, String> {
         Ok(f64::from_bits(self.u64()?))
     }
 }
@@ -96,7 +123,11 @@ impl Reader<'_> {
 /// workers, in tree order) read as one list. Every index is checked (children after their parent and inside the tree, leaf
 /// values inside the values, predictors inside the table), so a damaged message can neither
 /// loop nor panic later.
-pub fn decode_trees(bytes: &[u8], rows: usize, columns: usize) -> Result<Vec<FittedTree>, String> {
+pub fn decode_trees(
+    bytes: &[u8],
+    rows: usize,
+    columns: usize,
+) -> std::result::Result<Vec<FittedTree>, String> {
     let mut r = Reader { bytes, at: 0 };
     let mut trees = Vec::new();
     while r.at < bytes.len() {
@@ -111,7 +142,7 @@ fn read_block(
     rows: usize,
     columns: usize,
     trees: &mut Vec<FittedTree>,
-) -> Result<(), String> {
+) -> std::result::Result<(), String> {
     if r.take(4)? != MAGIC {
         return Err("these bytes are not fitted trees".into());
     }

@@ -11,8 +11,8 @@ use spinney_core::binning::BinnedMatrix;
 use spinney_core::data::{self, read_table, Kind, Loaded, ReadOptions};
 use spinney_core::design::Design;
 use spinney_core::design::{build_design, DesignSpec, Outcome};
-use spinney_core::ensemble::forest::{tree_outputs, ForestSettings, OobTally};
-use spinney_core::ensemble::tree_bytes::{decode_trees, encode_trees};
+use spinney_core::ensemble::forest::ForestSettings;
+use spinney_core::ensemble::tree_bytes::{encode_trees, tally_trees};
 use spinney_core::fit::{fit_design, fit_forest_part, FitOptions, Fitted, ForestFitter};
 use spinney_core::model::{Ensemble, Method, Model};
 use spinney_core::model_file::write_model;
@@ -371,18 +371,13 @@ fn fit(
                  outcome: &Outcome,
                  forest: &ForestSettings,
                  _: &mut dyn Progress| {
-        let bytes = parts.as_deref().unwrap_or_default();
-        let trees = decode_trees(bytes, binned.rows, binned.columns.len()).map_err(|e| {
-            spinney_core::Error::new(spinney_core::ErrorKind::BadDesign {
-                reason: format!("the workers' trees could not be joined ({e}); run it again"),
-            })
-        })?;
-        let mut t = OobTally::new(binned.rows, tree_outputs(forest, width));
-        let partial = trees.len() < forest.trees;
-        for f in trees {
-            t.add(f, binned, outcome);
-        }
-        Ok(t.finish(partial))
+        tally_trees(
+            parts.as_deref().unwrap_or_default(),
+            binned,
+            width,
+            outcome,
+            forest,
+        )
     };
     let options = FitOptions {
         forest_fitter: parts.is_some().then_some(&tally as ForestFitter<'_>),

@@ -4,7 +4,6 @@
 //! decision curves of the judged runs (each chart with its numbers as a table, its text
 //! alternative). Runs fitted without a validation say so and show no figures here.
 
-use plotters::prelude::*;
 use spinney_charts::{
     calibration_table, decision_table, draw_calibration, draw_decision, draw_roc, roc_table,
     run_colour, CalibrationBin, CalibrationChart, CalibrationRun, DecisionChart, DecisionRun,
@@ -14,7 +13,7 @@ use spinney_web::protocol::{Figure, RunValidation};
 use wasm_bindgen::JsCast;
 use web_sys::HtmlCanvasElement;
 
-use super::measured::MeasuredCanvas;
+use super::measured::{draw_on, Drawing};
 use super::{by_id, esc, set_html, show, Page};
 
 /// The figures shown for each kind of outcome, with their column headings.
@@ -75,29 +74,10 @@ fn table_html(t: &Table) -> String {
     html + "</tbody></table>"
 }
 
-/// A chart's drawing on an area of the page's canvas, at a pixel ratio.
-type Drawing<'a> =
-    &'a dyn Fn(&DrawingArea<MeasuredCanvas, plotters::coord::Shift>, f64) -> Result<(), String>;
-
 /// Draws on canvas `id` at the screen's pixel density, `aspect` high per unit of width.
-fn draw_on(doc: &web_sys::Document, id: &str, aspect: f64, draw: Drawing<'_>) {
-    let Ok(canvas) = by_id(doc, id).dyn_into::<HtmlCanvasElement>() else {
-        return;
-    };
-    let ratio = web_sys::window()
-        .map_or(1.0, |w| w.device_pixel_ratio())
-        .max(1.0);
-    let css_width = match canvas.client_width() {
-        w if w > 0 => w as f64,
-        _ => 560.0,
-    };
-    canvas.set_width((css_width * ratio).round() as u32);
-    canvas.set_height((css_width * aspect * ratio).round() as u32);
-    let Some(backend) = MeasuredCanvas::new(canvas) else {
-        return;
-    };
-    if let Err(e) = draw(&backend.into_drawing_area(), ratio) {
-        web_sys::console::error_1(&format!("the chart could not be drawn: {e}").into());
+fn draw_by_id(doc: &web_sys::Document, id: &str, aspect: f64, draw: Drawing<'_>) {
+    if let Ok(canvas) = by_id(doc, id).dyn_into::<HtmlCanvasElement>() {
+        draw_on(&canvas, aspect, draw);
     }
 }
 
@@ -244,7 +224,7 @@ fn render_charts(p: &Page, runs: &[(usize, String, &spinney_web::protocol::RunRe
             colour: (150, 146, 136),
         });
     }
-    draw_on(&p.doc, "roc-canvas", 0.8, &|area, s| {
+    draw_by_id(&p.doc, "roc-canvas", 0.8, &|area, s| {
         draw_roc(area, &roc, s)
     });
     set_html(&p.doc, "roc-numbers", &table_html(&roc_table(&roc)));
@@ -274,7 +254,7 @@ fn render_charts(p: &Page, runs: &[(usize, String, &spinney_web::protocol::RunRe
             })
             .collect(),
     };
-    draw_on(&p.doc, "calibration-canvas", 0.9, &|area, s| {
+    draw_by_id(&p.doc, "calibration-canvas", 0.9, &|area, s| {
         draw_calibration(area, &calibration, s)
     });
     set_html(
@@ -295,7 +275,7 @@ fn render_charts(p: &Page, runs: &[(usize, String, &spinney_web::protocol::RunRe
             })
             .collect(),
     };
-    draw_on(&p.doc, "decision-canvas", 0.7, &|area, s| {
+    draw_by_id(&p.doc, "decision-canvas", 0.7, &|area, s| {
         draw_decision(area, &decision, s)
     });
     set_html(

@@ -32,6 +32,34 @@ impl MeasuredCanvas {
     }
 }
 
+/// A chart's drawing on an area of the page's canvas, at a pixel ratio.
+pub type Drawing<'a> = &'a dyn Fn(
+    &plotters::drawing::DrawingArea<MeasuredCanvas, plotters::coord::Shift>,
+    f64,
+) -> Result<(), String>;
+
+/// Sizes `canvas` to its CSS width (640 px when it has none yet) and `aspect` times that
+/// high, at the screen's pixel density, and draws on it; a failure goes to the console.
+pub fn draw_on(canvas: &HtmlCanvasElement, aspect: f64, draw: Drawing<'_>) {
+    use plotters::prelude::IntoDrawingArea;
+    let ratio = web_sys::window()
+        .map_or(1.0, |w| w.device_pixel_ratio())
+        .max(1.0);
+    let css_width = match canvas.client_width() {
+        w if w > 0 => w as f64,
+        _ => 640.0,
+    };
+    canvas.set_width((css_width * ratio).round() as u32);
+    canvas.set_height((css_width * aspect * ratio).round() as u32);
+    let Some(backend) = MeasuredCanvas::new(canvas.clone()) else {
+        web_sys::console::error_1(&"the chart canvas has no 2D context".into());
+        return;
+    };
+    if let Err(e) = draw(&backend.into_drawing_area(), ratio) {
+        web_sys::console::error_1(&format!("the chart could not be drawn: {e}").into());
+    }
+}
+
 type Failure = DrawingErrorKind<<CanvasBackend as DrawingBackend>::ErrorType>;
 
 impl DrawingBackend for MeasuredCanvas {

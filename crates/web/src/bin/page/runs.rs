@@ -10,7 +10,6 @@
 
 use std::collections::{HashMap, VecDeque};
 
-use plotters::prelude::IntoDrawingArea;
 use spinney_charts::{draw_error_curves, Curve, ErrorChart, COLOURS};
 use spinney_core::model::Method as FitMethod;
 use spinney_core::settings::FitSettings;
@@ -19,7 +18,7 @@ use spinney_web::protocol::{FitDesign, Judging, Request, RunResult, PROTOCOL_VER
 use wasm_bindgen::JsCast;
 use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlInputElement};
 
-use super::measured::MeasuredCanvas;
+use super::measured::draw_on;
 use super::{by_id, cancel, design_of, esc, on, send, set_html, show, Page, Shared};
 
 /// A fit to send: what the form (or a study being re-run) asks for.
@@ -684,28 +683,10 @@ fn render_chart(p: &Page) {
             i + 1
         ),
     );
-    draw(&canvas, &chart);
+    draw_on(&canvas, 0.5, &|area, ratio| {
+        draw_error_curves(area, &chart, ratio)
+    });
     set_html(&p.doc, "curve-numbers", &numbers_table(&chart, &run.result));
-}
-
-/// Draws on the canvas at the screen's pixel density.
-fn draw(canvas: &HtmlCanvasElement, chart: &ErrorChart) {
-    let ratio = web_sys::window()
-        .map_or(1.0, |w| w.device_pixel_ratio())
-        .max(1.0);
-    let css_width = match canvas.client_width() {
-        w if w > 0 => w as f64,
-        _ => 640.0,
-    };
-    canvas.set_width((css_width * ratio).round() as u32);
-    canvas.set_height((css_width * 0.5 * ratio).round() as u32);
-    let Some(backend) = MeasuredCanvas::new(canvas.clone()) else {
-        web_sys::console::error_1(&"the chart canvas has no 2D context".into());
-        return;
-    };
-    if let Err(e) = draw_error_curves(&backend.into_drawing_area(), chart, ratio) {
-        web_sys::console::error_1(&format!("the chart could not be drawn: {e}").into());
-    }
 }
 
 /// The chart's numbers as a table (its text alternative): every size up to 25, else 25
