@@ -26,7 +26,7 @@ function wilson(k, n) {
 const shown = () => page.$eval('.threshold-tables', (t) => ({
   threshold: Number(t.dataset.threshold), tp: Number(t.dataset.tp), fp: Number(t.dataset.fp),
   tn: Number(t.dataset.tn), fn: Number(t.dataset.fn), nb: Number(t.dataset.netBenefit),
-  oob: t.dataset.outOfBag,
+  oob: t.dataset.outOfSample,
   rows: [...document.querySelectorAll('table.figures tbody tr')].map((r) => [...r.querySelectorAll('td')].map((d) => d.textContent)),
 }));
 const waitThreshold = (t) => page.waitForFunction((x) => Number(document.querySelector('.threshold-tables')?.dataset.threshold) === x, t);
@@ -45,7 +45,7 @@ try {
     const s = await shown();
     expect(s.oob === 'true', `source ${s.oob}`);
     const text = await page.textContent('#threshold-result');
-    expect(/Out-of-bag predictions/.test(text) && /out-of-sample/.test(text), text.slice(0, 200));
+    expect(/Out-of-sample predictions \(out-of-bag records\)/.test(text) && /out-of-sample/.test(text), text.slice(0, 200));
     const n = s.tp + s.fp + s.tn + s.fn;
     const left = Number((text.match(/(\d+) left out/) ?? [0, 0])[1]);
     expect(n + left === 4000, `${n} counted + ${left} left out`);
@@ -111,15 +111,16 @@ try {
     await page.waitForSelector('#threshold-error', { state: 'hidden' });
   });
 
-  await check('a single tree\'s figures are labelled training (apparent), never validation', async () => {
+  await check('an unjudged single tree\'s figures are labelled training (apparent), never validation', async () => {
     await page.check('input[name=method][value=tree]');
     await page.fill('#set-depth', '3');
+    await page.selectOption('#judging', 'none');
     await page.click('#run-start');
     await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 60000 });
     // The chosen run stays the forest until another is picked.
     expect((await shown()).oob === 'true', 'the choice of run changed by itself');
     await page.selectOption('#threshold-run', '1');
-    await page.waitForFunction(() => document.querySelector('.threshold-tables')?.dataset.outOfBag === 'false', null, { timeout: 30000 });
+    await page.waitForFunction(() => document.querySelector('.threshold-tables')?.dataset.outOfSample === 'false', null, { timeout: 30000 });
     const text = await page.textContent('#threshold-result');
     expect(/Training predictions \(apparent\)/.test(text) && /not a validation/.test(text), text.slice(0, 300));
     expect(!/out-of-sample/.test(text), 'training figures called out-of-sample');
@@ -134,16 +135,20 @@ try {
     await page.screenshot({ path: join(out, 'threshold-tree.png'), fullPage: true });
   });
 
-  await check('a gradient boosting run\'s probabilities work too (training, apparent)', async () => {
+  await check('a gradient boosting run judged by 5-fold cross-validation brings its out-of-sample predictions', async () => {
     await page.check('input[name=method][value=boosting]');
     await page.fill('#set-rounds', '20');
+    await page.selectOption('#judging', 'folds:5');
     await page.click('#run-start');
     await page.waitForSelector('#step-runs[data-runs="3"]', { timeout: 60000 });
     await page.selectOption('#threshold-run', '2');
     await page.waitForFunction(() => /Gradient boosting/.test(document.querySelector('#threshold-run').selectedOptions[0].textContent)
-      && document.querySelector('.threshold-tables')?.dataset.outOfBag === 'false', null, { timeout: 30000 });
+      && document.querySelector('.threshold-tables')?.dataset.outOfSample === 'true', null, { timeout: 30000 });
     const s = await shown();
+    // Every record is held out once in 5-fold cross-validation, so all 4,000 are counted.
     expect(s.tp + s.fp + s.tn + s.fn === 4000, `${s.tp + s.fp + s.tn + s.fn} records counted`);
+    const text = await page.textContent('#threshold-result');
+    expect(/Out-of-sample predictions \(5-fold cross-validation\)/.test(text), text.slice(0, 300));
     expect(!(await page.$('#threshold-result .message.error')), await page.textContent('#threshold-result'));
   });
 

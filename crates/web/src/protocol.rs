@@ -13,6 +13,10 @@ pub const PROTOCOL_VERSION: u32 = 3;
 /// Rows of the preview table.
 pub const PREVIEW_ROWS: usize = 20;
 
+/// Files above this size are refused in the page, before a byte is read (the tab would run
+/// out of memory holding the file and its table); the command line has no limit.
+pub const MAX_FILE_BYTES: u64 = 1_500_000_000;
+
 /// Settings for reading a file, as the page lets the user choose them.
 #[derive(Debug, Clone, Default, Serialize, Deserialize)]
 pub struct ReadSettings {
@@ -118,10 +122,11 @@ pub struct RunPredictions {
     pub outcomes: Vec<u32>,
     /// Each row's probability of class 1.
     pub probabilities: Vec<f64>,
-    /// Out-of-bag predictions (each row judged only by trees that did not see it), or
-    /// the training rows' own (apparent, not a validation).
-    pub out_of_bag: bool,
-    /// Rows without an out-of-bag prediction (every tree saw them), left out.
+    /// How the rows were judged, in words (e.g. "5-fold cross-validation", "out-of-bag
+    /// records"): each row's prediction comes from a model that did not learn from it.
+    /// `None`: the training rows' own predictions (apparent, not a validation).
+    pub judged_by: Option<String>,
+    /// Rows without an out-of-sample prediction (every tree saw them; never held out), left out.
     pub left_out: usize,
 }
 

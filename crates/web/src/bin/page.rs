@@ -12,7 +12,9 @@ use std::rc::Rc;
 
 use js_sys::{Array, Object, Reflect, Uint8Array};
 use spinney_core::data::{ColumnSummary, Flag, Kind, TableReport};
-use spinney_web::protocol::{FitDesign, Preview, ReadSettings, Reply, Request, PROTOCOL_VERSION};
+use spinney_web::protocol::{
+    FitDesign, Preview, ReadSettings, Reply, Request, MAX_FILE_BYTES, PROTOCOL_VERSION,
+};
 use wasm_bindgen::prelude::*;
 use wasm_bindgen_futures::{spawn_local, JsFuture};
 // The model-runs step; kept beside this file (a directory of its own, so Cargo does not take
@@ -506,7 +508,21 @@ fn start_read(
 /// build) or bytes the page holds; the message to show when they cannot be had.
 async fn fetch_origin(origin: &Origin) -> Result<(String, Uint8Array), String> {
     let (name, buffer) = match origin {
-        Origin::File(file) => (file.name(), JsFuture::from(file.array_buffer()).await),
+        Origin::File(file) => {
+            // Refused before reading: a file the tab cannot hold would take it down.
+            let bytes = file.size() as u64;
+            if bytes > MAX_FILE_BYTES {
+                let reason = spinney_core::Error::from(spinney_core::ErrorKind::TooBig {
+                    bytes,
+                    limit: MAX_FILE_BYTES,
+                });
+                return Err(format!(
+                    "{} was not read: {reason}, or keep a sample of its rows. Nothing on this page changed.",
+                    file.name()
+                ));
+            }
+            (file.name(), JsFuture::from(file.array_buffer()).await)
+        }
         Origin::Bytes(name, bytes) => return Ok((name.clone(), bytes.slice(0, bytes.length()))),
         Origin::Demo(path) => {
             let name = path.rsplit('/').next().unwrap_or(path).to_string();

@@ -23,13 +23,12 @@ use spinney_core::tree::Rows;
 use spinney_core::validate::{self, judge::Judged, Plan, Scheme, Validation};
 use spinney_web::protocol::{
     CalibrationGroup, Figure, FitDesign, Judging, Preview, ReadSettings, Reply, Request,
-    RunPredictions, RunResult, RunValidation, ScoreResult, PREVIEW_ROWS, PROTOCOL_VERSION,
+    RunPredictions, RunResult, RunValidation, ScoreResult, MAX_FILE_BYTES, PREVIEW_ROWS,
+    PROTOCOL_VERSION,
 };
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
 
-/// Files above this size are refused in the page (the CLI has no limit).
-const MAX_BYTES: u64 = 1_500_000_000;
 
 #[derive(Default)]
 struct Held {
@@ -45,6 +44,10 @@ struct Held {
 struct Run {
     design: FitDesign,
     model: Model,
+    /// Its out-of-sample predictions when it was judged: the scheme in words and, per row
+    /// of the fitted design, the probability of the second class (NaN where the row has
+    /// none). Two-class outcomes only.
+    judged: Option<(String, Vec<f64>)>,
 }
 
 fn scope() -> DedicatedWorkerGlobalScope {
@@ -118,7 +121,7 @@ fn options(name: &str, settings: &ReadSettings) -> Result<ReadOptions, String> {
             .cloned()
             .collect(),
         kinds,
-        max_bytes: Some(MAX_BYTES),
+        max_bytes: Some(MAX_FILE_BYTES),
         fingerprint: None,
     })
 }
@@ -386,8 +389,8 @@ fn fit(
     let mut fitted =
         fit_design(d, &settings, fingerprint, options, &mut progress).map_err(|e| e.to_string())?;
     let fit_seconds = (js_sys::Date::now() - start) / 1000.0;
-    let (validation, validation_refused) = match &judging {
-        None => (None, None),
+    let (validation, validation_refused, judged) = match &judging {
+        None => (None, None, None),
         Some(j) => match judge_run(
             held,
             &design,
@@ -398,8 +401,8 @@ fn fit(
             j,
             &mut progress,
         ) {
-            Ok(v) => (Some(v), None),
-            Err(e) => (None, Some(e)),
+            Ok((v, judged)) => (Some(v), None, judged),
+            Err(e) => (None, Some(e), None),
         },
     };
     let Fitted {
@@ -479,12 +482,15 @@ fn fit(
     held.runs.push(Run {
         design,
         model: fitted.model,
+        judged,
     });
     Ok(result)
 }
 
 /// Judges a fitted run out of sample as `judging` asks: a forest by its out-of-bag rows
 /// (no second fit), any other scheme by refitting on its splits; with the computed warnings.
+/// Also gives, for two classes, the scheme in words and each row's out-of-sample
+/// probability of the second class (for the threshold step).
 #[allow(clippy::too_many_arguments)]
 fn judge_run(
     held: &Held,
@@ -495,7 +501,7 @@ fn judge_run(
     fitted: &Fitted,
     judging: &Judging,
     progress: &mut dyn Progress,
-) -> Result<RunValidation, String> {
+) -> Result<(RunValidation, Option<(String, Vec<f64>)>), String> {
     // The splits need the predictors' values, which the fitted design no longer holds.
     let (full, _) = design_and_settings(held, design, method, sets)?;
     let scheme = Scheme::parse(&judging.scheme).map_err(|e| e.to_string())?;
@@ -524,7 +530,11 @@ fn judge_run(
         .into_iter()
         .map(|w| w.message)
         .collect();
-    Ok(run_validation(&v, &scheme, warnings))
+    let judged = (v.outputs == 2).then(|| {
+        let second: Vec<f64> = v.predictions.chunks_exact(2).map(|p| p[1]).collect();
+        (scheme_words(&scheme), second)
+    });
+    Ok((run_validation(&v, &scheme, warnings), judged))
 }
 
 /// A validation scheme in plain words, for the page.
@@ -643,7 +653,7 @@ fn score(
     let options = ReadOptions {
         file_name: Some(name.to_string()),
         kinds: model.reading_kinds(),
-        max_bytes: Some(MAX_BYTES),
+        max_bytes: Some(MAX_FILE_BYTES),
         ..ReadOptions::default()
     };
     let loaded =
@@ -682,8 +692,9 @@ fn score(
     })
 }
 
-/// The per-row predictions of kept run `run` on the table it was fitted on: out-of-bag for
-/// bagging and forests (rows every tree saw left out), the training rows' own otherwise.
+/// The per-row predictions of kept run `run` on the table it was fitted on: its judged
+/// out-of-sample predictions when it was judged, out-of-bag for bagging and forests (rows
+/// every tree saw left out), the training rows' own otherwise (apparent).
 fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
     let loaded = held
         .loaded
@@ -722,28 +733,37 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
     let mut outcomes = Vec::with_capacity(codes.len());
     let mut probabilities = Vec::with_capacity(codes.len());
     let mut left_out = 0;
-    let out_of_bag = match &model.ensemble {
-        Ensemble::Forest(f) if f.oob_prediction.len() == 2 * codes.len() => {
-            for (i, &y) in codes.iter().enumerate() {
-                let p = f.oob_prediction[2 * i + 1];
-                if p.is_finite() {
-                    outcomes.push(y);
-                    probabilities.push(p.clamp(0.0, 1.0));
-                } else {
-                    left_out += 1;
-                }
+    let mut keep = |y: u32, p: f64| {
+        if p.is_finite() {
+            outcomes.push(y);
+            probabilities.push(p.clamp(0.0, 1.0));
+        } else {
+            left_out += 1;
+        }
+    };
+    // Out-of-sample where the run was judged (or is a forest, judged by its out-of-bag
+    // rows); the training rows' own predictions otherwise, labelled as apparent.
+    let judged_by = match (&r.judged, &model.ensemble) {
+        (Some((words, second)), _) if second.len() == codes.len() => {
+            for (&y, &p) in codes.iter().zip(second) {
+                keep(y, p);
             }
-            true
+            Some(words.clone())
+        }
+        (_, Ensemble::Forest(f)) if f.oob_prediction.len() == 2 * codes.len() => {
+            for (i, &y) in codes.iter().enumerate() {
+                keep(y, f.oob_prediction[2 * i + 1]);
+            }
+            Some("out-of-bag records".to_string())
         }
         _ => {
             let (records, _) = model.records(&loaded.table).map_err(|e| e.to_string())?;
             let mut out = vec![0.0; model.outputs()];
             for (i, &y) in codes.iter().enumerate() {
                 model.predict(Rows::Records(&records), d.rows[i], &mut out);
-                outcomes.push(y);
-                probabilities.push(out[1].clamp(0.0, 1.0));
+                keep(y, out[1]);
             }
-            false
+            None
         }
     };
     Ok(RunPredictions {
@@ -751,7 +771,7 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
         classes,
         outcomes,
         probabilities,
-        out_of_bag,
+        judged_by,
         left_out,
     })
 }

@@ -3,9 +3,10 @@
 //! 95% Wilson intervals, and net benefit beside treating everyone or no one, all from
 //! `spinney_core::metrics` as the threshold moves.
 //!
-//! The rows' predictions come from the worker once per run: out-of-bag for bagging and
-//! forests (out-of-sample), the training rows' own otherwise, labelled as training (apparent)
-//! and never as a validation. Validation schemes will bring held-out predictions here.
+//! The rows' predictions come from the worker once per run: the judged scheme's
+//! out-of-sample predictions when the run was judged (cross-validation, holdout, bootstrap
+//! refits, out-of-bag), out-of-bag for an unjudged forest, and the training rows' own
+//! otherwise, labelled as training (apparent) and never as a validation.
 
 use spinney_core::metrics::binary::{at_threshold, net_benefit, net_benefit_treat_all, Proportion};
 use spinney_web::protocol::{Request, RunPredictions, PROTOCOL_VERSION};
@@ -173,21 +174,24 @@ fn render_figures(p: &Page) {
         .collect();
     let pos = esc(&d.classes[t.positive as usize]);
     let neg = esc(&d.classes[1 - t.positive as usize]);
-    let source = if d.out_of_bag {
+    let left_out = if d.left_out > 0 {
         format!(
-            "<p class=\"source\"><strong>Out-of-bag predictions</strong>: each record is judged only by the trees that did not see it in training, so these figures are out-of-sample. {} records{}.</p>",
-            outcomes.len(),
-            if d.left_out > 0 {
-                format!("; {} left out because every tree saw them", d.left_out)
-            } else {
-                String::new()
-            }
+            "; {} left out because no model that missed them judged them",
+            d.left_out
         )
     } else {
-        format!(
-            "<p class=\"source apparent-note\"><strong>Training predictions (apparent)</strong>: the {} records this model learnt from. These figures flatter the model; they are not a validation.</p>",
+        String::new()
+    };
+    let source = match &d.judged_by {
+        Some(scheme) => format!(
+            "<p class=\"source\"><strong>Out-of-sample predictions ({})</strong>: each record is judged only by a model that did not learn from it, so these figures are out-of-sample. {} records{left_out}.</p>",
+            esc(scheme),
+            outcomes.len(),
+        ),
+        None => format!(
+            "<p class=\"source apparent-note\"><strong>Training predictions (apparent)</strong>: the {} records this model learnt from. These figures flatter the model; they are not a validation. Judge the run (step 3) to see out-of-sample figures here.</p>",
             outcomes.len()
-        )
+        ),
     };
     let figures = match at_threshold(&outcomes, &probabilities, t.value) {
         Ok(f) => f,
@@ -210,8 +214,8 @@ fn render_figures(p: &Page) {
     let nb_all = net_benefit_treat_all(prevalence, t.value);
     let mut html = source;
     html += &format!(
-        "<div class=\"threshold-tables\" data-threshold=\"{}\" data-tp=\"{}\" data-fp=\"{}\" data-tn=\"{}\" data-fn=\"{}\" data-net-benefit=\"{nb}\" data-out-of-bag=\"{}\">",
-        t.value, c.true_positives, c.false_positives, c.true_negatives, c.false_negatives, d.out_of_bag
+        "<div class=\"threshold-tables\" data-threshold=\"{}\" data-tp=\"{}\" data-fp=\"{}\" data-tn=\"{}\" data-fn=\"{}\" data-net-benefit=\"{nb}\" data-out-of-sample=\"{}\">",
+        t.value, c.true_positives, c.false_positives, c.true_negatives, c.false_negatives, d.judged_by.is_some()
     );
     html += &format!(
         "<table class=\"confusion\"><caption>Records at threshold {:.2}</caption><thead><tr><td></td><th scope=\"col\">called {pos}</th><th scope=\"col\">called {neg}</th></tr></thead><tbody><tr><th scope=\"row\">truly {pos}</th><td class=\"num hit\">{}</td><td class=\"num miss\">{}</td></tr><tr><th scope=\"row\">truly {neg}</th><td class=\"num miss\">{}</td><td class=\"num hit\">{}</td></tr></tbody></table>",
