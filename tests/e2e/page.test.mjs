@@ -284,6 +284,23 @@ try {
     await page.locator('#step-compare').screenshot({ path: join(out, 'compare-step.png') });
   });
 
+  await check('5-fold cross-validation spread over two workers gives the same figures as one worker', async () => {
+    // The boosting run above was judged with its folds on the default workers (two on a
+    // two-thread machine: page/pool.rs); the same run on one worker fits every fold itself.
+    const exact = () => page.$$eval('#compare-table tbody tr[data-run]', (r) => r.map((x) =>
+      [...x.querySelectorAll('[data-figure]')].map((c) => `${c.dataset.figure}=${c.dataset.value}`).join(' ')));
+    await page.waitForSelector('#compare-table tbody tr[data-run="4"]');
+    const spread = (await exact())[3];
+    expect(/auc=0\.\d+/.test(spread), `figures: ${spread}`);
+    await page.selectOption('#workers', '1');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="5"]', { timeout: 60000 });
+    await page.waitForSelector('#compare-table tbody tr[data-run="5"]');
+    const alone = (await exact())[4];
+    expect(alone === spread, `one worker: ${alone}; spread: ${spread}`);
+    await page.selectOption('#workers', '2');
+  });
+
   await check('a design the core refuses gives its message in the step, and the runs stay', async () => {
     expect(await page.$eval('#runs-stale', (e) => e.hidden), 'stale note shown before any change');
     await page.selectOption('select[data-field=role][data-col="0"]', 'predictor');
@@ -292,7 +309,7 @@ try {
     const msg = await page.textContent('#fit-message');
     expect(msg.includes("the predictor 'patient_id' is free text or an identifier"), msg);
     expect(msg.includes('runs kept so far are unchanged'), msg);
-    expect((await runRows()).length === 4, 'runs lost after a refused fit');
+    expect((await runRows()).length === 5, 'runs lost after a refused fit');
     await page.selectOption('select[data-field=role][data-col="0"]', 'group');
     // Putting the role back still counts as a change: the earlier runs are now marked.
     await page.waitForSelector('#runs-stale:not([hidden])');
@@ -303,7 +320,7 @@ try {
     await page.selectOption(`select[data-field=role][data-col="${names.indexOf('bmi')}"]`, 'ignore');
     await page.waitForSelector('#runs-stale:not([hidden])');
     const rows = await runRows();
-    expect(rows.length === 4 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
+    expect(rows.length === 5 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
     await page.locator('#step-runs').screenshot({ path: join(out, 'runs-step.png') });
     await page.screenshot({ path: join(out, 'runs-stale.png'), fullPage: true });
   });

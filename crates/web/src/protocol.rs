@@ -6,6 +6,7 @@
 
 use serde::{Deserialize, Serialize};
 use spinney_core::data::TableReport;
+use spinney_core::validate::FoldRun;
 
 /// Bumped when a message changes incompatibly.
 pub const PROTOCOL_VERSION: u32 = 3;
@@ -67,6 +68,27 @@ pub enum Request {
         settings: Vec<(String, String)>,
         first: usize,
         count: usize,
+    },
+    /// Fit and judge splits `share`, `share + of`, `share + 2·of`, … of `judging`'s splits
+    /// (one extra worker's share of a cross-validation, holdout or bootstrap) on the table
+    /// the worker holds; answered by [`Reply::Folds`].
+    FoldPart {
+        v: u32,
+        id: u32,
+        design: FitDesign,
+        method: String,
+        settings: Vec<(String, String)>,
+        judging: Judging,
+        share: usize,
+        of: usize,
+    },
+    /// Every split's fit of run `id`'s judging, in split order, done by extra workers: the
+    /// `Fit` or `Assemble` of the same id that follows judges with them instead of fitting
+    /// the splits again (the same fits, so the same figures).
+    FoldRuns {
+        v: u32,
+        id: u32,
+        runs: Vec<FoldRun>,
     },
     /// Make the forest of `Fit`'s fields from trees fitted by several workers, whose bytes
     /// (every share in tree order, joined) come with the message; answered like `Fit`.
@@ -283,6 +305,14 @@ pub enum Reply {
     Scored { id: u32, result: Box<ScoreResult> },
     /// A share of a forest's trees is fitted; its bytes come with the message.
     Part { id: u32, first: usize, count: usize },
+    /// One extra worker's share of a judging's splits: (split index, its fit), and how many
+    /// splits the scheme has in all.
+    Folds {
+        id: u32,
+        share: usize,
+        count: usize,
+        runs: Vec<(usize, FoldRun)>,
+    },
     /// The request failed; the worker still holds the table it had before, if any.
     Failed {
         id: u32,
@@ -301,7 +331,9 @@ impl Request {
             | Request::Score { v, .. }
             | Request::ModelFiles { v, .. }
             | Request::FitPart { v, .. }
-            | Request::Assemble { v, .. } => *v,
+            | Request::Assemble { v, .. }
+            | Request::FoldPart { v, .. }
+            | Request::FoldRuns { v, .. } => *v,
         }
     }
 }

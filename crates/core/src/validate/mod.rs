@@ -49,8 +49,8 @@ pub struct Plan {
     pub baseline: bool,
 }
 
-/// What one split's fit gave.
-#[derive(Debug, Clone, PartialEq)]
+/// What one split's fit gave (serialisable: the page's extra workers send theirs back).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct FoldRun {
     /// Predictions of the split's test rows, `outputs` per row, in its order.
     pub predictions: Vec<f64>,

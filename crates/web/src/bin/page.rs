@@ -404,8 +404,9 @@ fn on_reply(page: &Shared, reply: Reply) {
         Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
         Reply::Scored { id, result } => score::scored(page, id, *result),
         Reply::ModelFiles { id, files } => study::models_arrived(page, id, files),
-        // Shares of a forest come from the extra workers (see pool.rs), not this one.
-        Reply::Part { .. } => {}
+        // Shares of a forest or of a judging's splits come from the extra workers (see
+        // pool.rs), not this one.
+        Reply::Part { .. } | Reply::Folds { .. } => {}
         Reply::Failed {
             id,
             message,

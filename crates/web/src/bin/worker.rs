@@ -20,7 +20,9 @@ use spinney_core::progress::{Flow, Progress};
 use spinney_core::scoring::{partial_note, unseen_note, PredictionRows};
 use spinney_core::settings::FitSettings;
 use spinney_core::tree::Rows;
-use spinney_core::validate::{self, judge::Judged, Plan, Scheme, Validation};
+use spinney_core::validate::{
+    self, judge::Judged, run_in_order, run_split, FoldJob, FoldRun, Plan, Scheme, Validation,
+};
 use spinney_web::protocol::{
     CalibrationGroup, Figure, FitDesign, Judging, Preview, ReadSettings, Reply, Request,
     RunPredictions, RunResult, RunValidation, ScoreResult, MAX_FILE_BYTES, PREVIEW_ROWS,
@@ -35,6 +37,8 @@ struct Held {
     name: String,
     bytes: Vec<u8>,
     loaded: Option<Loaded>,
+    /// The splits' fits of a judging done by extra workers, for the fit of this id.
+    fold_runs: Option<(u32, Vec<FoldRun>)>,
     /// Every model fitted since the worker started, by run number (for the later steps:
     /// insight, threshold, scoring). A cancel restarts the worker, so the list starts again.
     runs: Vec<Run>,
@@ -236,6 +240,35 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             }
             return;
         }
+        Request::FoldRuns { id, runs, .. } => {
+            held.fold_runs = Some((id, runs));
+            return;
+        }
+        Request::FoldPart {
+            id,
+            design,
+            method,
+            settings,
+            judging,
+            share,
+            of,
+            ..
+        } => {
+            match fold_part(held, id, &design, &method, &settings, &judging, share, of) {
+                Ok((count, runs)) => post(&Reply::Folds {
+                    id,
+                    share,
+                    count,
+                    runs,
+                }),
+                Err(message) => post(&Reply::Failed {
+                    id,
+                    message,
+                    kept_previous: held.loaded.is_some(),
+                }),
+            }
+            return;
+        }
         Request::FitPart {
             id,
             design,
@@ -389,6 +422,11 @@ fn fit(
     let mut fitted =
         fit_design(d, &settings, fingerprint, options, &mut progress).map_err(|e| e.to_string())?;
     let fit_seconds = (js_sys::Date::now() - start) / 1000.0;
+    // Splits fitted by extra workers for this run, if the page sent them.
+    let fold_runs = match held.fold_runs.take() {
+        Some((for_id, runs)) if for_id == id => Some(runs),
+        _ => None,
+    };
     let (validation, validation_refused, judged) = match &judging {
         None => (None, None, None),
         Some(j) => match judge_run(
@@ -399,6 +437,7 @@ fn fit(
             &settings,
             &fitted,
             j,
+            fold_runs,
             &mut progress,
         ) {
             Ok((v, judged)) => (Some(v), None, judged),
@@ -500,17 +539,18 @@ fn judge_run(
     settings: &FitSettings,
     fitted: &Fitted,
     judging: &Judging,
+    fold_runs: Option<Vec<FoldRun>>,
     progress: &mut dyn Progress,
 ) -> Result<(RunValidation, Option<(String, Vec<f64>)>), String> {
     // The splits need the predictors' values, which the fitted design no longer holds.
     let (full, _) = design_and_settings(held, design, method, sets)?;
-    let scheme = Scheme::parse(&judging.scheme).map_err(|e| e.to_string())?;
-    let plan = Plan {
-        scheme: scheme.clone(),
-        seed: judging.seed,
-        threshold: judging.threshold,
-        resamples: JUDGING_RESAMPLES,
-        baseline: judging.baseline,
+    let plan = judging_plan(judging)?;
+    let scheme = plan.scheme.clone();
+    // The splits' fits from extra workers when every one came; fitted here otherwise.
+    let runner = |count: usize, job: &FoldJob<'_>, progress: &mut dyn Progress| match &fold_runs
+    {
+        Some(runs) if runs.len() == count => Ok(runs.clone()),
+        _ => run_in_order(count, job, progress),
     };
     let v = if scheme == Scheme::OutOfBag {
         validate::out_of_bag(&full, fitted, &plan)
@@ -520,7 +560,7 @@ fn judge_run(
             settings,
             &plan,
             FitOptions::default(),
-            None,
+            Some(&runner),
             progress,
         )
     }
@@ -535,6 +575,81 @@ fn judge_run(
         (scheme_words(&scheme), second)
     });
     Ok((run_validation(&v, &scheme, warnings), judged))
+}
+
+/// The validation plan of the page's judging choice.
+fn judging_plan(judging: &Judging) -> Result<Plan, String> {
+    Ok(Plan {
+        scheme: Scheme::parse(&judging.scheme).map_err(|e| e.to_string())?,
+        seed: judging.seed,
+        threshold: judging.threshold,
+        resamples: JUDGING_RESAMPLES,
+        baseline: judging.baseline,
+    })
+}
+
+/// One extra worker's share of a judging: fits splits `share`, `share + of`, … of the
+/// scheme's splits (the same splits, seeds and fits as [`validate::validate`] makes), and
+/// tells how many splits there are in all.
+#[allow(clippy::too_many_arguments)]
+fn fold_part(
+    held: &Held,
+    id: u32,
+    design: &FitDesign,
+    method: &str,
+    sets: &[(String, String)],
+    judging: &Judging,
+    share: usize,
+    of: usize,
+) -> Result<(usize, Vec<(usize, FoldRun)>), String> {
+    let (full, settings) = design_and_settings(held, design, method, sets)?;
+    let plan = judging_plan(judging)?;
+    let splits = validate::splits(&full, &plan.scheme, plan.seed).map_err(|e| e.to_string())?;
+    let mine: Vec<usize> = (share..splits.len()).step_by(of.max(1)).collect();
+    let mut progress = ShareProgress {
+        outer: Reporter::new(id),
+        index: 0,
+        count: mine.len(),
+    };
+    let mut runs = Vec::with_capacity(mine.len());
+    for (k, &i) in mine.iter().enumerate() {
+        progress.index = k;
+        let run = run_split(
+            &full,
+            &settings,
+            &plan,
+            &splits[i],
+            FitOptions::default(),
+            &mut progress,
+        )
+        .map_err(|e| e.to_string())?;
+        runs.push((i, run));
+    }
+    Ok((splits.len(), runs))
+}
+
+/// Progress of one worker's share of splits as a whole: split `index` of `count`, each
+/// split's own steps a thousandth of it.
+struct ShareProgress {
+    outer: Reporter,
+    index: usize,
+    count: usize,
+}
+
+impl Progress for ShareProgress {
+    fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
+        let within = if total == 0 {
+            0
+        } else {
+            1000 * done.min(total) / total
+        };
+        let label = format!("fit {}/{}: {stage}", self.index + 1, self.count);
+        self.outer.step(
+            &label,
+            1000 * self.index as u64 + within,
+            1000 * self.count.max(1) as u64,
+        )
+    }
 }
 
 /// A validation scheme in plain words, for the page.

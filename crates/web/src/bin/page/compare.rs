@@ -127,8 +127,14 @@ pub fn render(p: &Page) {
                     v.judged_rows
                 );
                 for (name, _) in columns {
+                    // The figure to the last digit, for tests and the report.
+                    let exact = v
+                        .figures
+                        .iter()
+                        .find(|f| f.name == *name)
+                        .map_or(String::new(), |f| f.value.to_string());
                     html += &format!(
-                        "<td class=\"num\" data-figure=\"{name}\">{}</td>",
+                        "<td class=\"num\" data-figure=\"{name}\" data-value=\"{exact}\">{}</td>",
                         cell(&v.figures, name)
                     );
                 }

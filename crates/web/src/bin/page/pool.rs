@@ -5,9 +5,17 @@
 //! ([`Request::Assemble`]), which tallies them into the same forest one worker would have
 //! grown (each tree draws only from its own seeded streams) and keeps it as a run.
 //!
+//! A run judged by refitting on splits (cross-validation, holdout, bootstrap) first spreads
+//! its splits over the same workers ([`Request::FoldPart`]): each fits every n-th split and
+//! sends the fits back; the page hands them all to the main worker ([`Request::FoldRuns`])
+//! before the run's own fit, whose judging then uses them instead of fitting the splits
+//! one after another. Each split draws only from its own seeded streams, so the figures
+//! equal one worker's.
+//!
 //! The main worker stays free meanwhile; a cancel stops these workers with it.
 
 use js_sys::{Reflect, Uint8Array};
+use spinney_core::validate::FoldRun;
 use spinney_web::protocol::{FitDesign, Judging, Reply, Request, PROTOCOL_VERSION};
 use wasm_bindgen::prelude::*;
 use web_sys::{MessageEvent, Worker};
@@ -41,10 +49,20 @@ struct Job {
     finished: Option<f64>,
 }
 
+/// A judging's splits being fitted in shares, before the run's own fit (`then`).
+struct Folds {
+    then: runs::Grow,
+    /// Each helper's reply: the splits in all, and its (split, fit) pairs.
+    replies: Vec<Option<(usize, Vec<(usize, FoldRun)>)>>,
+    /// Progress of each helper, in thousandths of its share.
+    done: Vec<(u64, u64)>,
+}
+
 #[derive(Default)]
 pub struct Pool {
     helpers: Vec<Helper>,
     job: Option<Job>,
+    folds: Option<Folds>,
 }
 
 impl Pool {
@@ -54,6 +72,7 @@ impl Pool {
             h.worker.terminate();
         }
         self.job = None;
+        self.folds = None;
     }
 
     /// Wall-clock seconds the shares of fit `id` took, once all are in.
@@ -113,24 +132,9 @@ pub fn start(
     trees: usize,
     workers: usize,
 ) {
-    let (key, origin, read_settings) = {
+    let n = workers.min(trees).max(1);
+    {
         let mut p = page.borrow_mut();
-        let Some(report) = &p.report else { return };
-        let key = format!("{} {:?}", report.fingerprint_sha256, p.settings);
-        let (origin, read_settings) = (p.good_origin.clone(), p.settings.clone());
-        let n = workers.min(trees).max(1);
-        drop(p);
-        while page.borrow().pool.helpers.len() < n {
-            let index = page.borrow().pool.helpers.len();
-            let worker = spawn(page, index);
-            page.borrow_mut().pool.helpers.push(Helper {
-                worker,
-                ready: false,
-                queued: Vec::new(),
-                table: None,
-            });
-        }
-        p = page.borrow_mut();
         // Shares as equal as can be, in tree order.
         let shares: Vec<(usize, usize)> = (0..n)
             .map(|k| {
@@ -151,25 +155,52 @@ pub fn start(
             started: super::runs::now(),
             finished: None,
         });
-        (key, origin, read_settings)
+    }
+    dispatch(page, id, n);
+}
+
+/// Fits the splits of `then`'s judging on its `workers` extra workers, then grows `then`
+/// with their fits handed to the main worker.
+pub fn start_folds(page: &Shared, then: runs::Grow) {
+    let (id, n) = (then.id, then.workers.max(1));
+    page.borrow_mut().pool.folds = Some(Folds {
+        then,
+        replies: vec![None; n],
+        done: vec![(0, 1); n],
+    });
+    dispatch(page, id, n);
+}
+
+/// Makes sure `n` extra workers exist and hold the main table, and sends each its share of
+/// the job in hand (at once, or once it has read the table).
+fn dispatch(page: &Shared, id: u32, n: usize) {
+    let (key, origin, read_settings) = {
+        let p = page.borrow();
+        let Some(report) = &p.report else { return };
+        (
+            format!("{} {:?}", report.fingerprint_sha256, p.settings),
+            p.good_origin.clone(),
+            p.settings.clone(),
+        )
     };
-    let n = page
-        .borrow()
-        .pool
-        .job
-        .as_ref()
-        .map_or(0, |j| j.shares.len());
+    while page.borrow().pool.helpers.len() < n {
+        let index = page.borrow().pool.helpers.len();
+        let worker = spawn(page, index);
+        page.borrow_mut().pool.helpers.push(Helper {
+            worker,
+            ready: false,
+            queued: Vec::new(),
+            table: None,
+        });
+    }
     let stale: Vec<usize> = (0..n)
         .filter(|&i| page.borrow().pool.helpers[i].table.as_deref() != Some(key.as_str()))
         .collect();
-    if stale.is_empty() {
-        for i in 0..n {
-            send_share(page, i);
-        }
-        return;
-    }
     for i in (0..n).filter(|i| !stale.contains(i)) {
-        send_share(page, i);
+        send_work(page, i);
+    }
+    if stale.is_empty() {
+        return;
     }
     // The others first read the table (the same bytes and settings as the main worker).
     let Some(origin) = origin else {
@@ -203,6 +234,37 @@ pub fn start(
     });
 }
 
+/// Sends helper `i` its share of the splits when a judging is being spread, else of the
+/// forest's trees.
+fn send_work(page: &Shared, i: usize) {
+    let request = {
+        let p = page.borrow();
+        match &p.pool.folds {
+            Some(f) => {
+                let g = &f.then;
+                let Some(judging) = g.judging.clone() else {
+                    return;
+                };
+                Some(Request::FoldPart {
+                    v: PROTOCOL_VERSION,
+                    id: g.id,
+                    design: g.design.clone(),
+                    method: g.method.clone(),
+                    settings: g.settings.clone(),
+                    judging,
+                    share: i,
+                    of: f.replies.len(),
+                })
+            }
+            None => None,
+        }
+    };
+    match request {
+        Some(r) => post(page, i, r, None),
+        None => send_share(page, i),
+    }
+}
+
 /// Sends helper `i` its share of the job.
 fn send_share(page: &Shared, i: usize) {
     let request = {
@@ -223,7 +285,8 @@ fn send_share(page: &Shared, i: usize) {
 }
 
 fn on_reply(page: &Shared, index: usize, reply: Reply, bytes: Option<Uint8Array>) {
-    let job_id = page.borrow().pool.job.as_ref().map(|j| j.id);
+    let folds_id = page.borrow().pool.folds.as_ref().map(|f| f.then.id);
+    let job_id = folds_id.or(page.borrow().pool.job.as_ref().map(|j| j.id));
     match reply {
         Reply::Ready { v } => {
             let mut p = page.borrow_mut();
@@ -241,7 +304,22 @@ fn on_reply(page: &Shared, index: usize, reply: Reply, bytes: Option<Uint8Array>
             }
         }
         // The table is in: now its share.
-        Reply::Table { id, .. } if Some(id) == job_id => send_share(page, index),
+        Reply::Table { id, .. } if Some(id) == job_id => send_work(page, index),
+        Reply::Progress {
+            id, done, total, ..
+        } if folds_id == Some(id) => {
+            let mut p = page.borrow_mut();
+            let Some(f) = p.pool.folds.as_mut() else {
+                return;
+            };
+            f.done[index] = (done, total.max(1));
+            let share: f64 = f.done.iter().map(|&(d, t)| d as f64 / t as f64).sum::<f64>()
+                / f.done.len() as f64;
+            runs::progress(&p, (share * 1000.0) as u64, 1000);
+        }
+        Reply::Folds {
+            id, count, runs, ..
+        } if folds_id == Some(id) => folds_in(page, index, count, runs),
         Reply::Progress { id, done, .. } if Some(id) == job_id => {
             let mut p = page.borrow_mut();
             let Some(job) = p.pool.job.as_mut() else {
@@ -291,6 +369,7 @@ fn on_reply(page: &Shared, index: usize, reply: Reply, bytes: Option<Uint8Array>
         }
         Reply::Failed { id, message, .. } if Some(id) == job_id || id == 0 => {
             page.borrow_mut().pool.job = None;
+            page.borrow_mut().pool.folds = None;
             // The helper may not hold the table it was asked to read.
             if let Some(h) = page.borrow_mut().pool.helpers.get_mut(index) {
                 h.table = None;
@@ -299,4 +378,46 @@ fn on_reply(page: &Shared, index: usize, reply: Reply, bytes: Option<Uint8Array>
         }
         _ => {}
     }
+}
+
+/// Helper `index`'s splits are in; once every helper's are, they go to the main worker in
+/// split order and the run's own fit starts.
+fn folds_in(page: &Shared, index: usize, count: usize, runs: Vec<(usize, FoldRun)>) {
+    let done = {
+        let mut p = page.borrow_mut();
+        let Some(f) = p.pool.folds.as_mut() else {
+            return;
+        };
+        f.replies[index] = Some((count, runs));
+        if f.replies.iter().any(Option::is_none) {
+            return;
+        }
+        p.pool.folds.take()
+    };
+    let Some(f) = done else { return };
+    let mut all: Vec<(usize, FoldRun)> = Vec::new();
+    for (n, runs) in f.replies.into_iter().flatten() {
+        if n != count {
+            return runs::failed(
+                page,
+                "The extra workers disagreed on the number of splits; reload the page",
+            );
+        }
+        all.extend(runs);
+    }
+    all.sort_by_key(|(i, _)| *i);
+    let complete = all.len() == count && all.iter().enumerate().all(|(k, (i, _))| k == *i);
+    if complete {
+        send(
+            page,
+            Request::FoldRuns {
+                v: PROTOCOL_VERSION,
+                id: f.then.id,
+                runs: all.into_iter().map(|(_, r)| r).collect(),
+            },
+            None,
+        );
+    }
+    // Without every split the main worker fits them itself: slower, same figures.
+    runs::grow(page, f.then);
 }

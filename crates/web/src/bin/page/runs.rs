@@ -767,7 +767,7 @@ fn start(page: &Shared) {
 
 /// Sends one fit to the worker, or queues it behind the one in flight.
 pub fn start_fit(page: &Shared, ask: FitAsk) {
-    let request = {
+    let grow = {
         let mut p = page.borrow_mut();
         if p.fits.in_flight.is_some() {
             p.fits.queue.push_back(ask);
@@ -812,32 +812,65 @@ pub fn start_fit(page: &Shared, ask: FitAsk) {
             })
             .unwrap_or(0);
         let workers = p.fits.workers();
-        if matches!(method, FitMethod::Forest | FitMethod::Bagging) && workers > 1 && trees > 1 {
-            Err((
-                id,
-                design,
-                method.word().to_string(),
-                settings,
-                judging,
-                trees,
-                workers,
-            ))
-        } else {
-            Ok(Request::Fit {
-                v: PROTOCOL_VERSION,
-                id,
-                design,
-                method: method.word().to_string(),
-                settings,
-                judging,
-            })
+        Grow {
+            id,
+            design,
+            method: method.word().to_string(),
+            settings,
+            judging,
+            trees: if matches!(method, FitMethod::Forest | FitMethod::Bagging) {
+                trees
+            } else {
+                0
+            },
+            workers,
         }
     };
-    match request {
-        Ok(request) => send(page, request, None),
-        Err((id, design, method, settings, judging, trees, workers)) => {
-            super::pool::start(page, id, design, method, settings, judging, trees, workers)
-        }
+    // A judging that refits on splits spreads its splits over extra workers first.
+    let splits = grow
+        .judging
+        .as_ref()
+        .is_some_and(|j| j.scheme != "oob" && j.scheme != "none");
+    if grow.workers > 1 && splits {
+        super::pool::start_folds(page, grow);
+    } else {
+        self::grow(page, grow);
+    }
+}
+
+/// A fit ready to go: its request's fields, the trees of a forest or bagging (0 for the
+/// other methods) and the workers the user allows.
+#[derive(Clone)]
+pub struct Grow {
+    pub id: u32,
+    pub design: FitDesign,
+    pub method: String,
+    pub settings: Vec<(String, String)>,
+    pub judging: Option<Judging>,
+    pub trees: usize,
+    pub workers: usize,
+}
+
+/// Grows the model of `g`: a forest's trees over extra workers, anything else in the main
+/// worker.
+pub fn grow(page: &Shared, g: Grow) {
+    if g.trees > 1 && g.workers > 1 {
+        super::pool::start(
+            page, g.id, g.design, g.method, g.settings, g.judging, g.trees, g.workers,
+        );
+    } else {
+        send(
+            page,
+            Request::Fit {
+                v: PROTOCOL_VERSION,
+                id: g.id,
+                design: g.design,
+                method: g.method,
+                settings: g.settings,
+                judging: g.judging,
+            },
+            None,
+        );
     }
 }
 
