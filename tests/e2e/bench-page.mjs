@@ -3,7 +3,11 @@
 // native command line on the same generated file: a 300-tree random forest and 200 rounds of
 // gradient boosting (31 leaves, learning rate 0.1, 255 bins); the forest on one worker and on
 // as many as the machine offers (the page's worker count), native on one thread. Run after
-// `trunk build --offline --release` and `cargo build --release -p spinney-cli`:
+// `trunk build --offline --release` and `cargo build --release -p spinney-cli`. The tab's
+// memory is sampled every 200 ms while each fit runs: the resident memory of Chromium's
+// renderer processes (the page, its workers and their wasm memories live there; Linux only),
+// and the peak is printed beside each fit.
+//
 //   node tests/e2e/bench-page.mjs [ROWS] [forest|boosting]   (scripts/bench page [ROWS] builds first)
 import { chromium } from 'playwright-core';
 import { execFileSync } from 'node:child_process';
@@ -48,6 +52,22 @@ const native = (args) => {
   return out.fit_seconds;
 };
 
+// Resident memory of every Chromium renderer process, in bytes (Linux /proc; 0 elsewhere).
+function tabMemory() {
+  let total = 0;
+  for (const pid of readdirSync('/proc').filter((d) => /^\d+$/.test(d))) {
+    try {
+      const cmd = readFileSync(`/proc/${pid}/cmdline`, 'utf8');
+      if (!cmd.includes('chrom') || !cmd.includes('--type=renderer')) continue;
+      const rss = readFileSync(`/proc/${pid}/status`, 'utf8').match(/VmRSS:\s+(\d+) kB/);
+      if (rss) total += Number(rss[1]) * 1024;
+    } catch { /* the process ended meanwhile */ }
+  }
+  return total;
+}
+let peak = 0;
+const sampler = setInterval(() => { peak = Math.max(peak, tabMemory()); }, 200);
+
 const server = await serve(join(root, 'dist'), 0);
 const browser = await chromium.launch({
   executablePath: process.env.CHROMIUM ?? '/usr/bin/chromium',
@@ -69,10 +89,11 @@ try {
   }
   console.log(`page load to interactive (cached): ${Math.min(...loads)} ms best of 3 (${loads.join(', ')} ms)`);
 
+  peak = tabMemory();
   await page.setInputFiles('#file-input', file);
   await page.waitForFunction((n) => document.querySelector('.facts')?.textContent.includes(n), `page-${rows}.csv`, { timeout: 600000 });
   const readSeconds = Number(await page.getAttribute('#data-result', 'data-read-seconds'));
-  console.log(`page read: ${readSeconds.toFixed(2)} s`);
+  console.log(`page read: ${readSeconds.toFixed(2)} s; tab at peak ${(peak / 1e6).toFixed(0)} MB resident`);
   const names = await page.$$eval('table.columns tbody th[scope=row]', (s) => s.map((x) => x.textContent));
   await page.selectOption(`select[data-field=role][data-col="${names.indexOf('y')}"]`, 'outcome');
   await page.waitForSelector('#step-runs:not([hidden]) #run-start');
@@ -96,6 +117,7 @@ try {
     // Fit time only: no validation refits.
     await page.selectOption('#judging', 'none');
     await page.waitForFunction(() => !document.querySelector('#run-start').disabled);
+    peak = tabMemory();
     await page.click('#run-start');
     done += 1;
     await page.waitForSelector(`#step-runs[data-runs="${done}"]`, { timeout: 1800000 });
@@ -105,9 +127,11 @@ try {
     nativeSeconds[key] ??= native(f.cli);
     const nat = nativeSeconds[key];
     console.log(`${f.name}: page ${seconds.toFixed(2)} s, native (1 thread) ${nat.toFixed(2)} s, ` +
-      `ratio ${(seconds / nat).toFixed(2)}; main worker wasm memory ${(memory / 1e6).toFixed(0)} MB`);
+      `ratio ${(seconds / nat).toFixed(2)}; main worker wasm memory ${(memory / 1e6).toFixed(0)} MB; ` +
+      `tab at peak ${(peak / 1e6).toFixed(0)} MB resident`);
   }
 } finally {
+  clearInterval(sampler);
   await browser.close();
   server.close();
 }

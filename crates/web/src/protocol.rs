@@ -69,6 +69,8 @@ pub enum Request {
         first: usize,
         count: usize,
     },
+    /// The checks of a design before any fit (step 2): answered by [`Reply::Warnings`].
+    Warnings { v: u32, id: u32, design: FitDesign },
     /// Fit and judge splits `share`, `share + of`, `share + 2·of`, … of `judging`'s splits
     /// (one extra worker's share of a cross-validation, holdout or bootstrap) on the table
     /// the worker holds; answered by [`Reply::Folds`].
@@ -85,11 +87,7 @@ pub enum Request {
     /// Every split's fit of run `id`'s judging, in split order, done by extra workers: the
     /// `Fit` or `Assemble` of the same id that follows judges with them instead of fitting
     /// the splits again (the same fits, so the same figures).
-    FoldRuns {
-        v: u32,
-        id: u32,
-        runs: Vec<FoldRun>,
-    },
+    FoldRuns { v: u32, id: u32, runs: Vec<FoldRun> },
     /// Make the forest of `Fit`'s fields from trees fitted by several workers, whose bytes
     /// (every share in tree order, joined) come with the message; answered like `Fit`.
     Assemble {
@@ -305,6 +303,13 @@ pub enum Reply {
     Scored { id: u32, result: Box<ScoreResult> },
     /// A share of a forest's trees is fitted; its bytes come with the message.
     Part { id: u32, first: usize, count: usize },
+    /// The checks of a design computed from the records (sample size, leakage, identifiers,
+    /// imbalance, repeated records), or why no model can be grown on it.
+    Warnings {
+        id: u32,
+        warnings: Vec<String>,
+        refused: Option<String>,
+    },
     /// One extra worker's share of a judging's splits: (split index, its fit), and how many
     /// splits the scheme has in all.
     Folds {
@@ -333,6 +338,7 @@ impl Request {
             | Request::FitPart { v, .. }
             | Request::Assemble { v, .. }
             | Request::FoldPart { v, .. }
+            | Request::Warnings { v, .. }
             | Request::FoldRuns { v, .. } => *v,
         }
     }

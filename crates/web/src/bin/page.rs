@@ -19,6 +19,8 @@ use wasm_bindgen::prelude::*;
 use wasm_bindgen_futures::{spawn_local, JsFuture};
 // The model-runs step; kept beside this file (a directory of its own, so Cargo does not take
 // it for another binary).
+#[path = "page/checks.rs"]
+mod checks;
 #[path = "page/compare.rs"]
 mod compare;
 #[path = "page/measured.rs"]
@@ -123,6 +125,8 @@ struct Page {
     scoring: score::Scoring,
     /// Extra workers growing shares of a forest.
     pool: pool::Pool,
+    /// Step 2's checks computed from the records.
+    checks: checks::Checks,
 }
 
 type Shared = Rc<RefCell<Page>>;
@@ -397,6 +401,7 @@ fn on_reply(page: &Shared, reply: Reply) {
             }
             render_columns(&p);
             drop(p);
+            checks::forget(page);
             runs_changed(page);
             study::table_read(page);
         }
@@ -404,6 +409,11 @@ fn on_reply(page: &Shared, reply: Reply) {
         Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
         Reply::Scored { id, result } => score::scored(page, id, *result),
         Reply::ModelFiles { id, files } => study::models_arrived(page, id, files),
+        Reply::Warnings {
+            id,
+            warnings,
+            refused,
+        } => checks::arrived(page, id, warnings, refused),
         // Shares of a forest or of a judging's splits come from the extra workers (see
         // pool.rs), not this one.
         Reply::Part { .. } | Reply::Folds { .. } => {}
@@ -612,6 +622,7 @@ fn reread(page: &Shared, settings: ReadSettings) {
 
 /// The runs changed (a fit, a cancel, new data or roles): the steps that use them redraw.
 fn runs_changed(page: &Shared) {
+    checks::refresh(page);
     threshold::refresh(page);
     score::refresh(&mut page.borrow_mut());
 }
@@ -635,6 +646,7 @@ fn cancel(page: &Shared, note: &str) {
         p.scoring.asked = None;
         p.study.cancelled();
         p.pool.stop();
+        p.checks = checks::Checks::default();
         reading_done(&p.doc);
         runs::fit_done(&p.doc);
         show_message(&p.doc, note, false);
@@ -1113,6 +1125,7 @@ fn main() {
         threshold: threshold::Threshold::default(),
         scoring: score::Scoring::default(),
         pool: pool::Pool::default(),
+        checks: checks::Checks::default(),
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;

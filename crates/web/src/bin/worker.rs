@@ -31,7 +31,6 @@ use spinney_web::protocol::{
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
 
-
 #[derive(Default)]
 struct Held {
     name: String,
@@ -239,6 +238,17 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
                 }),
             }
             return;
+        }
+        Request::Warnings { id, design, .. } => {
+            let (warnings, refused) = match design_warnings(held, &design) {
+                Ok(w) => (w, None),
+                Err(e) => (Vec::new(), Some(e)),
+            };
+            return post(&Reply::Warnings {
+                id,
+                warnings,
+                refused,
+            });
         }
         Request::FoldRuns { id, runs, .. } => {
             held.fold_runs = Some((id, runs));
@@ -547,8 +557,7 @@ fn judge_run(
     let plan = judging_plan(judging)?;
     let scheme = plan.scheme.clone();
     // The splits' fits from extra workers when every one came; fitted here otherwise.
-    let runner = |count: usize, job: &FoldJob<'_>, progress: &mut dyn Progress| match &fold_runs
-    {
+    let runner = |count: usize, job: &FoldJob<'_>, progress: &mut dyn Progress| match &fold_runs {
         Some(runs) if runs.len() == count => Ok(runs.clone()),
         _ => run_in_order(count, job, progress),
     };
@@ -575,6 +584,30 @@ fn judge_run(
         (scheme_words(&scheme), second)
     });
     Ok((run_validation(&v, &scheme, warnings), judged))
+}
+
+/// The checks of `design` on the held table before any fit, as a judged run with 5-fold
+/// cross-validation would get them (the scheme only matters for the repeated-records
+/// warning, which then advises grouped folds).
+fn design_warnings(held: &Held, design: &FitDesign) -> Result<Vec<String>, String> {
+    let loaded = held
+        .loaded
+        .as_ref()
+        .ok_or("no table is loaded yet; choose a file first")?;
+    let spec = DesignSpec {
+        outcome: design.outcome.clone(),
+        predictors: design.predictors.clone(),
+        weight: design.weight.clone(),
+        group: design.group.clone(),
+    };
+    let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
+    let scheme = Scheme::Folds { k: 5, repeats: 1 };
+    Ok(
+        validate::warnings::warnings(&d, &scheme, Some(&loaded.table))
+            .into_iter()
+            .map(|w| w.message)
+            .collect(),
+    )
 }
 
 /// The validation plan of the page's judging choice.

@@ -313,7 +313,11 @@ fn on_reply(page: &Shared, index: usize, reply: Reply, bytes: Option<Uint8Array>
                 return;
             };
             f.done[index] = (done, total.max(1));
-            let share: f64 = f.done.iter().map(|&(d, t)| d as f64 / t as f64).sum::<f64>()
+            let share: f64 = f
+                .done
+                .iter()
+                .map(|&(d, t)| d as f64 / t as f64)
+                .sum::<f64>()
                 / f.done.len() as f64;
             runs::progress(&p, (share * 1000.0) as u64, 1000);
         }
