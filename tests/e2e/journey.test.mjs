@@ -153,6 +153,9 @@ try {
     await regrown(2);
     const again = await exactFigures();
     expect(JSON.stringify(again) === JSON.stringify(figures), `after reload: ${again} vs ${figures}`);
+    // The threshold step's choice is part of the notebook too (study format 1.1).
+    await page.waitForFunction(() => Number(document.querySelector('.threshold-tables')?.dataset.threshold) === 0.2, null, { timeout: 30000 });
+    expect(s.threshold?.value === 0.2 && s.threshold?.run === 1, `saved threshold ${JSON.stringify(s.threshold)}`);
     await shot('restored');
   });
 
@@ -199,17 +202,22 @@ try {
     await page.evaluate(() => { document.activeElement?.blur(); window.scrollTo(0, 0); });
     const controls = await page.$$eval('button, input, select, textarea, a[href], summary, [tabindex]:not([tabindex="-1"])', (els) => els
       .filter((e) => !e.disabled && e.getClientRects().length > 0 && getComputedStyle(e).visibility !== 'hidden')
-      .map((e) => e.id || e.outerHTML.slice(0, 80)));
+      // A group of radio buttons is one stop of the Tab key (arrow keys move within it).
+      .map((e) => (e.type === 'radio' ? `radio group ${e.name}` : e.id || e.outerHTML.slice(0, 80))));
     const seen = new Set();
     let first = null;
     for (let k = 0; k < 600; k++) {
       await page.keyboard.press('Tab');
-      const at = await page.evaluate(() => { const e = document.activeElement; return e && e !== document.body ? (e.id || e.outerHTML.slice(0, 80)) : ''; });
+      const at = await page.evaluate(() => {
+        const e = document.activeElement;
+        if (!e || e === document.body) return '';
+        return e.type === 'radio' ? `radio group ${e.name}` : (e.id || e.outerHTML.slice(0, 80));
+      });
       if (at === first) break;
       if (!first && at) first = at;
       if (at) seen.add(at);
     }
-    const missed = controls.filter((c) => !seen.has(c));
+    const missed = [...new Set(controls)].filter((c) => !seen.has(c));
     expect(missed.length === 0, `not reached by Tab: ${missed.slice(0, 6).join(' | ')}`);
     // A name as assistive technology computes it, roughly: a label, aria-label(ledby), or own text.
     const unnamed = await page.$$eval('button, input, select, textarea, a[href], summary', (els) => els

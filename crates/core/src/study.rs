@@ -3,7 +3,7 @@
 //!
 //! One JSON object, format version 1:
 //!
-//! - `format` (`"spinney-study"`), `version` (`{"major": 1, "minor": 0}`), `written_by`;
+//! - `format` (`"spinney-study"`), `version` (`{"major": 1, "minor": 1}`), `written_by`;
 //! - `data`: the file's name, its SHA-256 `fingerprint`, `rows`, how it was `reading` (sheet,
 //!   extra missing-value codes, kinds the user chose), every column's `name`, `kind` and
 //!   `role` (outcome, predictor, group, weight, ignore), and only if the user asked for it,
@@ -11,7 +11,9 @@
 //! - `runs`: each run's `method`, `outcome`, `predictors`, `weight`, the `settings` the user
 //!   gave (every other one is the method's default), the `seed`, whether it was fitted on
 //!   `earlier_data` (before the roles or reading changed), its `result` figures, and
-//!   optionally its fitted `model` (a model file, see [`crate::model_file`]).
+//!   optionally its fitted `model` (a model file, see [`crate::model_file`]);
+//! - since 1.1, `threshold` (optional): the decision threshold step's choice, the `run`
+//!   (1-based, in `runs`), the class called `positive` and the threshold `value`.
 //!
 //! The reader accepts any 1.x file (unknown fields skipped), refuses a newer major version,
 //! non-JSON, other JSON, cut files and contents that do not hold together (roles, kinds,
@@ -35,7 +37,7 @@ pub const FORMAT: &str = "spinney-study";
 /// The major version written and the newest read.
 pub const MAJOR: u64 = 1;
 /// The minor version written: additions older 1.x readers can skip.
-pub const MINOR: u64 = 0;
+pub const MINOR: u64 = 1;
 /// The roles a column can have, as the file spells them.
 pub const ROLES: [&str; 5] = ["outcome", "predictor", "group", "weight", "ignore"];
 
@@ -53,6 +55,20 @@ pub struct Study {
     pub written_by: String,
     pub data: StudyData,
     pub runs: Vec<StudyRun>,
+    /// The decision threshold step's choice (since 1.1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub threshold: Option<StudyThreshold>,
+}
+
+/// Where the user drew the line in the decision threshold step.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StudyThreshold {
+    /// The run, 1-based, in the study's `runs`.
+    pub run: usize,
+    /// The label of the class called positive.
+    pub positive: String,
+    /// Records at or above this probability of the positive class are called positive.
+    pub value: f64,
 }
 
 /// The data file the study was made on, and what the user said about its columns.
@@ -163,6 +179,7 @@ impl Study {
             written_by: format!("spinney {}", crate::VERSION),
             data,
             runs,
+            threshold: None,
         }
     }
 
@@ -332,6 +349,21 @@ fn check(study: &Study) -> std::result::Result<(), String> {
                 "its included data does not match the data fingerprint (was the study edited?)"
                     .into(),
             );
+        }
+    }
+    if let Some(t) = &study.threshold {
+        if t.run == 0 || t.run > study.runs.len() {
+            return Err(format!(
+                "its threshold step names run {}, but it has {} run(s)",
+                t.run,
+                study.runs.len()
+            ));
+        }
+        if !(t.value > 0.0 && t.value < 1.0) {
+            return Err(format!(
+                "its decision threshold {} is outside (0, 1)",
+                t.value
+            ));
         }
     }
     for (i, run) in study.runs.iter().enumerate() {
@@ -505,7 +537,13 @@ mod tests {
     fn study() -> Study {
         let mut d = data(BYTES);
         d.included = Some(include_data(BYTES));
-        Study::new(d, vec![run()])
+        let mut s = Study::new(d, vec![run()]);
+        s.threshold = Some(StudyThreshold {
+            run: 1,
+            positive: "yes".into(),
+            value: 0.15,
+        });
+        s
     }
 
     fn refused(text: &str) -> String {
@@ -561,6 +599,18 @@ mod tests {
     }
 
     #[test]
+    fn a_study_of_version_1_0_without_a_threshold_still_reads() {
+        let mut s = study();
+        s.threshold = None;
+        let text = write_study(&s)
+            .unwrap()
+            .replace("\"minor\": 1", "\"minor\": 0");
+        let back = read_study(text.as_bytes()).unwrap();
+        assert_eq!(back.threshold, None);
+        assert_eq!(back.runs, s.runs);
+    }
+
+    #[test]
     fn figures_differing_in_the_last_bit_are_not_the_same() {
         let a = run().result;
         let mut b = a.clone();
@@ -596,11 +646,11 @@ mod tests {
         let newer = text.replace("\"major\": 1", "\"major\": 2");
         let e = refused(&newer);
         assert!(
-            e.contains("version 2.0") && e.contains("Update Spinney"),
+            e.contains(&format!("version 2.{MINOR}")) && e.contains("Update Spinney"),
             "{e}"
         );
         // A newer minor version is read, its unknown fields skipped.
-        let minor = text.replace("\"minor\": 0", "\"minor\": 3").replacen(
+        let minor = text.replace("\"minor\": 1", "\"minor\": 3").replacen(
             "\"runs\"",
             "\"later_field\": [1, 2],\n  \"runs\"",
             1,
@@ -652,6 +702,14 @@ mod tests {
             (
                 text.replace("\"fit_seconds\": 0.25", "\"fit_seconds\": -1.0"),
                 "run 1 has the fit time -1",
+            ),
+            (
+                text.replace("\"run\": 1,", "\"run\": 4,"),
+                "names run 4, but it has 1 run(s)",
+            ),
+            (
+                text.replace("\"value\": 0.15", "\"value\": 1.5"),
+                "threshold 1.5 is outside (0, 1)",
             ),
         ];
         for (changed, want) in cases {

@@ -418,7 +418,7 @@ fn render_form(p: &Page) {
             n = f.name
         );
     }
-    if matches!(method, FitMethod::Forest | FitMethod::Bagging) {
+    {
         let chosen = p.fits.workers();
         let options: String = (1..=max_workers())
             .map(|n| {
@@ -429,7 +429,7 @@ fn render_form(p: &Page) {
             })
             .collect();
         html += &format!(
-            "<label class=\"field\"><span class=\"name\">Workers</span><select id=\"workers\" aria-describedby=\"help-workers\">{options}</select><span class=\"help\" id=\"help-workers\">Browser threads growing trees at the same time; each holds its own copy of the table. The forest is the same whatever the number.</span></label>"
+            "<label class=\"field\"><span class=\"name\">Workers</span><select id=\"workers\" aria-describedby=\"help-workers\">{options}</select><span class=\"help\" id=\"help-workers\">Browser threads working at the same time: they share a forest's trees, and the refits of cross-validation, a holdout or the bootstrap. Each holds its own copy of the table. The results are the same whatever the number.</span></label>"
         );
     }
     html += &judging_controls(p, method);

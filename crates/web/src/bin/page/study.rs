@@ -138,7 +138,7 @@ fn build(p: &Page) -> Option<Study> {
             model: None,
         })
         .collect();
-    Some(Study::new(
+    let mut study = Study::new(
         StudyData {
             file: report.file.clone(),
             fingerprint: report.fingerprint_sha256.clone(),
@@ -148,7 +148,9 @@ fn build(p: &Page) -> Option<Study> {
             included: None,
         },
         runs,
-    ))
+    );
+    study.threshold = super::threshold::choice(p);
+    Some(study)
 }
 
 /// Saves the study as a download, with the data if the box is ticked.
@@ -439,6 +441,7 @@ fn apply(page: &Shared) {
             .collect();
         p.fits.runs.clear();
         p.fits.charted = None;
+        super::threshold::restore(&mut p, w.study.threshold.as_ref());
         let mut asks = Vec::new();
         for run in &w.study.runs {
             let Some(method) = Method::from_word(&run.method) else {

@@ -9,6 +9,7 @@
 //! otherwise, labelled as training (apparent) and never as a validation.
 
 use spinney_core::metrics::binary::{at_threshold, net_benefit, net_benefit_treat_all, Proportion};
+use spinney_core::study::StudyThreshold;
 use spinney_web::protocol::{Request, RunPredictions, PROTOCOL_VERSION};
 use wasm_bindgen::JsCast;
 use web_sys::{Event, HtmlInputElement, HtmlSelectElement};
@@ -26,6 +27,38 @@ pub struct Threshold {
     /// The code of the class called positive (1 until the user picks the other).
     positive: u32,
     value: f64,
+    /// A study's choice waiting for its run to be grown again: (run index, label of the
+    /// class called positive).
+    wanted: Option<(usize, String)>,
+}
+
+/// The step's choice as a study keeps it (`None` before a run is chosen).
+pub fn choice(p: &Page) -> Option<StudyThreshold> {
+    let t = &p.threshold;
+    if let Some((run, positive)) = &t.wanted {
+        return Some(StudyThreshold {
+            run: run + 1,
+            positive: positive.clone(),
+            value: t.value,
+        });
+    }
+    let d = t.data.as_ref()?;
+    Some(StudyThreshold {
+        run: t.chosen? + 1,
+        positive: d.classes.get(t.positive as usize)?.clone(),
+        value: t.value,
+    })
+}
+
+/// Takes a study's choice: the threshold now, the run and positive class once that run is
+/// grown again.
+pub fn restore(p: &mut Page, choice: Option<&StudyThreshold>) {
+    let Some(c) = choice else {
+        p.threshold.wanted = None;
+        return;
+    };
+    p.threshold.value = c.value;
+    p.threshold.wanted = Some((c.run.saturating_sub(1), c.positive.clone()));
 }
 
 /// Runs the step can use: held by the worker, on the current data, two classes.
@@ -55,11 +88,21 @@ pub fn refresh(page: &Shared) {
             p.threshold.value = 0.5;
             p.threshold.positive = 1;
         }
-        let keep = p.threshold.chosen.filter(|c| runs.contains(c));
-        render_choice(&p, &runs, keep.or(runs.last().copied()));
+        // A study's run, once grown again, wins over the one shown meanwhile.
+        let wanted = p
+            .threshold
+            .wanted
+            .as_ref()
+            .map(|w| w.0)
+            .filter(|w| runs.contains(w));
+        let keep = p
+            .threshold
+            .chosen
+            .filter(|c| runs.contains(c) && wanted.is_none_or(|w| w == *c));
+        render_choice(&p, &runs, keep.or(wanted).or(runs.last().copied()));
         match keep {
             Some(_) => None,
-            None => runs.last().copied(),
+            None => wanted.or(runs.last().copied()),
         }
     };
     if let Some(i) = ask {
@@ -121,6 +164,15 @@ pub fn arrived(page: &Shared, id: u32, data: RunPredictions) {
         return;
     }
     p.threshold.asked = None;
+    // The study's class called positive, when this is the study's run.
+    if let Some((run, label)) = p.threshold.wanted.clone() {
+        if p.threshold.chosen == Some(run) {
+            if let Some(code) = data.classes.iter().position(|c| *c == label) {
+                p.threshold.positive = code as u32;
+            }
+            p.threshold.wanted = None;
+        }
+    }
     p.threshold.data = Some(data);
     let runs = eligible(&p);
     let chosen = p.threshold.chosen;
@@ -189,7 +241,7 @@ fn render_figures(p: &Page) {
             outcomes.len(),
         ),
         None => format!(
-            "<p class=\"source apparent-note\"><strong>Training predictions (apparent)</strong>: the {} records this model learnt from. These figures flatter the model; they are not a validation. Judge the run (step 3) to see out-of-sample figures here.</p>",
+            "<p class=\"source apparent-note\"><strong>Training predictions (apparent)</strong>: the {} records this model learnt from. These figures flatter the model; they are not a validation. Judge the run in step 3 for figures from records it did not learn from.</p>",
             outcomes.len()
         ),
     };
@@ -282,6 +334,8 @@ fn on_change(page: &Shared, event: Event) {
             let mut p = page.borrow_mut();
             p.threshold.positive = if value == "0" { 0 } else { 1 };
             render_figures(&p);
+            drop(p);
+            super::study::autosave(page);
         }
         id @ ("threshold-range" | "threshold-number") if typed || id == "threshold-number" => {
             let input = target.unchecked_ref::<HtmlInputElement>();
@@ -302,6 +356,8 @@ fn on_change(page: &Shared, event: Event) {
                         o.set_value(&format!("{x}"));
                     }
                     render_figures(&p);
+                    drop(p);
+                    super::study::autosave(page);
                 }
                 _ => {
                     error.set_text_content(Some(
