@@ -23,6 +23,8 @@ mod compare;
 mod measured;
 #[path = "page/pool.rs"]
 mod pool;
+#[path = "page/report.rs"]
+mod report;
 #[path = "page/runs.rs"]
 mod runs;
 #[path = "page/score.rs"]
@@ -550,10 +552,14 @@ fn download(doc: &Document, name: &str, bytes: &[u8], mime: &str) {
     let parts = Array::of1(&Uint8Array::from(bytes));
     let options = web_sys::BlobPropertyBag::new();
     options.set_type(mime);
-    let Ok(blob) = web_sys::Blob::new_with_u8_array_sequence_and_options(&parts, &options) else {
-        return;
-    };
-    let Ok(url) = web_sys::Url::create_object_url_with_blob(&blob) else {
+    if let Ok(blob) = web_sys::Blob::new_with_u8_array_sequence_and_options(&parts, &options) {
+        offer_blob(doc, name, &blob);
+    }
+}
+
+/// Offers `blob` as a download named `name` (an object URL and a temporary link).
+fn offer_blob(doc: &Document, name: &str, blob: &web_sys::Blob) {
+    let Ok(url) = web_sys::Url::create_object_url_with_blob(blob) else {
         return;
     };
     if let Ok(a) = doc.create_element("a") {
@@ -597,6 +603,7 @@ fn reread(page: &Shared, settings: ReadSettings) {
 fn runs_changed(page: &Shared) {
     threshold::refresh(page);
     score::refresh(&mut page.borrow_mut());
+    report::refresh(&page.borrow());
 }
 
 /// Stops the worker mid-read or mid-fit. The worker is replaced and the previous table read
@@ -1128,6 +1135,7 @@ fn main() {
     threshold::listen(&page);
     score::listen(&page);
     study::listen(&page);
+    report::listen(&page);
     let pg = page.clone();
     on(&by_id(&doc, "columns"), "change", move |e: Event| {
         on_column_change(&pg, e)
