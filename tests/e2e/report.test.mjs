@@ -48,11 +48,19 @@ function pdfPages(bytes) {
   return (bytes.toString('latin1').match(/\/Type\s*\/Page(?![s\w])/g) ?? []).length;
 }
 
+/** Clicks step 8's button and waits for the print dialog to be asked for. Headless Chromium
+ *  has no dialog (and its window.print() would leave the page "being printed", refusing
+ *  page.pdf), so window.print is replaced by a counter first. */
 async function makeReport(p) {
-  const before = await p.$eval('#report', (r) => r.dataset.composed ?? '');
+  const before = await p.evaluate(() => {
+    window.print = () => { window.printsAsked = (window.printsAsked ?? 0) + 1; };
+    return window.printsAsked ?? 0;
+  });
   await p.click('#report-print');
-  await p.waitForFunction((b) => { const c = document.querySelector('#report').dataset.composed; return c && c !== b; }, before);
-  return p.$eval('#report', (r) => r.innerText);
+  await p.waitForFunction((b) => window.printsAsked > b, before);
+  const composed = await p.$eval('#report', (r) => ({ text: r.innerText, images: [...r.querySelectorAll('img')].every((i) => i.complete && i.naturalWidth > 0) }));
+  expect(composed.images, 'print asked before the report\'s images were ready');
+  return composed.text;
 }
 
 let report = '';
@@ -194,10 +202,10 @@ try {
       };
     });
     await page.screenshot({ path: join(out, 'report-print.png'), fullPage: true });
-    expect(seen.report === 'block' && seen.notebook === 'none' && seen.caution === 'none', JSON.stringify(seen));
-    expect(seen.wide.length === 0 && seen.scroll <= seen.width, `too wide: ${seen.wide} (${seen.scroll} > ${seen.width})`);
     await page.emulateMedia({ media: 'screen' });
     await page.setViewportSize({ width: 1280, height: 900 });
+    expect(seen.report === 'block' && seen.notebook === 'none' && seen.caution === 'none', JSON.stringify(seen));
+    expect(seen.wide.length === 0 && seen.scroll <= seen.width, `too wide: ${seen.wide} (${seen.scroll} > ${seen.width})`);
   });
 
   await check('each chart\'s button saves its canvas as a PNG of the canvas\'s size, named after chart and run', async () => {
@@ -235,6 +243,18 @@ try {
     expect(saved.name === 'spinney-run-1-a-chart-drawn-later.png', saved.name);
     expect(png.width === 320 && png.height === 200, `${png.width}x${png.height}`);
     await page.evaluate(() => document.querySelector('#late-figure').remove());
+  });
+
+  await check('the browser\'s own print command makes the report afresh, with a run grown since', async () => {
+    await page.check('input[name=method][value=tree]');
+    await page.fill('#set-depth', '3');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 60000 });
+    await page.evaluate(() => window.dispatchEvent(new Event('beforeprint')));
+    const runs = await page.$$eval('#report .report-run', (r) => r.map((x) => x.querySelector('h3').textContent));
+    expect(runs.length === 2 && /Single tree/.test(runs[1]), runs.join(' | '));
+    expect(/2 run\(s\)/.test(await page.textContent('#report-status')), 'the status line describes the report before');
+    await page.screenshot({ path: join(out, 'report-step.png'), fullPage: true });
   });
 
   await checkNothingLeft(requests, origin, consoleErrors);

@@ -32,9 +32,9 @@ pub fn refresh(p: &Page) {
 
 // ---------------------------------------------------------------------------- composing
 
-/// Writes the report into `#report` from the page's state; returns what it holds, for the
-/// status line.
-pub fn compose(p: &Page) -> String {
+/// Writes the report into `#report` from the page's state, and says what it holds in the
+/// step's status line.
+fn compose(p: &Page) {
     let doc = &p.doc;
     let now = js_sys::Date::new_0();
     let iso = String::from(now.to_iso_string());
@@ -66,12 +66,12 @@ pub fn compose(p: &Page) -> String {
     let _ = report.set_attribute("data-composed", &iso);
     let _ = report.set_attribute("data-runs", &runs.len().to_string());
     let _ = report.set_attribute("data-charts", &charts.to_string());
-    format!(
-        "Report made at {}: {} run(s), {} chart(s).",
+    by_id(doc, "report-status").set_text_content(Some(&format!(
+        "Report made at {} UTC: {} run(s), {} chart(s). Choose “Save as PDF” as the printer to keep it as a file.",
         iso.get(11..16).unwrap_or(&iso),
         runs.len(),
         charts
-    )
+    )));
 }
 
 /// "on 2 December 2026 at 11:50 UTC".
@@ -545,9 +545,14 @@ fn charts_section(doc: &Document) -> (String, usize) {
                 }
             }
         }
+        // Printed as wide as it shows on screen, so its text keeps its size.
+        let css_width = match canvas.client_width() {
+            w if w > 0 => w as u32,
+            _ => canvas.width(),
+        };
         count += 1;
         html += &format!(
-            "<figure class=\"report-figure\" data-chart=\"{}\"><figcaption>{}</figcaption><img class=\"report-chart\" src=\"{url}\" alt=\"{}\" data-width=\"{}\" data-height=\"{}\">{notes}</figure>{}",
+            "<figure class=\"report-figure\" data-chart=\"{}\"><figcaption>{}</figcaption><img class=\"report-chart\" src=\"{url}\" alt=\"{}\" width=\"{css_width}\" data-width=\"{}\" data-height=\"{}\">{notes}</figure>{}",
             esc(&chart_name(&canvas)),
             esc(&caption),
             esc(&alt),
@@ -653,7 +658,7 @@ fn add_buttons(doc: &Document) {
         let _ = canvas.set_attribute(HAS_BUTTON, "");
         let _ = canvas.insert_adjacent_html(
             "afterend",
-            "<p class=\"chart-actions\"><button type=\"button\" class=\"button quiet save-png\" data-save-png>Save this chart as PNG</button> <span class=\"hint\">an image file, made and kept on this computer</span></p>",
+            "<p class=\"chart-actions\"><button type=\"button\" class=\"button quiet save-png\" data-save-png title=\"Saves the chart as drawn, as a PNG image file made on this computer\">Save this chart as PNG</button></p>",
         );
     }
 }
@@ -690,13 +695,11 @@ fn save_png(doc: &Document, button: &Element) {
 
 /// Composes the report, waits for its images, then opens the print dialog.
 fn print(page: &Shared) {
-    let (doc, status) = {
+    let doc = {
         let p = page.borrow();
-        (p.doc.clone(), compose(&p))
+        compose(&p);
+        p.doc.clone()
     };
-    by_id(&doc, "report-status").set_text_content(Some(&format!(
-        "{status} Choose “Save as PDF” as the printer to keep it as a file."
-    )));
     spawn_local(async move {
         // Images from data: URLs decode quickly, but must be decoded before the print layout.
         if let Ok(images) = doc.query_selector_all("#report img") {
