@@ -639,17 +639,22 @@ fn cancel(page: &Shared, note: &str) {
 
 // ---------------------------------------------------------------------------- rendering
 
-fn render_data(p: &Page) {
-    let Some(report) = &p.report else { return };
-    let mut html = String::new();
-    html += &format!(
-        "<p class=\"facts\"><strong>{}</strong>: {} rows, {} columns · {} · {:.1} kB</p>",
+/// The file's name, size and how it was read, in one line (the data step and the report).
+fn data_facts(report: &TableReport) -> String {
+    format!(
+        "<strong>{}</strong>: {} rows, {} columns · {} · {:.1} kB",
         esc(&report.file),
         report.rows,
         report.columns.len(),
         esc(&report.source.description),
         report.bytes as f64 / 1000.0
-    );
+    )
+}
+
+fn render_data(p: &Page) {
+    let Some(report) = &p.report else { return };
+    let mut html = String::new();
+    html += &format!("<p class=\"facts\">{}</p>", data_facts(report));
     html += &format!(
         "<p class=\"fingerprint\">Fingerprint (SHA-256 of the file): <code>{}</code></p>",
         esc(&report.fingerprint_sha256)

@@ -20,7 +20,9 @@ use wasm_bindgen_futures::{spawn_local, JsFuture};
 use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlSelectElement};
 
 use super::runs::{fmt_seconds, method_label, RunView};
-use super::{by_id, esc, fmt_value, offer_blob, on, show, summary_cell, Page, Role, Shared};
+use super::{
+    by_id, data_facts, esc, fmt_value, offer_blob, on, show, summary_cell, Page, Role, Shared,
+};
 
 /// Marks a canvas that already has its save button.
 const HAS_BUTTON: &str = "data-png-button";
@@ -107,14 +109,7 @@ fn data_section(p: &Page) -> String {
     };
     let mut html =
         String::from("<section class=\"report-section\" data-report=\"data\"><h2>The data</h2>");
-    html += &format!(
-        "<p><strong>{}</strong>: {} rows, {} columns · {} · {:.1} kB</p>",
-        esc(&r.file),
-        r.rows,
-        r.columns.len(),
-        esc(&r.source.description),
-        r.bytes as f64 / 1000.0
-    );
+    html += &format!("<p>{}</p>", data_facts(r));
     html += &format!(
         "<p>Fingerprint (SHA-256 of the file's bytes, as the study file holds it): <code data-report=\"fingerprint\">{}</code>. The same file gives the same fingerprint; any change to it gives another.</p>",
         esc(&r.fingerprint_sha256)
