@@ -19,7 +19,7 @@ export const spinneyBin = process.env.SPINNEY_BIN
 /** Runs `spinney ARGS...`; fails the check if the program is missing. */
 export function spinney(args) {
   if (!existsSync(spinneyBin)) throw new Error(`${spinneyBin} is missing: run cargo build -p spinney-cli first (or set SPINNEY_BIN)`);
-  const r = spawnSync(spinneyBin, args, { encoding: 'utf8' });
+  const r = spawnSync(spinneyBin, args, { encoding: 'utf8', maxBuffer: 256 * 1024 * 1024 });
   if (r.error) throw new Error(`cannot run ${spinneyBin}: ${r.error}`);
   return { status: r.status, stdout: r.stdout, stderr: r.stderr };
 }

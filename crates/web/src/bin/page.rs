@@ -27,6 +27,8 @@ mod compare;
 mod measured;
 #[path = "page/pool.rs"]
 mod pool;
+#[path = "page/report.rs"]
+mod report;
 #[path = "page/runs.rs"]
 mod runs;
 #[path = "page/score.rs"]
@@ -577,10 +579,14 @@ fn download(doc: &Document, name: &str, bytes: &[u8], mime: &str) {
     let parts = Array::of1(&Uint8Array::from(bytes));
     let options = web_sys::BlobPropertyBag::new();
     options.set_type(mime);
-    let Ok(blob) = web_sys::Blob::new_with_u8_array_sequence_and_options(&parts, &options) else {
-        return;
-    };
-    let Ok(url) = web_sys::Url::create_object_url_with_blob(&blob) else {
+    if let Ok(blob) = web_sys::Blob::new_with_u8_array_sequence_and_options(&parts, &options) {
+        offer_blob(doc, name, &blob);
+    }
+}
+
+/// Offers `blob` as a download named `name` (an object URL and a temporary link).
+fn offer_blob(doc: &Document, name: &str, blob: &web_sys::Blob) {
+    let Ok(url) = web_sys::Url::create_object_url_with_blob(blob) else {
         return;
     };
     if let Ok(a) = doc.create_element("a") {
@@ -625,6 +631,7 @@ fn runs_changed(page: &Shared) {
     checks::refresh(page);
     threshold::refresh(page);
     score::refresh(&mut page.borrow_mut());
+    report::refresh(&page.borrow());
 }
 
 /// Stops the worker mid-read or mid-fit. The worker is replaced and the previous table read
@@ -661,17 +668,22 @@ fn cancel(page: &Shared, note: &str) {
 
 // ---------------------------------------------------------------------------- rendering
 
-fn render_data(p: &Page) {
-    let Some(report) = &p.report else { return };
-    let mut html = String::new();
-    html += &format!(
-        "<p class=\"facts\"><strong>{}</strong>: {} rows, {} columns · {} · {:.1} kB</p>",
+/// The file's name, size and how it was read, in one line (the data step and the report).
+fn data_facts(report: &TableReport) -> String {
+    format!(
+        "<strong>{}</strong>: {} rows, {} columns · {} · {:.1} kB",
         esc(&report.file),
         report.rows,
         report.columns.len(),
         esc(&report.source.description),
         report.bytes as f64 / 1000.0
-    );
+    )
+}
+
+fn render_data(p: &Page) {
+    let Some(report) = &p.report else { return };
+    let mut html = String::new();
+    html += &format!("<p class=\"facts\">{}</p>", data_facts(report));
     html += &format!(
         "<p class=\"fingerprint\">Fingerprint (SHA-256 of the file): <code>{}</code></p>",
         esc(&report.fingerprint_sha256)
@@ -1158,6 +1170,7 @@ fn main() {
     threshold::listen(&page);
     score::listen(&page);
     study::listen(&page);
+    report::listen(&page);
     let pg = page.clone();
     on(&by_id(&doc, "columns"), "change", move |e: Event| {
         on_column_change(&pg, e)

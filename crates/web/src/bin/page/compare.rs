@@ -199,6 +199,11 @@ fn render_charts(p: &Page, runs: &[(usize, String, &spinney_web::protocol::RunRe
     if judged.is_empty() {
         return;
     }
+    // The runs drawn, for the name of a saved PNG ("1-2-3").
+    let numbers: Vec<String> = judged.iter().map(|(i, _, _)| (i + 1).to_string()).collect();
+    for id in ["roc-canvas", "calibration-canvas", "decision-canvas"] {
+        let _ = by_id(&p.doc, id).set_attribute("data-runs", &numbers.join("-"));
+    }
     let name = |i: usize, label: &str| format!("run {}: {label}", i + 1);
     let auc = |v: &RunValidation| v.figures.iter().find(|f| f.name == "auc").map(|f| f.value);
     let mut roc = RocChart {

@@ -268,7 +268,7 @@ fn fields(method: FitMethod) -> Vec<Field> {
     }
 }
 
-fn method_label(m: FitMethod) -> &'static str {
+pub fn method_label(m: FitMethod) -> &'static str {
     match m {
         FitMethod::Tree => "Single tree",
         FitMethod::Bagging => "Bagging",
