@@ -1,8 +1,8 @@
 // Browser test of the whole job in one sitting, as issue 7 words it, at 1280x720: load the
 // demo records, set the outcome, grow a random forest judged out-of-bag and a gradient
 // boosting run judged by 5-fold cross-validation, compare them (table and charts), look into
-// one run, move the threshold, score a second file and download the predictions, save the
-// study, reload (the browser's copy restores the notebook to the same figures), clear that
+// one run, move the threshold, score a second file and download the predictions, compose
+// the printable report (and print it to PDF), save the study, reload (the browser's copy restores the notebook to the same figures), clear that
 // copy, open the saved study with the same data (the same figures again), then cancel a long
 // run (stopped within 1 s) and read a malformed file (its message; the notebook intact).
 // Throughout: no request leaves the page's origin, no console error, and no main-thread task
@@ -139,6 +139,21 @@ try {
     const got = readFileSync(path, 'utf8').trimEnd().split('\n');
     expect(got.length === 201, `${got.length} lines for 200 records`);
     await stepShot('step-score', '7-score');
+  });
+
+  await check('step 8: the report is composed for printing, with both runs, the cautions and the fingerprint, and prints to PDF', async () => {
+    // Headless Chromium has no print dialog: window.print is counted instead (as report.test.mjs does).
+    await page.evaluate(() => { window.print = () => { window.printsAsked = (window.printsAsked ?? 0) + 1; }; });
+    await page.click('#report-print');
+    await page.waitForFunction(() => window.printsAsked > 0, null, { timeout: 30000 });
+    const text = await page.$eval('#report', (r) => r.innerText);
+    expect(/out-of-bag/.test(text) && /5-fold cross-validation/.test(text), 'the runs\' validation is missing');
+    expect(/[0-9a-f]{64}/.test(text), 'no fingerprint');
+    expect(/external validation/.test(text) && /clinical judgement/.test(text), 'no cautions');
+    await page.pdf({ path: join(out, 'journey-report.pdf'), format: 'A4' });
+    await page.emulateMedia({ media: 'print' });
+    await shot('8-report');
+    await page.emulateMedia({ media: 'screen' });
   });
 
   await check('the study is saved, and a reload restores the notebook from the browser\'s copy to the same figures', async () => {
