@@ -50,8 +50,12 @@ struct Run {
     /// Its out-of-sample predictions when it was judged: the scheme in words and, per row
     /// of the fitted design, the probability of the second class (NaN where the row has
     /// none). Two-class outcomes only.
-    judged: Option<(String, Vec<f64>)>,
+    judged: Option<JudgedRows>,
 }
+
+/// A judged run's scheme in words and, per row of its design, its out-of-sample probability
+/// of the second class (NaN where the row has none).
+type JudgedRows = (String, Vec<f64>);
 
 fn scope() -> DedicatedWorkerGlobalScope {
     js_sys::global().unchecked_into()
@@ -551,7 +555,7 @@ fn judge_run(
     judging: &Judging,
     fold_runs: Option<Vec<FoldRun>>,
     progress: &mut dyn Progress,
-) -> Result<(RunValidation, Option<(String, Vec<f64>)>), String> {
+) -> Result<(RunValidation, Option<JudgedRows>), String> {
     // The splits need the predictors' values, which the fitted design no longer holds.
     let (full, _) = design_and_settings(held, design, method, sets)?;
     let plan = judging_plan(judging)?;
@@ -671,11 +675,7 @@ struct ShareProgress {
 
 impl Progress for ShareProgress {
     fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
-        let within = if total == 0 {
-            0
-        } else {
-            1000 * done.min(total) / total
-        };
+        let within = (1000 * done.min(total)).checked_div(total).unwrap_or(0);
         let label = format!("fit {}/{}: {stage}", self.index + 1, self.count);
         self.outer.step(
             &label,

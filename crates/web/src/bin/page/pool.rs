@@ -49,11 +49,14 @@ struct Job {
     finished: Option<f64>,
 }
 
+/// One helper's reply to a `FoldPart`: the splits in all, and its (split, fit) pairs.
+type FoldShare = (usize, Vec<(usize, FoldRun)>);
+
 /// A judging's splits being fitted in shares, before the run's own fit (`then`).
 struct Folds {
     then: runs::Grow,
-    /// Each helper's reply: the splits in all, and its (split, fit) pairs.
-    replies: Vec<Option<(usize, Vec<(usize, FoldRun)>)>>,
+    /// Each helper's reply.
+    replies: Vec<Option<FoldShare>>,
     /// Progress of each helper, in thousandths of its share.
     done: Vec<(u64, u64)>,
 }

@@ -455,7 +455,9 @@ fn warnings_section(doc: &Document, runs: &[RunView]) -> String {
             all.push(w);
         }
     };
-    if let Ok(items) = doc.query_selector_all("#roles-summary .warnings li, #roles-checks .warnings li") {
+    if let Ok(items) =
+        doc.query_selector_all("#roles-summary .warnings li, #roles-checks .warnings li")
+    {
         for k in 0..items.length() {
             if let Some(text) = items.item(k).and_then(|n| n.text_content()) {
                 add(text);
