@@ -19,6 +19,8 @@ use wasm_bindgen_futures::{spawn_local, JsFuture};
 // it for another binary).
 #[path = "page/compare.rs"]
 mod compare;
+#[path = "page/insight.rs"]
+mod insight;
 #[path = "page/measured.rs"]
 mod measured;
 #[path = "page/pool.rs"]
@@ -115,6 +117,8 @@ struct Page {
     fits: runs::Fits,
     /// The study file and the browser's kept copy.
     study: study::StudyState,
+    /// The insight step.
+    insight: insight::Insight,
     /// The threshold step.
     threshold: threshold::Threshold,
     /// The scoring step.
@@ -314,6 +318,8 @@ fn on_reply(page: &Shared, reply: Reply) {
             let p = page.borrow();
             if p.fits.in_flight.as_ref().is_some_and(|f| f.id == id) {
                 runs::progress(&p, done, total);
+            } else if p.insight.asked.contains(&id) {
+                insight::progress(&p, &stage, done, total);
             } else if p.busy == Some(id) && !p.restoring {
                 let bar = by_id(&p.doc, "read-progress");
                 let share = if total == 0 {
@@ -401,6 +407,7 @@ fn on_reply(page: &Shared, reply: Reply) {
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
         Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
         Reply::Scored { id, result } => score::scored(page, id, *result),
+        Reply::Explained { id, result } => insight::arrived(page, id, *result),
         Reply::ModelFiles { id, files } => study::models_arrived(page, id, files),
         // Shares of a forest come from the extra workers (see pool.rs), not this one.
         Reply::Part { .. } => {}
@@ -411,6 +418,10 @@ fn on_reply(page: &Shared, reply: Reply) {
         } => {
             if page.borrow().threshold.asked == Some(id) {
                 threshold::refused(page, &message);
+                return;
+            }
+            if insight::owns(page, id) {
+                insight::refused(page, id, &message);
                 return;
             }
             if page.borrow().scoring.asked == Some(id) {
@@ -595,6 +606,7 @@ fn reread(page: &Shared, settings: ReadSettings) {
 
 /// The runs changed (a fit, a cancel, new data or roles): the steps that use them redraw.
 fn runs_changed(page: &Shared) {
+    insight::refresh(page);
     threshold::refresh(page);
     score::refresh(&mut page.borrow_mut());
 }
@@ -615,6 +627,7 @@ fn cancel(page: &Shared, note: &str) {
         p.fits.in_flight = None;
         p.fits.forget_models();
         p.threshold.asked = None;
+        p.insight.asked.clear();
         p.scoring.asked = None;
         p.study.cancelled();
         p.pool.stop();
@@ -1093,6 +1106,7 @@ fn main() {
         roles: Vec::new(),
         fits: runs::Fits::default(),
         study: study::StudyState::default(),
+        insight: insight::Insight::default(),
         threshold: threshold::Threshold::default(),
         scoring: score::Scoring::default(),
         pool: pool::Pool::default(),
@@ -1125,6 +1139,7 @@ fn main() {
         cancel(&pg, "Reading cancelled.")
     });
     runs::listen(&page);
+    insight::listen(&page);
     threshold::listen(&page);
     score::listen(&page);
     study::listen(&page);
