@@ -63,6 +63,10 @@ pub fn refresh(page: &Shared) {
         let mut p = page.borrow_mut();
         let runs = eligible(&p);
         show(&p.doc, "step-insight", !runs.is_empty());
+        if p.insight.asked.is_empty() {
+            // Nothing in flight (a cancel restarts the worker and forgets what was asked).
+            show(&p.doc, "insight-status", false);
+        }
         if runs.is_empty() {
             p.insight = Insight::default();
             return;
