@@ -140,7 +140,7 @@ try {
     });
     const counts = (await tableRows('#dependence-numbers', 1)).filter((r) => r[0] !== 'missing').map((r) => Number(r[1]));
     expect(JSON.stringify(counts) === JSON.stringify(grid.counts), `counts ${counts} vs ${grid.counts}`);
-    await page.screenshot({ path: join(out, 'insight-dependence.png'), fullPage: true });
+    await page.locator('#step-insight').screenshot({ path: join(out, 'insight-dependence.png') });
   });
 
   await check('a typed record number beyond the table is refused with what to do, and nothing shown is lost', async () => {

@@ -24,8 +24,10 @@ use super::{by_id, esc, on, send, set_html, show, Page, Shared};
 
 /// Records of the table offered to click.
 const OFFERED: usize = 8;
-/// Trees with more nodes than this get a summary instead of a table of every node.
+/// Trees with more nodes than this are summarised in words (the most used predictors).
 const READABLE_NODES: usize = 31;
+/// Trees with more nodes than this get no table of every node (it would be too long to use).
+const LISTED_NODES: usize = 2000;
 
 #[derive(Default)]
 pub struct Insight {
@@ -580,10 +582,10 @@ fn render_tree(p: &Page, t: &protocol::InsightTree) {
     }
     facts += "</p>";
     set_html(&p.doc, "insight-tree-facts", &facts);
-    let numbers = if t.nodes.len() <= READABLE_NODES {
+    let numbers = if t.nodes.len() <= LISTED_NODES {
         table_html(&tree_table(&chart))
     } else {
-        "<p class=\"hint\">Every node of a tree this size would not be readable as a table; the summary above lists the predictors it splits on most.</p>".into()
+        format!("<p class=\"hint\">A table of this tree's {} nodes would be too long to use; the summary above lists the predictors it splits on most.</p>", t.nodes.len())
     };
     set_html(&p.doc, "tree-numbers", &numbers);
 }
