@@ -938,6 +938,11 @@ fn on<E: wasm_bindgen::convert::FromWasmAbi + 'static>(
     closure.forget();
 }
 
+/// The element an event happened on (for listeners on a container).
+fn target_element(e: &Event) -> Option<Element> {
+    e.target().and_then(|t| t.dyn_into::<Element>().ok())
+}
+
 /// Calls `take` with the file chosen in the file `input`, then empties it so the same file
 /// can be chosen again.
 fn on_file_chosen(input: &Element, take: impl Fn(File) + 'static) {

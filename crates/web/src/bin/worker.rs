@@ -729,9 +729,8 @@ fn score(
     })
 }
 
-/// The per-row predictions of kept run `run` on the table it was fitted on: out-of-bag for
-/// bagging and forests (rows every tree saw left out), the training rows' own otherwise.
-fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
+/// The held table and kept run `run`, which must have been fitted on that table.
+fn run_on_table(held: &Held, run: u32) -> Result<(&Loaded, &Run), String> {
     let loaded = held
         .loaded
         .as_ref()
@@ -739,10 +738,17 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
     let r = held.runs.get(run as usize).ok_or(
         "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
     )?;
-    let model = &r.model;
-    if model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
+    if r.model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
         return Err("the data changed after this run was grown; grow it again on this data".into());
     }
+    Ok((loaded, r))
+}
+
+/// The per-row predictions of kept run `run` on the table it was fitted on: out-of-bag for
+/// bagging and forests (rows every tree saw left out), the training rows' own otherwise.
+fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
+    let (loaded, r) = run_on_table(held, run)?;
+    let model = &r.model;
     let classes = match model.classes.as_deref() {
         Some([a, b]) => [a.clone(), b.clone()],
         Some(c) => {

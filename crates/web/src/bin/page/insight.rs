@@ -20,7 +20,7 @@ use wasm_bindgen::JsCast;
 use web_sys::{Event, HtmlInputElement, HtmlSelectElement};
 
 use super::compare::{draw_by_id, table_html};
-use super::{by_id, esc, on, send, set_html, show, Page, Shared};
+use super::{by_id, esc, on, send, set_html, show, target_element, Page, Shared};
 
 /// Records of the table offered to click.
 const OFFERED: usize = 8;
@@ -618,10 +618,7 @@ pub fn listen(page: &Shared) {
     let step = by_id(&doc, "step-insight");
     let pg = page.clone();
     on(&step, "change", move |e: Event| {
-        let Some(target) = e
-            .target()
-            .and_then(|t| t.dyn_into::<web_sys::Element>().ok())
-        else {
+        let Some(target) = target_element(&e) else {
             return;
         };
         match target.id().as_str() {
@@ -641,10 +638,7 @@ pub fn listen(page: &Shared) {
     });
     let pg = page.clone();
     on(&step, "click", move |e: Event| {
-        let Some(target) = e
-            .target()
-            .and_then(|t| t.dyn_into::<web_sys::Element>().ok())
-        else {
+        let Some(target) = target_element(&e) else {
             return;
         };
         if let Some(r) = target

@@ -13,7 +13,7 @@ use web_sys::{Event, File, HtmlSelectElement};
 
 use super::{
     by_id, download, esc, fetch_origin, on, on_file_chosen, on_file_dropped, send, set_html, show,
-    Origin, Page, Role, Shared,
+    target_element, Origin, Page, Role, Shared,
 };
 
 #[derive(Default)]
@@ -186,10 +186,7 @@ pub fn listen(page: &Shared) {
     let step = by_id(&doc, "step-score");
     let pg = page.clone();
     on(&step, "change", move |e: Event| {
-        let Some(target) = e
-            .target()
-            .and_then(|t| t.dyn_into::<web_sys::Element>().ok())
-        else {
+        let Some(target) = target_element(&e) else {
             return;
         };
         if target.id() == "score-run" {
@@ -199,11 +196,7 @@ pub fn listen(page: &Shared) {
     });
     let pg = page.clone();
     on(&step, "click", move |e: Event| {
-        let id = e
-            .target()
-            .and_then(|t| t.dyn_into::<web_sys::Element>().ok())
-            .map(|t| t.id())
-            .unwrap_or_default();
+        let id = target_element(&e).map(|t| t.id()).unwrap_or_default();
         if id == "score-download" {
             save(&pg.borrow());
         }

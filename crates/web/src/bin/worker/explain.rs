@@ -26,7 +26,7 @@ use spinney_web::protocol::{
     OutOfBagImportance, TreeNodeView,
 };
 
-use super::{Held, Reporter};
+use super::{run_on_table, Held, Reporter};
 
 /// The seed of the shuffles and samples (the command line's default).
 pub const SEED: u64 = 1;
@@ -112,17 +112,8 @@ pub fn explain(
     record: Option<usize>,
     tree: bool,
 ) -> Result<Insight, String> {
-    let loaded = held
-        .loaded
-        .as_ref()
-        .ok_or("no table is loaded yet; choose a file first")?;
-    let r = held.runs.get(run as usize).ok_or(
-        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
-    )?;
+    let (loaded, r) = run_on_table(held, run)?;
     let model = &r.model;
-    if model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
-        return Err("the data changed after this run was grown; grow it again on this data".into());
-    }
     let table = &loaded.table;
     let (records, _) = model.records(table).map_err(|e| e.to_string())?;
     let names: Vec<String> = model.predictors.iter().map(|p| p.name.clone()).collect();
