@@ -46,6 +46,9 @@ try {
     await page.click('#run-start');
     await page.waitForSelector('#step-runs[data-runs="1"]', { timeout: 60000 });
     await page.waitForSelector('#step-insight:not([hidden])');
+    // Nothing is computed before it is asked for.
+    expect(await page.$eval('#insight-body', (b) => b.hidden), 'insight shown before it was asked for');
+    await page.click('#insight-go');
     await page.waitForSelector('#importance-numbers table', { state: 'attached', timeout: 120000 });
     await page.waitForSelector('#insight-dependence[data-predictor]', { timeout: 120000 });
     await settled();

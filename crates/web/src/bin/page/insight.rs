@@ -6,9 +6,10 @@
 //! value to the prediction), and a picture of its first tree (a big one summarised). Each
 //! chart has its numbers as a table beside it, its text alternative.
 //!
-//! The page asks for the parts separately: importance, the first record and the tree when a
-//! run is chosen, then the dependence on its most important predictor; afterwards only the
-//! part the user changes. Replies for a run no longer chosen are dropped.
+//! Nothing is computed until the user asks to look inside a run (so a fit after a fit does
+//! not wait behind it). Then the parts come separately: importance, the chosen record and the
+//! tree, then the dependence on the most important predictor; afterwards only the part the
+//! user changes. Replies for a run no longer chosen are dropped.
 
 use spinney_charts::{
     contributions_table, dependence_table, draw_contributions, draw_dependence, draw_importance,
@@ -27,7 +28,7 @@ const OFFERED: usize = 8;
 /// Trees with more nodes than this are summarised in words (the most used predictors).
 const READABLE_NODES: usize = 31;
 /// Trees with more nodes than this get no table of every node (it would be too long to use).
-const LISTED_NODES: usize = 2000;
+const LISTED_NODES: usize = 255;
 
 #[derive(Default)]
 pub struct Insight {
@@ -58,38 +59,38 @@ pub fn owns(page: &Shared, id: u32) -> bool {
     page.borrow().insight.asked.contains(&id)
 }
 
-/// Redraws the run choice after the runs changed; asks about the newest run when none is
-/// chosen (or the chosen one is gone).
+/// Redraws the run choice after the runs changed. Nothing is computed until the user asks
+/// (the button), so the worker stays free for the next fit; what is shown for a run that is
+/// gone (cancelled, or the data changed) is cleared.
 pub fn refresh(page: &Shared) {
-    let ask = {
-        let mut p = page.borrow_mut();
-        let runs = eligible(&p);
-        show(&p.doc, "step-insight", !runs.is_empty());
-        if p.insight.asked.is_empty() {
-            // Nothing in flight (a cancel restarts the worker and forgets what was asked).
-            show(&p.doc, "insight-status", false);
-        }
-        if runs.is_empty() {
-            p.insight = Insight::default();
-            return;
-        }
-        let keep = p.insight.chosen.filter(|c| runs.contains(c));
-        let html = super::runs::run_select(
-            &p,
-            "insight-run",
-            "Run to look into",
-            &runs,
-            keep.or(runs.last().copied()),
-        );
-        set_html(&p.doc, "insight-choice", &html);
-        match keep {
-            Some(_) => None,
-            None => runs.last().copied(),
-        }
-    };
-    if let Some(i) = ask {
-        choose(page, i);
+    let mut p = page.borrow_mut();
+    let runs = eligible(&p);
+    show(&p.doc, "step-insight", !runs.is_empty());
+    if p.insight.asked.is_empty() {
+        // Nothing in flight (a cancel restarts the worker and forgets what was asked).
+        show(&p.doc, "insight-status", false);
     }
+    let keep = p.insight.chosen.filter(|c| runs.contains(c));
+    if keep.is_none() {
+        let record = p.insight.record;
+        p.insight = Insight {
+            record,
+            ..Insight::default()
+        };
+        show(&p.doc, "insight-body", false);
+    }
+    if runs.is_empty() {
+        return;
+    }
+    let mut html = super::runs::run_select(
+        &p,
+        "insight-run",
+        "Run to look into",
+        &runs,
+        keep.or(runs.last().copied()),
+    );
+    html += " <button type=\"button\" id=\"insight-go\" class=\"button primary\">Look inside this run</button>";
+    set_html(&p.doc, "insight-choice", &html);
 }
 
 /// Starts over with run `i`: importance, the first record and the tree.
@@ -216,19 +217,46 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
             ..result.clone()
         });
         data.notes = result.notes.clone();
-        if result.importance.is_some() {
+        let fresh = Fresh {
+            importance: result.importance.is_some(),
+            dependence: result.dependence.is_some(),
+            contributions: result.contributions.is_some(),
+            tree: result.tree.is_some(),
+        };
+        if fresh.importance {
             data.importance = result.importance;
         }
-        if result.dependence.is_some() {
+        if fresh.dependence {
             data.dependence = result.dependence;
         }
-        if result.contributions.is_some() {
+        if fresh.contributions {
             data.contributions = result.contributions;
         }
-        if result.tree.is_some() {
+        if fresh.tree {
             data.tree = result.tree;
         }
-        render(&p);
+        show(&p.doc, "insight-body", true);
+        // The tree in a task of its own, so no single task holds the page for long.
+        render(
+            &p,
+            Fresh {
+                tree: false,
+                ..fresh
+            },
+        );
+        if fresh.tree {
+            later(page, |p| {
+                render(
+                    p,
+                    Fresh {
+                        importance: false,
+                        dependence: false,
+                        contributions: false,
+                        tree: true,
+                    },
+                )
+            });
+        }
         // After the importance: the dependence on the most important predictor.
         if p.insight.predictor.is_none() {
             let top = p.insight.data.as_ref().and_then(top_predictor);
@@ -241,6 +269,20 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
     };
     if let Some(name) = follow {
         ask(page, false, Some(name), None, false);
+    }
+}
+
+/// Runs `f` on the page in a later task of the browser's event loop.
+fn later(page: &Shared, f: impl FnOnce(&Page) + 'static) {
+    let weak = std::rc::Rc::downgrade(page);
+    let callback = wasm_bindgen::closure::Closure::once_into_js(move || {
+        if let Some(page) = weak.upgrade() {
+            f(&page.borrow());
+        }
+    });
+    if let Some(w) = web_sys::window() {
+        let _ =
+            w.set_timeout_with_callback_and_timeout_and_arguments_0(callback.unchecked_ref(), 0);
     }
 }
 
@@ -276,8 +318,18 @@ fn render_predictor_choice(p: &Page) {
     set_html(&p.doc, "insight-dependence-choice", &html);
 }
 
-/// Draws every part that has arrived.
-fn render(p: &Page) {
+/// Which parts a reply brought.
+#[derive(Clone, Copy)]
+struct Fresh {
+    importance: bool,
+    dependence: bool,
+    contributions: bool,
+    tree: bool,
+}
+
+/// Draws the parts a reply brought (each chart is drawn once per answer, so the page's
+/// main thread does no more than it must).
+fn render(p: &Page, fresh: Fresh) {
     let Some(d) = &p.insight.data else { return };
     let doc = &p.doc;
     let notes: String = d
@@ -294,18 +346,24 @@ fn render(p: &Page) {
             format!("<ul class=\"notices\">{notes}</ul>")
         },
     );
-    render_records(p, d);
-    if let Some(imp) = &d.importance {
-        render_importance(p, d, imp);
+    match &d.importance {
+        Some(imp) if fresh.importance => render_importance(p, d, imp),
+        _ => {}
     }
-    if let Some(dep) = &d.dependence {
-        render_dependence(p, dep);
+    match &d.dependence {
+        Some(dep) if fresh.dependence => render_dependence(p, dep),
+        _ => {}
     }
-    if let Some(c) = &d.contributions {
-        render_contributions(p, c);
+    match &d.contributions {
+        Some(c) if fresh.contributions => {
+            render_records(p, d);
+            render_contributions(p, c);
+        }
+        _ => {}
     }
-    if let Some(t) = &d.tree {
-        render_tree(p, t);
+    match &d.tree {
+        Some(t) if fresh.tree => render_tree(p, t),
+        _ => {}
     }
 }
 
@@ -623,10 +681,9 @@ pub fn listen(page: &Shared) {
         };
         match target.id().as_str() {
             "insight-run" => {
+                // Chosen only: the button asks (arrow keys in the list would ask at each step).
                 let value = target.unchecked_ref::<HtmlSelectElement>().value();
-                if let Ok(i) = value.parse() {
-                    choose(&pg, i);
-                }
+                pg.borrow_mut().insight.chosen = value.parse().ok();
             }
             "insight-predictor" => {
                 let name = target.unchecked_ref::<HtmlSelectElement>().value();
@@ -646,6 +703,17 @@ pub fn listen(page: &Shared) {
             .and_then(|r| r.parse::<usize>().ok())
         {
             return explain_record(&pg, r);
+        }
+        if target.id() == "insight-go" {
+            let chosen = pg
+                .borrow()
+                .insight
+                .chosen
+                .or_else(|| eligible(&pg.borrow()).last().copied());
+            if let Some(i) = chosen {
+                choose(&pg, i);
+            }
+            return;
         }
         if target.id() == "insight-row-go" {
             let typed = typed_record(&pg.borrow());
