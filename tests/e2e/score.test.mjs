@@ -1,7 +1,9 @@
 // Browser test of scoring new records (issue 7, step 7): grow a forest on the demo records
 // in the page, score a second file with it and download the predictions as CSV; the same
 // forest fitted and applied by the command line (`spinney fit ... --save-model` then
-// `spinney predict ... --keep patient_id`) writes the same file byte for byte. A file
+// `spinney predict ... --keep patient_id`) writes the same predictions byte for byte, and
+// each row's three largest contributions (TreeSHAP) are those of `spinney explain
+// --contributions all`. A file
 // lacking a predictor is refused with the command line's own words, labels never seen in
 // training are noted as the command line notes them, and the step's controls are reached by
 // keyboard. Screenshots go to tests/out/e2e/.
@@ -55,7 +57,8 @@ try {
     await score(fresh);
     expect(await page.$eval('#score-result .facts', (f) => f.dataset.rows) === '300', 'not 300 rows scored');
     const head = await page.$$eval('table.predictions thead th', (t) => t.map((x) => x.textContent));
-    expect(JSON.stringify(head) === JSON.stringify(['Row', 'patient_id', 'predicted_complication_30d', 'probability_no', 'probability_yes']), head.join(' | '));
+    expect(JSON.stringify(head) === JSON.stringify(['Row', 'patient_id', 'predicted_complication_30d', 'probability_no', 'probability_yes',
+      'top_1_predictor', 'top_1_amount', 'top_2_predictor', 'top_2_amount', 'top_3_predictor', 'top_3_amount', 'amount_scale']), head.join(' | '));
     const first = await page.$$eval('table.predictions tbody tr:first-child td', (t) => t.map((x) => x.textContent));
     expect(first[0] === 'P00001' && ['yes', 'no'].includes(first[1]) && Math.abs(Number(first[2]) + Number(first[3]) - 1) < 1e-12, first.join(' | '));
     await page.screenshot({ path: join(out, 'score-step.png'), fullPage: true });
@@ -74,7 +77,23 @@ try {
     expect(predicted.status === 0, `spinney predict: ${predicted.stderr}`);
     writeFileSync(join(out, 'new-records.cli.csv'), predicted.stdout);
     expect(fromPage.split('\n').length === 302, `${fromPage.split('\n').length} lines`);
-    expect(fromPage === predicted.stdout, `page and command line differ (first lines: ${fromPage.slice(0, 120)} | ${predicted.stdout.slice(0, 120)})`);
+    // The predictions: the first four columns, byte for byte (no field here needs quoting).
+    const firstFour = fromPage.split('\n').map((l) => l.split(',').slice(0, 4).join(',')).join('\n');
+    expect(firstFour === predicted.stdout, `page and command line differ (first lines: ${firstFour.slice(0, 120)} | ${predicted.stdout.slice(0, 120)})`);
+    // The top three contributions per row, from the command line's TreeSHAP of every row.
+    const explained = spinney(['explain', model, fresh, '--importance', 'impurity', '--contributions', 'all', '--json', '--interactions', '0']);
+    expect(explained.status === 0, `spinney explain: ${explained.stderr}`);
+    const cli = JSON.parse(explained.stdout);
+    const names = cli.model.predictors;
+    const rows = fromPage.trimEnd().split('\n').slice(1).map((l) => l.split(','));
+    rows.forEach((f, i) => {
+      const c = cli.contributions.rows[i].contributions.map((v, j) => [names[j], v[1]]).filter((x) => x[1] !== 0);
+      c.sort((a, b) => Math.abs(b[1]) - Math.abs(a[1]));
+      for (let t = 0; t < 3; t++) {
+        expect(f[4 + 2 * t] === c[t][0] && Number(f[5 + 2 * t]) === c[t][1], `row ${i + 1}, top ${t + 1}: page ${f[4 + 2 * t]} ${f[5 + 2 * t]}, command line ${c[t]}`);
+      }
+      expect(f[10] === "probability of 'yes'", `row ${i + 1}: scale ${f[10]}`);
+    });
   });
 
   await check('a file without a predictor is refused in the command line\'s words, and nothing changes', async () => {

@@ -9,7 +9,7 @@ use spinney_core::data::TableReport;
 use spinney_core::validate::FoldRun;
 
 /// Bumped when a message changes incompatibly.
-pub const PROTOCOL_VERSION: u32 = 3;
+pub const PROTOCOL_VERSION: u32 = 4;
 
 /// Rows of the preview table.
 pub const PREVIEW_ROWS: usize = 20;
@@ -115,6 +115,19 @@ pub enum Request {
         name: String,
         keep: Vec<String>,
     },
+    /// Insight into kept run `run` on the table it was fitted on (see [`Insight`]): the
+    /// importance of every predictor when `importance`, partial dependence and ICE curves on
+    /// `predictor`, the contributions of table row `record` (from 0), and a picture of its
+    /// first tree when `tree`.
+    Explain {
+        v: u32,
+        id: u32,
+        run: u32,
+        importance: bool,
+        predictor: Option<String>,
+        record: Option<usize>,
+        tree: bool,
+    },
 }
 
 /// Predictions for a file of new records (see spinney_core::scoring).
@@ -130,6 +143,127 @@ pub struct ScoreResult {
     pub preview: Vec<Vec<String>>,
     /// How the file was read, labels training never saw, a partial model.
     pub notes: Vec<String>,
+    /// What the `top_N_amount` columns measure (see [`Contribution`]).
+    pub contribution_scale: String,
+}
+
+/// One predictor's contribution to one record's prediction (TreeSHAP), on the scale stated
+/// beside it; `value` is the record's value of the predictor in words.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Contribution {
+    pub predictor: String,
+    pub value: String,
+    pub amount: f64,
+}
+
+/// Insight into one run, on the table it was fitted on; each part only when asked for.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Insight {
+    pub run: u32,
+    /// The model's predictors, in its order.
+    pub predictors: Vec<String>,
+    /// The table's rows (records are numbered from 1 to this).
+    pub rows: usize,
+    pub importance: Option<InsightImportance>,
+    pub dependence: Option<InsightDependence>,
+    pub contributions: Option<InsightContributions>,
+    pub tree: Option<InsightTree>,
+    pub notes: Vec<String>,
+}
+
+/// Importance three ways (spinney_core::explain::importance).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct InsightImportance {
+    /// Impurity importance per predictor (sums to 1) and its caution.
+    pub impurity: Vec<f64>,
+    pub impurity_caution: String,
+    /// Permutation importance on the rows described by `rows_words`: the figure watched,
+    /// its value on the rows as they are, shuffles per predictor and their seed, and per
+    /// predictor the mean loss and its standard deviation over the shuffles.
+    pub metric: String,
+    pub baseline: f64,
+    pub repeats: usize,
+    pub seed: u64,
+    pub rows: usize,
+    pub rows_words: String,
+    pub mean: Vec<f64>,
+    pub spread: Vec<f64>,
+    /// Bagging and forests: out-of-bag permutation importance (Breiman 2001), per predictor
+    /// the mean increase in each tree's error on its own out-of-bag rows and its standard
+    /// error over the trees.
+    pub out_of_bag: Option<OutOfBagImportance>,
+}
+
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct OutOfBagImportance {
+    pub error: String,
+    pub trees: usize,
+    pub mean: Vec<f64>,
+    pub standard_error: Vec<f64>,
+}
+
+/// Partial dependence on one predictor with ICE curves, on a sample of the rows.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct InsightDependence {
+    pub predictor: String,
+    /// What the curves show, e.g. "probability of 'yes'".
+    pub output: String,
+    /// A number predictor (grid values rising) or levels.
+    pub numbers: bool,
+    pub values: Vec<f64>,
+    pub labels: Vec<String>,
+    /// Rows of the sample nearest each grid value, and rows without a value.
+    pub counts: Vec<u64>,
+    pub missing: u64,
+    /// The sample's values of the predictor (numbers), for the counts under the chart.
+    pub data: Vec<f64>,
+    /// The mean prediction at each grid value.
+    pub average: Vec<f64>,
+    /// Table rows (from 0) followed by the ICE curves, and each one's predictions.
+    pub ice_rows: Vec<usize>,
+    pub ice: Vec<Vec<f64>>,
+    /// Rows in the sample, and the seed that drew it.
+    pub sample: usize,
+    pub seed: u64,
+}
+
+/// One record's contributions (TreeSHAP), largest in size first.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct InsightContributions {
+    /// The table row (from 0).
+    pub record: usize,
+    /// The scale in a sentence and the output explained, e.g. "probability of 'yes'".
+    pub scale: String,
+    pub output: String,
+    pub base: f64,
+    pub contributions: Vec<Contribution>,
+    /// The model's own sum for the record on that scale (what base + contributions equal).
+    pub sum: f64,
+    /// The model's prediction for the record in words (class and probability, or number),
+    /// and the predicted class, if any.
+    pub prediction: String,
+    pub predicted_class: Option<String>,
+}
+
+/// One tree drawn as boxes (the chart's `TreeNode`s), with a summary for big ones.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct InsightTree {
+    /// Which tree it is, in words ("the single tree", "the first of 300 trees").
+    pub which: String,
+    pub nodes: Vec<TreeNodeView>,
+    pub depth: usize,
+    pub leaves: usize,
+    /// The predictors split on most often in it (name, splits), most first.
+    pub most_used: Vec<(String, usize)>,
+}
+
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct TreeNodeView {
+    pub feature: String,
+    pub threshold: String,
+    pub left: Option<usize>,
+    pub right: Option<usize>,
+    pub value: String,
 }
 
 /// The per-row predictions of a two-class run, for the threshold step.
@@ -301,6 +435,8 @@ pub enum Reply {
     ModelFiles { id: u32, files: Vec<Option<String>> },
     /// A file of new records scored.
     Scored { id: u32, result: Box<ScoreResult> },
+    /// Insight into a run.
+    Explained { id: u32, result: Box<Insight> },
     /// A share of a forest's trees is fitted; its bytes come with the message.
     Part { id: u32, first: usize, count: usize },
     /// The checks of a design computed from the records (sample size, leakage, identifiers,
@@ -339,7 +475,8 @@ impl Request {
             | Request::Assemble { v, .. }
             | Request::FoldPart { v, .. }
             | Request::Warnings { v, .. }
-            | Request::FoldRuns { v, .. } => *v,
+            | Request::FoldRuns { v, .. }
+            | Request::Explain { v, .. } => *v,
         }
     }
 }

@@ -23,6 +23,8 @@ use wasm_bindgen_futures::{spawn_local, JsFuture};
 mod checks;
 #[path = "page/compare.rs"]
 mod compare;
+#[path = "page/insight.rs"]
+mod insight;
 #[path = "page/measured.rs"]
 mod measured;
 #[path = "page/pool.rs"]
@@ -121,6 +123,8 @@ struct Page {
     fits: runs::Fits,
     /// The study file and the browser's kept copy.
     study: study::StudyState,
+    /// The insight step.
+    insight: insight::Insight,
     /// The threshold step.
     threshold: threshold::Threshold,
     /// The scoring step.
@@ -322,6 +326,8 @@ fn on_reply(page: &Shared, reply: Reply) {
             let p = page.borrow();
             if p.fits.in_flight.as_ref().is_some_and(|f| f.id == id) {
                 runs::progress(&p, done, total);
+            } else if p.insight.asked.contains(&id) {
+                insight::progress(&p, &stage, done, total);
             } else if p.busy == Some(id) && !p.restoring {
                 let bar = by_id(&p.doc, "read-progress");
                 let share = if total == 0 {
@@ -410,6 +416,7 @@ fn on_reply(page: &Shared, reply: Reply) {
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
         Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
         Reply::Scored { id, result } => score::scored(page, id, *result),
+        Reply::Explained { id, result } => insight::arrived(page, id, *result),
         Reply::ModelFiles { id, files } => study::models_arrived(page, id, files),
         Reply::Warnings {
             id,
@@ -426,6 +433,10 @@ fn on_reply(page: &Shared, reply: Reply) {
         } => {
             if page.borrow().threshold.asked == Some(id) {
                 threshold::refused(page, &message);
+                return;
+            }
+            if insight::owns(page, id) {
+                insight::refused(page, id, &message);
                 return;
             }
             if page.borrow().scoring.asked == Some(id) {
@@ -629,6 +640,7 @@ fn reread(page: &Shared, settings: ReadSettings) {
 /// The runs changed (a fit, a cancel, new data or roles): the steps that use them redraw.
 fn runs_changed(page: &Shared) {
     checks::refresh(page);
+    insight::refresh(page);
     threshold::refresh(page);
     score::refresh(&mut page.borrow_mut());
     report::refresh(&page.borrow());
@@ -650,6 +662,7 @@ fn cancel(page: &Shared, note: &str) {
         p.fits.in_flight = None;
         p.fits.forget_models();
         p.threshold.asked = None;
+        p.insight.asked.clear();
         p.scoring.asked = None;
         p.study.cancelled();
         p.pool.stop();
@@ -966,6 +979,11 @@ fn on<E: wasm_bindgen::convert::FromWasmAbi + 'static>(
     closure.forget();
 }
 
+/// The element an event happened on (for listeners on a container).
+fn target_element(e: &Event) -> Option<Element> {
+    e.target().and_then(|t| t.dyn_into::<Element>().ok())
+}
+
 /// Calls `take` with the file chosen in the file `input`, then empties it so the same file
 /// can be chosen again.
 fn on_file_chosen(input: &Element, take: impl Fn(File) + 'static) {
@@ -1134,6 +1152,7 @@ fn main() {
         roles: Vec::new(),
         fits: runs::Fits::default(),
         study: study::StudyState::default(),
+        insight: insight::Insight::default(),
         threshold: threshold::Threshold::default(),
         scoring: score::Scoring::default(),
         pool: pool::Pool::default(),
@@ -1167,6 +1186,7 @@ fn main() {
         cancel(&pg, "Reading cancelled.")
     });
     runs::listen(&page);
+    insight::listen(&page);
     threshold::listen(&page);
     score::listen(&page);
     study::listen(&page);

@@ -13,6 +13,7 @@ use spinney_core::design::Design;
 use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::ensemble::forest::ForestSettings;
 use spinney_core::ensemble::tree_bytes::{encode_trees, tally_trees};
+use spinney_core::explain::shap::contributions;
 use spinney_core::fit::{fit_design, fit_forest_part, FitOptions, Fitted, ForestFitter};
 use spinney_core::model::{Ensemble, Method, Model};
 use spinney_core::model_file::write_model;
@@ -30,6 +31,9 @@ use spinney_web::protocol::{
 };
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
+// Insight into a kept run (importance, dependence, contributions, a tree), beside this file.
+#[path = "worker/explain.rs"]
+mod explain;
 
 #[derive(Default)]
 struct Held {
@@ -193,6 +197,26 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
                 })
                 .collect();
             return post(&Reply::ModelFiles { id, files });
+        }
+        Request::Explain {
+            id,
+            run,
+            importance,
+            predictor,
+            record,
+            tree,
+            ..
+        } => {
+            let result = explain::explain(
+                held,
+                id,
+                run,
+                importance,
+                predictor.as_deref(),
+                record,
+                tree,
+            );
+            return answer(held, id, result, |result| Reply::Explained { id, result });
         }
         Request::Predictions { id, run, .. } => {
             let result = predictions(held, run);
@@ -817,12 +841,34 @@ fn score(
     notes.extend(unseen.iter().map(unseen_note));
     notes.extend(partial_note(model));
     let mut rows = PredictionRows::new(model, &loaded.table, &records, keep);
-    let header = rows.header();
+    // Each row's largest contributions (TreeSHAP) after its predictions.
+    let c = contributions(model, &records, None, &mut Reporter::new(id))
+        .map_err(|e| format!("{name}: {e}"))?;
+    let mut header = rows.header();
+    for t in 1..=explain::TOP {
+        header.push(format!("top_{t}_predictor"));
+        header.push(format!("top_{t}_amount"));
+    }
+    header.push("amount_scale".into());
+    let mut prediction = vec![0.0; model.outputs()];
     let mut csv = PredictionRows::csv_line(&header);
     csv.push('\n');
     let mut preview = Vec::new();
     for row in 0..rows.rows() {
-        let fields = rows.fields(row);
+        let mut fields = rows.fields(row);
+        model.predict(Rows::Records(&records), row, &mut prediction);
+        let o = explain::explained_output(model, c.outputs, &prediction);
+        let top = explain::ranked(model, &records, &c, row, o);
+        for t in 0..explain::TOP {
+            match top.get(t) {
+                Some(x) => {
+                    fields.push(x.predictor.clone());
+                    fields.push(x.amount.to_string());
+                }
+                None => fields.extend([String::new(), String::new()]),
+            }
+        }
+        fields.push(c.output_names[o].clone());
         csv += &PredictionRows::csv_line(&fields);
         csv.push('\n');
         if row < SCORE_PREVIEW_ROWS {
@@ -837,13 +883,12 @@ fn score(
         header,
         preview,
         notes,
+        contribution_scale: c.scale.clone(),
     })
 }
 
-/// The per-row predictions of kept run `run` on the table it was fitted on: its judged
-/// out-of-sample predictions when it was judged, out-of-bag for bagging and forests (rows
-/// every tree saw left out), the training rows' own otherwise (apparent).
-fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
+/// The held table and kept run `run`, which must have been fitted on that table.
+fn run_on_table(held: &Held, run: u32) -> Result<(&Loaded, &Run), String> {
     let loaded = held
         .loaded
         .as_ref()
@@ -851,10 +896,18 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
     let r = held.runs.get(run as usize).ok_or(
         "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
     )?;
-    let model = &r.model;
-    if model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
+    if r.model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
         return Err("the data changed after this run was grown; grow it again on this data".into());
     }
+    Ok((loaded, r))
+}
+
+/// The per-row predictions of kept run `run` on the table it was fitted on: its judged
+/// out-of-sample predictions when it was judged, out-of-bag for bagging and forests (rows
+/// every tree saw left out), the training rows' own otherwise (apparent).
+fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
+    let (loaded, r) = run_on_table(held, run)?;
+    let model = &r.model;
     let classes = match model.classes.as_deref() {
         Some([a, b]) => [a.clone(), b.clone()],
         Some(c) => {
@@ -872,7 +925,8 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
         outcome: r.design.outcome.clone(),
         predictors: r.design.predictors.clone(),
         weight: r.design.weight.clone(),
-        ..DesignSpec::default()
+        // The rows of the fitted (and judged) design, group column included.
+        group: r.design.group.clone(),
     };
     let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
     let Outcome::Classes { codes, .. } = &d.outcome else {

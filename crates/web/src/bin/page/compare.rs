@@ -51,7 +51,7 @@ fn cell(figures: &[Figure], name: &str) -> String {
 }
 
 /// A chart's numbers as an HTML table.
-fn table_html(t: &Table) -> String {
+pub(super) fn table_html(t: &Table) -> String {
     let mut html = format!(
         "<table class=\"curve-numbers\"><caption>{}</caption><thead><tr>",
         esc(&t.caption)
@@ -75,7 +75,7 @@ fn table_html(t: &Table) -> String {
 }
 
 /// Draws on canvas `id` at the screen's pixel density, `aspect` high per unit of width.
-fn draw_by_id(doc: &web_sys::Document, id: &str, aspect: f64, draw: Drawing<'_>) {
+pub(super) fn draw_by_id(doc: &web_sys::Document, id: &str, aspect: f64, draw: Drawing<'_>) {
     if let Ok(canvas) = by_id(doc, id).dyn_into::<HtmlCanvasElement>() {
         draw_on(&canvas, aspect, draw);
     }

@@ -1,7 +1,8 @@
 //! The scoring step: a second file of records, dropped or chosen, scored by a kept run in the
 //! worker exactly as `spinney predict` scores it (spinney_core::scoring: the same columns,
 //! the same refusals for missing or mistyped predictors, the same notes). The first rows are
-//! shown; all of them download as CSV through a Blob, never the network. The training data's
+//! shown, each with its three largest contributions (TreeSHAP, on the scale stated); all of
+//! them download as CSV through a Blob, never the network. The training data's
 //! group / record-id column, if the file has it, is carried in front of the predictions.
 
 use js_sys::Uint8Array;
@@ -12,7 +13,7 @@ use web_sys::{Event, File, HtmlSelectElement};
 
 use super::{
     by_id, download, esc, fetch_origin, on, on_file_chosen, on_file_dropped, send, set_html, show,
-    Origin, Page, Role, Shared,
+    target_element, Origin, Page, Role, Shared,
 };
 
 #[derive(Default)]
@@ -135,6 +136,10 @@ pub fn scored(page: &Shared, id: u32, result: ScoreResult) {
         }
         html += "</ul>";
     }
+    html += &format!(
+        "<p class=\"hint\" id=\"score-scale\">Beside each prediction, the three predictors that moved it most (TreeSHAP contributions, Lundberg et al. 2020), each with its signed amount on the scale of {}; the <code>amount_scale</code> column names the output they explain.</p>",
+        esc(&result.contribution_scale)
+    );
     html += "<p><button type=\"button\" id=\"score-download\" class=\"button primary\">Download the predictions (CSV)</button> <span class=\"hint\">Saved by your browser on this computer; nothing is sent anywhere.</span></p>";
     html += &format!(
         "<div class=\"scroll\"><table class=\"grid predictions\"><caption>The first {} of {} rows</caption><thead><tr><th scope=\"col\">Row</th>",
@@ -181,10 +186,7 @@ pub fn listen(page: &Shared) {
     let step = by_id(&doc, "step-score");
     let pg = page.clone();
     on(&step, "change", move |e: Event| {
-        let Some(target) = e
-            .target()
-            .and_then(|t| t.dyn_into::<web_sys::Element>().ok())
-        else {
+        let Some(target) = target_element(&e) else {
             return;
         };
         if target.id() == "score-run" {
@@ -194,11 +196,7 @@ pub fn listen(page: &Shared) {
     });
     let pg = page.clone();
     on(&step, "click", move |e: Event| {
-        let id = e
-            .target()
-            .and_then(|t| t.dyn_into::<web_sys::Element>().ok())
-            .map(|t| t.id())
-            .unwrap_or_default();
+        let id = target_element(&e).map(|t| t.id()).unwrap_or_default();
         if id == "score-download" {
             save(&pg.borrow());
         }
