@@ -119,6 +119,20 @@ try {
     await stepShot('step-compare', '4-compare');
   });
 
+  await check('step 5: insight into the forest: importance, dependence, a record\'s contributions and a tree', async () => {
+    await page.waitForSelector('#step-insight:not([hidden])');
+    await page.selectOption('#insight-run', { index: 0 });
+    await page.click('#insight-go');
+    await page.waitForSelector('#importance-numbers table', { state: 'attached', timeout: 120000 });
+    await page.waitForSelector('#insight-dependence[data-predictor]', { timeout: 120000 });
+    await page.waitForFunction(() => document.querySelector('#insight-status').hidden, null, { timeout: 120000 });
+    const rows = await page.$$eval('#importance-numbers tbody tr', (r) => r.length);
+    expect(rows >= 10, `${rows} predictors ranked`);
+    await page.click('button[data-record="2"]');
+    await page.waitForFunction(() => document.querySelector('#insight-record-facts .facts')?.dataset.record === '3', null, { timeout: 60000 });
+    await stepShot('step-insight', '5-insight');
+  });
+
   await check('step 6: moving the threshold updates the counts, on out-of-sample predictions', async () => {
     await page.waitForSelector('#step-threshold:not([hidden]) .threshold-tables', { timeout: 30000 });
     const tp = () => page.$eval('.threshold-tables', (t) => Number(t.dataset.tp));
