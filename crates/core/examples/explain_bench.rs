@@ -4,7 +4,9 @@
 //! 10,000 rows with the same forest (target under 10 s); also partial dependence on a
 //! 20-value grid over 1,000 rows and Friedman's H for 4 predictors on 100 rows. Run on an
 //! idle machine: `scripts/bench explain` or
-//! `cargo run --release -p spinney-core --example explain_bench [ROWS] [TREES]`.
+//! `cargo run --release -p spinney-core --example explain_bench [ROWS] [TREES] [PART]`, PART
+//! one of `all` (the default), `shap`, `importance` or `fit` (only the forest; for counting
+//! one part's instructions under callgrind, less the `fit` run's).
 
 use std::time::Instant;
 
@@ -48,6 +50,8 @@ fn main() {
     let mut args = std::env::args().skip(1);
     let rows: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(50_000);
     let trees: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(300);
+    let part = args.next().unwrap_or_else(|| "all".into());
+    let run = |what: &str| part == "all" || part == what;
     // Invented data: 30 uniform predictors, a two-class outcome drawn from a logistic model
     // of the first six (with an interaction), seeded.
     let mut rng = stream(7, Purpose::ExplainSample, u64::MAX);
@@ -116,47 +120,55 @@ fn main() {
     };
     let records = records_from_table(&binned.columns, &table).expect("records");
 
-    let start = now();
-    let c = contributions(&model, &records, None, &mut Silent).expect("shap");
-    let cpu = cpu_seconds() - start.1;
-    println!(
-        "TreeSHAP, every row: {rows} rows x {trees} trees: {} ({:.2} µs CPU per row and tree; target < 30 s)",
-        took(start),
-        cpu * 1e6 / (rows * trees) as f64
-    );
-    drop(c);
+    if run("shap") {
+        let start = now();
+        let c = contributions(&model, &records, None, &mut Silent).expect("shap");
+        let cpu = cpu_seconds() - start.1;
+        println!(
+            "TreeSHAP, every row: {rows} rows x {trees} trees: {} ({:.2} µs CPU per row and tree; target < 30 s; sum of |contributions| {:.12e})",
+            took(start),
+            cpu * 1e6 / (rows * trees) as f64,
+            c.values.iter().map(|v| v.abs()).sum::<f64>()
+        );
+    }
 
-    let held: Vec<usize> = (0..rows.min(10_000)).collect();
-    let held_out = records.select_rows(&held);
-    let spinney_core::design::Outcome::Classes { codes, labels } = &design.outcome else {
-        unreachable!()
-    };
-    let outcome = spinney_core::design::Outcome::Classes {
-        codes: held.iter().map(|&r| codes[r]).collect(),
-        labels: labels.clone(),
-    };
-    let groups: Vec<Vec<usize>> = (0..PREDICTORS).map(|j| vec![j]).collect();
-    let start = now();
-    let p = permutation(
-        &model,
-        &held_out,
-        &outcome,
-        &groups,
-        Shuffles {
-            metric: Metric::Auc,
-            repeats: 5,
-            seed: 1,
-        },
-        &mut Silent,
-    )
-    .expect("permutation");
-    println!(
-        "permutation importance, 5 shuffles x {PREDICTORS} predictors on {} rows, {trees} trees: {} (AUC {:.4}, x0 loses {:.4}; target < 10 s)",
-        held_out.rows,
-        took(start),
-        p.baseline,
-        p.mean[0]
-    );
+    if run("importance") {
+        let held: Vec<usize> = (0..rows.min(10_000)).collect();
+        let held_out = records.select_rows(&held);
+        let spinney_core::design::Outcome::Classes { codes, labels } = &design.outcome else {
+            unreachable!()
+        };
+        let outcome = spinney_core::design::Outcome::Classes {
+            codes: held.iter().map(|&r| codes[r]).collect(),
+            labels: labels.clone(),
+        };
+        let groups: Vec<Vec<usize>> = (0..PREDICTORS).map(|j| vec![j]).collect();
+        let start = now();
+        let p = permutation(
+            &model,
+            &held_out,
+            &outcome,
+            &groups,
+            Shuffles {
+                metric: Metric::Auc,
+                repeats: 5,
+                seed: 1,
+            },
+            &mut Silent,
+        )
+        .expect("permutation");
+        println!(
+            "permutation importance, 5 shuffles x {PREDICTORS} predictors on {} rows, {trees} trees: {} (AUC {:.4}, x0 loses {:.4}; target < 10 s; sum of mean losses {:.15e})",
+            held_out.rows,
+            took(start),
+            p.baseline,
+            p.mean[0],
+            p.mean.iter().sum::<f64>()
+        );
+    }
+    if part != "all" {
+        return;
+    }
 
     let sample = records.select_rows(&(0..rows.min(1_000)).collect::<Vec<_>>());
     let start = now();
