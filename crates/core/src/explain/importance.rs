@@ -16,14 +16,15 @@
 //!   drawn again from the model's seed ([`crate::ensemble::forest::tree_rows`]).
 //!
 //! Permutation importance walks each tree once per row and re-walks only the rows whose path
-//! meets a shuffled predictor, from the first node on the path that uses it, tree by tree,
-//! adding the changes in fixed point (exact, so rows with the same leaves keep equal sums).
+//! meets a shuffled predictor, from the first node on the path that uses it, all such rows
+//! a level at a time (no row waits on another's branch), tree by tree, adding the changes in
+//! fixed point (exact, so rows with the same leaves keep equal sums).
 
 use crate::binning::Records;
 use crate::design::Outcome;
 use crate::ensemble::forest::{argmax, class_rows, tree_rows, ForestSettings};
 use crate::error::{Error, ErrorKind, Result};
-use crate::explain::{leaf_by, leaf_from, Additive};
+use crate::explain::{leaf_by, Additive};
 use crate::metrics::{binary, multiclass, regression};
 use crate::model::{Ensemble, Model, Reading};
 use crate::progress::{Flow, Progress};
@@ -209,6 +210,53 @@ fn check_groups(model: &Model, groups: &[Vec<usize>]) -> Result<()> {
     Ok(())
 }
 
+/// A node for walking many rows at once: a leaf leads to itself, so every row takes the
+/// same number of steps with no test for having arrived.
+#[derive(Debug, Clone, Copy)]
+struct Step {
+    threshold: f64,
+    feature: u32,
+    left: u32,
+    right: u32,
+    missing_left: bool,
+    /// A split on categories (the node decides); otherwise on a number.
+    categories: bool,
+}
+
+/// `tree`'s nodes as [`Step`]s and each node's depth; returns the deepest.
+fn steps_of(tree: &Tree, steps: &mut Vec<Step>, depth: &mut Vec<usize>) -> usize {
+    steps.clear();
+    depth.clear();
+    depth.resize(tree.nodes.len(), 0);
+    let mut deepest = 0;
+    for (i, n) in tree.nodes.iter().enumerate() {
+        // Children come after their parents (Model::check).
+        deepest = deepest.max(depth[i]);
+        steps.push(if n.is_leaf() {
+            Step {
+                threshold: 0.0,
+                feature: 0,
+                left: i as u32,
+                right: i as u32,
+                missing_left: false,
+                categories: false,
+            }
+        } else {
+            depth[n.left as usize] = depth[i] + 1;
+            depth[n.right as usize] = depth[i] + 1;
+            Step {
+                threshold: n.threshold,
+                feature: n.feature,
+                left: n.left,
+                right: n.right,
+                missing_left: n.missing_left,
+                categories: !n.numeric,
+            }
+        });
+    }
+    deepest
+}
+
 /// How permutation importance shuffles and what it watches.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Shuffles {
@@ -297,6 +345,7 @@ pub fn permutation(
     let mut seen = vec![0u32; p];
     let mut first = vec![u32::MAX; n];
     let mut merged: Vec<(u32, u32)> = Vec::with_capacity(n);
+    let (mut steps, mut depth, mut at) = (Vec::new(), Vec::new(), Vec::with_capacity(n));
     let total = add.members.len() as u64;
     for (m, member) in add.members.iter().enumerate() {
         let tree: &Tree = &member.tree;
@@ -316,6 +365,7 @@ pub fn permutation(
                 }
             }
         }
+        let deepest = steps_of(tree, &mut steps, &mut depth);
         meets.iter_mut().for_each(Vec::clear);
         seen.iter_mut().for_each(|s| *s = 0);
         for r in 0..n {
@@ -367,16 +417,36 @@ pub fn permutation(
                 }
                 &merged
             };
+            // All of these rows walk down together, a level at a time (no row waits on
+            // another's branch); those at a leaf stay there.
+            let levels = deepest
+                - met
+                    .iter()
+                    .map(|&(_, i)| depth[i as usize])
+                    .min()
+                    .unwrap_or(0);
             for rep in 0..repeats {
                 let s = g * repeats + rep;
                 let order = &orders[s];
                 let delta = &mut deltas[s * n * width..(s + 1) * n * width];
-                for &(r, start) in met {
-                    let r = r as usize;
-                    let from = order[r] as usize;
-                    let leaf = leaf_from(tree, start as usize, |j| {
-                        records.value(j, if member_of[j] { from } else { r })
-                    });
+                at.clear();
+                at.extend(met.iter().map(|&(_, i)| i));
+                for _ in 0..levels {
+                    for (c, &(r, _)) in at.iter_mut().zip(met) {
+                        let step = &steps[*c as usize];
+                        let f = step.feature as usize;
+                        let row = if member_of[f] { order[r as usize] } else { r };
+                        let x = records.value(f, row as usize);
+                        let left = if step.categories {
+                            tree.nodes[*c as usize].value_goes_left(x)
+                        } else {
+                            (x <= step.threshold) | (x.is_nan() & step.missing_left)
+                        };
+                        *c = if left { step.left } else { step.right };
+                    }
+                }
+                for (&leaf, &(r, _)) in at.iter().zip(met) {
+                    let (r, leaf) = (r as usize, leaf as usize);
                     let old = leaves[r] as usize;
                     if leaf != old {
                         let d = &mut delta[r * width..(r + 1) * width];

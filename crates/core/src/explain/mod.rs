@@ -261,14 +261,7 @@ impl<'a> Additive<'a> {
 /// The leaf of `tree` reached by a record whose predictor `j` has the value `value(j)`.
 #[inline]
 pub fn leaf_by(tree: &Tree, value: impl Fn(usize) -> f64) -> usize {
-    leaf_from(tree, 0, value)
-}
-
-/// The leaf of `tree` reached from node `node` by a record whose predictor `j` has the value
-/// `value(j)`.
-#[inline]
-pub fn leaf_from(tree: &Tree, node: usize, value: impl Fn(usize) -> f64) -> usize {
-    let mut i = node;
+    let mut i = 0usize;
     loop {
         let n = &tree.nodes[i];
         if n.is_leaf() {
