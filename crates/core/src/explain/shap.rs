@@ -10,9 +10,15 @@
 //! many records a tree's work is shared instead (the idea of Fast TreeSHAP v2, Yang 2021,
 //! arXiv:2109.09847, from memory): each leaf's contribution factors depend only on which of
 //! its path's predictors the record satisfies (2^d patterns for d distinct predictors), so
-//! they are computed once per tree ([`Table`]) and each record costs one walk over the
-//! tree's nodes plus d additions per leaf. Rows are done tree by tree, so each tree's nodes
-//! and table stay in cache.
+//! they are computed once per tree ([`Table`]). Leaves are further taken together in small
+//! subtrees ([`Group`]: a node with at most three internal nodes below it): a record's
+//! patterns at those leaves follow from its pattern at the subtree's root and the sides it
+//! takes inside, so one table per subtree, indexed by both, holds the sum of its leaves'
+//! factors per predictor. Each record then costs one pass over the nodes above the
+//! subtrees plus one addition per subtree and predictor (about a quarter of one per leaf
+//! and path predictor for a full depth-8 tree). Rows are done tree by tree in blocks, so
+//! each tree's nodes and tables stay in cache. The sums run in another order than
+//! Algorithm 2's; the tests hold them equal within 1e-12.
 
 use crate::binning::Records;
 use crate::error::{Error, ErrorKind, Result};
