@@ -256,6 +256,16 @@ struct Group {
     start: usize,
 }
 
+/// A leaf of a [`Group`] while its table is built.
+struct GroupLeaf {
+    leaf: usize,
+    /// The sides its path takes inside the group: (index in [`Group::inner`], left, the
+    /// node's slot).
+    conditions: Vec<(usize, bool, u32)>,
+    /// The group column of each of its path predictors, in slot order.
+    cols: Vec<usize>,
+}
+
 /// A tree's contribution factors per group of leaves and pattern (see the module notes).
 struct Table {
     /// Internal nodes above the groups (parents first): records' patterns pass through them.
@@ -436,9 +446,7 @@ impl Table {
         // pattern follows (a side not taken clears its node's slot) and its factors add up
         // in the leaf's predictors' columns.
         let mut factors = Vec::with_capacity(group_entries);
-        // Per leaf of a group: (leaf, its conditions: (inner index, went left, slot), its
-        // columns).
-        let mut members: Vec<(usize, Vec<(usize, bool, u32)>, Vec<usize>)> = Vec::new();
+        let mut members: Vec<GroupLeaf> = Vec::new();
         for group in &mut groups {
             group.start = factors.len();
             members.clear();
@@ -451,7 +459,11 @@ impl Table {
                         .iter()
                         .map(|f| group.features.iter().position(|g| g == f).unwrap_or(0))
                         .collect();
-                    members.push((i, conditions, cols));
+                    members.push(GroupLeaf {
+                        leaf: i,
+                        conditions,
+                        cols,
+                    });
                     continue;
                 }
                 let t = group.inner.iter().position(|&j| j == i).unwrap_or(0);
@@ -467,7 +479,12 @@ impl Table {
                 let at = factors.len();
                 factors.resize(at + width, 0.0);
                 let (q, sides) = (row >> m, row & ((1 << m) - 1));
-                for (leaf, conditions, cols) in &members {
+                for GroupLeaf {
+                    leaf,
+                    conditions,
+                    cols,
+                } in &members
+                {
                     let mut pattern = q | !((1usize << group.bits) - 1);
                     for &(t, left, s) in conditions {
                         if (sides >> t & 1 == 1) != left {
