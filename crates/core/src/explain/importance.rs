@@ -16,8 +16,9 @@
 //!   drawn again from the model's seed ([`crate::ensemble::forest::tree_rows`]).
 //!
 //! Permutation importance walks each tree once per row and re-walks only the rows whose path
-//! meets a shuffled predictor, tree by tree, adding the changes in fixed point (exact, so
-//! rows with the same leaves keep equal sums).
+//! meets a shuffled predictor, from the first node on the path that uses it, all such rows
+//! a level at a time (no row waits on another's branch), tree by tree, adding the changes in
+//! fixed point (exact, so rows with the same leaves keep equal sums).
 
 use crate::binning::Records;
 use crate::design::Outcome;
@@ -209,24 +210,51 @@ fn check_groups(model: &Model, groups: &[Vec<usize>]) -> Result<()> {
     Ok(())
 }
 
-/// The predictors on the path of a record to its leaf, as bits (`words` u64 per record).
-#[inline]
-fn path_bits(tree: &Tree, records: &Records, r: usize, bits: &mut [u64]) -> usize {
-    bits.iter_mut().for_each(|b| *b = 0);
-    let mut i = 0usize;
-    loop {
-        let n = &tree.nodes[i];
-        if n.is_leaf() {
-            return i;
-        }
-        let f = n.feature as usize;
-        bits[f >> 6] |= 1 << (f & 63);
-        i = if n.value_goes_left(records.value(f, r)) {
-            n.left
+/// A node for walking many rows at once: a leaf leads to itself, so every row takes the
+/// same number of steps with no test for having arrived.
+#[derive(Debug, Clone, Copy)]
+struct Step {
+    threshold: f64,
+    feature: u32,
+    left: u32,
+    right: u32,
+    missing_left: bool,
+    /// A split on categories (the node decides); otherwise on a number.
+    categories: bool,
+}
+
+/// `tree`'s nodes as [`Step`]s and each node's depth; returns the deepest.
+fn steps_of(tree: &Tree, steps: &mut Vec<Step>, depth: &mut Vec<usize>) -> usize {
+    steps.clear();
+    depth.clear();
+    depth.resize(tree.nodes.len(), 0);
+    let mut deepest = 0;
+    for (i, n) in tree.nodes.iter().enumerate() {
+        // Children come after their parents (Model::check).
+        deepest = deepest.max(depth[i]);
+        steps.push(if n.is_leaf() {
+            Step {
+                threshold: 0.0,
+                feature: 0,
+                left: i as u32,
+                right: i as u32,
+                missing_left: false,
+                categories: false,
+            }
         } else {
-            n.right
-        } as usize;
+            depth[n.left as usize] = depth[i] + 1;
+            depth[n.right as usize] = depth[i] + 1;
+            Step {
+                threshold: n.threshold,
+                feature: n.feature,
+                left: n.left,
+                right: n.right,
+                missing_left: n.missing_left,
+                categories: !n.numeric,
+            }
+        });
     }
+    deepest
 }
 
 /// How permutation importance shuffles and what it watches.
@@ -269,7 +297,6 @@ pub fn permutation(
     let width = add.width();
     let outputs = model.outputs();
     let p = model.predictors.len();
-    let words = p.div_ceil(64);
     // One shuffle (a row order) per group and repeat, each from its own stream.
     let orders: Vec<Vec<u32>> = (0..groups.len() * repeats)
         .map(|i| {
@@ -281,16 +308,14 @@ pub fn permutation(
             order
         })
         .collect();
-    let masks: Vec<(Vec<u64>, Vec<bool>)> = groups
+    let masks: Vec<Vec<bool>> = groups
         .iter()
         .map(|g| {
-            let mut bits = vec![0u64; words];
             let mut member = vec![false; p];
             for &j in g {
-                bits[j >> 6] |= 1 << (j & 63);
                 member[j] = true;
             }
-            (bits, member)
+            member
         })
         .collect();
     // Sums in fixed point: a shuffle's changed leaves are added and taken away exactly, so
@@ -305,56 +330,133 @@ pub fn permutation(
             .sum::<f64>();
     let unit = (2.0f64).powi(60 - bound.max(1e-300).log2().ceil().clamp(-900.0, 59.0) as i32);
     let fixed = |x: f64| (x * unit).round() as i64;
-    let add_fixed = |m: usize, leaf: usize, sign: i64, to: &mut [i64]| {
-        let member = &add.members[m];
-        let values = member.tree.node_values(leaf);
-        match member.output {
-            Some(k) => to[k] += sign * fixed(member.scale * values[0]),
-            None => {
-                for (t, v) in to.iter_mut().zip(values) {
-                    *t += sign * fixed(member.scale * v);
-                }
-            }
-        }
-    };
     let slots = groups.len() * repeats;
     let mut base: Vec<i64> = (0..n)
         .flat_map(|_| add.offset.iter().map(|&o| fixed(o)))
         .collect();
     let mut deltas = vec![0i64; slots * n * width];
     let mut leaves = vec![0u32; n];
-    let mut bits = vec![0u64; n * words];
-    let mut met: Vec<usize> = Vec::with_capacity(n);
+    // Per tree: each leaf's values in fixed point (`width` per node), and per predictor the
+    // rows whose path meets it with the first node there (nodes come after their parents,
+    // so the smallest index is the first on the path). A shuffle leaves the path above that
+    // node as it was, so the walk again starts there.
+    let mut leaf_fixed: Vec<i64> = Vec::new();
+    let mut meets: Vec<Vec<(u32, u32)>> = vec![Vec::new(); p];
+    let mut seen = vec![0u32; p];
+    let mut first = vec![u32::MAX; n];
+    let mut merged: Vec<(u32, u32)> = Vec::with_capacity(n);
+    let (mut steps, mut depth, mut at) = (Vec::new(), Vec::new(), Vec::with_capacity(n));
     let total = add.members.len() as u64;
     for (m, member) in add.members.iter().enumerate() {
         let tree: &Tree = &member.tree;
-        for r in 0..n {
-            let leaf = path_bits(tree, records, r, &mut bits[r * words..(r + 1) * words]);
-            leaves[r] = leaf as u32;
-            add_fixed(m, leaf, 1, &mut base[r * width..(r + 1) * width]);
+        leaf_fixed.clear();
+        leaf_fixed.resize(tree.nodes.len() * width, 0);
+        for (i, to) in leaf_fixed.chunks_exact_mut(width.max(1)).enumerate() {
+            if !tree.nodes[i].is_leaf() {
+                continue;
+            }
+            let values = tree.node_values(i);
+            match member.output {
+                Some(k) => to[k] = fixed(member.scale * values[0]),
+                None => {
+                    for (t, v) in to.iter_mut().zip(values) {
+                        *t = fixed(member.scale * v);
+                    }
+                }
+            }
         }
-        for (g, (gbits, member_of)) in masks.iter().enumerate() {
-            // The rows whose path meets the group: the only ones a shuffle can move.
-            met.clear();
-            met.extend((0..n).filter(|&r| {
-                bits[r * words..(r + 1) * words]
+        let deepest = steps_of(tree, &mut steps, &mut depth);
+        meets.iter_mut().for_each(Vec::clear);
+        seen.iter_mut().for_each(|s| *s = 0);
+        for r in 0..n {
+            // `seen[f] == r + 1`: predictor f already met on this row's path.
+            let stamp = r as u32 + 1;
+            let mut i = 0usize;
+            let leaf = loop {
+                let node = &tree.nodes[i];
+                if node.is_leaf() {
+                    break i;
+                }
+                let f = node.feature as usize;
+                if seen[f] != stamp {
+                    seen[f] = stamp;
+                    meets[f].push((r as u32, i as u32));
+                }
+                i = if node.value_goes_left(records.value(f, r)) {
+                    node.left
+                } else {
+                    node.right
+                } as usize;
+            };
+            leaves[r] = leaf as u32;
+            for (b, v) in base[r * width..(r + 1) * width]
+                .iter_mut()
+                .zip(&leaf_fixed[leaf * width..(leaf + 1) * width])
+            {
+                *b += v;
+            }
+        }
+        for (g, (group, member_of)) in groups.iter().zip(&masks).enumerate() {
+            // The rows whose path meets the group (the only ones a shuffle can move) and
+            // the first node of the group on each path.
+            let met: &[(u32, u32)] = if let [j] = group[..] {
+                &meets[j]
+            } else {
+                merged.clear();
+                for &j in group {
+                    for &(r, i) in &meets[j] {
+                        let at = &mut first[r as usize];
+                        if *at == u32::MAX {
+                            merged.push((r, 0));
+                        }
+                        *at = (*at).min(i);
+                    }
+                }
+                for (r, i) in merged.iter_mut() {
+                    *i = std::mem::replace(&mut first[*r as usize], u32::MAX);
+                }
+                &merged
+            };
+            // All of these rows walk down together, a level at a time (no row waits on
+            // another's branch); those at a leaf stay there.
+            let levels = deepest
+                - met
                     .iter()
-                    .zip(gbits)
-                    .any(|(a, b)| a & b != 0)
-            }));
+                    .map(|&(_, i)| depth[i as usize])
+                    .min()
+                    .unwrap_or(0);
             for rep in 0..repeats {
                 let s = g * repeats + rep;
                 let order = &orders[s];
                 let delta = &mut deltas[s * n * width..(s + 1) * n * width];
-                for &r in &met {
-                    let from = order[r] as usize;
-                    let leaf = leaf_by(tree, |j| {
-                        records.value(j, if member_of[j] { from } else { r })
-                    });
-                    if leaf != leaves[r] as usize {
+                at.clear();
+                at.extend(met.iter().map(|&(_, i)| i));
+                for _ in 0..levels {
+                    for (c, &(r, _)) in at.iter_mut().zip(met) {
+                        let step = &steps[*c as usize];
+                        let f = step.feature as usize;
+                        let row = if member_of[f] { order[r as usize] } else { r };
+                        let x = records.value(f, row as usize);
+                        let left = if step.categories {
+                            tree.nodes[*c as usize].value_goes_left(x)
+                        } else {
+                            (x <= step.threshold) | (x.is_nan() & step.missing_left)
+                        };
+                        *c = if left { step.left } else { step.right };
+                    }
+                }
+                for (&leaf, &(r, _)) in at.iter().zip(met) {
+                    let (r, leaf) = (r as usize, leaf as usize);
+                    let old = leaves[r] as usize;
+                    if leaf != old {
                         let d = &mut delta[r * width..(r + 1) * width];
-                        add_fixed(m, leaf, 1, d);
-                        add_fixed(m, leaves[r] as usize, -1, d);
+                        let (new, old) = (
+                            &leaf_fixed[leaf * width..(leaf + 1) * width],
+                            &leaf_fixed[old * width..(old + 1) * width],
+                        );
+                        for ((d, a), b) in d.iter_mut().zip(new).zip(old) {
+                            *d += a - b;
+                        }
                     }
                 }
             }
