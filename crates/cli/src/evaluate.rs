@@ -130,15 +130,18 @@ pub fn run_fits(
                 })?;
             let done = std::sync::atomic::AtomicU64::new(0);
             let bar = std::sync::Mutex::new(Bar::new());
+            // Each fold's trees go to the same pool, so a thread whose folds are done helps
+            // with the others' trees (5 folds on 2 threads leave none idle at the end).
+            let fitter = crate::fit::forests_on_current_pool();
             return pool.install(|| {
                 (0..count)
                     .into_par_iter()
                     .map(|i| {
-                        let run = job(
-                            i,
-                            FitOptions::default(),
-                            &mut spinney_core::progress::Silent,
-                        );
+                        let options = FitOptions {
+                            forest_fitter: Some(&fitter),
+                            ..FitOptions::default()
+                        };
+                        let run = job(i, options, &mut spinney_core::progress::Silent);
                         let d = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
                         if let Ok(mut b) = bar.lock() {
                             b.step("fits", d, count as u64);
