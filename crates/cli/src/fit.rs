@@ -282,6 +282,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             // The path costs time quadratic in the nodes (weakest links one by one): only
             // for the JSON output, its one reader.
             pruning_path: args.json && method == Method::Tree,
+            spread: None,
         },
         &mut Bar::new(),
     )?;
@@ -495,9 +496,6 @@ fn fit_forest_on_threads(
     threads: Option<usize>,
     progress: &mut dyn Progress,
 ) -> spinney_core::error::Result<Forest> {
-    use rayon::prelude::*;
-    use spinney_core::ensemble::forest::{fit_trees, tree_outputs, OobTally};
-    use spinney_core::progress::Flow;
     let threads = threads.unwrap_or_else(rayon::current_num_threads).max(1);
     if threads == 1 {
         return Ok(fit_forest(
@@ -513,28 +511,82 @@ fn fit_forest_on_threads(
                 reason: format!("cannot start {threads} worker threads ({e}); try --threads 1"),
             })
         })?;
+    Ok(fit_forest_batches(
+        binned,
+        stats,
+        width,
+        outcome,
+        settings,
+        threads,
+        Some(&pool),
+        progress,
+    ))
+}
+
+/// A forest fitter for fits that already run on a rayon pool (validation folds side by
+/// side): the trees go to that same pool in batches, so a thread with no fold of its own
+/// left helps with another fold's trees. The forest is the same bit for bit.
+#[cfg(feature = "parallel")]
+pub fn forests_on_current_pool() -> impl Fn(
+    &BinnedMatrix,
+    &[f64],
+    usize,
+    &Outcome,
+    &ForestSettings,
+    &mut dyn Progress,
+) -> spinney_core::error::Result<Forest>
+       + Sync {
+    |binned, stats, width, outcome, forest, progress| {
+        let threads = rayon::current_num_threads().max(1);
+        Ok(fit_forest_batches(
+            binned, stats, width, outcome, forest, threads, None, progress,
+        ))
+    }
+}
+
+/// The trees of a forest in batches of `threads · 4` on `pool` (None: the pool the caller
+/// runs on), tallied in tree order.
+#[cfg(feature = "parallel")]
+#[allow(clippy::too_many_arguments)]
+fn fit_forest_batches(
+    binned: &BinnedMatrix,
+    stats: &[f64],
+    width: usize,
+    outcome: &Outcome,
+    settings: &ForestSettings,
+    threads: usize,
+    pool: Option<&rayon::ThreadPool>,
+    progress: &mut dyn Progress,
+) -> Forest {
+    use rayon::prelude::*;
+    use spinney_core::ensemble::forest::{fit_trees, tree_outputs, OobTally};
+    use spinney_core::progress::Flow;
     let mut tally = OobTally::new(binned.rows, tree_outputs(settings, width));
     // Batches bound the memory of trees waiting to be tallied (one in-bag count per row each).
     let batch = threads * 4;
     let mut start = 0;
     while start < settings.trees {
         let end = (start + batch).min(settings.trees);
-        let fitted: Vec<_> = pool.install(|| {
+        let batch = || -> Vec<_> {
             (start..end)
                 .into_par_iter()
                 .flat_map_iter(|i| fit_trees(binned, stats, width, settings, i..i + 1, &mut Silent))
                 .collect()
-        });
+        };
+        let fitted = match pool {
+            Some(pool) => pool.install(batch),
+            None => batch(),
+        };
         for f in fitted {
             tally.add(f, binned, outcome);
         }
         let flow = progress.step("trees", end as u64, settings.trees as u64);
         start = end;
         if flow == Flow::Stop && start < settings.trees {
-            return Ok(tally.finish(true));
+            return tally.finish(true);
         }
     }
-    Ok(tally.finish(false))
+    tally.finish(false)
 }
 
 #[cfg(not(feature = "parallel"))]

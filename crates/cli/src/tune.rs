@@ -4,10 +4,12 @@
 //! one (spinney_core::validate::tune).
 
 use spinney_core::progress::Progress;
-use spinney_core::validate::tune::{default_metric, grid, random_candidates, tune, Axis, Space};
+use spinney_core::validate::tune::{
+    default_metric, grid, random_candidates, tune, Axis, Runners, Space,
+};
 use spinney_core::validate::{FoldJob, Plan};
 
-use crate::evaluate::{run_fits, scheme_and_group, CAUTION};
+use crate::evaluate::{available_threads, run_fits, scheme_and_group, spread_jobs, CAUTION};
 use crate::fit::{prepare, Bar, Choice};
 
 /// The arguments of `spinney tune`.
@@ -125,6 +127,21 @@ pub fn tune_command(args: TuneArgs) -> anyhow::Result<()> {
     let runner = |count: usize, job: &FoldJob<'_>, progress: &mut dyn Progress| {
         run_fits(threads, count, job, progress)
     };
+    // As many candidates as threads or more: the candidates on threads, each validated in
+    // order on its own; fewer: one after another, each one's folds on threads. The table is
+    // the same either way (each candidate's fits depend on its settings and the seeds only).
+    let spread = |count: usize, job: &(dyn Fn(usize) + Sync)| spread_jobs(threads, count, job);
+    let runners = if candidates.len() >= available_threads(threads) && candidates.len() > 1 {
+        Runners {
+            runner: None,
+            spread: Some(&spread),
+        }
+    } else {
+        Runners {
+            runner: Some(&runner),
+            spread: None,
+        }
+    };
     let start = std::time::Instant::now();
     let tuned = tune(
         &prepared.design,
@@ -136,7 +153,7 @@ pub fn tune_command(args: TuneArgs) -> anyhow::Result<()> {
         },
         &plan,
         args.nested,
-        Some(&runner),
+        runners,
         &mut Bar::new(),
     )
     .map_err(|e| anyhow::anyhow!("{e}"))?;

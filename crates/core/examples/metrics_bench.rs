@@ -1,12 +1,16 @@
 //! Benchmark (figures printed, never asserted): a 2,000-resample percentile bootstrap of the
-//! AUC on 50,000 rows, and the other two-class figures on the same rows. Run on an idle
-//! machine: `cargo run --release -p spinney-core --example metrics_bench [ROWS] [RESAMPLES]`.
+//! AUC on 50,000 rows (one thread, then every core through a `Spread` of scoped threads, as
+//! the command line's rayon spread does), and the other two-class figures on the same rows.
+//! Run on an idle machine:
+//! `cargo run --release -p spinney-core --example metrics_bench [ROWS] [RESAMPLES]`.
 
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::time::Instant;
 
 use rand_chacha::rand_core::RngCore;
 use spinney_core::metrics::{binary, bootstrap, curves};
 use spinney_core::random::{stream, Purpose};
+use spinney_core::spread::Spread;
 
 fn main() {
     let mut args = std::env::args().skip(1);
@@ -27,23 +31,48 @@ fn main() {
         a.se_delong.unwrap_or(f64::NAN)
     );
 
-    let start = Instant::now();
     let ranked = binary::RankedScores::new(&y, &p).expect("ranked");
-    let b = bootstrap(rows, resamples, 0.95, 42, |w| ranked.auc(Some(w))).expect("bootstrap");
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    // Every core: each thread takes the next job until none is left.
+    let on_threads = |count: usize, job: &(dyn Fn(usize) + Sync)| {
+        let next = AtomicUsize::new(0);
+        std::thread::scope(|s| {
+            for _ in 0..cores {
+                s.spawn(|| loop {
+                    let i = next.fetch_add(1, Ordering::Relaxed);
+                    if i >= count {
+                        break;
+                    }
+                    job(i);
+                });
+            }
+        });
+    };
+    let mut intervals = Vec::new();
+    for (threads, spread) in [(1, None), (cores, Some(&on_threads as Spread<'_>))] {
+        let start = Instant::now();
+        let b = bootstrap(rows, resamples, 0.95, 42, spread, |w| ranked.auc(Some(w)))
+            .expect("bootstrap");
+        println!(
+            "bootstrap AUC, {resamples} resamples of {rows} rows, {threads} thread(s): {:.1} ms \
+             (95% {:.4}–{:.4}; DeLong {:.4}–{:.4})",
+            ms(start),
+            b.low,
+            b.high,
+            a.interval.map_or(f64::NAN, |i| i.low),
+            a.interval.map_or(f64::NAN, |i| i.high)
+        );
+        intervals.push(b);
+        let start = Instant::now();
+        bootstrap(rows, resamples, 0.95, 42, spread, |_| Some(0.0)).expect("bootstrap");
+        println!(
+            "  of which drawing the resamples (metric doing nothing): {:.1} ms",
+            ms(start)
+        );
+    }
     println!(
-        "bootstrap AUC, {resamples} resamples of {rows} rows: {:.1} ms (95% {:.4}–{:.4}; DeLong {:.4}–{:.4})",
-        ms(start),
-        b.low,
-        b.high,
-        a.interval.map_or(f64::NAN, |i| i.low),
-        a.interval.map_or(f64::NAN, |i| i.high)
-    );
-
-    let start = Instant::now();
-    bootstrap(rows, resamples, 0.95, 42, |_| Some(0.0)).expect("bootstrap");
-    println!(
-        "  of which drawing the resamples (metric doing nothing): {:.1} ms",
-        ms(start)
+        "  the same interval on 1 and {cores} thread(s): {}",
+        intervals.windows(2).all(|w| w[0] == w[1])
     );
 
     let start = Instant::now();

@@ -40,6 +40,9 @@ pub struct FitOptions<'a> {
     pub forest_fitter: Option<ForestFitter<'a>>,
     /// Keep a single tree's cost-complexity pruning path (time quadratic in its nodes).
     pub pruning_path: bool,
+    /// Runs independent jobs on the caller's threads (validation's bootstrap resamples of
+    /// the metrics); default: one after another.
+    pub spread: Option<crate::spread::Spread<'a>>,
 }
 
 /// A fitted model with what it was fitted on.

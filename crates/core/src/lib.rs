@@ -28,6 +28,7 @@ pub mod progress;
 pub mod random;
 pub mod scoring;
 pub mod settings;
+pub mod spread;
 pub mod study;
 pub mod tree;
 pub mod validate;

@@ -104,6 +104,8 @@ pub struct RankedScores {
     group_ends: Vec<usize>,
     /// 1 for an event, 0 otherwise, in sorted order (so the inner loop has no branch).
     sorted_events: Vec<f64>,
+    /// The same in row order.
+    events: Vec<f64>,
 }
 
 impl RankedScores {
@@ -125,6 +127,7 @@ impl RankedScores {
             order,
             group_ends,
             sorted_events,
+            events: outcomes.iter().map(|&c| f64::from(c)).collect(),
         })
     }
 
@@ -147,6 +150,46 @@ impl RankedScores {
             start = end;
         }
         (pos_total > 0.0 && neg_below > 0.0).then(|| sum / (pos_total * neg_below))
+    }
+
+    /// The weighted average precision (as [`average_precision`], the same sums in the same
+    /// order, so the same value); None when the events have no weight.
+    pub fn average_precision(&self, weights: Option<&[f64]>) -> Option<f64> {
+        // The events' weight summed in row order, as `class_weights` sums it.
+        let (pos, neg): (f64, f64) = match weights {
+            Some(w) => (
+                w.iter().zip(&self.events).map(|(w, e)| w * e).sum(),
+                w.iter().zip(&self.events).map(|(w, e)| w * (1.0 - e)).sum(),
+            ),
+            None => (
+                self.events.iter().sum(),
+                self.events.iter().map(|e| 1.0 - e).sum(),
+            ),
+        };
+        // Both classes needed, as `average_precision` requires.
+        if pos <= 0.0 || neg <= 0.0 {
+            return None;
+        }
+        let (mut tp, mut fp, mut last_recall, mut ap) = (0.0, 0.0, 0.0, 0.0);
+        let mut end = self.order.len();
+        for g in (0..self.group_ends.len()).rev() {
+            let start = if g == 0 { 0 } else { self.group_ends[g - 1] };
+            for k in (start..end).rev() {
+                let w = weight(weights, self.order[k]);
+                if self.sorted_events[k] == 1.0 {
+                    tp += w;
+                } else {
+                    fp += w;
+                }
+            }
+            if tp + fp > 0.0 {
+                let recall = tp / pos;
+                ap += (recall - last_recall) * tp / (tp + fp);
+                last_recall = recall;
+            }
+            end = start;
+        }
+        Some(ap)
     }
 }
 
@@ -675,13 +718,96 @@ mod tests {
         // source for the tolerance).
         let (y, s) = hanley_mcneil_table();
         let ranked = RankedScores::new(&y, &s).unwrap();
-        let b = super::super::bootstrap(y.len(), 2000, 0.95, 11, |w| ranked.auc(Some(w))).unwrap();
+        let b = super::super::bootstrap(y.len(), 2000, 0.95, 11, None, |w| ranked.auc(Some(w)))
+            .unwrap();
         assert!(close(b.estimate, 0.8932, 5e-5), "{b:?}");
         assert!(
             close(b.low, 0.8330, 0.015) && close(b.high, 0.9534, 0.015),
             "{b:?}"
         );
         assert_eq!(b.undefined, 0);
+    }
+
+    /// The AUC by comparing every event with every non-event (ties one half): the
+    /// Mann–Whitney definition, O(rows²), no sorting or weights.
+    fn auc_by_pairs(y: &[u32], s: &[f64]) -> Option<f64> {
+        let (mut wins, mut pairs) = (0.0, 0.0);
+        for (i, &yi) in y.iter().enumerate() {
+            for (j, &yj) in y.iter().enumerate() {
+                if yi == 1 && yj == 0 {
+                    pairs += 1.0;
+                    wins += if s[i] > s[j] {
+                        1.0
+                    } else if s[i] == s[j] {
+                        0.5
+                    } else {
+                        0.0
+                    };
+                }
+            }
+        }
+        (pairs > 0.0).then(|| wins / pairs)
+    }
+
+    #[test]
+    fn bootstrap_intervals_equal_resampling_the_rows_and_recomputing() {
+        // The brute-force bootstrap (Efron & Tibshirani 1993, ch. 13, from memory): draw each
+        // resample's rows by the documented scheme (`Quick` keyed (seed, MetricResample, b),
+        // one row per `below` draw), build the resampled outcomes and scores, compute the AUC
+        // and average precision from scratch (pairs; sklearn's definition of AP on the
+        // repeated rows), take type-7 percentiles. The weighted, sorted-once, spread path
+        // must give the same intervals. Scores with many ties test the tie handling.
+        use crate::random::{Purpose, Quick};
+        let n = 300;
+        let y: Vec<u32> = (0..n)
+            .map(|i| u32::from((i * 7 + i / 5) % 3 == 0))
+            .collect();
+        let s: Vec<f64> = (0..n)
+            .map(|i| ((i * 13) % 17) as f64 / 17.0 * 0.6 + 0.3 * y[i] as f64)
+            .collect();
+        let (resamples, seed) = (400, 5);
+        let (mut aucs, mut aps) = (Vec::new(), Vec::new());
+        for b in 0..resamples {
+            let mut rng = Quick::new(seed, Purpose::MetricResample, b as u64);
+            let rows: Vec<usize> = (0..n).map(|_| rng.below(n as u64) as usize).collect();
+            let yb: Vec<u32> = rows.iter().map(|&r| y[r]).collect();
+            let sb: Vec<f64> = rows.iter().map(|&r| s[r]).collect();
+            aucs.extend(auc_by_pairs(&yb, &sb));
+            aps.extend(average_precision(&yb, &sb, None).ok());
+        }
+        let ranked = RankedScores::new(&y, &s).unwrap();
+        // Two threads' worth of interleaving: jobs run odd first, then even.
+        let shuffled = |count: usize, job: &(dyn Fn(usize) + Sync)| {
+            (0..count).filter(|i| i % 2 == 1).for_each(job);
+            (0..count).filter(|i| i % 2 == 0).for_each(job);
+        };
+        for spread in [None, Some(&shuffled as crate::spread::Spread<'_>)] {
+            let got = super::super::bootstrap_many(n, resamples, 0.95, seed, 2, spread, |w, o| {
+                o[0] = ranked.auc(Some(w));
+                o[1] = ranked.average_precision(Some(w));
+            })
+            .unwrap();
+            for (values, got) in [&mut aucs, &mut aps].into_iter().zip(&got) {
+                values.sort_by(f64::total_cmp);
+                let got = got.as_ref().unwrap();
+                assert_eq!(got.used, resamples);
+                let low = crate::metrics::quantile_sorted(values, 0.025);
+                let high = crate::metrics::quantile_sorted(values, 0.975);
+                assert!(
+                    close(got.low, low, 1e-12) && close(got.high, high, 1e-12),
+                    "{got:?} {low} {high}"
+                );
+            }
+        }
+        assert!(close(
+            ranked.auc(None).unwrap(),
+            auc_by_pairs(&y, &s).unwrap(),
+            1e-12
+        ));
+        assert_eq!(
+            ranked.average_precision(None),
+            average_precision(&y, &s, None).ok()
+        );
     }
 
     #[test]

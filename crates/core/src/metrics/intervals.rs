@@ -4,7 +4,8 @@
 //! ch. 13, from memory).
 
 use crate::error::Result;
-use crate::random::{below, stream, Purpose};
+use crate::random::{Purpose, Quick};
+use crate::spread::{self, Spread};
 
 use super::{bad, quantile_sorted};
 
@@ -51,12 +52,15 @@ pub struct BootstrapInterval {
 /// A percentile bootstrap interval of `metric` over `rows` rows.
 ///
 /// Resample `b` (0-based) draws `rows` rows with replacement from
-/// `random::stream(seed, Purpose::MetricResample, b)`, so every resample is the same
-/// whatever order or thread computes it. The metric sees the resample as weights: how many
-/// times each row was drawn (0, 1, 2, ...), so a metric that accepts weights and has its
-/// rows sorted once is O(rows) per resample. It returns None where it is undefined on a
-/// resample; those resamples are counted in `undefined` and left out. When more than half
-/// are undefined the interval is refused.
+/// `random::Quick::new(seed, Purpose::MetricResample, b)` (xoshiro256++ keyed by that
+/// ChaCha8 stream), one exactly uniform row per draw by [`Quick::below`] (Lemire's
+/// multiply-shift with rejection), so every resample is the same whatever order or thread
+/// computes it. The
+/// metric sees the resample as weights: how many times each row was drawn (0, 1, 2, ...),
+/// so a metric that accepts weights and has its rows sorted once is O(rows) per resample.
+/// It returns None where it is undefined on a resample; those resamples are counted in
+/// `undefined` and left out. When more than half are undefined the interval is refused.
+/// `spread` runs blocks of resamples on a caller's threads (same result).
 ///
 /// The interval is the (1 − level)/2 and (1 + level)/2 quantiles of the resampled values
 /// (type 7 interpolation).
@@ -65,14 +69,31 @@ pub fn bootstrap<F>(
     resamples: usize,
     level: f64,
     seed: u64,
-    mut metric: F,
+    spread: Option<Spread<'_>>,
+    metric: F,
 ) -> Result<BootstrapInterval>
 where
-    F: FnMut(&[f64]) -> Option<f64>,
+    F: Fn(&[f64]) -> Option<f64> + Sync,
 {
-    let mut one = bootstrap_many(rows, resamples, level, seed, 1, |w, out| out[0] = metric(w))?;
+    let mut one = bootstrap_many(rows, resamples, level, seed, 1, spread, |w, out| {
+        out[0] = metric(w)
+    })?;
     one.pop()
         .unwrap_or_else(|| Err(bad("the bootstrap interval", "no figure")))
+}
+
+/// Resamples per job handed to a [`Spread`]: enough that a job's own buffer and start-up
+/// are small beside its work, few enough that two or more threads share 2,000 evenly.
+const RESAMPLES_PER_JOB: usize = 25;
+
+/// Fills `counts` with how often each row is drawn in resample `b` (see [`bootstrap`]).
+fn draw_resample(seed: u64, b: usize, counts: &mut [f64]) {
+    counts.iter_mut().for_each(|c| *c = 0.0);
+    let rows = counts.len();
+    let mut rng = Quick::new(seed, Purpose::MetricResample, b as u64);
+    for _ in 0..rows {
+        counts[rng.below(rows as u64) as usize] += 1.0;
+    }
 }
 
 /// Percentile bootstrap intervals of `figures` metrics at once, from the same resamples as
@@ -86,10 +107,11 @@ pub fn bootstrap_many<F>(
     level: f64,
     seed: u64,
     figures: usize,
-    mut metric: F,
+    spread: Option<Spread<'_>>,
+    metric: F,
 ) -> Result<Vec<Result<BootstrapInterval>>>
 where
-    F: FnMut(&[f64], &mut [Option<f64>]),
+    F: Fn(&[f64], &mut [Option<f64>]) + Sync,
 {
     const WHAT: &str = "the bootstrap interval";
     if rows == 0 {
@@ -107,23 +129,31 @@ where
             format!("the level {level} is not between 0 and 1; use 0.95 for a 95% interval"),
         ));
     }
-    let mut counts = vec![1.0; rows];
-    let mut out = vec![None; figures];
-    metric(&counts, &mut out);
-    let estimates = out.clone();
-    let mut values: Vec<Vec<f64>> = vec![Vec::with_capacity(resamples); figures];
-    for b in 0..resamples {
-        counts.iter_mut().for_each(|c| *c = 0.0);
-        let mut rng = stream(seed, Purpose::MetricResample, b as u64);
-        for _ in 0..rows {
-            counts[below(&mut rng, rows)] += 1.0;
+    let mut estimates = vec![None; figures];
+    metric(&vec![1.0; rows], &mut estimates);
+    // Each job: its block of resamples' values, figure by figure per resample (NaN where
+    // undefined).
+    let jobs = resamples.div_ceil(RESAMPLES_PER_JOB);
+    let blocks = spread::map(spread, jobs, |job| {
+        let block = job * RESAMPLES_PER_JOB..((job + 1) * RESAMPLES_PER_JOB).min(resamples);
+        let mut counts = vec![0.0; rows];
+        let mut out = vec![None; figures];
+        let mut values = Vec::with_capacity(block.len() * figures);
+        for b in block {
+            draw_resample(seed, b, &mut counts);
+            out.iter_mut().for_each(|o| *o = None);
+            metric(&counts, &mut out);
+            values.extend(out.iter().map(|o| o.unwrap_or(f64::NAN)));
         }
-        out.iter_mut().for_each(|o| *o = None);
-        metric(&counts, &mut out);
-        for (v, o) in values.iter_mut().zip(&out) {
-            match o {
-                Some(x) if x.is_finite() => v.push(*x),
-                _ => {}
+        values
+    });
+    let mut values: Vec<Vec<f64>> = vec![Vec::with_capacity(resamples); figures];
+    for block in &blocks {
+        for one in block.chunks_exact(figures.max(1)) {
+            for (v, &x) in values.iter_mut().zip(one) {
+                if x.is_finite() {
+                    v.push(x);
+                }
             }
         }
     }
@@ -199,9 +229,9 @@ mod tests {
             let s: f64 = w.iter().sum();
             Some(x.iter().zip(w).map(|(a, b)| a * b).sum::<f64>() / s)
         };
-        let a = bootstrap(100, 500, 0.95, 7, mean).unwrap();
-        let b = bootstrap(100, 500, 0.95, 7, mean).unwrap();
-        let c = bootstrap(100, 500, 0.95, 8, mean).unwrap();
+        let a = bootstrap(100, 500, 0.95, 7, None, mean).unwrap();
+        let b = bootstrap(100, 500, 0.95, 7, None, mean).unwrap();
+        let c = bootstrap(100, 500, 0.95, 8, None, mean).unwrap();
         assert_eq!(a, b);
         assert_ne!(a.low, c.low);
         assert!(
@@ -218,19 +248,14 @@ mod tests {
 
     #[test]
     fn bootstrap_refuses_bad_requests_and_mostly_undefined_metrics() {
-        assert!(bootstrap(0, 100, 0.95, 1, |_| Some(1.0)).is_err());
-        assert!(bootstrap(10, 1, 0.95, 1, |_| Some(1.0)).is_err());
-        assert!(bootstrap(10, 100, 1.5, 1, |_| Some(1.0)).is_err());
-        let mut calls = 0;
-        let e = bootstrap(10, 100, 0.95, 1, |_| {
-            calls += 1;
-            if calls == 1 {
-                Some(1.0)
-            } else {
-                None
-            }
+        assert!(bootstrap(0, 100, 0.95, 1, None, |_| Some(1.0)).is_err());
+        assert!(bootstrap(10, 1, 0.95, 1, None, |_| Some(1.0)).is_err());
+        assert!(bootstrap(10, 100, 1.5, 1, None, |_| Some(1.0)).is_err());
+        // Defined on all rows (every weight 1), undefined on every resample.
+        let e = bootstrap(10, 100, 0.95, 1, None, |w| {
+            w.iter().all(|&c| c == 1.0).then_some(1.0)
         })
         .unwrap_err();
-        assert!(e.to_string().contains("undefined on 100 of 100"), "{e}");
+        assert!(e.to_string().contains("of 100 resamples"), "{e}");
     }
 }

@@ -167,28 +167,55 @@ pub fn one_vs_rest_auc(
     weights: Option<&[f64]>,
 ) -> Result<OneVsRest> {
     const WHAT: &str = "the one-vs-rest AUCs";
-    let rows = check(WHAT, outcomes, probabilities, classes, weights)?;
-    let mut per_class = Vec::with_capacity(classes);
-    let mut column = vec![0.0; rows];
-    let mut is_class = vec![0u32; rows];
-    for k in 0..classes {
-        for i in 0..rows {
-            column[i] = probabilities[i * classes + k];
-            is_class[i] = u32::from(outcomes[i] as usize == k);
+    check(WHAT, outcomes, probabilities, classes, weights)?;
+    RankedClasses::new(outcomes, probabilities, classes)?
+        .auc(weights)
+        .ok_or_else(|| {
+            bad(
+                WHAT,
+                "no class has both its own rows and others' rows; at least two classes must be \
+                 present",
+            )
+        })
+}
+
+/// Each class's probabilities sorted once, so the one-vs-rest AUCs of many resamples cost
+/// O(rows × classes) each.
+#[derive(Debug, Clone)]
+pub struct RankedClasses(Vec<RankedScores>);
+
+impl RankedClasses {
+    pub fn new(outcomes: &[u32], probabilities: &[f64], classes: usize) -> Result<Self> {
+        let rows = check(
+            "the one-vs-rest AUCs",
+            outcomes,
+            probabilities,
+            classes,
+            None,
+        )?;
+        let mut ranked = Vec::with_capacity(classes);
+        let mut column = vec![0.0; rows];
+        let mut is_class = vec![0u32; rows];
+        for k in 0..classes {
+            for i in 0..rows {
+                column[i] = probabilities[i * classes + k];
+                is_class[i] = u32::from(outcomes[i] as usize == k);
+            }
+            ranked.push(RankedScores::new(&is_class, &column)?);
         }
-        per_class.push(RankedScores::new(&is_class, &column)?.auc(weights));
+        Ok(RankedClasses(ranked))
     }
-    let found: Vec<f64> = per_class.iter().flatten().copied().collect();
-    if found.is_empty() {
-        return Err(bad(
-            WHAT,
-            "no class has both its own rows and others' rows; at least two classes must be present",
-        ));
+
+    /// The one-vs-rest AUCs with these weights (one per row, not checked again); None when
+    /// no class has both its own and others' weight.
+    pub fn auc(&self, weights: Option<&[f64]>) -> Option<OneVsRest> {
+        let per_class: Vec<Option<f64>> = self.0.iter().map(|r| r.auc(weights)).collect();
+        let found: Vec<f64> = per_class.iter().flatten().copied().collect();
+        (!found.is_empty()).then(|| OneVsRest {
+            macro_mean: found.iter().sum::<f64>() / found.len() as f64,
+            per_class,
+        })
     }
-    Ok(OneVsRest {
-        macro_mean: found.iter().sum::<f64>() / found.len() as f64,
-        per_class,
-    })
 }
 
 #[cfg(test)]

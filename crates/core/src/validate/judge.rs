@@ -9,6 +9,7 @@ use std::collections::BTreeMap;
 use crate::design::Outcome;
 use crate::metrics::binary::{self, Proportion};
 use crate::metrics::{bootstrap_many, curves, multiclass, regression};
+use crate::spread::Spread;
 
 /// Point figures by metric name.
 pub type Figures = BTreeMap<String, f64>;
@@ -161,14 +162,15 @@ pub fn figures(outcome: &Outcome, predictions: &[f64], threshold: f64) -> Figure
 /// Figures with a bootstrap interval: their names and one function filling all of them for
 /// a resample (given as row weights), so shared work (a calibration fit, a confusion
 /// table) is done once per resample.
-type Filler<'a> = Box<dyn FnMut(&[f64], &mut [Option<f64>]) + 'a>;
+type Filler<'a> = Box<dyn Fn(&[f64], &mut [Option<f64>]) + Sync + 'a>;
 
 /// Point values and, with resamples, percentile intervals of the figures `fill` computes.
 fn bootstrapped(
     names: &[&str],
-    mut fill: Filler<'_>,
+    fill: Filler<'_>,
     rows: usize,
     settings: &JudgeSettings,
+    spread: Option<Spread<'_>>,
     metrics: &mut BTreeMap<String, Estimate>,
 ) {
     let mut values = vec![None; names.len()];
@@ -181,6 +183,7 @@ fn bootstrapped(
                 0.95,
                 settings.seed,
                 names.len(),
+                spread,
                 fill,
             )
             .ok()
@@ -219,8 +222,14 @@ fn f1(c: &binary::Confusion) -> Option<f64> {
     (d > 0.0).then(|| 2.0 * c.true_positives / d)
 }
 
-/// Every figure of `predictions` with its interval, and the curves.
-pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -> Judged {
+/// Every figure of `predictions` with its interval, and the curves. `spread` runs the
+/// bootstrap resamples on a caller's threads (the same figures either way).
+pub fn judge(
+    outcome: &Outcome,
+    predictions: &[f64],
+    settings: &JudgeSettings,
+    spread: Option<Spread<'_>>,
+) -> Judged {
     let rows = outcome.len();
     let mut metrics = BTreeMap::new();
     let mut judged = Judged {
@@ -237,6 +246,8 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
             let p = event_probabilities(predictions, 2);
             let t = settings.threshold;
             let (c, p) = (&codes[..], &p[..]);
+            // Sorted once for every resample's average precision.
+            let ranked = binary::RankedScores::new(c, p).ok();
             bootstrapped(
                 &[
                     "average_precision",
@@ -251,7 +262,7 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
                 ],
                 Box::new(move |w, out| {
                     let w = Some(w);
-                    out[0] = binary::average_precision(c, p, w).ok();
+                    out[0] = ranked.as_ref().and_then(|r| r.average_precision(w));
                     out[1] = binary::log_loss(c, p, w).ok();
                     if let Ok(b) = binary::brier(c, p, w) {
                         out[2] = Some(b.score);
@@ -269,6 +280,7 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
                 }),
                 rows,
                 settings,
+                spread,
                 &mut metrics,
             );
             if let Ok(at) = binary::at_threshold(c, p, t) {
@@ -317,18 +329,19 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
         Outcome::Classes { codes, labels } => {
             let k = labels.len();
             let (c, pr) = (&codes[..], predictions);
+            // Each class sorted once for every resample's one-vs-rest AUCs.
+            let ranked = multiclass::RankedClasses::new(c, pr, k).ok();
             bootstrapped(
                 &["balanced_accuracy", "macro_auc", "log_loss"],
                 Box::new(move |w, out| {
                     let w = Some(w);
                     out[0] = multiclass::balanced_accuracy(c, pr, k, w).ok();
-                    out[1] = multiclass::one_vs_rest_auc(c, pr, k, w)
-                        .ok()
-                        .map(|o| o.macro_mean);
+                    out[1] = ranked.as_ref().and_then(|r| r.auc(w)).map(|o| o.macro_mean);
                     out[2] = multiclass::log_loss(c, pr, k, w).ok();
                 }),
                 rows,
                 settings,
+                spread,
                 &mut metrics,
             );
             if let Ok(acc) = multiclass::accuracy(c, pr, k, None) {
@@ -356,6 +369,7 @@ pub fn judge(outcome: &Outcome, predictions: &[f64], settings: &JudgeSettings) -
                 }),
                 rows,
                 settings,
+                spread,
                 &mut metrics,
             );
             judged.residuals = regression::residuals(y, predictions).ok();
@@ -389,7 +403,7 @@ mod tests {
             resamples: 200,
             seed: 1,
         };
-        let j = judge(&outcome, &probs, &s);
+        let j = judge(&outcome, &probs, &s, None);
         let f = figures(&outcome, &probs, 0.5);
         for (name, e) in &j.metrics {
             assert_eq!(Some(&e.value), f.get(name), "{name}");

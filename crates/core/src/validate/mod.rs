@@ -33,6 +33,7 @@ use crate::fit::{fit_design, FitOptions, Fitted};
 use crate::model::{Ensemble, Method, Model};
 use crate::progress::{Flow, Progress};
 use crate::settings::FitSettings;
+use crate::spread::Spread;
 use crate::tree::Rows;
 
 /// What to validate, and how to judge it.
@@ -92,7 +93,8 @@ pub struct Validation {
     /// bag, rows every tree saw).
     pub judged_rows: usize,
     /// The model's out-of-sample figures with intervals, and curves. For bootstrap
-    /// validation the figures are optimism-corrected (no intervals).
+    /// validation the figures are optimism-corrected, their out-of-sample intervals shifted
+    /// along.
     pub model: Judged,
     pub baseline: Option<Judged>,
     /// Bootstrap validation: the apparent figures (a fit on all rows judged on those same
@@ -353,7 +355,13 @@ fn pool(
 }
 
 /// Judges the rows that have a prediction.
-fn judge_pooled(design: &Design, pooled: &[f64], outputs: usize, plan: &Plan) -> Judged {
+fn judge_pooled(
+    design: &Design,
+    pooled: &[f64],
+    outputs: usize,
+    plan: &Plan,
+    spread: Option<Spread<'_>>,
+) -> Judged {
     let keep: Vec<usize> = (0..design.outcome.len())
         .filter(|&r| !pooled[r * outputs].is_nan())
         .collect();
@@ -370,6 +378,7 @@ fn judge_pooled(design: &Design, pooled: &[f64], outputs: usize, plan: &Plan) ->
             resamples: plan.resamples,
             seed: plan.seed,
         },
+        spread,
     )
 }
 
@@ -390,13 +399,57 @@ fn optimism(pairs: &[(&Figures, &Figures)]) -> Figures {
     out
 }
 
-/// Replaces each figure by apparent − optimism (no interval).
+/// Figures that live in [0, 1], whose shifted intervals are cut to it.
+fn in_unit_range(name: &str) -> bool {
+    matches!(
+        name,
+        "auc"
+            | "macro_auc"
+            | "average_precision"
+            | "accuracy"
+            | "balanced_accuracy"
+            | "sensitivity"
+            | "specificity"
+            | "ppv"
+            | "npv"
+            | "f1"
+            | "brier"
+    )
+}
+
+/// Replaces each figure of `judged` (the pooled out-of-resample predictions, judged with
+/// their intervals) by apparent − optimism, and moves its interval along with it: the
+/// out-of-sample interval (DeLong, Wilson or bootstrap) shifted by (corrected − pooled
+/// value), cut to [0, 1] for figures that live there. A location shift in the spirit of Noma
+/// et al. (Stat Med 2021;40:5691–5701, from memory), who shift the percentile interval of the
+/// resamples' apparent figures by the optimism; that interval has no width for fully grown
+/// trees (every resample's apparent AUC is 1), so the spread here comes from the rows left
+/// out instead (common practice, no source). A figure without an out-of-sample interval
+/// gets none.
 fn correct(judged: &mut Judged, apparent: &Figures, optimism: &Figures) {
+    let pooled = std::mem::take(&mut judged.metrics);
     judged.metrics = apparent
         .iter()
         .filter_map(|(name, a)| {
             let o = optimism.get(name)?;
-            Some((name.clone(), Estimate::bare(a - o)))
+            let mut e = Estimate::bare(a - o);
+            if let Some(p) = pooled.get(name) {
+                if let (Some(low), Some(high)) = (p.low, p.high) {
+                    let shift = e.value - p.value;
+                    let (mut low, mut high) = (low + shift, high + shift);
+                    if in_unit_range(name) {
+                        (low, high) = (low.clamp(0.0, 1.0), high.clamp(0.0, 1.0));
+                    }
+                    e.low = Some(low);
+                    e.high = Some(high);
+                    e.interval = match p.interval {
+                        "DeLong" => "shifted DeLong",
+                        "Wilson" => "shifted Wilson",
+                        _ => "shifted bootstrap",
+                    };
+                }
+            }
+            Some((name.clone(), e))
         })
         .collect();
 }
@@ -405,6 +458,16 @@ fn correct(judged: &mut Judged, apparent: &Figures, optimism: &Figures) {
 /// out-of-bag predictions (the `oob` scheme without fitting again), with the baseline on
 /// 10 stratified folds when the plan asks for it.
 pub fn out_of_bag(design: &Design, fitted: &Fitted, plan: &Plan) -> Result<Validation> {
+    out_of_bag_spread(design, fitted, plan, None)
+}
+
+/// [`out_of_bag`] with the bootstrap resamples of the intervals run by `spread`.
+pub fn out_of_bag_spread(
+    design: &Design,
+    fitted: &Fitted,
+    plan: &Plan,
+    spread: Option<Spread<'_>>,
+) -> Result<Validation> {
     let n = design.outcome.len();
     let outputs = match &design.outcome {
         Outcome::Classes { labels, .. } => labels.len(),
@@ -421,7 +484,7 @@ pub fn out_of_bag(design: &Design, fitted: &Fitted, plan: &Plan) -> Result<Valid
                 .into(),
         }));
     };
-    let model = judge_pooled(design, &forest.oob_prediction, outputs, plan);
+    let model = judge_pooled(design, &forest.oob_prediction, outputs, plan, spread);
     let judged_rows = model.rows;
     notes.push(format!(
         "each row judged by the trees whose bootstrap left it out ({:.1}% of (tree, row) \
@@ -447,7 +510,7 @@ pub fn out_of_bag(design: &Design, fitted: &Fitted, plan: &Plan) -> Result<Valid
             "the baseline, having no out-of-bag rows, is judged by 10 stratified folds".into(),
         );
         (
-            Some(judge_pooled(design, &pooled, outputs, plan)),
+            Some(judge_pooled(design, &pooled, outputs, plan, spread)),
             Some(pooled),
         )
     } else {
@@ -524,7 +587,7 @@ pub fn validate(
             }));
         }
         let fitted = fit_design(design.clone(), settings, None, options, progress)?;
-        return out_of_bag(design, &fitted, plan);
+        return out_of_bag_spread(design, &fitted, plan, options.spread);
     }
 
     let s = splits(design, &plan.scheme, plan.seed)?;
@@ -532,10 +595,10 @@ pub fn validate(
     let predictions =
         pool(n, outputs, &s, |i| Some(runs[i].predictions.clone())).unwrap_or_default();
     let baseline_predictions = pool(n, outputs, &s, |i| runs[i].baseline.clone());
-    let mut model = judge_pooled(design, &predictions, outputs, plan);
+    let mut model = judge_pooled(design, &predictions, outputs, plan, options.spread);
     let mut baseline = baseline_predictions
         .as_ref()
-        .map(|p| judge_pooled(design, p, outputs, plan));
+        .map(|p| judge_pooled(design, p, outputs, plan, options.spread));
     let judged_rows = model.rows;
     let mut fold_of_row = vec![None; n];
     for split in s.iter().filter(|x| x.repeat == 0) {
@@ -593,8 +656,10 @@ pub fn validate(
             optimism_of = Some(o);
             notes.push(format!(
                 "figures are optimism-corrected (Harrell, Lee & Mark 1996): apparent minus the \
-                 mean optimism over {resamples} bootstrap refits; curves and the per-row \
-                 predictions come from the refits whose resample left the row out"
+                 mean optimism over {resamples} bootstrap refits; each interval is the \
+                 out-of-sample interval of the rows' left-out predictions moved to the \
+                 corrected figure (a location shift); curves and the per-row predictions come \
+                 from the refits whose resample left the row out"
             ));
         }
         Scheme::Holdout { fraction } => notes.push(format!(
@@ -769,6 +834,13 @@ mod tests {
             apparent > 0.97 && corrected < apparent - 0.05,
             "{apparent} {corrected}"
         );
+        // The corrected AUC carries its out-of-sample (DeLong) interval, shifted along.
+        let auc = &boot.model.metrics["auc"];
+        assert_eq!(auc.interval, "shifted DeLong");
+        assert!(
+            auc.low.unwrap() <= corrected && corrected <= auc.high.unwrap(),
+            "{auc:?}"
+        );
         let tree_oob = validate(
             &d,
             &tree,
@@ -778,6 +850,68 @@ mod tests {
             &mut Silent,
         );
         assert!(tree_oob.unwrap_err().to_string().contains("Use folds:10"));
+    }
+
+    #[test]
+    fn optimism_corrected_intervals_are_shifted_out_of_sample_intervals() {
+        // Worked by hand (common practice, no source): pooled out-of-sample AUC 0.80 with
+        // DeLong interval 0.75–0.85; apparent 0.95, optimism 0.10 → corrected 0.85, interval
+        // shifted by +0.05 to 0.80–0.90. Near 1, the shifted interval is cut at 1. RMSE is
+        // not cut. A figure without an out-of-sample interval gets none.
+        let est = |value: f64, low: f64, high: f64, interval: &'static str| Estimate {
+            value,
+            low: Some(low),
+            high: Some(high),
+            interval,
+        };
+        let mut j = judge(
+            &Outcome::Numbers(vec![1.0, 2.0, 3.0]),
+            &[1.0, 2.0, 3.0],
+            &JudgeSettings {
+                threshold: 0.5,
+                resamples: 0,
+                seed: 1,
+            },
+            None,
+        );
+        j.metrics = std::collections::BTreeMap::from([
+            ("auc".to_string(), est(0.80, 0.75, 0.85, "DeLong")),
+            ("sensitivity".to_string(), est(0.90, 0.85, 0.94, "Wilson")),
+            ("rmse".to_string(), est(2.0, 1.5, 2.5, "bootstrap")),
+            ("mae".to_string(), Estimate::bare(1.0)),
+        ]);
+        let fig = |pairs: &[(&str, f64)]| -> Figures {
+            pairs.iter().map(|(k, v)| (k.to_string(), *v)).collect()
+        };
+        let apparent = fig(&[
+            ("auc", 0.95),
+            ("sensitivity", 1.0),
+            ("rmse", 0.5),
+            ("mae", 0.4),
+        ]);
+        let optimism = fig(&[
+            ("auc", 0.10),
+            ("sensitivity", 0.02),
+            ("rmse", -1.0),
+            ("mae", -0.5),
+        ]);
+        correct(&mut j, &apparent, &optimism);
+        let m = &j.metrics;
+        let near = |a: Option<f64>, b: f64| (a.unwrap() - b).abs() < 1e-12;
+        assert!(near(Some(m["auc"].value), 0.85));
+        assert!(
+            near(m["auc"].low, 0.80) && near(m["auc"].high, 0.90),
+            "{m:?}"
+        );
+        assert_eq!(m["auc"].interval, "shifted DeLong");
+        assert!(near(m["sensitivity"].low, 0.93) && near(m["sensitivity"].high, 1.0));
+        assert_eq!(m["sensitivity"].interval, "shifted Wilson");
+        assert!(
+            near(m["rmse"].low, 1.0) && near(m["rmse"].high, 2.0),
+            "{m:?}"
+        );
+        assert_eq!(m["rmse"].interval, "shifted bootstrap");
+        assert_eq!((m["mae"].low, m["mae"].interval), (None, "none"));
     }
 
     #[test]

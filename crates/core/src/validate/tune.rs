@@ -9,9 +9,10 @@ use crate::design::{Design, Outcome};
 use crate::error::{Error, ErrorKind, Result};
 use crate::fit::FitOptions;
 use crate::model::Method;
-use crate::progress::{Progress, Silent};
+use crate::progress::{Flow, Progress, Silent};
 use crate::random::{below, stream, Purpose};
 use crate::settings::FitSettings;
+use crate::spread::{self, Spread};
 
 use super::{figures, run_split, splits, validate, Figures, FoldRunner, Plan, Scheme};
 
@@ -142,12 +143,23 @@ fn settings_for(
     .map_err(bad)
 }
 
+/// How the candidates' fits are run: one candidate after another with each one's splits
+/// handed to `runner` (default: in order), or, with `spread`, the candidates themselves
+/// spread over a caller's threads, each validated in order on its own thread. Every
+/// candidate's fits depend only on its settings, the plan and the seeds, so the table is
+/// the same either way.
+#[derive(Clone, Copy, Default)]
+pub struct Runners<'a> {
+    pub runner: Option<FoldRunner<'a>>,
+    pub spread: Option<Spread<'a>>,
+}
+
 /// Scores every candidate on `design` by `plan` and returns the table and the best.
 fn search(
     design: &Design,
     space: &Space<'_>,
     plan: &Plan,
-    runner: Option<FoldRunner<'_>>,
+    runners: Runners<'_>,
     progress: &mut dyn Progress,
 ) -> Result<(Vec<Scored>, usize)> {
     let Space {
@@ -156,21 +168,18 @@ fn search(
         candidates,
         metric,
     } = *space;
-    let mut table = Vec::with_capacity(candidates.len());
-    for (i, c) in candidates.iter().enumerate() {
+    let score = |c: &Candidate,
+                 runner: Option<FoldRunner<'_>>,
+                 progress: &mut dyn Progress|
+     -> Result<Scored> {
         let settings = settings_for(design, method, base, c)?;
-        let mut inner = super::InSplit {
-            outer: &mut *progress,
-            index: i,
-            count: candidates.len(),
-        };
         let v = validate(
             design,
             &settings,
             plan,
             FitOptions::default(),
             runner,
-            &mut inner,
+            progress,
         )?;
         let figures: Figures = v
             .model
@@ -178,12 +187,41 @@ fn search(
             .iter()
             .map(|(k, e)| (k.clone(), e.value))
             .collect();
-        table.push(Scored {
+        Ok(Scored {
             settings: c.clone(),
             score: figures.get(metric).copied().unwrap_or(f64::NAN),
             figures,
-        });
-    }
+        })
+    };
+    let table = match runners.spread {
+        Some(spread) => {
+            if progress.step("candidates", 0, candidates.len() as u64) == Flow::Stop {
+                return Err(Error::new(ErrorKind::Cancelled));
+            }
+            let scored = spread::map(Some(spread), candidates.len(), |i| {
+                score(&candidates[i], None, &mut Silent)
+            });
+            let table = scored.into_iter().collect::<Result<Vec<Scored>>>()?;
+            progress.step(
+                "candidates",
+                candidates.len() as u64,
+                candidates.len() as u64,
+            );
+            table
+        }
+        None => {
+            let mut table = Vec::with_capacity(candidates.len());
+            for (i, c) in candidates.iter().enumerate() {
+                let mut inner = super::InSplit {
+                    outer: &mut *progress,
+                    index: i,
+                    count: candidates.len(),
+                };
+                table.push(score(c, runners.runner, &mut inner)?);
+            }
+            table
+        }
+    };
     let lower = lower_is_better(metric);
     let best = (0..table.len())
         .filter(|&i| table[i].score.is_finite())
@@ -210,7 +248,7 @@ pub fn tune(
     space: &Space<'_>,
     plan: &Plan,
     nested: Option<usize>,
-    runner: Option<FoldRunner<'_>>,
+    runners: Runners<'_>,
     progress: &mut dyn Progress,
 ) -> Result<Tuned> {
     let (method, base, metric) = (space.method, space.base, space.metric);
@@ -225,7 +263,7 @@ pub fn tune(
         resamples: 0,
         ..plan.clone()
     };
-    let (table, best) = search(design, space, &quick, runner, progress)?;
+    let (table, best) = search(design, space, &quick, runners, progress)?;
     let (mut outer_folds, mut nested_score) = (None, None);
     if let Some(k) = nested {
         let outer_scheme = match &plan.scheme {
@@ -244,7 +282,7 @@ pub fn tune(
         let mut folds = Vec::with_capacity(outer.len());
         for split in &outer {
             let inner_design = design.select_rows(&split.train);
-            let (t, b) = search(&inner_design, space, &quick, runner, &mut Silent)?;
+            let (t, b) = search(&inner_design, space, &quick, runners, &mut Silent)?;
             let settings = settings_for(design, method, base, &t[b].settings)?;
             let run = run_split(
                 design,
@@ -264,9 +302,7 @@ pub fn tune(
                 inner_score: t[b].score,
                 outer_score: run.figures.get(metric).copied().unwrap_or(f64::NAN),
             });
-            if progress.step("outer folds", folds.len() as u64, outer.len() as u64)
-                == crate::progress::Flow::Stop
-            {
+            if progress.step("outer folds", folds.len() as u64, outer.len() as u64) == Flow::Stop {
                 return Err(Error::new(ErrorKind::Cancelled));
             }
         }
@@ -332,15 +368,52 @@ mod tests {
             },
             &plan,
             Some(3),
-            None,
+            Runners::default(),
             &mut Silent,
         )
         .unwrap();
         assert_eq!(t.table.len(), 2);
         // y depends on a + b: one split (depth 1) cannot follow the diagonal; depth 4 can.
         assert_eq!(t.table[t.best].settings[0].1, "4", "{:?}", t.table);
-        let nested = t.nested.unwrap();
+        let nested = t.nested.as_ref().unwrap();
         assert_eq!(nested.len(), 3);
         assert!(t.nested_score.unwrap() > 0.7);
+        // Candidates spread over "threads" (here: run backwards) give the same table, the
+        // same choices and the same nested score.
+        let backwards = |count: usize, job: &(dyn Fn(usize) + Sync)| {
+            (0..count).rev().for_each(job);
+        };
+        let spread_out = tune(
+            &d,
+            &Space {
+                method: Method::Forest,
+                base: &[("trees".to_string(), "5".to_string())],
+                candidates: &grid(&axes),
+                metric: "auc",
+            },
+            &plan,
+            Some(3),
+            Runners {
+                runner: None,
+                spread: Some(&backwards),
+            },
+            &mut Silent,
+        )
+        .unwrap();
+        let in_order = tune(
+            &d,
+            &Space {
+                method: Method::Forest,
+                base: &[("trees".to_string(), "5".to_string())],
+                candidates: &grid(&axes),
+                metric: "auc",
+            },
+            &plan,
+            Some(3),
+            Runners::default(),
+            &mut Silent,
+        )
+        .unwrap();
+        assert_eq!(spread_out, in_order);
     }
 }

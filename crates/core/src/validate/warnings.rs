@@ -1,5 +1,6 @@
 //! What validation figures cannot show, computed from the data and the scheme: a predictor
-//! that alone separates the classes (possible leakage), an identifier among the predictors,
+//! that alone separates the classes, or one class from the rest, or follows a number outcome
+//! almost exactly (possible leakage), an identifier among the predictors,
 //! too few events for the number of predictors, class imbalance, and grouped records
 //! validated as if independent.
 
@@ -11,8 +12,13 @@ use crate::metrics::sample_size::{events_per_predictor, rows_for_overall_risk};
 use super::Scheme;
 
 /// A single predictor's AUC above which it is suspected of leaking the outcome (the level
-/// the tracker's issue names; common practice, no source).
+/// the tracker's issue names; common practice, no source). Several classes: the largest
+/// one-vs-rest AUC over the classes.
 pub const LEAKAGE_AUC: f64 = 0.98;
+/// Numbers: a single predictor's |Spearman correlation| with the outcome above which it is
+/// suspected of leaking it (the regression analogue of [`LEAKAGE_AUC`]; common practice, no
+/// source).
+pub const LEAKAGE_SPEARMAN: f64 = 0.98;
 /// Events per predictor parameter below which a model is likely to overfit (Peduzzi et al.
 /// 1996, from memory).
 pub const LOW_EVENTS_PER_PREDICTOR: f64 = 10.0;
@@ -60,6 +66,92 @@ pub fn single_predictor_auc(values: &PredictorValues, codes: &[u32]) -> Option<f
     };
     let a = auc(&y, &score).ok()?.value;
     Some(a.max(1.0 - a))
+}
+
+/// The largest one-vs-rest AUC of one predictor alone over the classes `0..classes` (each
+/// as [`single_predictor_auc`] with that class as the event), and that class; None when no
+/// class has an AUC.
+pub fn single_predictor_class_auc(
+    values: &PredictorValues,
+    codes: &[u32],
+    classes: usize,
+) -> Option<(f64, usize)> {
+    (0..classes)
+        .filter_map(|k| {
+            let is_k: Vec<u32> = codes.iter().map(|&c| u32::from(c as usize == k)).collect();
+            Some((single_predictor_auc(values, &is_k)?, k))
+        })
+        .fold(None, |best, (a, k)| match best {
+            Some((b, _)) if b >= a => best,
+            _ => Some((a, k)),
+        })
+}
+
+/// Ranks 1..n of `x` with ties given their mean rank.
+fn ranks(x: &[f64]) -> Vec<f64> {
+    let mut order: Vec<usize> = (0..x.len()).collect();
+    order.sort_by(|&a, &b| x[a].total_cmp(&x[b]));
+    let mut r = vec![0.0; x.len()];
+    let mut i = 0;
+    while i < order.len() {
+        let mut j = i + 1;
+        while j < order.len() && x[order[j]] == x[order[i]] {
+            j += 1;
+        }
+        let mean = (i + j + 1) as f64 / 2.0;
+        for &k in &order[i..j] {
+            r[k] = mean;
+        }
+        i = j;
+    }
+    r
+}
+
+/// Spearman's rank correlation (Pearson's on ranks, ties at their mean rank); None with
+/// fewer than 3 rows or either side constant.
+pub fn spearman(x: &[f64], y: &[f64]) -> Option<f64> {
+    let n = x.len();
+    if n < 3 || y.len() != n {
+        return None;
+    }
+    let (rx, ry) = (ranks(x), ranks(y));
+    let mean = (n as f64 + 1.0) / 2.0;
+    let (mut sxy, mut sxx, mut syy) = (0.0, 0.0, 0.0);
+    for (a, b) in rx.iter().zip(&ry) {
+        sxy += (a - mean) * (b - mean);
+        sxx += (a - mean) * (a - mean);
+        syy += (b - mean) * (b - mean);
+    }
+    (sxx > 0.0 && syy > 0.0).then(|| sxy / (sxx * syy).sqrt())
+}
+
+/// |Spearman| of one predictor alone with a number outcome, on the rows where both have a
+/// value. Categories score each row by its level's mean outcome (as
+/// [`single_predictor_auc`] scores them by their share of events).
+pub fn single_predictor_spearman(values: &PredictorValues, y: &[f64]) -> Option<f64> {
+    let (score, out): (Vec<f64>, Vec<f64>) = match values {
+        PredictorValues::Numbers(v) => y
+            .iter()
+            .zip(v)
+            .filter(|(t, x)| t.is_finite() && x.is_finite())
+            .map(|(&t, &x)| (x, t))
+            .unzip(),
+        PredictorValues::Levels { codes: lv, levels } => {
+            let mut sums = vec![0.0; levels.len()];
+            let mut rows = vec![0.0; levels.len()];
+            let present = |t: &f64, l: &u32| t.is_finite() && *l != MISSING_CODE;
+            for (t, l) in y.iter().zip(lv).filter(|(t, l)| present(t, l)) {
+                rows[*l as usize] += 1.0;
+                sums[*l as usize] += t;
+            }
+            y.iter()
+                .zip(lv)
+                .filter(|(t, l)| present(t, l))
+                .map(|(&t, &l)| (sums[l as usize] / rows[l as usize], t))
+                .unzip()
+        }
+    };
+    spearman(&score, &out).map(f64::abs)
 }
 
 /// Whether a predictor looks like a record number or code: at least 20 values, every one
@@ -110,22 +202,48 @@ fn parameters(design: &Design) -> usize {
 pub fn warnings(design: &Design, scheme: &Scheme, table: Option<&Table>) -> Vec<Warning> {
     let mut out = Vec::new();
     let n = design.outcome.len();
-    if let Outcome::Classes { codes, labels } = &design.outcome {
-        if labels.len() == 2 {
-            for p in &design.predictors {
-                if let Some(a) = single_predictor_auc(&p.values, codes) {
-                    if a > LEAKAGE_AUC {
-                        out.push(warn(
-                            "leakage",
-                            format!(
-                                "'{}' alone tells the classes apart (AUC {a:.3} on its own): \
-                                 check that it is not recorded after the outcome or derived \
-                                 from it",
-                                p.name
-                            ),
-                        ));
-                    }
+    if let Outcome::Numbers(y) = &design.outcome {
+        for p in &design.predictors {
+            if let Some(r) = single_predictor_spearman(&p.values, y) {
+                if r > LEAKAGE_SPEARMAN {
+                    out.push(warn(
+                        "leakage",
+                        format!(
+                            "'{}' alone follows the outcome almost exactly (|Spearman| {r:.3} \
+                             on its own): check that it is not recorded after the outcome or \
+                             derived from it",
+                            p.name
+                        ),
+                    ));
                 }
+            }
+        }
+    }
+    if let Outcome::Classes { codes, labels } = &design.outcome {
+        for p in &design.predictors {
+            let found = if labels.len() == 2 {
+                single_predictor_auc(&p.values, codes).map(|a| (a, None))
+            } else {
+                single_predictor_class_auc(&p.values, codes, labels.len())
+                    .map(|(a, k)| (a, Some(k)))
+            };
+            if let Some((a, class)) = found.filter(|(a, _)| *a > LEAKAGE_AUC) {
+                out.push(warn(
+                    "leakage",
+                    match class {
+                        None => format!(
+                            "'{}' alone tells the classes apart (AUC {a:.3} on its own): \
+                             check that it is not recorded after the outcome or derived from it",
+                            p.name
+                        ),
+                        Some(k) => format!(
+                            "'{}' alone tells class '{}' from the others (one-vs-rest AUC \
+                             {a:.3} on its own): check that it is not recorded after the \
+                             outcome or derived from it",
+                            p.name, labels[k]
+                        ),
+                    },
+                ));
             }
         }
         let mut counts = vec![0u64; labels.len()];
@@ -306,5 +424,69 @@ mod tests {
             Some(&table),
         );
         assert!(!g.iter().any(|w| w.kind == "grouped_rows"));
+    }
+
+    fn design_of(text: &str, outcome: &str, predictors: &[&str]) -> Design {
+        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table;
+        let spec = DesignSpec {
+            outcome: outcome.into(),
+            predictors: predictors.iter().map(|p| p.to_string()).collect(),
+            ..DesignSpec::default()
+        };
+        build_design(&table, &spec).unwrap()
+    }
+
+    #[test]
+    fn leakage_of_one_class_among_several_names_the_class() {
+        // Three classes; "flag" is 1 exactly for class "c" (one-vs-rest AUC 1 for c, about
+        // 0.75 for a and b: no single class but c is told apart); "noise" is unrelated.
+        let mut text = String::from("kind,flag,noise\n");
+        for i in 0..240 {
+            let kind = ["a", "b", "c"][i % 3];
+            text += &format!("{kind},{},{}\n", u32::from(kind == "c"), (i * 37) % 11);
+        }
+        let d = design_of(&text, "kind", &["flag", "noise"]);
+        let w = warnings(&d, &Scheme::Folds { k: 5, repeats: 1 }, None);
+        let leaks: Vec<&Warning> = w.iter().filter(|w| w.kind == "leakage").collect();
+        assert_eq!(leaks.len(), 1, "{w:?}");
+        assert!(
+            leaks[0].message.contains("'flag' alone tells class 'c'"),
+            "{w:?}"
+        );
+        let Outcome::Classes { codes, .. } = &d.outcome else {
+            panic!("classes")
+        };
+        let (a, k) = single_predictor_class_auc(&d.predictors[0].values, codes, 3).unwrap();
+        assert_eq!((a, k), (1.0, 2));
+    }
+
+    #[test]
+    fn leakage_of_a_number_outcome_by_rank_correlation() {
+        // Spearman on a small worked example (common practice, no source): ranks of x
+        // (1, 2, 3, 4, 5) against y's (2, 1, 4, 3, 5) give 1 − 6·4/(5·24) = 0.8.
+        let r = spearman(&[1.0, 2.0, 3.0, 4.0, 5.0], &[20.0, 10.0, 40.0, 30.0, 50.0]);
+        assert!((r.unwrap() - 0.8).abs() < 1e-12);
+        // Ties take their mean rank: x = (1, 1, 2) against y = (1, 2, 3) → 0.866.
+        let t = spearman(&[1.0, 1.0, 2.0], &[1.0, 2.0, 3.0]).unwrap();
+        assert!((t - 3f64.sqrt() / 2.0).abs() < 1e-12, "{t}");
+        // "copy" is a monotone function of y (|Spearman| 1, though not linear); "noise" is
+        // not related.
+        let mut text = String::from("y,copy,noise\n");
+        for i in 0..200 {
+            let y = (i as f64 * 0.37).sin() * 10.0 + i as f64 * 0.01;
+            text += &format!("{y},{},{}\n", -(y * 0.5).exp(), (i * 37) % 11);
+        }
+        let d = design_of(&text, "y", &["copy", "noise"]);
+        let w = warnings(&d, &Scheme::Folds { k: 5, repeats: 1 }, None);
+        let leaks: Vec<&Warning> = w.iter().filter(|w| w.kind == "leakage").collect();
+        assert_eq!(leaks.len(), 1, "{w:?}");
+        assert!(
+            leaks[0]
+                .message
+                .contains("'copy' alone follows the outcome"),
+            "{w:?}"
+        );
     }
 }
