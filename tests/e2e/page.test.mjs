@@ -301,6 +301,31 @@ try {
     await page.selectOption('#workers', '2');
   });
 
+  await check('gradient boosting takes fixed directions: refused for a category or a non-predictor, kept in the run when right', async () => {
+    await page.check('input[name=method][value=boosting]');
+    await page.waitForSelector('#set-monotone');
+    expect((await page.$eval('#set-monotone', (e) => e.labels[0].textContent)).includes('Fixed directions'), 'field not labelled');
+    const refusal = async (value, words) => {
+      await page.fill('#set-monotone', value);
+      await page.waitForSelector('#err-monotone:not([hidden])');
+      const msg = await page.textContent('#err-monotone');
+      expect(words.test(msg), `${value}: ${msg}`);
+      expect(await page.$eval('#run-start', (b) => b.disabled), `${value}: the run could start`);
+    };
+    await refusal('sex:up', /not a number/);
+    await refusal('age:sideways', /not a direction/);
+    await refusal('patient_id:up', /not among the predictors/);
+    await page.fill('#set-monotone', 'age:up, albumin_g_l:down');
+    await page.waitForSelector('#err-monotone[hidden]', { state: 'attached' });
+    await page.fill('#set-rounds', '20');
+    await page.selectOption('#judging', 'none');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="6"]', { timeout: 60000 });
+    const rows = await runRows();
+    expect(/fixed directions age:up, albumin_g_l:down/.test(rows[5].text), rows[5].text);
+    await page.fill('#set-monotone', '');
+  });
+
   await check('a design the core refuses gives its message in the step, and the runs stay', async () => {
     expect(await page.$eval('#runs-stale', (e) => e.hidden), 'stale note shown before any change');
     await page.selectOption('select[data-field=role][data-col="0"]', 'predictor');
@@ -309,7 +334,7 @@ try {
     const msg = await page.textContent('#fit-message');
     expect(msg.includes("the predictor 'patient_id' is free text or an identifier"), msg);
     expect(msg.includes('runs kept so far are unchanged'), msg);
-    expect((await runRows()).length === 5, 'runs lost after a refused fit');
+    expect((await runRows()).length === 6, 'runs lost after a refused fit');
     await page.selectOption('select[data-field=role][data-col="0"]', 'group');
     // Putting the role back still counts as a change: the earlier runs are now marked.
     await page.waitForSelector('#runs-stale:not([hidden])');
@@ -320,7 +345,7 @@ try {
     await page.selectOption(`select[data-field=role][data-col="${names.indexOf('bmi')}"]`, 'ignore');
     await page.waitForSelector('#runs-stale:not([hidden])');
     const rows = await runRows();
-    expect(rows.length === 5 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
+    expect(rows.length === 6 && rows.every((r) => /earlier data/.test(r.text)), 'runs lost or not marked when the roles changed');
     await page.locator('#step-runs').screenshot({ path: join(out, 'runs-step.png') });
     await page.screenshot({ path: join(out, 'runs-stale.png'), fullPage: true });
   });

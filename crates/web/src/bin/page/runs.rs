@@ -214,6 +214,12 @@ fn fields(method: FitMethod) -> Vec<Field> {
                 help: "Pulls each answer towards zero (an L2 penalty), 0 or more; larger values give more cautious trees.",
                 optional: false,
             },
+            Field {
+                name: "monotone",
+                label: "Fixed directions",
+                help: "Predictors whose effect may only go one way, as COLUMN:up or COLUMN:down separated by commas (age:up: the prediction never falls as age rises, the others held). Number predictors only. Empty: every predictor free.",
+                optional: true,
+            },
             SEED,
         ],
         FitMethod::Tree => vec![
@@ -358,9 +364,36 @@ fn check(p: &Page, method: FitMethod) -> (Vec<(&'static str, String)>, Option<St
         }
         if let Err(e) = base.clone().apply(f.name, &v) {
             errors.push((f.name, e));
+        } else if f.name == "monotone" {
+            if let Some(e) = directions_problem(p, &v) {
+                errors.push((f.name, e));
+            }
         }
     }
     (errors, None)
+}
+
+/// What is wrong with a fixed-directions value for the current roles: a column that is not
+/// a number predictor (the grower keeps directions on number splits only).
+fn directions_problem(p: &Page, value: &str) -> Option<String> {
+    let report = p.report.as_ref()?;
+    let (design, _) = design_of(p)?;
+    for part in value.split(',').map(str::trim).filter(|x| !x.is_empty()) {
+        let column = part.rsplit_once(':').map_or(part, |(c, _)| c);
+        if !design.predictors.iter().any(|x| x == column) {
+            return Some(format!("{column} is not among the predictors (step 2)"));
+        }
+        let numeric = report
+            .columns
+            .iter()
+            .any(|c| c.name == column && c.kind.is_numeric());
+        if !numeric {
+            return Some(format!(
+                "{column} is not a number; a direction needs a number predictor"
+            ));
+        }
+    }
+    None
 }
 
 /// The (name, value) pairs to send, and their plain summary.
@@ -370,6 +403,9 @@ fn chosen(p: &Page, method: FitMethod) -> (Vec<(String, String)>, String) {
     let mut summary = Vec::new();
     for (f, v) in values(p, method, base.as_ref()) {
         let v = v.trim().to_string();
+        if v.is_empty() && f.name == "monotone" {
+            continue;
+        }
         if v.is_empty() {
             summary.push(format!("{} no limit", f.label.to_lowercase()));
         } else {
@@ -410,10 +446,19 @@ fn render_form(p: &Page) {
     let base = defaults(p, method).and_then(Result::ok);
     for (f, v) in values(p, method, base.as_ref()) {
         html += &format!(
-            "<label class=\"field\"><span class=\"name\">{}</span><input id=\"set-{n}\" data-setting=\"{n}\" type=\"text\" inputmode=\"decimal\" value=\"{}\"{} aria-describedby=\"help-{n} err-{n}\"><span class=\"help\" id=\"help-{n}\">{}</span><span class=\"field-error\" id=\"err-{n}\" hidden></span></label>",
+            "<label class=\"field\"><span class=\"name\">{}</span><input id=\"set-{n}\" data-setting=\"{n}\" type=\"text\"{} value=\"{}\"{} aria-describedby=\"help-{n} err-{n}\"><span class=\"help\" id=\"help-{n}\">{}</span><span class=\"field-error\" id=\"err-{n}\" hidden></span></label>",
             f.label,
+            if f.name == "monotone" {
+                " spellcheck=\"false\""
+            } else {
+                " inputmode=\"decimal\""
+            },
             esc(&v),
-            if f.optional { " placeholder=\"no limit\"" } else { "" },
+            match (f.optional, f.name) {
+                (true, "monotone") => " placeholder=\"e.g. age:up\"",
+                (true, _) => " placeholder=\"no limit\"",
+                _ => "",
+            },
             f.help,
             n = f.name
         );
