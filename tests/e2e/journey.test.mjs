@@ -77,6 +77,9 @@ try {
     // The sample-size and leakage checks, computed from the records by the worker.
     await page.waitForFunction(() => /Checked on the records/.test(document.querySelector('#roles-checks').textContent), null, { timeout: 30000 });
     console.log(`  step 2 checks: ${(await page.textContent('#roles-checks')).slice(0, 300)}`);
+    // Which class every figure treats as the event: the yes/no outcome's "yes".
+    const event = await page.$eval('#roles-checks .event-note', (e) => e.dataset.event);
+    expect(event === 'yes', `event class shown: ${event}`);
     await stepShot('step-roles', '2-roles');
   });
 

@@ -445,6 +445,9 @@ pub enum Reply {
         id: u32,
         warnings: Vec<String>,
         refused: Option<String>,
+        /// A two-class outcome's class treated as the event (code 1) by every figure.
+        #[serde(default)]
+        event: Option<String>,
     },
     /// One extra worker's share of a judging's splits: (split index, its fit), and how many
     /// splits the scheme has in all.

@@ -422,7 +422,8 @@ fn on_reply(page: &Shared, reply: Reply) {
             id,
             warnings,
             refused,
-        } => checks::arrived(page, id, warnings, refused),
+            event,
+        } => checks::arrived(page, id, warnings, refused, event),
         // Shares of a forest or of a judging's splits come from the extra workers (see
         // pool.rs), not this one.
         Reply::Part { .. } | Reply::Folds { .. } => {}

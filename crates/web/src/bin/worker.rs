@@ -268,14 +268,15 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             return;
         }
         Request::Warnings { id, design, .. } => {
-            let (warnings, refused) = match design_warnings(held, &design) {
-                Ok(w) => (w, None),
-                Err(e) => (Vec::new(), Some(e)),
+            let (warnings, refused, event) = match design_warnings(held, &design) {
+                Ok((w, event)) => (w, None, event),
+                Err(e) => (Vec::new(), Some(e), None),
             };
             return post(&Reply::Warnings {
                 id,
                 warnings,
                 refused,
+                event,
             });
         }
         Request::FoldRuns { id, runs, .. } => {
@@ -616,8 +617,12 @@ fn judge_run(
 
 /// The checks of `design` on the held table before any fit, as a judged run with 5-fold
 /// cross-validation would get them (the scheme only matters for the repeated-records
-/// warning, which then advises grouped folds).
-fn design_warnings(held: &Held, design: &FitDesign) -> Result<Vec<String>, String> {
+/// warning, which then advises grouped folds); and, for two classes, the class every
+/// figure treats as the event (the second label: "yes", or the later one in order).
+fn design_warnings(
+    held: &Held,
+    design: &FitDesign,
+) -> Result<(Vec<String>, Option<String>), String> {
     let loaded = held
         .loaded
         .as_ref()
@@ -630,12 +635,15 @@ fn design_warnings(held: &Held, design: &FitDesign) -> Result<Vec<String>, Strin
     };
     let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
     let scheme = Scheme::Folds { k: 5, repeats: 1 };
-    Ok(
-        validate::warnings::warnings(&d, &scheme, Some(&loaded.table))
-            .into_iter()
-            .map(|w| w.message)
-            .collect(),
-    )
+    let event = match &d.outcome {
+        Outcome::Classes { labels, .. } if labels.len() == 2 => Some(labels[1].clone()),
+        _ => None,
+    };
+    let warnings = validate::warnings::warnings(&d, &scheme, Some(&loaded.table))
+        .into_iter()
+        .map(|w| w.message)
+        .collect();
+    Ok((warnings, event))
 }
 
 /// The validation plan of the page's judging choice.

@@ -3,7 +3,8 @@
 //! gets (`spinney_core::validate::warnings`: a predictor that alone separates the classes,
 //! identifier-like predictors, events per predictor and the Riley et al. (2020) sample size,
 //! class imbalance, repeated records), and they are shown under the roles summary before any
-//! model is grown. The roles summary itself (page.rs) says what it can from the column
+//! model is grown, with the class every figure treats as the event when the outcome has
+//! two. The roles summary itself (page.rs) says what it can from the column
 //! summaries alone.
 
 use spinney_web::protocol::{FitDesign, Request, PROTOCOL_VERSION};
@@ -45,7 +46,13 @@ pub fn refresh(page: &Shared) {
 }
 
 /// The worker's checks for request `id`: shown if they are for the current design.
-pub fn arrived(page: &Shared, id: u32, warnings: Vec<String>, refused: Option<String>) {
+pub fn arrived(
+    page: &Shared,
+    id: u32,
+    warnings: Vec<String>,
+    refused: Option<String>,
+    event: Option<String>,
+) {
     let mut p = page.borrow_mut();
     let Some((asked, design)) = p.checks.asked.take() else {
         return;
@@ -68,6 +75,12 @@ pub fn arrived(page: &Shared, id: u32, warnings: Vec<String>, refused: Option<St
             html += &format!("<li>{}</li>", esc(w));
         }
         html += "</ul>";
+    }
+    if let Some(e) = &event {
+        html += &format!(
+            "<p class=\"event-note\" data-event=\"{e}\">Every figure for this outcome treats <strong>{e}</strong> as the event: AUC, calibration and decision curves, the report and the scores are about the probability of {e}. The threshold step (6) can call the other class positive for its counts.</p>",
+            e = esc(e)
+        );
     }
     set_html(&p.doc, "roles-checks", &html);
     p.checks.shown = Some(design);
