@@ -80,6 +80,11 @@ try {
     // Which class every figure treats as the event: the yes/no outcome's "yes".
     const event = await page.$eval('#roles-checks .event-note', (e) => e.dataset.event);
     expect(event === 'yes', `event class shown: ${event}`);
+    // The other class can be called positive, and back.
+    await page.selectOption('#positive-class', 'no');
+    await page.waitForFunction(() => document.querySelector('#roles-checks .event-note')?.dataset.event === 'no', null, { timeout: 30000 });
+    await page.selectOption('#positive-class', 'yes');
+    await page.waitForFunction(() => document.querySelector('#roles-checks .event-note')?.dataset.event === 'yes', null, { timeout: 30000 });
     await stepShot('step-roles', '2-roles');
   });
 

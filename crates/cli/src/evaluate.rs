@@ -55,6 +55,10 @@ pub struct EvaluateArgs {
     /// large files quick).
     #[arg(long, default_value_t = 1000)]
     pub resamples: usize,
+    /// Two classes: the class called positive (the event), whose probability the figures
+    /// are about (default: "yes" of a yes/no column, else the later label in order).
+    #[arg(long, value_name = "LABEL")]
+    pub positive: Option<String>,
     /// A column of row weights.
     #[arg(long, value_name = "COLUMN")]
     pub weight: Option<String>,
@@ -234,6 +238,7 @@ fn run_evaluation(args: &EvaluateArgs) -> anyhow::Result<Evaluated> {
         outcome: &args.outcome,
         predictors: args.predictors.as_deref(),
         weight: args.weight.as_deref(),
+        positive: args.positive.as_deref(),
         group: group.as_deref(),
         method: &args.method,
         sets: &args.sets,

@@ -40,6 +40,10 @@ pub struct FitArgs {
     /// Also score the fitted model on another file with the same columns.
     #[arg(long, value_name = "FILE")]
     pub score: Option<std::path::PathBuf>,
+    /// Two classes: the class called positive (the event), whose probability the figures
+    /// are about (default: "yes" of a yes/no column, else the later label in order).
+    #[arg(long, value_name = "LABEL")]
+    pub positive: Option<String>,
     /// A column of row weights (numbers, zero or more).
     #[arg(long, value_name = "COLUMN")]
     pub weight: Option<String>,
@@ -155,6 +159,7 @@ pub struct Choice<'a> {
     pub outcome: &'a str,
     pub predictors: Option<&'a [String]>,
     pub weight: Option<&'a str>,
+    pub positive: Option<&'a str>,
     pub group: Option<&'a str>,
     pub method: &'a str,
     /// NAME=VALUE settings, applied after `defaults` (NAME, VALUE) and the method's own.
@@ -186,6 +191,7 @@ pub fn prepare(choice: &Choice<'_>) -> anyhow::Result<Prepared> {
             .collect(),
         weight: choice.weight.map(str::to_string),
         group: choice.group.map(str::to_string),
+        positive: choice.positive.map(str::to_string),
     };
     let design = build_design(&table, &spec)?;
     let regression = matches!(design.outcome, Outcome::Numbers(_));
@@ -254,6 +260,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
         outcome: &args.outcome,
         predictors: args.predictors.as_deref(),
         weight: args.weight.as_deref(),
+        positive: args.positive.as_deref(),
         group: None,
         method: &args.method,
         sets: &args.sets,
@@ -304,6 +311,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
                 &DesignSpec {
                     outcome: args.outcome.clone(),
                     predictors: binned.columns.iter().map(|c| c.name.clone()).collect(),
+                    positive: args.positive.clone(),
                     ..DesignSpec::default()
                 },
             )?;

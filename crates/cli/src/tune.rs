@@ -50,6 +50,10 @@ pub struct TuneArgs {
     pub seed: u64,
     #[arg(long, default_value_t = 0.5)]
     pub threshold: f64,
+    /// Two classes: the class called positive (the event), whose probability the figures
+    /// are about (default: "yes" of a yes/no column, else the later label in order).
+    #[arg(long, value_name = "LABEL")]
+    pub positive: Option<String>,
     #[arg(long, value_name = "COLUMN")]
     pub weight: Option<String>,
     #[arg(long, value_name = "COLUMN")]
@@ -95,6 +99,7 @@ pub fn tune_command(args: TuneArgs) -> anyhow::Result<()> {
         outcome: &args.outcome,
         predictors: args.predictors.as_deref(),
         weight: args.weight.as_deref(),
+        positive: args.positive.as_deref(),
         group: group.as_deref(),
         method: &args.method,
         sets: &args.sets,

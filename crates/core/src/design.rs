@@ -13,6 +13,10 @@ pub struct DesignSpec {
     pub predictors: Vec<String>,
     pub weight: Option<String>,
     pub group: Option<String>,
+    /// A two-class outcome's class called positive (the event): it becomes class code 1,
+    /// whose probability every two-class figure is about. `None`: the second label ("yes"
+    /// of a yes/no column, else the later label in order).
+    pub positive: Option<String>,
 }
 
 /// What is to be predicted.
@@ -248,6 +252,40 @@ pub fn build_design(table: &Table, spec: &DesignSpec) -> Result<Design> {
             }
         }
     };
+    let outcome = match (outcome, &spec.positive) {
+        (Outcome::Classes { codes, labels }, Some(positive)) => {
+            let at = labels.iter().position(|l| l == positive).ok_or_else(|| {
+                bad(format!(
+                    "the class called positive, '{positive}', is not among the classes of the outcome '{}' ({}); choose one of those",
+                    out.name,
+                    labels.join(", ")
+                ))
+            })?;
+            if labels.len() != 2 {
+                return Err(bad(format!(
+                    "a class called positive needs an outcome with two classes; '{}' has {}",
+                    out.name,
+                    labels.len()
+                )));
+            }
+            if at == 0 {
+                // The positive class becomes code 1.
+                Outcome::Classes {
+                    codes: codes.iter().map(|&c| 1 - c).collect(),
+                    labels: vec![labels[1].clone(), labels[0].clone()],
+                }
+            } else {
+                Outcome::Classes { codes, labels }
+            }
+        }
+        (Outcome::Numbers(_), Some(positive)) => {
+            return Err(bad(format!(
+                "a class called positive ('{positive}') needs an outcome of two classes; '{}' is read as a number (set its kind to yes/no or category if it holds classes)",
+                out.name
+            )))
+        }
+        (outcome, None) => outcome,
+    };
     match &outcome {
         Outcome::Classes { codes, labels } => {
             let mut counts = vec![0usize; labels.len()];
@@ -404,6 +442,48 @@ mod tests {
         read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
             .unwrap()
             .table
+    }
+
+    #[test]
+    fn the_class_called_positive_becomes_code_1() {
+        use crate::data::{read_table, ReadOptions};
+        let text = "x,status,kind\n1,alive,a\n2,dead,b\n3,alive,c\n4,alive,a\n";
+        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table;
+        let mut s = spec("status", &["x"]);
+        // By default the later label is the event.
+        let d = build_design(&table, &s).unwrap();
+        assert_eq!(
+            d.outcome,
+            Outcome::Classes {
+                codes: vec![0, 1, 0, 0],
+                labels: vec!["alive".into(), "dead".into()]
+            }
+        );
+        s.positive = Some("alive".into());
+        let d = build_design(&table, &s).unwrap();
+        assert_eq!(
+            d.outcome,
+            Outcome::Classes {
+                codes: vec![1, 0, 1, 1],
+                labels: vec!["dead".into(), "alive".into()]
+            }
+        );
+        s.positive = Some("asleep".into());
+        let e = build_design(&table, &s).unwrap_err().to_string();
+        assert!(
+            e.contains("'asleep', is not among the classes") && e.contains("alive, dead"),
+            "{e}"
+        );
+        let mut three = spec("kind", &["x"]);
+        three.positive = Some("a".into());
+        let e = build_design(&table, &three).unwrap_err().to_string();
+        assert!(e.contains("needs an outcome with two classes"), "{e}");
+        let mut number = spec("x", &["kind"]);
+        number.positive = Some("1".into());
+        let e = build_design(&table, &number).unwrap_err().to_string();
+        assert!(e.contains("is read as a number"), "{e}");
     }
 
     fn spec(outcome: &str, predictors: &[&str]) -> DesignSpec {

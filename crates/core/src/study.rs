@@ -12,7 +12,7 @@
 //!   gave (every other one is the method's default), the `seed`, whether it was fitted on
 //!   `earlier_data` (before the roles or reading changed), its `result` figures, and
 //!   optionally its fitted `model` (a model file, see [`crate::model_file`]);
-//! - since 1.1, `threshold` (optional): the decision threshold step's choice, the `run`
+//! - since 1.1, each run's `positive` (optional: the class called positive), and `threshold` (optional): the decision threshold step's choice, the `run`
 //!   (1-based, in `runs`), the class called `positive` and the threshold `value`.
 //!
 //! The reader accepts any 1.x file (unknown fields skipped), refuses a newer major version,
@@ -120,6 +120,10 @@ pub struct StudyRun {
     /// The column keeping each record's group together in grouped folds.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub group: Option<String>,
+    /// A two-class outcome's class called positive (the event), when the user chose it
+    /// (since 1.1; the command line's `--positive`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub positive: Option<String>,
     /// How the run was judged, in the command line's `--validate` words (`oob`,
     /// `folds:5`, ...); none: not judged.
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -513,6 +517,7 @@ mod tests {
             predictors: vec!["grade".into()],
             weight: None,
             group: None,
+            positive: None,
             validation: Some("oob".into()),
             baseline: true,
             settings: [("trees".to_string(), "50".to_string())].into(),

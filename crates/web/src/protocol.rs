@@ -294,6 +294,9 @@ pub struct FitDesign {
     /// repeated-record warning.
     #[serde(default)]
     pub group: Option<String>,
+    /// A two-class outcome's class called positive (the event); `None`: the second label.
+    #[serde(default)]
+    pub positive: Option<String>,
 }
 
 /// How a run is judged: a validation scheme in the command line's words (`oob`,
@@ -445,9 +448,10 @@ pub enum Reply {
         id: u32,
         warnings: Vec<String>,
         refused: Option<String>,
-        /// A two-class outcome's class treated as the event (code 1) by every figure.
+        /// A two-class outcome's labels; the second is the class every figure treats as
+        /// the event (code 1).
         #[serde(default)]
-        event: Option<String>,
+        classes: Option<[String; 2]>,
     },
     /// One extra worker's share of a judging's splits: (split index, its fit), and how many
     /// splits the scheme has in all.

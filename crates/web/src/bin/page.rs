@@ -133,6 +133,8 @@ struct Page {
     pool: pool::Pool,
     /// Step 2's checks computed from the records.
     checks: checks::Checks,
+    /// The class called positive of a two-class outcome, when the user chose one.
+    positive: Option<String>,
 }
 
 type Shared = Rc<RefCell<Page>>;
@@ -422,8 +424,8 @@ fn on_reply(page: &Shared, reply: Reply) {
             id,
             warnings,
             refused,
-            event,
-        } => checks::arrived(page, id, warnings, refused, event),
+            classes,
+        } => checks::arrived(page, id, warnings, refused, classes),
         // Shares of a forest or of a judging's splits come from the extra workers (see
         // pool.rs), not this one.
         Reply::Part { .. } | Reply::Folds { .. } => {}
@@ -1047,6 +1049,10 @@ fn on_column_change(page: &Shared, event: Event) {
             let Some(role) = Role::from_key(&value) else {
                 return;
             };
+            // Another outcome: its classes are not the earlier outcome's.
+            if role == Role::Outcome || p.roles.get(i) == Some(&Role::Outcome) {
+                p.positive = None;
+            }
             // One outcome, one group column and one weight column at most: the newest wins.
             if matches!(role, Role::Outcome | Role::Group | Role::Weight) {
                 for (j, r) in p.roles.iter_mut().enumerate() {
@@ -1130,6 +1136,7 @@ fn design_of(p: &Page) -> Option<(FitDesign, bool)> {
             Role::Group | Role::Ignore => {}
         }
     }
+    design.positive = p.positive.clone().filter(|_| !regression);
     (!design.outcome.is_empty()).then_some((design, regression))
 }
 
@@ -1158,6 +1165,7 @@ fn main() {
         scoring: score::Scoring::default(),
         pool: pool::Pool::default(),
         checks: checks::Checks::default(),
+        positive: None,
     }));
     let worker = spawn_worker(&page);
     page.borrow_mut().worker = worker;
@@ -1187,6 +1195,7 @@ fn main() {
         cancel(&pg, "Reading cancelled.")
     });
     runs::listen(&page);
+    checks::listen(&page);
     insight::listen(&page);
     threshold::listen(&page);
     score::listen(&page);

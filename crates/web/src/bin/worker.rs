@@ -268,15 +268,15 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             return;
         }
         Request::Warnings { id, design, .. } => {
-            let (warnings, refused, event) = match design_warnings(held, &design) {
-                Ok((w, event)) => (w, None, event),
+            let (warnings, refused, classes) = match design_warnings(held, &design) {
+                Ok((w, classes)) => (w, None, classes),
                 Err(e) => (Vec::new(), Some(e), None),
             };
             return post(&Reply::Warnings {
                 id,
                 warnings,
                 refused,
-                event,
+                classes,
             });
         }
         Request::FoldRuns { id, runs, .. } => {
@@ -394,6 +394,7 @@ fn design_and_settings(
         predictors: design.predictors.clone(),
         weight: design.weight.clone(),
         group: design.group.clone(),
+        positive: design.positive.clone(),
     };
     let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
     let regression = matches!(d.outcome, Outcome::Numbers(_));
@@ -617,12 +618,13 @@ fn judge_run(
 
 /// The checks of `design` on the held table before any fit, as a judged run with 5-fold
 /// cross-validation would get them (the scheme only matters for the repeated-records
-/// warning, which then advises grouped folds); and, for two classes, the class every
-/// figure treats as the event (the second label: "yes", or the later one in order).
+/// warning, which then advises grouped folds); and, for two classes, the labels, the second
+/// being the class every figure treats as the event (the one called positive, else "yes" or
+/// the later label in order).
 fn design_warnings(
     held: &Held,
     design: &FitDesign,
-) -> Result<(Vec<String>, Option<String>), String> {
+) -> Result<(Vec<String>, Option<[String; 2]>), String> {
     let loaded = held
         .loaded
         .as_ref()
@@ -632,18 +634,21 @@ fn design_warnings(
         predictors: design.predictors.clone(),
         weight: design.weight.clone(),
         group: design.group.clone(),
+        positive: design.positive.clone(),
     };
     let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
     let scheme = Scheme::Folds { k: 5, repeats: 1 };
-    let event = match &d.outcome {
-        Outcome::Classes { labels, .. } if labels.len() == 2 => Some(labels[1].clone()),
+    let classes = match &d.outcome {
+        Outcome::Classes { labels, .. } if labels.len() == 2 => {
+            Some([labels[0].clone(), labels[1].clone()])
+        }
         _ => None,
     };
     let warnings = validate::warnings::warnings(&d, &scheme, Some(&loaded.table))
         .into_iter()
         .map(|w| w.message)
         .collect();
-    Ok((warnings, event))
+    Ok((warnings, classes))
 }
 
 /// The validation plan of the page's judging choice.
@@ -935,6 +940,7 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
         weight: r.design.weight.clone(),
         // The rows of the fitted (and judged) design, group column included.
         group: r.design.group.clone(),
+        positive: r.design.positive.clone(),
     };
     let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
     let Outcome::Classes { codes, .. } = &d.outcome else {

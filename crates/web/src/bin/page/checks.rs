@@ -9,7 +9,9 @@
 
 use spinney_web::protocol::{FitDesign, Request, PROTOCOL_VERSION};
 
-use super::{design_of, esc, send, set_html, Shared};
+use wasm_bindgen::JsCast;
+
+use super::{by_id, design_of, esc, send, set_html, Shared};
 
 #[derive(Default)]
 pub struct Checks {
@@ -51,7 +53,7 @@ pub fn arrived(
     id: u32,
     warnings: Vec<String>,
     refused: Option<String>,
-    event: Option<String>,
+    classes: Option<[String; 2]>,
 ) {
     let mut p = page.borrow_mut();
     let Some((asked, design)) = p.checks.asked.take() else {
@@ -76,10 +78,20 @@ pub fn arrived(
         }
         html += "</ul>";
     }
-    if let Some(e) = &event {
+    if let Some([other, event]) = &classes {
+        let option = |label: &str, selected: bool| {
+            format!(
+                "<option value=\"{}\"{}>{}</option>",
+                esc(label),
+                if selected { " selected" } else { "" },
+                esc(label)
+            )
+        };
         html += &format!(
-            "<p class=\"event-note\" data-event=\"{e}\">Every figure for this outcome treats <strong>{e}</strong> as the event: AUC, calibration and decision curves, the report and the scores are about the probability of {e}. The threshold step (6) can call the other class positive for its counts.</p>",
-            e = esc(e)
+            "<p class=\"event-note\" data-event=\"{e}\"><label class=\"field-inline\">Class called positive (the event) <select id=\"positive-class\">{}{}</select></label> Every figure for this outcome is about the probability of <strong>{e}</strong>: AUC, calibration and decision curves, the threshold step, the report and the scores.</p>",
+            option(event, true),
+            option(other, false),
+            e = esc(event)
         );
     }
     set_html(&p.doc, "roles-checks", &html);
@@ -89,4 +101,31 @@ pub fn arrived(
 /// A new table or a restarted worker: what was shown or asked no longer holds.
 pub fn forget(page: &Shared) {
     page.borrow_mut().checks = Checks::default();
+}
+
+/// The class called positive was changed: later runs use it, earlier ones are marked.
+pub fn listen(page: &Shared) {
+    let doc = page.borrow().doc.clone();
+    let pg = page.clone();
+    super::on(
+        &by_id(&doc, "roles-checks"),
+        "change",
+        move |e: web_sys::Event| {
+            let Some(select) = e
+                .target()
+                .and_then(|t| t.dyn_into::<web_sys::HtmlSelectElement>().ok())
+                .filter(|s| s.id() == "positive-class")
+            else {
+                return;
+            };
+            {
+                let mut p = pg.borrow_mut();
+                p.positive = Some(select.value());
+                p.fits.mark_stale();
+                super::render_columns(&p);
+            }
+            super::runs_changed(&pg);
+            super::study::autosave(&pg);
+        },
+    );
 }

@@ -129,6 +129,7 @@ fn build(p: &Page) -> Option<Study> {
             predictors: r.ask.design.predictors.clone(),
             weight: r.ask.design.weight.clone(),
             group: r.ask.design.group.clone(),
+            positive: r.ask.design.positive.clone(),
             validation: r.ask.judging.as_ref().map(|j| j.scheme.clone()),
             baseline: r.ask.judging.as_ref().is_some_and(|j| j.baseline),
             settings: r.ask.settings.iter().cloned().collect(),
@@ -442,6 +443,7 @@ fn apply(page: &Shared) {
         p.fits.runs.clear();
         p.fits.charted = None;
         super::threshold::restore(&mut p, w.study.threshold.as_ref());
+        p.positive = w.study.runs.iter().rev().find_map(|r| r.positive.clone());
         let mut asks = Vec::new();
         for run in &w.study.runs {
             let Some(method) = Method::from_word(&run.method) else {
@@ -459,6 +461,7 @@ fn apply(page: &Shared) {
                     predictors: run.predictors.clone(),
                     weight: run.weight.clone(),
                     group: run.group.clone(),
+                    positive: run.positive.clone(),
                 },
                 judging: run
                     .validation
