@@ -76,6 +76,70 @@ fn folds_on_one_thread_and_on_three_give_the_same_report() {
 }
 
 #[test]
+fn calling_the_other_class_positive_mirrors_the_figures() {
+    // AUC is the chance a random event scores above a random non-event, so swapping which
+    // class is the event and using 1 - p keeps it (Hanley & McNeil 1982); the Brier score
+    // of 1 - p against the swapped outcome is the same sum of squares (Brier 1950). With
+    // number predictors only, the forest's splits mirror exactly and so do its out-of-bag
+    // predictions. (A category's levels are ordered by their event share, where ties may
+    // fall the other way once the event is swapped, so categories are left out here.)
+    let run = |positive: &str| {
+        let out = spinney()
+            .args([
+                "evaluate",
+                demo(),
+                "--outcome",
+                "complication_30d",
+                "--predictors",
+                "age,bmi,fitness_grade",
+                "--method",
+                "forest",
+                "--set",
+                "trees=15",
+                "--resamples",
+                "50",
+                "--validate",
+                "oob",
+                "--positive",
+                positive,
+                "--json",
+            ])
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        serde_json::from_slice::<serde_json::Value>(&out.stdout).unwrap()
+    };
+    let (yes, no) = (run("yes"), run("no"));
+    for name in ["auc", "brier"] {
+        let (a, b) = (
+            yes["metrics"][name]["value"].as_f64().unwrap(),
+            no["metrics"][name]["value"].as_f64().unwrap(),
+        );
+        assert!(
+            (a - b).abs() < 1e-9,
+            "{name}: {a} with 'yes', {b} with 'no'"
+        );
+    }
+    fails_with(
+        &[
+            "evaluate",
+            demo(),
+            "--outcome",
+            "complication_30d",
+            "--validate",
+            "folds:4",
+            "--positive",
+            "maybe",
+        ],
+        &["'maybe'", "no, yes"],
+    );
+}
+
+#[test]
 fn the_predictions_file_holds_every_row_once_with_its_fold() {
     let path = write("predictions.csv", "");
     let v = evaluate_json(&[
