@@ -63,6 +63,13 @@ pub fn arrived(
         p.checks.asked = Some((asked, design));
         return;
     }
+    // A class called positive that this outcome does not have (its kind or values changed):
+    // forget it and ask again with the default event.
+    if refused.is_some() && design.positive.is_some() {
+        p.positive = None;
+        drop(p);
+        return refresh(page);
+    }
     let mut html = String::new();
     if let Some(why) = refused {
         html += &format!(
