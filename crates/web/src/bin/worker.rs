@@ -389,14 +389,7 @@ fn design_and_settings(
         .ok_or("no table is loaded yet; choose a file first")?;
     let method_kind = Method::from_word(method)
         .ok_or_else(|| format!("{method}: choose tree, bagging, forest, adaboost or boosting"))?;
-    let spec = DesignSpec {
-        outcome: design.outcome.clone(),
-        predictors: design.predictors.clone(),
-        weight: design.weight.clone(),
-        group: design.group.clone(),
-        positive: design.positive.clone(),
-    };
-    let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
+    let d = table_design(loaded, design)?;
     let regression = matches!(d.outcome, Outcome::Numbers(_));
     let settings = FitSettings::build(
         method_kind,
@@ -406,6 +399,19 @@ fn design_and_settings(
         sets,
     )?;
     Ok((d, settings))
+}
+
+/// The design of the page's column choice on the held table (every fit, judging, check and
+/// prediction of a run builds it the same way, so their rows agree).
+fn table_design(loaded: &Loaded, design: &FitDesign) -> Result<Design, String> {
+    let spec = DesignSpec {
+        outcome: design.outcome.clone(),
+        predictors: design.predictors.clone(),
+        weight: design.weight.clone(),
+        group: design.group.clone(),
+        positive: design.positive.clone(),
+    };
+    build_design(&loaded.table, &spec).map_err(|e| e.to_string())
 }
 
 /// Fits one share of a forest's trees and returns them as bytes.
@@ -629,14 +635,7 @@ fn design_warnings(
         .loaded
         .as_ref()
         .ok_or("no table is loaded yet; choose a file first")?;
-    let spec = DesignSpec {
-        outcome: design.outcome.clone(),
-        predictors: design.predictors.clone(),
-        weight: design.weight.clone(),
-        group: design.group.clone(),
-        positive: design.positive.clone(),
-    };
-    let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
+    let d = table_design(loaded, design)?;
     let scheme = Scheme::Folds { k: 5, repeats: 1 };
     let classes = match &d.outcome {
         Outcome::Classes { labels, .. } if labels.len() == 2 => {
@@ -934,15 +933,8 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
                 .into(),
         ),
     };
-    let spec = DesignSpec {
-        outcome: r.design.outcome.clone(),
-        predictors: r.design.predictors.clone(),
-        weight: r.design.weight.clone(),
-        // The rows of the fitted (and judged) design, group column included.
-        group: r.design.group.clone(),
-        positive: r.design.positive.clone(),
-    };
-    let d = build_design(&loaded.table, &spec).map_err(|e| e.to_string())?;
+    // The rows of the fitted (and judged) design.
+    let d = table_design(loaded, &r.design)?;
     let Outcome::Classes { codes, .. } = &d.outcome else {
         return Err("the outcome is read as a number now; grow the run again".into());
     };
