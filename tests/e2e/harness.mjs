@@ -52,6 +52,24 @@ export function launch() {
   });
 }
 
+/** Records every long task of the main thread of `context`'s pages (over 50 ms each, as the
+ *  browser reports them: PerformanceObserver 'longtask'). Call before opening the page. */
+export function watchLongTasks(context) {
+  return context.addInitScript(() => {
+    window.__longTasks = [];
+    new PerformanceObserver((list) => {
+      for (const e of list.getEntries()) window.__longTasks.push({ start: e.startTime, duration: e.duration });
+    }).observe({ entryTypes: ['longtask'] });
+  });
+}
+
+/** The page's own clock (performance.now()), to bracket a span for `longestTask`. */
+export const mainThreadNow = (page) => page.evaluate(() => performance.now());
+
+/** The longest main-thread task that began between two `mainThreadNow` readings. */
+export const longestTask = (page, from, to) => page.evaluate(([a, b]) => Math.max(0, ...window.__longTasks
+  .filter((t) => t.start >= a && t.start <= b).map((t) => t.duration)), [from, to]);
+
 /** A page in `context` whose requests (its workers' and service worker's included) and
  *  console errors are recorded. */
 export async function watchedPage(context) {

@@ -14,7 +14,7 @@
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
-import { check, checkNothingLeft, chooseOutcome, expect, fixtures, launch, openDemo, out, root, watchedPage, wrapUp } from './harness.mjs';
+import { check, checkNothingLeft, chooseOutcome, expect, fixtures, launch, longestTask, mainThreadNow, openDemo, out, root, watchedPage, watchLongTasks, wrapUp } from './harness.mjs';
 
 const demo = join(root, 'demo-data', 'surgery-complications.csv');
 const lines = readFileSync(demo, 'utf8').trimEnd().split('\n');
@@ -29,17 +29,10 @@ const server = await serve(join(root, 'dist'), 0);
 const origin = `http://127.0.0.1:${server.address().port}`;
 const browser = await launch();
 const context = await browser.newContext({ viewport: { width: 1280, height: 720 }, acceptDownloads: true });
-await context.addInitScript(() => {
-  window.__longTasks = [];
-  new PerformanceObserver((list) => {
-    for (const e of list.getEntries()) window.__longTasks.push({ start: e.startTime, duration: e.duration });
-  }).observe({ entryTypes: ['longtask'] });
-});
+await watchLongTasks(context);
 const { page, requests, consoleErrors } = await watchedPage(context);
 
-const now = () => page.evaluate(() => performance.now());
-const longestTask = (from, to) => page.evaluate(([a, b]) => Math.max(0, ...window.__longTasks
-  .filter((t) => t.start >= a && t.start <= b).map((t) => t.duration)), [from, to]);
+const now = () => mainThreadNow(page);
 const shot = (name) => page.screenshot({ path: join(out, `journey-${name}.png`), fullPage: true });
 const stepShot = (id, name) => page.locator(`#${id}`).screenshot({ path: join(out, `journey-${name}.png`) });
 // Each judged run's figures to the last digit, from the comparison table.
@@ -51,7 +44,7 @@ async function grow(setUp, n) {
   const t0 = await now();
   await page.click('#run-start');
   await page.waitForSelector(`#step-runs[data-runs="${n}"]`, { timeout: 120000 });
-  return longestTask(t0, await now());
+  return longestTask(page, t0, await now());
 }
 async function regrown(n) {
   await page.waitForFunction((k) => document.querySelectorAll('table.runs tbody tr').length === k

@@ -14,26 +14,18 @@ import { createHash } from 'node:crypto';
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
-import { check, expect, finish, fixtures, foreign, launch, out, root, watchedPage } from './harness.mjs';
+import { check, expect, finish, fixtures, foreign, launch, longestTask as longestTaskOf, mainThreadNow as mainThreadNowOf, out, root, watchedPage, watchLongTasks } from './harness.mjs';
 
 const manifest = JSON.parse(readFileSync(join(fixtures, 'manifest.json'), 'utf8'));
 const server = await serve(join(root, 'dist'), 0);
 const origin = `http://127.0.0.1:${server.address().port}`;
 const browser = await launch();
 const context = await browser.newContext({ viewport: { width: 1400, height: 1000 } });
-// Long tasks of the page's main thread (over 50 ms each, as the browser reports them).
-await context.addInitScript(() => {
-  window.__longTasks = [];
-  new PerformanceObserver((list) => {
-    for (const e of list.getEntries()) window.__longTasks.push({ start: e.startTime, duration: e.duration });
-  }).observe({ entryTypes: ['longtask'] });
-});
+await watchLongTasks(context);
 const { page, requests, consoleErrors } = await watchedPage(context);
 
-const mainThreadNow = () => page.evaluate(() => performance.now());
-// The longest main-thread task that began between two performance.now() readings.
-const longestTask = (from, to) => page.evaluate(([a, b]) => Math.max(0, ...window.__longTasks
-  .filter((t) => t.start >= a && t.start <= b).map((t) => t.duration)), [from, to]);
+const mainThreadNow = () => mainThreadNowOf(page);
+const longestTask = (from, to) => longestTaskOf(page, from, to);
 const kindsShown = () => page.$$eval('select[data-field=kind]', (s) => s.map((x) => x.value));
 const namesShown = () => page.$$eval('table.columns tbody th[scope=row]', (s) => s.map((x) => x.textContent));
 
