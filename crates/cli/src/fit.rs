@@ -338,7 +338,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             "notices": design.notices,
         });
         out["training_error_by_size"] =
-            serde_json::json!(model.staged_errors(Rows::Binned(&binned), &design.outcome));
+            serde_json::json!(model.training_errors(&binned, &design.outcome));
         if let Some(((name, value), curve, _)) = &scored {
             out["scored"] = serde_json::json!({ *name: value });
             out["scored_error_by_size"] = serde_json::json!(curve);

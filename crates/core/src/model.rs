@@ -327,6 +327,20 @@ impl Model {
         Some(curve)
     }
 
+    /// [`Model::staged_errors`] on the rows the model was fitted on (`binned`, `outcome`): a
+    /// forest's curve as tallied while its trees were added (the same numbers, without a walk
+    /// down every tree for every row) when it has one.
+    pub fn training_errors(&self, binned: &BinnedMatrix, outcome: &Outcome) -> Option<Vec<f64>> {
+        match &self.ensemble {
+            Ensemble::Forest(f)
+                if f.training_error.len() == f.trees.len() && !f.trees.is_empty() =>
+            {
+                Some(f.training_error.clone())
+            }
+            _ => self.staged_errors(Rows::Binned(binned), outcome),
+        }
+    }
+
     /// Accuracy (classes) or root mean squared error (numbers) on `rows`, whose outcome is
     /// `outcome` (class codes in the model's classes' order).
     pub fn performance(&self, rows: Rows<'_>, outcome: &Outcome) -> (&'static str, f64) {

@@ -569,6 +569,7 @@ fn from_file(file: FileV1) -> Result<Model> {
                     .collect(),
                 oob_prediction: Vec::new(),
                 oob_share: f.out_of_bag_share,
+                training_error: Vec::new(),
                 partial: file.partial,
             })
         }

@@ -11,7 +11,7 @@ use crate::design::Outcome;
 use crate::progress::{Flow, Progress, Silent};
 use crate::random::{below, stream, Purpose};
 use crate::tree::criterion::Criterion;
-use crate::tree::grower::{grow, GrowSettings};
+use crate::tree::grower::{grow_rows, Constraints, GrowSettings};
 use crate::tree::{Rows, Tree};
 
 /// Settings of a bagged ensemble.
@@ -65,6 +65,10 @@ impl ForestSettings {
 pub struct FittedTree {
     pub tree: Tree,
     pub in_bag: Vec<u32>,
+    /// The leaf each row of the sample ended in when the tree was grown (`u32::MAX` for rows
+    /// not in the sample), so the training error needs no walk down the tree for them;
+    /// empty when not known (a tree read from bytes), and then the rows are walked.
+    pub leaves: Vec<u32>,
 }
 
 /// Fits trees `range` of the ensemble (each from its own streams).
@@ -108,15 +112,29 @@ pub fn fit_trees(
             }
             candidates.truncate(m);
         };
-        let tree = grow(
+        let grown = grow_rows(
             binned,
             stats,
             width,
             &rows,
             &settings.grow,
             Some(&mut choose),
+            Constraints::default(),
         );
-        out.push(FittedTree { tree, in_bag });
+        let mut leaves = vec![u32::MAX; n];
+        for (id, node) in grown.tree.nodes.iter().enumerate() {
+            if node.is_leaf() {
+                let (start, end) = grown.spans[id];
+                for &r in &grown.rows[start..end] {
+                    leaves[r as usize] = id as u32;
+                }
+            }
+        }
+        out.push(FittedTree {
+            tree: grown.tree,
+            in_bag,
+            leaves,
+        });
         if progress.step("trees", out.len() as u64, total) == Flow::Stop {
             break;
         }
@@ -178,6 +196,10 @@ pub struct Forest {
     pub oob_prediction: Vec<f64>,
     /// Share of (tree, row) pairs that were out of bag (about 1/e ≈ 0.368 for bootstraps).
     pub oob_share: f64,
+    /// Error on every training row after 1, 2, ... trees (as
+    /// [`crate::model::Model::staged_errors`] gives it, to the last digit), tallied as the
+    /// trees were added; empty when not known (a forest read from a model file).
+    pub training_error: Vec<f64>,
     /// Stopped before all trees were fitted (cancelled).
     pub partial: bool,
 }
@@ -208,6 +230,9 @@ pub fn argmax(values: &[f64]) -> usize {
 pub struct OobTally {
     outputs: usize,
     sums: Vec<f64>,
+    /// Every row's summed predictions over the trees so far (in bag or not).
+    training_sums: Vec<f64>,
+    training_error: Vec<f64>,
     votes: Vec<u32>,
     out_of_bag: usize,
     trees: Vec<Tree>,
@@ -219,6 +244,8 @@ impl OobTally {
         OobTally {
             outputs,
             sums: vec![0.0; rows * outputs],
+            training_sums: vec![0.0; rows * outputs],
+            training_error: Vec::new(),
             votes: vec![0; rows],
             out_of_bag: 0,
             trees: Vec::new(),
@@ -230,18 +257,40 @@ impl OobTally {
     pub fn add(&mut self, fitted: FittedTree, binned: &BinnedMatrix, outcome: &Outcome) {
         let n = binned.rows;
         let outputs = self.outputs;
+        let tree = &fitted.tree;
+        let (mut wrong, mut squares) = (0.0, 0.0);
+        let trees_so_far = (self.trees.len() + 1) as f64;
         for r in 0..n {
+            let leaf = match fitted.leaves.get(r) {
+                Some(&leaf) if leaf != u32::MAX => leaf as usize,
+                _ => tree.leaf(Rows::Binned(binned), r),
+            };
+            let p = tree.node_values(leaf);
             if fitted.in_bag[r] == 0 {
                 self.out_of_bag += 1;
                 self.votes[r] += 1;
-                for (s, v) in self.sums[r * outputs..(r + 1) * outputs]
-                    .iter_mut()
-                    .zip(fitted.tree.predict_row(binned, r))
-                {
+                for (s, v) in self.sums[r * outputs..(r + 1) * outputs].iter_mut().zip(p) {
                     *s += v;
                 }
             }
+            // The training error as `Model::staged_errors` sums it, row by row.
+            let s = &mut self.training_sums[r * outputs..(r + 1) * outputs];
+            for (a, b) in s.iter_mut().zip(p) {
+                *a += b;
+            }
+            match outcome {
+                Outcome::Classes { codes, .. } => {
+                    wrong += (argmax(s) != codes[r] as usize) as u8 as f64
+                }
+                Outcome::Numbers(y) => squares += (s[0] / trees_so_far - y[r]).powi(2),
+            }
         }
+        self.training_error.push(
+            match outcome {
+                Outcome::Classes { .. } => wrong,
+                Outcome::Numbers(_) => squares,
+            } / n.max(1) as f64,
+        );
         let (mut err, mut counted) = (0.0, 0usize);
         for r in (0..n).filter(|&r| self.votes[r] > 0) {
             counted += 1;
@@ -284,6 +333,7 @@ impl OobTally {
             oob_error: self.oob_error,
             oob_prediction,
             oob_share,
+            training_error: self.training_error,
             partial,
         }
     }
@@ -363,6 +413,67 @@ mod tests {
         // 10% of labels are flipped, so about 0.10 is the best possible; chance is 0.5.
         assert!(last < 0.2, "oob error {last}");
         assert!(!forest.partial);
+    }
+
+    #[test]
+    fn the_tallied_training_error_is_the_staged_error_whether_leaves_are_known_or_walked() {
+        use crate::model::{Ensemble, Method, Model};
+        let (m, y, stats) = noisy_problem();
+        let mut s = ForestSettings::random_forest(4, false, 3);
+        s.trees = 15;
+        // Bytes lose the leaves the grower saw, so the second tally walks every row.
+        let mut walked = OobTally::new(m.rows, 2);
+        for mut f in fit_trees(&m, &stats, 2, &s, 0..15, &mut Silent) {
+            assert_eq!(
+                f.leaves.iter().filter(|&&l| l != u32::MAX).count(),
+                f.in_bag.iter().filter(|&&c| c > 0).count()
+            );
+            f.leaves.clear();
+            walked.add(f, &m, &y);
+        }
+        let walked = walked.finish(false);
+        let forest = fit_forest(&m, &stats, 2, &y, &s, &mut Silent);
+        assert_eq!(forest.training_error, walked.training_error);
+        let model = Model {
+            method: Method::Forest,
+            outcome: "y".into(),
+            classes: Some(vec!["no".into(), "yes".into()]),
+            predictors: Vec::new(),
+            ensemble: Ensemble::Forest(forest),
+            settings: Default::default(),
+            seed: 3,
+            training_fingerprint: None,
+            training_rows: m.rows,
+            partial: false,
+        };
+        let staged = model.staged_errors(Rows::Binned(&m), &y).unwrap();
+        assert_eq!(staged.len(), 15);
+        assert_eq!(model.training_errors(&m, &y).unwrap(), staged);
+        // Numbers: the mean squared error, summed the same way.
+        let mut text = String::from("y,a,b\n");
+        let mut rng = stream(5, Purpose::TreeRows, 0);
+        for _ in 0..300 {
+            let (a, b) = (below(&mut rng, 1000) as f64, below(&mut rng, 1000) as f64);
+            text += &format!("{},{a},{b}\n", a / 100.0 + (b % 7.0) / 3.0);
+        }
+        let design = design_from_csv(&text, "y", &["a", "b"]);
+        let (stats, width) = design.row_statistics(false);
+        let binned = bin_design(&design, BinSettings::default()).unwrap();
+        let mut s = ForestSettings::random_forest(2, true, 4);
+        s.trees = 9;
+        let forest = fit_forest(&binned, &stats, width, &design.outcome, &s, &mut Silent);
+        let curve = forest.training_error.clone();
+        let model = Model {
+            ensemble: Ensemble::Forest(forest),
+            classes: None,
+            ..model
+        };
+        assert_eq!(
+            model
+                .staged_errors(Rows::Binned(&binned), &design.outcome)
+                .unwrap(),
+            curve
+        );
     }
 
     #[test]

@@ -216,6 +216,7 @@ fn read_block(
                 outputs,
             },
             in_bag,
+            leaves: Vec::new(),
         });
     }
     Ok(())

@@ -280,8 +280,7 @@ pub fn run_split(
         let held = test.select_rows(&keep);
         model.staged_errors(Rows::Records(&records.select_rows(&keep)), &held.outcome)
     };
-    let training_error_by_size =
-        model.staged_errors(Rows::Binned(&fitted.binned), &fitted.design.outcome);
+    let training_error_by_size = model.training_errors(&fitted.binned, &fitted.design.outcome);
     let apparent = bootstrap.then(|| {
         let p = predict_all(model, Rows::Binned(&fitted.binned));
         figures(&fitted.design.outcome, &p, plan.threshold)

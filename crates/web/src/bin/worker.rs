@@ -499,7 +499,9 @@ fn fit(
     // The settings the page sent; every other one is the method's default.
     model.settings = sets.iter().cloned().collect();
     let rows = Rows::Binned(binned);
-    let training_curve = model.staged_errors(rows, &d.outcome).unwrap_or_default();
+    let training_curve = model
+        .training_errors(binned, &d.outcome)
+        .unwrap_or_default();
     let training_error = match training_curve.last() {
         Some(&e) => e,
         // A single tree: its error from its accuracy or RMSE.
