@@ -962,43 +962,40 @@ fn scan<B: Bin>(
     };
     if width == 2 && !limits.bounded && limits.monotone == 0 {
         // The common case (two classes, numbers, gradients; no bounds): the running sums in
-        // registers. The same additions in the same order as below, so the same splits.
-        let (t0, t1, tc) = (total[0], total[1], total[2]);
-        for &missing_left in sides {
-            let (mut l0, mut l1, mut lc) = match missing_left {
-                true => (missing[0], missing[1], missing[2]),
-                false => (0.0, 0.0, 0.0),
-            };
-            for (i, &b) in order.iter().enumerate() {
-                let at = b.index() * 3;
-                l0 += hist[at];
-                l1 += hist[at + 1];
-                lc += hist[at + 2];
-                if lc < min_leaf {
-                    continue;
-                }
-                if tc - lc < min_leaf {
-                    break;
-                }
-                let (l, r) = ([l0, l1], [t0 - l0, t1 - l1]);
-                if criterion.weight(&l) < settings.min_weight_leaf
-                    || criterion.weight(&r) < settings.min_weight_leaf
-                {
-                    continue;
-                }
-                let gain = parent_cost - criterion.cost(&l) - criterion.cost(&r);
-                if best.as_ref().is_none_or(|b| gain > b.gain) {
-                    *best = Some(split_at(
-                        gain,
-                        feature,
-                        numeric,
-                        order,
-                        i,
-                        missing_left,
-                        (0.0, 0.0),
-                    ));
-                }
-            }
+        // registers, and the criterion chosen once here rather than at every split point.
+        let scan = PairScan {
+            hist,
+            order,
+            missing: [missing[0], missing[1], missing[2]],
+            total: [total[0], total[1], total[2]],
+            sides,
+            feature,
+            numeric,
+            parent_cost,
+            min_leaf,
+            min_weight: settings.min_weight_leaf,
+        };
+        match criterion {
+            Criterion::Gini => scan.run(
+                |s| Criterion::Gini.cost(s),
+                |s| Criterion::Gini.weight(s),
+                best,
+            ),
+            Criterion::Entropy => scan.run(
+                |s| Criterion::Entropy.cost(s),
+                |s| Criterion::Entropy.weight(s),
+                best,
+            ),
+            Criterion::SquaredError => scan.run(
+                |s| Criterion::SquaredError.cost(s),
+                |s| Criterion::SquaredError.weight(s),
+                best,
+            ),
+            Criterion::Gradient { l2 } => scan.run(
+                |s| Criterion::Gradient { l2 }.cost(s),
+                |s| Criterion::Gradient { l2 }.weight(s),
+                best,
+            ),
         }
         return;
     }
@@ -1054,6 +1051,69 @@ fn scan<B: Bin>(
                     missing_left,
                     values,
                 ));
+            }
+        }
+    }
+}
+
+/// [`scan`]'s two-statistic loop without bounds, for one criterion's `cost` and `weight`
+/// (each a constant variant, so the compiler drops the match on the criterion). The same
+/// additions in the same order as the general loop, so the same splits.
+struct PairScan<'h, B: Bin> {
+    hist: &'h [f64],
+    order: &'h [B],
+    missing: [f64; 3],
+    total: [f64; 3],
+    sides: &'h [bool],
+    feature: usize,
+    numeric: bool,
+    parent_cost: f64,
+    min_leaf: f64,
+    min_weight: f64,
+}
+
+impl<B: Bin> PairScan<'_, B> {
+    #[inline(always)]
+    fn run(
+        &self,
+        cost: impl Fn(&[f64]) -> f64,
+        weight: impl Fn(&[f64]) -> f64,
+        best: &mut Option<Split>,
+    ) {
+        let [t0, t1, tc] = self.total;
+        let hist = self.hist;
+        for &missing_left in self.sides {
+            let [mut l0, mut l1, mut lc] = match missing_left {
+                true => self.missing,
+                false => [0.0; 3],
+            };
+            for (i, &b) in self.order.iter().enumerate() {
+                let at = b.index() * 3;
+                l0 += hist[at];
+                l1 += hist[at + 1];
+                lc += hist[at + 2];
+                if lc < self.min_leaf {
+                    continue;
+                }
+                if tc - lc < self.min_leaf {
+                    break;
+                }
+                let (l, r) = ([l0, l1], [t0 - l0, t1 - l1]);
+                if weight(&l) < self.min_weight || weight(&r) < self.min_weight {
+                    continue;
+                }
+                let gain = self.parent_cost - cost(&l) - cost(&r);
+                if best.as_ref().is_none_or(|b| gain > b.gain) {
+                    *best = Some(split_at(
+                        gain,
+                        self.feature,
+                        self.numeric,
+                        self.order,
+                        i,
+                        missing_left,
+                        (0.0, 0.0),
+                    ));
+                }
             }
         }
     }
