@@ -705,10 +705,21 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             pw[left..].copy_from_slice(&ps[..len - left]);
         }
         let k = c.start + left;
+        // Missing values the node's rows never had (here or anywhere in training) follow the
+        // side with more rows, as scikit-learn's trees send them (from memory), rather than
+        // always the right.
+        let missing_seen = self.binned.columns[split.feature].missing > 0
+            && self.work[c.start..c.end]
+                .iter()
+                .any(|&r| column[r as usize] == B::MISSING);
+        let missing_left = match missing_seen {
+            true => split.missing_left,
+            false => left > len - left,
+        };
         let node = &mut self.tree.nodes[c.id];
         node.feature = split.feature as u32;
         node.numeric = split.numeric;
-        node.missing_left = split.missing_left;
+        node.missing_left = missing_left;
         node.gain = split.gain;
         node.categories = split.categories;
         if split.numeric {

@@ -51,8 +51,9 @@ pub struct Node {
     pub threshold: f64,
     /// Category splits: the bins sent left.
     pub categories: BinSet,
-    /// Where missing values go (chosen in training by gain; also taken by values the
-    /// training rows of this node never had).
+    /// Where missing values go: chosen in training by gain when the node's rows had some,
+    /// otherwise the side that got more rows. Also taken by category values the training
+    /// rows of this node never had.
     pub missing_left: bool,
     pub left: u32,
     pub right: u32,
