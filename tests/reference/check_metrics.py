@@ -6,7 +6,11 @@ Runs the Rust helper crates/core/examples/metrics_check.rs (path in SPINNEY_METR
 default target/debug/examples/metrics_check; build it with
 `cargo build -p spinney-core --example metrics_check`) on JSON tasks and compares:
 roc_auc_score, average_precision_score, log_loss, brier_score_loss, confusion_matrix,
-roc_curve (drop_intermediate=False), accuracy / balanced accuracy / one-vs-rest macro AUC
+roc_curve (drop_intermediate=False); the calibration slope and its intercept against
+LogisticRegression(penalty=None, newton-cg, tol 1e-12) on logit(p) and
+calibration-in-the-large against scipy's brentq root of the offset model's score equation
+sum w (y - expit(a + logit p)) = 0, both to 1e-6, logits of p clipped to [1e-10, 1 - 1e-10]
+as crates/core/src/metrics/binary.rs does; accuracy / balanced accuracy / one-vs-rest macro AUC
 (multi-class), r2_score, mean_absolute_error, root_mean_squared_error to 1e-9; and the
 baseline coefficients against LogisticRegression(C, solver newton-cg, tol 1e-12) and
 Ridge(alpha) on the same prepared columns (standardised with StandardScaler, i.e. the
@@ -24,6 +28,8 @@ import warnings
 
 import numpy as np
 import sklearn
+from scipy.optimize import brentq
+from scipy.special import expit
 from sklearn.datasets import load_breast_cancer, load_diabetes, load_wine
 from sklearn.linear_model import LogisticRegression, Ridge
 from sklearn.metrics import (accuracy_score, average_precision_score, balanced_accuracy_score,
@@ -173,6 +179,17 @@ def main():
         compare("%s: AUC vs roc_auc_score" % name, r["auc"], roc_auc_score(y, p, sample_weight=w), METRIC_TOL)
         compare("%s: average precision vs average_precision_score" % name, r["average_precision"],
                 average_precision_score(y, p, sample_weight=w), METRIC_TOL)
+        logit = np.log(np.clip(p, 1e-10, 1 - 1e-10) / (1 - np.clip(p, 1e-10, 1 - 1e-10)))
+        recal = LogisticRegression(penalty=None, solver="newton-cg", tol=1e-12, max_iter=1000).fit(
+            logit.reshape(-1, 1), y, sample_weight=w)
+        compare("%s: calibration slope vs LogisticRegression on logit(p)" % name, r["calibration_slope"],
+                recal.coef_[0][0], 1e-6)
+        compare("%s: calibration slope's intercept vs LogisticRegression" % name,
+                r["calibration_slope_intercept"], recal.intercept_[0], 1e-6)
+        ww = np.ones(len(y)) if w is None else w
+        score = lambda a: float(np.sum(ww * (y - expit(a + logit))))  # noqa: E731
+        compare("%s: calibration-in-the-large vs brentq on the offset model" % name,
+                r["calibration_in_the_large"], brentq(score, -20, 20, xtol=1e-14), 1e-6)
         compare("%s: log loss vs log_loss" % name, r["log_loss"], log_loss(y, p, sample_weight=w), METRIC_TOL)
         compare("%s: Brier vs brier_score_loss" % name, r["brier"], brier_score_loss(y, p, sample_weight=w), METRIC_TOL)
         compare("%s: confusion at p >= 0.5 vs confusion_matrix" % name, r["confusion"],

@@ -45,6 +45,7 @@ fn run(task: &Value) -> Result<Value, String> {
             let c = binary::confusion(&y, &p, t, w).map_err(e)?;
             let roc = curves::roc_points(&y, &p, w).map_err(e)?;
             let delong = binary::auc(&y, &p).map_err(e)?;
+            let k = binary::calibration(&y, &p, w).map_err(e)?;
             Ok(json!({
                 "auc": binary::auc_weighted(&y, &p, w).map_err(e)?,
                 "auc_unweighted": delong.value,
@@ -54,6 +55,9 @@ fn run(task: &Value) -> Result<Value, String> {
                 "confusion": [[c.true_negatives, c.false_positives], [c.false_negatives, c.true_positives]],
                 "roc_fpr": roc.iter().map(|r| r.false_positive_rate).collect::<Vec<_>>(),
                 "roc_tpr": roc.iter().map(|r| r.true_positive_rate).collect::<Vec<_>>(),
+                "calibration_in_the_large": k.in_the_large,
+                "calibration_slope": k.slope,
+                "calibration_slope_intercept": k.slope_intercept,
             }))
         }
         "multiclass" => {

@@ -329,106 +329,161 @@ pub fn calibration(
     probabilities: &[f64],
     weights: Option<&[f64]>,
 ) -> Result<Calibration> {
-    const WHAT: &str = "the calibration slope";
-    check_lengths(WHAT, outcomes.len(), probabilities.len(), "predictions")?;
-    check_codes01(WHAT, outcomes)?;
-    check_probabilities(WHAT, probabilities)?;
-    check_weights(WHAT, weights, outcomes.len())?;
-    let (pos, neg) = class_weights(WHAT, outcomes, weights)?;
-    let logits: Vec<f64> = probabilities
-        .iter()
-        .map(|&p| {
-            let p = p.clamp(CALIBRATION_CLIP, 1.0 - CALIBRATION_CLIP);
-            (p / (1.0 - p)).ln()
-        })
-        .collect();
-    let expected_sum: f64 = probabilities
-        .iter()
-        .enumerate()
-        .map(|(i, p)| weight(weights, i) * p)
-        .sum();
-    if expected_sum <= 0.0 {
-        return Err(bad(
-            WHAT,
-            "every prediction is 0, so observed/expected is undefined. Check that these are \
-             the event probabilities",
-        ));
-    }
-    let total = pos + neg;
-    let mean_logit = logits
-        .iter()
-        .enumerate()
-        .map(|(i, l)| weight(weights, i) * l)
-        .sum::<f64>()
-        / total;
-    let spread = logits
-        .iter()
-        .enumerate()
-        .map(|(i, l)| weight(weights, i) * (l - mean_logit).powi(2))
-        .sum::<f64>()
-        / total;
-    if spread <= 1e-12 {
-        return Err(bad(
-            WHAT,
-            "every prediction is the same, so there is no slope to fit. A model that gives \
-             every row the same probability cannot be judged by calibration slope",
-        ));
-    }
-    let y: Vec<f64> = outcomes.iter().map(|&c| f64::from(c)).collect();
-    let in_the_large = newton_logistic(&y, &logits, weights, true)
-        .map(|(a, _)| a)
-        .ok_or_else(|| bad(WHAT, "calibration-in-the-large did not converge"))?;
-    let (slope_intercept, slope) =
-        newton_logistic(&y, &logits, weights, false).ok_or_else(|| {
-            bad(
-                WHAT,
-                "the logistic recalibration did not settle: the predictions separate events from \
-             non-events perfectly, so the slope is unbounded. Judge calibration on more (or \
-             held-out) rows",
-            )
-        })?;
-    Ok(Calibration {
-        in_the_large,
-        slope,
-        slope_intercept,
-        observed_expected: pos / expected_sum,
-        observed: pos / total,
-        expected: expected_sum / total,
-    })
+    CalibrationGroups::new(outcomes, probabilities)?.calibration(weights)
 }
 
-/// Fits logit P(y = 1) = a + b·x by Newton's method with step halving; with `offset_only`
-/// b is fixed at 1 and only a is fitted. Returns (a, b), or None if it does not converge in
-/// 100 steps.
-fn newton_logistic(
-    y: &[f64],
-    x: &[f64],
-    weights: Option<&[f64]>,
-    offset_only: bool,
-) -> Option<(f64, f64)> {
-    let loglik = |a: f64, b: f64| -> f64 {
-        let mut s = 0.0;
-        for i in 0..y.len() {
-            let eta = a + b * x[i];
-            s += weight(weights, i) * (y[i] * eta - softplus(eta));
+/// Rows grouped once by (prediction, outcome) for [`calibration`], so that each of many
+/// resamples (row weights) costs one pass adding up its weights per group and then fits on
+/// the groups: a forest's probabilities are shares of votes over a few hundred trees and take
+/// few distinct values, so its groups are far fewer than its rows. The fit's sums run over
+/// groups in order of prediction.
+#[derive(Debug, Clone)]
+pub struct CalibrationGroups {
+    outcomes: Vec<u32>,
+    /// Each row's group.
+    group_of: Vec<u32>,
+    /// Per group: the prediction, its clipped logit, and the outcome (1 or 0).
+    probability: Vec<f64>,
+    logit: Vec<f64>,
+    event: Vec<f64>,
+}
+
+impl CalibrationGroups {
+    pub fn new(outcomes: &[u32], probabilities: &[f64]) -> Result<Self> {
+        const WHAT: &str = "the calibration slope";
+        check_lengths(WHAT, outcomes.len(), probabilities.len(), "predictions")?;
+        check_codes01(WHAT, outcomes)?;
+        check_probabilities(WHAT, probabilities)?;
+        let mut order: Vec<usize> = (0..outcomes.len()).collect();
+        order.sort_unstable_by(|&a, &b| {
+            probabilities[a]
+                .total_cmp(&probabilities[b])
+                .then(outcomes[a].cmp(&outcomes[b]))
+        });
+        let mut groups = CalibrationGroups {
+            outcomes: outcomes.to_vec(),
+            group_of: vec![0; outcomes.len()],
+            probability: Vec::new(),
+            logit: Vec::new(),
+            event: Vec::new(),
+        };
+        let mut last: Option<(u64, u32)> = None;
+        for &r in &order {
+            let key = (probabilities[r].to_bits(), outcomes[r]);
+            if last != Some(key) {
+                last = Some(key);
+                let p = probabilities[r];
+                let clipped = p.clamp(CALIBRATION_CLIP, 1.0 - CALIBRATION_CLIP);
+                groups.probability.push(p);
+                groups.logit.push((clipped / (1.0 - clipped)).ln());
+                groups.event.push(f64::from(outcomes[r]));
+            }
+            groups.group_of[r] = (groups.probability.len() - 1) as u32;
         }
-        s
+        Ok(groups)
+    }
+
+    /// The calibration figures of the rows with these weights (`None`: every row once).
+    pub fn calibration(&self, weights: Option<&[f64]>) -> Result<Calibration> {
+        const WHAT: &str = "the calibration slope";
+        check_weights(WHAT, weights, self.outcomes.len())?;
+        let (pos, neg) = class_weights(WHAT, &self.outcomes, weights)?;
+        let mut w = vec![0.0; self.probability.len()];
+        for (r, &g) in self.group_of.iter().enumerate() {
+            w[g as usize] += weight(weights, r);
+        }
+        let expected_sum: f64 = w.iter().zip(&self.probability).map(|(w, p)| w * p).sum();
+        if expected_sum <= 0.0 {
+            return Err(bad(
+                WHAT,
+                "every prediction is 0, so observed/expected is undefined. Check that these \
+                 are the event probabilities",
+            ));
+        }
+        let total = pos + neg;
+        let mean_logit = w.iter().zip(&self.logit).map(|(w, l)| w * l).sum::<f64>() / total;
+        let spread = w
+            .iter()
+            .zip(&self.logit)
+            .map(|(w, l)| w * (l - mean_logit).powi(2))
+            .sum::<f64>()
+            / total;
+        if spread <= 1e-12 {
+            return Err(bad(
+                WHAT,
+                "every prediction is the same, so there is no slope to fit. A model that gives \
+                 every row the same probability cannot be judged by calibration slope",
+            ));
+        }
+        let (y, x) = (&self.event[..], &self.logit[..]);
+        let in_the_large = newton_logistic(y, x, &w, true)
+            .map(|(a, _)| a)
+            .ok_or_else(|| bad(WHAT, "calibration-in-the-large did not converge"))?;
+        let (slope_intercept, slope) = newton_logistic(y, x, &w, false).ok_or_else(|| {
+            bad(
+                WHAT,
+                "the logistic recalibration did not settle: the predictions separate events \
+                 from non-events perfectly, so the slope is unbounded. Judge calibration on \
+                 more (or held-out) rows",
+            )
+        })?;
+        Ok(Calibration {
+            in_the_large,
+            slope,
+            slope_intercept,
+            observed_expected: pos / expected_sum,
+            observed: pos / total,
+            expected: expected_sum / total,
+        })
+    }
+}
+
+/// The weighted log-likelihood of logit P(y = 1) = a + b·x at one point, with its gradient
+/// and Hessian (negated), summed in one pass with one exponential and one logarithm a row.
+#[derive(Debug, Clone, Copy)]
+struct LogisticSums {
+    loglik: f64,
+    g: [f64; 2],
+    /// h00, h01, h11.
+    h: [f64; 3],
+}
+
+fn logistic_sums(y: &[f64], x: &[f64], w: &[f64], a: f64, b: f64) -> LogisticSums {
+    let mut s = LogisticSums {
+        loglik: 0.0,
+        g: [0.0; 2],
+        h: [0.0; 3],
     };
+    for i in 0..y.len() {
+        let (wi, xi) = (w[i], x[i]);
+        let eta = a + b * xi;
+        // e^{-|eta|} gives both the sigmoid and ln(1 + e^eta) without overflow.
+        let e = (-eta.abs()).exp();
+        let (mu, softplus) = if eta > 0.0 {
+            (1.0 / (1.0 + e), eta + e.ln_1p())
+        } else {
+            (e / (1.0 + e), e.ln_1p())
+        };
+        s.loglik += wi * (y[i] * eta - softplus);
+        let r = wi * (y[i] - mu);
+        let v = wi * mu * (1.0 - mu);
+        s.g[0] += r;
+        s.g[1] += r * xi;
+        s.h[0] += v;
+        s.h[1] += v * xi;
+        s.h[2] += v * xi * xi;
+    }
+    s
+}
+
+/// Fits logit P(y = 1) = a + b·x with weights `w` by Newton's method with step halving; with
+/// `offset_only` b is fixed at 1 and only a is fitted. Returns (a, b), or None if it does not
+/// converge in 100 steps.
+fn newton_logistic(y: &[f64], x: &[f64], w: &[f64], offset_only: bool) -> Option<(f64, f64)> {
     let (mut a, mut b) = (0.0, 1.0);
-    let mut current = loglik(a, b);
+    let mut at = logistic_sums(y, x, w, a, b);
     for _ in 0..100 {
-        let (mut g0, mut g1, mut h00, mut h01, mut h11) = (0.0, 0.0, 0.0, 0.0, 0.0);
-        for i in 0..y.len() {
-            let w = weight(weights, i);
-            let mu = sigmoid(a + b * x[i]);
-            let r = w * (y[i] - mu);
-            let v = w * mu * (1.0 - mu);
-            g0 += r;
-            g1 += r * x[i];
-            h00 += v;
-            h01 += v * x[i];
-            h11 += v * x[i] * x[i];
-        }
+        let ([g0, g1], [h00, h01, h11]) = (at.g, at.h);
         let (da, db) = if offset_only {
             if h00 <= 0.0 {
                 return None;
@@ -442,14 +497,14 @@ fn newton_logistic(
             ((h11 * g0 - h01 * g1) / det, (h00 * g1 - h01 * g0) / det)
         };
         let mut t = 1.0;
-        let mut next = loglik(a + da, b + db);
-        while next < current - 1e-12 * current.abs() && t > 1e-6 {
+        let mut next = logistic_sums(y, x, w, a + da, b + db);
+        while next.loglik < at.loglik - 1e-12 * at.loglik.abs() && t > 1e-6 {
             t /= 2.0;
-            next = loglik(a + t * da, b + t * db);
+            next = logistic_sums(y, x, w, a + t * da, b + t * db);
         }
         a += t * da;
         b += t * db;
-        current = next;
+        at = next;
         if !(a.is_finite() && b.is_finite()) || b.abs() > 1e6 {
             return None;
         }
@@ -892,6 +947,35 @@ mod tests {
         assert!(close(c.observed_expected, 1.0, 0.03), "{c:?}");
         let c2 = calibration(&y, &half, None).unwrap();
         assert!(close(c2.slope, 2.0, 0.1), "{c2:?}");
+    }
+
+    #[test]
+    fn grouped_calibration_with_weights_equals_the_rows_repeated() {
+        // A row of weight k counts as k copies of it (the definition of a frequency weight);
+        // grouping happens either way, so only the order of the sums differs.
+        let p = [0.1, 0.3, 0.3, 0.6, 0.8, 0.2, 0.6, 0.9, 0.4, 0.3];
+        let y = [0, 1, 0, 1, 1, 0, 0, 1, 1, 0];
+        let w = [2.0, 1.0, 3.0, 0.0, 1.0, 2.0, 1.0, 1.0, 4.0, 1.0];
+        let (mut yr, mut pr) = (Vec::new(), Vec::new());
+        for i in 0..p.len() {
+            for _ in 0..w[i] as usize {
+                yr.push(y[i]);
+                pr.push(p[i]);
+            }
+        }
+        let a = CalibrationGroups::new(&y, &p)
+            .unwrap()
+            .calibration(Some(&w))
+            .unwrap();
+        let b = calibration(&yr, &pr, None).unwrap();
+        for (x, z) in [
+            (a.slope, b.slope),
+            (a.slope_intercept, b.slope_intercept),
+            (a.in_the_large, b.in_the_large),
+            (a.observed_expected, b.observed_expected),
+        ] {
+            assert!(close(x, z, 1e-12), "{a:?} {b:?}");
+        }
     }
 
     #[test]

@@ -248,6 +248,8 @@ pub fn judge(
             let (c, p) = (&codes[..], &p[..]);
             // Sorted once for every resample's average precision.
             let ranked = binary::RankedScores::new(c, p).ok();
+            // Grouped once for every resample's calibration fits.
+            let groups = binary::CalibrationGroups::new(c, p).ok();
             bootstrapped(
                 &[
                     "average_precision",
@@ -268,7 +270,7 @@ pub fn judge(
                         out[2] = Some(b.score);
                         out[3] = Some(b.scaled);
                     }
-                    if let Ok(k) = binary::calibration(c, p, w) {
+                    if let Some(Ok(k)) = groups.as_ref().map(|g| g.calibration(w)) {
                         out[4] = Some(k.in_the_large);
                         out[5] = Some(k.slope);
                         out[6] = Some(k.observed_expected);
