@@ -224,17 +224,22 @@ pub(crate) fn legend<DB: DrawingBackend>(
     look: &Look,
 ) -> Drawn {
     let label = look.text(12.0);
-    let widest = entries
-        .iter()
-        .map(|(t, _)| area.estimate_text_size(t, &label).map_or(0, |s| s.0))
-        .max();
-    let Some(widest) = widest else {
-        return Ok(());
-    };
     let (xs, ys) = plot;
     let (bx, by) = area.get_base_pixel();
     let (pad, mark, gap, row) = (look.px(8.0), look.px(24.0), look.px(6.0), look.px(18.0));
-    let w = pad * 2 + mark + gap + widest as i32;
+    // On a narrow chart, words too long for the plotting area are shortened with an
+    // ellipsis (the table beside the chart keeps them whole).
+    let room = (xs.end - xs.start) - look.px(16.0) - (pad * 2 + mark + gap);
+    let width = |t: &str| area.estimate_text_size(t, &label).map_or(0, |s| s.0 as i32);
+    let entries: Vec<(String, Mark)> = entries
+        .iter()
+        .map(|(t, m)| (shorten_to(t, room, &width), *m))
+        .collect();
+    let widest = entries.iter().map(|(t, _)| width(t)).max();
+    let Some(widest) = widest else {
+        return Ok(());
+    };
+    let w = pad * 2 + mark + gap + widest;
     let h = pad * 2 + row * entries.len() as i32;
     let x0 = match corner {
         Corner::TopLeft => xs.start - bx + look.px(8.0),
@@ -291,6 +296,28 @@ pub(crate) fn legend<DB: DrawingBackend>(
         .map_err(fail)?;
     }
     Ok(())
+}
+
+/// `text`, or as much of its start as fits in `room` pixels (by `width`) followed by "…".
+fn shorten_to(text: &str, room: i32, width: impl Fn(&str) -> i32) -> String {
+    if width(text) <= room {
+        return text.to_string();
+    }
+    let ends: Vec<usize> = text.char_indices().map(|(i, _)| i).skip(1).collect();
+    // The longest start that fits, found by halving (width grows with the characters kept).
+    let (mut lo, mut hi) = (0usize, ends.len());
+    while lo < hi {
+        let mid = (lo + hi).div_ceil(2);
+        if width(&format!("{}…", text[..ends[mid - 1]].trim_end())) <= room {
+            lo = mid;
+        } else {
+            hi = mid - 1;
+        }
+    }
+    match lo {
+        0 => "…".to_string(),
+        k => format!("{}…", text[..ends[k - 1]].trim_end()),
+    }
 }
 
 pub(crate) type Plane<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>;

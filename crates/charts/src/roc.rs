@@ -270,6 +270,32 @@ mod tests {
     }
 
     #[test]
+    fn a_narrow_chart_shortens_long_legend_words_and_keeps_the_box_inside() {
+        let mut runs = example();
+        runs.runs[0].name =
+            "run 3: random forest, 500 trees, judged by 10-fold cross-validation".into();
+        let out = svg("roc-narrow", (300, 300), 1.0, |a, s| draw_roc(a, &runs, s));
+        assert!(
+            !out.contains("judged by 10-fold"),
+            "the long name is shortened"
+        );
+        assert!(out.contains("run 3: random"), "its start is kept");
+        assert!(out.contains('…'));
+        // Every rectangle (the legend's box among them) starts inside the picture.
+        for rect in out.split("<rect").skip(1) {
+            let x: f64 = rect
+                .split("x=\"")
+                .nth(1)
+                .and_then(|t| t.split('"').next()?.parse().ok())
+                .unwrap_or(0.0);
+            assert!(x >= 0.0, "a box starts at x = {x}");
+        }
+        // A wide chart keeps the words whole.
+        let wide = svg("roc-wide", (1400, 600), 1.0, |a, s| draw_roc(a, &runs, s));
+        assert!(wide.contains("judged by 10-fold cross-validation (AUC 0.680)"));
+    }
+
+    #[test]
     fn roc_chart_scales_with_the_pixel_ratio() {
         let one = svg("roc-2", (600, 400), 1.0, |a, s| draw_roc(a, &example(), s));
         let two = svg("roc-3", (1200, 800), 2.0, |a, s| draw_roc(a, &example(), s));
