@@ -233,7 +233,7 @@ pub(crate) fn legend<DB: DrawingBackend>(
     let width = |t: &str| area.estimate_text_size(t, &label).map_or(0, |s| s.0 as i32);
     let entries: Vec<(String, Mark)> = entries
         .iter()
-        .map(|(t, m)| (shorten_to(t, room, &width), *m))
+        .map(|(t, m)| (shorten_to(t, room, width), *m))
         .collect();
     let widest = entries.iter().map(|(t, _)| width(t)).max();
     let Some(widest) = widest else {
