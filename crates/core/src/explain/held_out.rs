@@ -119,9 +119,10 @@ pub fn held_out_permutation(
             reason: format!("{}: {reason}", scheme.words()),
         }));
     }
-    shuffles
-        .metric
-        .check(matches!(design.outcome, crate::design::Outcome::Classes { .. }))?;
+    shuffles.metric.check(matches!(
+        design.outcome,
+        crate::design::Outcome::Classes { .. }
+    ))?;
     let repeats = shuffles.repeats.max(1);
     let s = splits(design, scheme, split_seed)?;
     let count = s.len();
@@ -219,14 +220,7 @@ mod tests {
             let flip = below(&mut rng, 100) < 8;
             let y = (x[0] + 0.7 * x[1] > 0.9) != flip;
             let e = u8::from(r < 2);
-            text += &format!(
-                "{},{},{},{},{},{e}\n",
-                u8::from(y),
-                x[0],
-                x[1],
-                x[2],
-                x[3]
-            );
+            text += &format!("{},{},{},{},{},{e}\n", u8::from(y), x[0], x[1], x[2], x[3]);
         }
         design_from_csv(&text, "y", &["a", "b", "c", "d", "e"])
     }
@@ -290,8 +284,8 @@ mod tests {
             )
             .unwrap();
             // The same model the judging fitted: the same held-out predictions.
-            let judged = run_split(&d, &s, &plan, split, FitOptions::default(), &mut Silent)
-                .unwrap();
+            let judged =
+                run_split(&d, &s, &plan, split, FitOptions::default(), &mut Silent).unwrap();
             let k = fitted.model.outputs();
             let mut mine = vec![0.0; records.rows * k];
             for (r, o) in mine.chunks_exact_mut(k).enumerate() {
@@ -318,7 +312,11 @@ mod tests {
             )
             .unwrap();
             for g in 0..5 {
-                assert_eq!(got.losses[g][i * 3..(i + 1) * 3], p.losses[g][..], "fold {i}");
+                assert_eq!(
+                    got.losses[g][i * 3..(i + 1) * 3],
+                    p.losses[g][..],
+                    "fold {i}"
+                );
             }
         }
         let (m, sd) = mean_and_sd(&got.losses[0]);
