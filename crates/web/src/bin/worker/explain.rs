@@ -26,8 +26,8 @@ use spinney_core::settings::FitSettings;
 use spinney_core::tree::{Rows, Tree};
 use spinney_core::validate::Scheme;
 use spinney_web::protocol::{
-    Contribution, HeldOutImportance, Insight, InsightContributions, InsightDependence, InsightImportance, InsightTree,
-    OutOfBagImportance, TreeNodeView,
+    Contribution, HeldOutImportance, Insight, InsightContributions, InsightDependence,
+    InsightImportance, InsightTree, OutOfBagImportance, TreeNodeView,
 };
 
 use super::{run_on_table, Held, Reporter};
