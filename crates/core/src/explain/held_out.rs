@@ -24,7 +24,7 @@ use crate::progress::{Flow, Progress, Silent};
 use crate::random::{stream, Purpose};
 use crate::settings::FitSettings;
 use crate::spread::{self, Spread};
-use crate::validate::{fit_training_part, splits, InSplit, Scheme};
+use crate::validate::{fit_training_part, splits, Scheme};
 use rand_chacha::rand_core::RngCore;
 
 /// How a permutation figure measured on the training records is described.
@@ -101,7 +101,8 @@ impl HeldOut {
 /// `groups` (indices of the design's predictors) on each part's held-out rows, with
 /// `shuffles.repeats` shuffles per split seeded from `shuffles.seed` and the split. Folds
 /// are spread over `spread`'s threads when given (each then reports nothing until all are
-/// done); otherwise progress per split and tree. May cancel.
+/// done); otherwise progress through each split's fit and shuffles as one share of the whole
+/// ("fold i/n: stage"). May cancel.
 #[allow(clippy::too_many_arguments)]
 pub fn held_out_permutation(
     design: &Design,
@@ -136,15 +137,22 @@ pub fn held_out_permutation(
         let split = &s[i];
         let test = design.select_rows(&split.test);
         let train = design.select_rows(&split.train);
+        let mut part = Part {
+            outer: progress,
+            index: i,
+            count,
+            phase: 0,
+        };
         let (fitted, records) =
-            fit_training_part(train, &test, settings, FitOptions::default(), progress)?;
+            fit_training_part(train, &test, settings, FitOptions::default(), &mut part)?;
+        part.phase = 1;
         permutation(
             &fitted.model,
             &records,
             &test.outcome,
             groups,
             shuffles_of(i),
-            progress,
+            &mut part,
         )
     };
     let stop = || Error::new(ErrorKind::Cancelled);
@@ -160,17 +168,13 @@ pub fn held_out_permutation(
         None => {
             let mut done = Vec::with_capacity(count);
             for i in 0..count {
-                if progress.step("folds", i as u64, count as u64) == Flow::Stop {
+                // On the scale of `Part`'s steps, so a bar moves on evenly.
+                if progress.step("folds", 2000 * i as u64, 2000 * count as u64) == Flow::Stop {
                     return Err(stop());
                 }
-                let mut inner = InSplit {
-                    outer: &mut *progress,
-                    index: i,
-                    count,
-                };
-                done.push(job(i, &mut inner)?);
+                done.push(job(i, &mut *progress)?);
             }
-            progress.step("folds", count as u64, count as u64);
+            progress.step("folds", 2000 * count as u64, 2000 * count as u64);
             done
         }
     };
@@ -196,6 +200,24 @@ pub fn held_out_permutation(
         mean,
         spread,
     })
+}
+
+/// Progress of split `index` of `count` as a share of the whole: its fit (phase 0), then
+/// its shuffles (phase 1), each a half of the split's share, labelled "fold i/n: stage".
+struct Part<'a> {
+    outer: &'a mut dyn Progress,
+    index: usize,
+    count: usize,
+    phase: u64,
+}
+
+impl Progress for Part<'_> {
+    fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
+        let within = (1000 * done.min(total)).checked_div(total).unwrap_or(0);
+        let label = format!("fold {}/{}: {stage}", self.index + 1, self.count);
+        let at = (2 * self.index as u64 + self.phase) * 1000 + within;
+        self.outer.step(&label, at, 2000 * self.count as u64)
+    }
 }
 
 #[cfg(test)]
@@ -448,5 +470,29 @@ mod tests {
         )
         .unwrap_err();
         assert!(matches!(e.kind(), ErrorKind::Cancelled));
+        // Without a stop, one bar over every split's fit and shuffles: never back, one total.
+        struct Seen(Vec<(String, u64, u64)>);
+        impl Progress for Seen {
+            fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
+                self.0.push((stage.to_string(), done, total));
+                Flow::Continue
+            }
+        }
+        let mut seen = Seen(Vec::new());
+        held_out_permutation(
+            &d,
+            &settings(Method::Boosting, &[("rounds", "5")]),
+            &Scheme::parse("folds:3").unwrap(),
+            1,
+            &singles(),
+            shuffles(1),
+            None,
+            &mut seen,
+        )
+        .unwrap();
+        assert!(seen.0.windows(2).all(|w| w[0].1 <= w[1].1), "{:?}", seen.0);
+        assert!(seen.0.iter().all(|x| x.2 == 6000));
+        assert_eq!(seen.0.last().unwrap().1, 6000);
+        assert!(seen.0.iter().any(|x| x.0.starts_with("fold 3/3: ")));
     }
 }
