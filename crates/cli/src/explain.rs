@@ -382,17 +382,7 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
             args.repeats,
             args.seed
         );
-        let mut order: Vec<usize> = (0..p.groups.len()).collect();
-        order.sort_by(|&a, &b| p.mean[b].total_cmp(&p.mean[a]));
-        for i in order {
-            let label: Vec<&str> = p.groups[i].iter().map(|&j| names[j].as_str()).collect();
-            println!(
-                "  {:<28} {:>9.4} ± {:.4}",
-                label.join(" + "),
-                p.mean[i],
-                p.spread[i]
-            );
-        }
+        print_entries(&p.groups, &p.mean, &p.spread, &names);
         if let Some(g) = out["suggested_groups"].as_array().filter(|g| !g.is_empty()) {
             let shown: Vec<String> = g
                 .iter()
@@ -425,17 +415,7 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
             h.repeats,
             h.seed
         );
-        let mut order: Vec<usize> = (0..h.groups.len()).collect();
-        order.sort_by(|&a, &b| h.mean[b].total_cmp(&h.mean[a]));
-        for i in order {
-            let label: Vec<&str> = h.groups[i].iter().map(|&j| names[j].as_str()).collect();
-            println!(
-                "  {:<28} {:>9.4} ± {:.4}",
-                label.join(" + "),
-                h.mean[i],
-                h.spread[i]
-            );
-        }
+        print_entries(&h.groups, &h.mean, &h.spread, &names);
     }
     if let Some(o) = &oob {
         println!(
@@ -473,6 +453,22 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
         }
     }
     Ok(())
+}
+
+/// Permutation importance entries, largest mean loss first: the predictors (joined by " + "
+/// for a group), mean ± sd.
+fn print_entries(groups: &[Vec<usize>], mean: &[f64], spread: &[f64], names: &[String]) {
+    let mut order: Vec<usize> = (0..groups.len()).collect();
+    order.sort_by(|&a, &b| mean[b].total_cmp(&mean[a]));
+    for i in order {
+        let label: Vec<&str> = groups[i].iter().map(|&j| names[j].as_str()).collect();
+        println!(
+            "  {:<28} {:>9.4} ± {:.4}",
+            label.join(" + "),
+            mean[i],
+            spread[i]
+        );
+    }
 }
 
 /// What `--held-out SCHEME` refits: the model's design read again from FILE (its
