@@ -187,17 +187,26 @@ pub fn explain(
                         },
                         None,
                         &mut Reporter::new(id),
-                    )
-                    .map_err(|e| e.to_string())?;
-                    held_out = Some(HeldOutImportance {
-                        words: h.words(),
-                        splits: h.splits(),
-                        repeats: h.repeats,
-                        seed: h.seed,
-                        baseline: h.baseline(),
-                        mean: h.mean,
-                        spread: h.spread,
-                    });
+                    );
+                    // A judging the splits refused (its refusal is shown with the run) leaves
+                    // the training-record figure, with the reason.
+                    match h {
+                        Ok(h) => {
+                            held_out = Some(HeldOutImportance {
+                                words: h.words(),
+                                splits: h.splits(),
+                                repeats: h.repeats,
+                                seed: h.seed,
+                                baseline: h.baseline(),
+                                mean: h.mean,
+                                spread: h.spread,
+                            })
+                        }
+                        Err(e) => {
+                            held_out_missing =
+                                Some(format!("its judging's splits could not be refitted: {e}"))
+                        }
+                    }
                 }
                 (_, Some(scheme)) => {
                     held_out_missing = why_not_held_out(&scheme).map(str::to_string);
