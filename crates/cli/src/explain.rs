@@ -1,7 +1,9 @@
 //! `spinney explain MODEL FILE`: what drives a saved model and why single records scored as
 //! they did, on the rows of FILE: importance (permutation on the file's rows with its
 //! outcome, or impurity from the trees; out-of-bag permutation importance too for bagging
-//! and forests when FILE is the training file), per-record contributions (TreeSHAP),
+//! and forests when FILE is the training file; with `--held-out SCHEME`, permutation
+//! importance on held-out records, refitting the model's settings on each training part of
+//! the training file, see `spinney_core::explain::held_out`), per-record contributions (TreeSHAP),
 //! partial dependence and ICE curves for one predictor or a pair, and the strongest pairwise
 //! interactions (Friedman's H). A readable report, or JSON with `--json`. All of it comes
 //! from `spinney_core::explain`.
@@ -11,9 +13,11 @@ use std::path::PathBuf;
 use anyhow::{bail, Context};
 use serde_json::{json, Value};
 use spinney_core::binning::Records;
+use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::explain::dependence::{
     grid, interactions, label_of, partial_dependence, predictor_index, sample_rows, Dependence,
 };
+use spinney_core::explain::held_out::{held_out_permutation, why_not_held_out, HeldOut, APPARENT};
 use spinney_core::explain::importance::{
     impurity, out_of_bag, permutation, suggest_groups, Metric, OutOfBag, Permutation, Shuffles,
     IMPURITY_CAUTION,
@@ -23,6 +27,8 @@ use spinney_core::explain::{model_outcome, CAUTION};
 use spinney_core::model::{Ensemble, Model};
 use spinney_core::model_file::read_model;
 use spinney_core::progress::Silent;
+use spinney_core::settings::FitSettings;
+use spinney_core::validate::Scheme;
 
 /// The arguments of `spinney explain`.
 #[derive(clap::Args)]
@@ -68,6 +74,22 @@ pub struct ExplainArgs {
     /// Seed of the shuffles and samples.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
+    /// Permutation importance on held-out records too: the model's settings refitted on each
+    /// training part of SCHEME (holdout:FRACTION, folds:K[:REPEATS] or groups:K:COLUMN, as
+    /// `spinney evaluate --validate`) of FILE, which must be the file the model was trained
+    /// on, each predictor shuffled within the part held out.
+    #[arg(long = "held-out", value_name = "SCHEME")]
+    pub held_out: Option<String>,
+    /// Seed of --held-out's splits (default: the model's seed, as `spinney evaluate --seed`
+    /// sets both).
+    #[arg(long, value_name = "N")]
+    pub split_seed: Option<u64>,
+    /// The column of row weights the model was fitted with, for --held-out's refits.
+    #[arg(long, value_name = "COLUMN")]
+    pub weight: Option<String>,
+    /// Threads for --held-out's folds (default: every core); the figures are the same.
+    #[arg(long)]
+    pub threads: Option<usize>,
     /// Print machine-readable JSON instead of a report.
     #[arg(long)]
     pub json: bool,
@@ -164,6 +186,10 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
         }
         None => Vec::new(),
     };
+    let held_out = match &args.held_out {
+        None => None,
+        Some(text) => Some(held_out_design(&args, &model, table, text, training_file)?),
+    };
     let contribution_rows = match args.contributions.as_deref() {
         None => None,
         Some("all") => Some(None),
@@ -218,6 +244,7 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
             .map(|g| g.iter().map(|&j| names[j].clone()).collect::<Vec<_>>())
             .collect::<Vec<_>>());
         out["permutation"] = json!({
+            "basis": if training_file { APPARENT } else { "on the file's records" },
             "metric": metric.word(), "baseline": p.baseline, "repeats": args.repeats, "seed": args.seed,
             "rows": kept.rows,
             "entries": p.groups.iter().enumerate().map(|(i, g)| json!({
@@ -229,6 +256,39 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
             out["out_of_bag"] = json!({ "error": o.error, "trees": o.trees, "mean": o.mean, "standard_error": o.standard_error });
         }
         perm = Some(p);
+    }
+    let mut held: Option<HeldOut> = None;
+    if let Some((design, settings, scheme, split_seed)) = &held_out {
+        let spread = |count: usize, job: &(dyn Fn(usize) + Sync)| {
+            crate::evaluate::spread_jobs(args.threads, count, job)
+        };
+        let h = held_out_permutation(
+            design,
+            settings,
+            scheme,
+            *split_seed,
+            &groups,
+            Shuffles {
+                metric,
+                repeats: args.repeats,
+                seed: args.seed,
+            },
+            Some(&spread),
+            &mut Silent,
+        )
+        .map_err(|e| anyhow::anyhow!("--held-out {}: {file}: {e}", scheme.words()))?;
+        out["held_out"] = json!({
+            "basis": h.words(), "scheme": h.scheme, "split_seed": h.split_seed,
+            "metric": metric.word(), "repeats": h.repeats, "seed": h.seed,
+            "splits": h.splits(), "baseline": h.baseline(), "fold_baselines": h.baselines,
+            // Each split's held-out records as the file's row numbers (from 1).
+            "held_out_rows": h.held_out_rows.iter().map(|rows| rows.iter().map(|&r| design.rows[r] + 1).collect::<Vec<_>>()).collect::<Vec<_>>(),
+            "entries": h.groups.iter().enumerate().map(|(i, g)| json!({
+                "predictors": g.iter().map(|&j| names[j].clone()).collect::<Vec<_>>(),
+                "mean": h.mean[i], "spread": h.spread[i], "losses": h.losses[i],
+            })).collect::<Vec<_>>(),
+        });
+        held = Some(h);
     }
 
     let contrib = match contribution_rows {
@@ -313,25 +373,16 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
     println!("  caution: {IMPURITY_CAUTION}");
     if let Some(p) = &perm {
         println!(
-            "\nPermutation importance on {} rows: loss of {} when shuffled (baseline {:.4}; \
+            "\nPermutation importance {} ({} rows): loss of {} when shuffled (baseline {:.4}; \
              mean ± sd over {} shuffles, seed {}):",
+            out["permutation"]["basis"].as_str().unwrap_or_default(),
             out["permutation"]["rows"],
             p.metric.word(),
             p.baseline,
             args.repeats,
             args.seed
         );
-        let mut order: Vec<usize> = (0..p.groups.len()).collect();
-        order.sort_by(|&a, &b| p.mean[b].total_cmp(&p.mean[a]));
-        for i in order {
-            let label: Vec<&str> = p.groups[i].iter().map(|&j| names[j].as_str()).collect();
-            println!(
-                "  {:<28} {:>9.4} ± {:.4}",
-                label.join(" + "),
-                p.mean[i],
-                p.spread[i]
-            );
-        }
+        print_entries(&p.groups, &p.mean, &p.spread, &names);
         if let Some(g) = out["suggested_groups"].as_array().filter(|g| !g.is_empty()) {
             let shown: Vec<String> = g
                 .iter()
@@ -349,6 +400,22 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
                 shown.join(" --group ")
             );
         }
+    }
+    if let Some(h) = &held {
+        println!(
+            "\nPermutation importance {} (--held-out {}, split seed {}): the model's settings \
+             refitted on each training part, loss of {} when shuffled within the part held out \
+             (mean baseline {:.4}); mean ± sd over {} splits × {} shuffles, seed {}:",
+            h.words(),
+            h.scheme,
+            h.split_seed,
+            h.metric.word(),
+            h.baseline(),
+            h.splits(),
+            h.repeats,
+            h.seed
+        );
+        print_entries(&h.groups, &h.mean, &h.spread, &names);
     }
     if let Some(o) = &oob {
         println!(
@@ -386,6 +453,93 @@ pub fn explain(args: ExplainArgs) -> anyhow::Result<()> {
         }
     }
     Ok(())
+}
+
+/// Permutation importance entries, largest mean loss first: the predictors (joined by " + "
+/// for a group), mean ± sd.
+fn print_entries(groups: &[Vec<usize>], mean: &[f64], spread: &[f64], names: &[String]) {
+    let mut order: Vec<usize> = (0..groups.len()).collect();
+    order.sort_by(|&a, &b| mean[b].total_cmp(&mean[a]));
+    for i in order {
+        let label: Vec<&str> = groups[i].iter().map(|&j| names[j].as_str()).collect();
+        println!(
+            "  {:<28} {:>9.4} ± {:.4}",
+            label.join(" + "),
+            mean[i],
+            spread[i]
+        );
+    }
+}
+
+/// What `--held-out SCHEME` refits: the model's design read again from FILE (its
+/// predictors, outcome classes in the model's order, `--weight`, the scheme's group column),
+/// its settings as the model file records them, the scheme and the seed of its splits. All
+/// checked before any long work.
+fn held_out_design(
+    args: &ExplainArgs,
+    model: &Model,
+    table: &spinney_core::data::Table,
+    text: &str,
+    training_file: bool,
+) -> anyhow::Result<(spinney_core::design::Design, FitSettings, Scheme, u64)> {
+    let scheme = Scheme::parse(text).map_err(|e| anyhow::anyhow!("--held-out {e}"))?;
+    if let Some(reason) = why_not_held_out(&scheme) {
+        bail!("--held-out {text}: {reason}; use holdout:FRACTION, folds:K[:REPEATS] or groups:K:COLUMN");
+    }
+    if args.importance != "permutation" {
+        bail!(
+            "--held-out {text} measures permutation importance; drop --importance {}",
+            args.importance
+        );
+    }
+    if !training_file {
+        bail!(
+            "--held-out {text} refits the model on the file it was trained on, and {} is not \
+             that file (its SHA-256 differs from the model's); give the training file, or drop \
+             --held-out: importance on new records is already held out",
+            args.file.display()
+        );
+    }
+    if model.partial {
+        bail!("--held-out {text}: this model is partial (fitting was cancelled), so its settings would refit a different model; fit it again in full");
+    }
+    let positive = match &model.classes {
+        Some(c) if c.len() == 2 => Some(c[1].clone()),
+        _ => None,
+    };
+    let spec = DesignSpec {
+        outcome: model.outcome.clone(),
+        predictors: model.predictors.iter().map(|p| p.name.clone()).collect(),
+        weight: args.weight.clone(),
+        group: match &scheme {
+            Scheme::Groups { column, .. } => Some(column.clone()),
+            _ => None,
+        },
+        positive,
+    };
+    let design =
+        build_design(table, &spec).map_err(|e| anyhow::anyhow!("--held-out {text}: {e}"))?;
+    let classes = match &design.outcome {
+        Outcome::Classes { labels, .. } => Some(labels.clone()),
+        Outcome::Numbers(_) => None,
+    };
+    if classes != model.classes || design.predictors.len() != model.predictors.len() {
+        bail!("--held-out {text}: the file's outcome or predictors no longer match the model's; refit it");
+    }
+    let settings = FitSettings::from_described(
+        model.method,
+        design.predictors.len(),
+        classes.is_none(),
+        &model.outcome,
+        &model.settings,
+    )
+    .map_err(|e| anyhow::anyhow!("--held-out {text}: the model file's settings: {e}"))?;
+    Ok((
+        design,
+        settings,
+        scheme,
+        args.split_seed.unwrap_or(model.seed),
+    ))
 }
 
 /// Row numbers from 1 ("3,10-12") as 0-based indices, checked against `rows`.

@@ -302,3 +302,82 @@ fn bad_requests_are_refused_with_what_to_do() {
         ],
     );
 }
+
+#[test]
+fn held_out_importance_refits_evaluates_folds_on_any_threads_and_refuses_what_it_cannot() {
+    // The training file's 3-fold importance: each fold's figure as the records are equals
+    // `spinney evaluate --validate folds:3`'s per-fold AUC (the same refits: the model's
+    // settings, seed 1 for the model and the splits), and threads change nothing.
+    let (model, test) = saved("boosting", "rounds=30");
+    let train = test.with_file_name("train-boosting-rounds-30.csv");
+    let run = |threads: &str| {
+        json(&succeeds(&[
+            "explain",
+            s(&model),
+            s(&train),
+            "--json",
+            "--held-out",
+            "folds:3",
+            "--repeats",
+            "2",
+            "--interactions",
+            "0",
+            "--threads",
+            threads,
+        ]))
+    };
+    let one = run("1");
+    assert_eq!(one["held_out"], run("2")["held_out"]);
+    assert_eq!(one["held_out"]["basis"], "on held-out records, 3 folds");
+    assert_eq!(
+        one["permutation"]["basis"],
+        "on training records (apparent)"
+    );
+    let judged = json(&succeeds(&[
+        "evaluate",
+        s(&train),
+        "--outcome",
+        "complication_30d",
+        "--method",
+        "boosting",
+        "--set",
+        "rounds=30",
+        "--validate",
+        "folds:3",
+        "--resamples",
+        "0",
+        "--json",
+    ]));
+    let folds = judged["folds"].as_array().unwrap();
+    let baselines = one["held_out"]["fold_baselines"].as_array().unwrap();
+    assert_eq!(folds.len(), 3);
+    for (f, b) in folds.iter().zip(baselines) {
+        let (a, b) = (f["figures"]["auc"].as_f64().unwrap(), b.as_f64().unwrap());
+        assert!((a - b).abs() < 1e-12, "fold AUC {a} vs {b}");
+    }
+    let m = s(&model);
+    fails_with(
+        &["explain", m, s(&test), "--held-out", "folds:3"],
+        &["--held-out folds:3", "not", "training file"],
+    );
+    fails_with(
+        &["explain", m, s(&train), "--held-out", "bootstrap:20"],
+        &["bootstrap", "apparent", "folds:K"],
+    );
+    fails_with(
+        &["explain", m, s(&train), "--held-out", "folds:1"],
+        &["--held-out", "at least 2"],
+    );
+    fails_with(
+        &[
+            "explain",
+            m,
+            s(&train),
+            "--held-out",
+            "folds:3",
+            "--importance",
+            "impurity",
+        ],
+        &["permutation", "--importance impurity"],
+    );
+}

@@ -36,6 +36,8 @@ pub enum Purpose {
     OutOfBagPermutation = 13,
     /// The records sampled for ICE curves and the H statistic (`index` 0).
     ExplainSample = 14,
+    /// The seed of split `index`'s shuffles in held-out permutation importance (explain).
+    HeldOutPermutation = 15,
 }
 
 /// The stream for (`seed`, `purpose`, `index`).

@@ -338,6 +338,43 @@ impl FitSettings {
         Ok(s)
     }
 
+    /// The settings a model file records ([`FitSettings::describe`]'s words, as a fit
+    /// wrote them) read back, so a saved model can be fitted again with the same settings
+    /// (held-out importance refits them). The words only `describe` writes ("unlimited",
+    /// "all", "none") return to the defaults' open values.
+    pub fn from_described(
+        method: Method,
+        predictors: usize,
+        regression: bool,
+        outcome: &str,
+        described: &BTreeMap<String, String>,
+    ) -> Result<FitSettings, String> {
+        let mut sets = Vec::new();
+        let mut open = Vec::new();
+        for (name, value) in described {
+            match (name.as_str(), value.as_str()) {
+                ("depth" | "leaves" | "predictors_per_split" | "patience", "unlimited")
+                | ("predictors_per_split", "all")
+                | ("patience", "none") => open.push(name.as_str()),
+                ("criterion", "gradient") => {}
+                _ => sets.push((name.clone(), value.clone())),
+            }
+        }
+        let mut s = FitSettings::build(method, predictors, regression, outcome, &sets)?;
+        for name in open {
+            match name {
+                "depth" => s.grow.max_depth = None,
+                "leaves" => s.grow.max_leaves = None,
+                "predictors_per_split" => s.forest.predictors_per_split = None,
+                _ => s.boosting.patience = None,
+            }
+        }
+        s.forest.grow = s.grow;
+        s.boost.grow = s.grow;
+        s.boosting.grow = s.grow;
+        Ok(s)
+    }
+
     /// Every setting in effect for the method, by its name, as text (what a model file
     /// records). The loss of gradient boosting is the one asked for; the fit adds the one in
     /// effect when it follows the outcome.
@@ -536,6 +573,31 @@ mod tests {
     }
 
     #[test]
+    fn every_methods_described_settings_read_back_the_same() {
+        for method in [
+            Method::Tree,
+            Method::Bagging,
+            Method::Forest,
+            Method::AdaBoost,
+            Method::Boosting,
+        ] {
+            for regression in [false, true] {
+                let Ok(s) = FitSettings::build(method, 6, regression, "y", &[]) else {
+                    continue;
+                };
+                let d = s.describe();
+                let back = FitSettings::from_described(method, 6, regression, "y", &d).unwrap();
+                // Every setting in effect (fields of other methods may differ unseen).
+                assert_eq!(back.describe(), d, "{method:?} {regression}");
+                assert_eq!(
+                    (back.grow, back.bins, back.method),
+                    (s.grow, s.bins, s.method)
+                );
+            }
+        }
+    }
+
+    #[test]
     fn boosting_settings_reach_boosting() {
         let s = FitSettings::build(
             Method::Boosting,
@@ -564,6 +626,9 @@ mod tests {
             vec![("dose".to_string(), -1), ("age".to_string(), 0)]
         );
         let d = s.describe();
+        // Read back from the words a model file keeps, the same settings.
+        let back = FitSettings::from_described(Method::Boosting, 2, true, "y", &d).unwrap();
+        assert_eq!(back.describe(), d);
         assert_eq!(d["rounds"], "40");
         assert_eq!(d["monotone"], "dose:down,age:none");
         assert!(!d.contains_key("trees"));

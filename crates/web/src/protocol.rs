@@ -192,6 +192,30 @@ pub struct InsightImportance {
     /// the mean increase in each tree's error on its own out-of-bag rows and its standard
     /// error over the trees.
     pub out_of_bag: Option<OutOfBagImportance>,
+    /// Runs judged by holdout, k-fold or grouped folds (not bagging or forests): permutation
+    /// importance on held-out records, the judging's splits refitted
+    /// (spinney_core::explain::held_out).
+    #[serde(default)]
+    pub held_out: Option<HeldOutImportance>,
+    /// Why a run that is not bagging or a forest has no held-out figure (not judged, or
+    /// judged by bootstrap).
+    #[serde(default)]
+    pub held_out_missing: Option<String>,
+}
+
+/// Permutation importance on held-out records: where ("on held-out records, 5 folds"), the
+/// splits refitted, shuffles per split and their seed, the figure's mean over the splits as
+/// the records are, and per predictor the mean loss and its standard deviation over splits ×
+/// shuffles.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct HeldOutImportance {
+    pub words: String,
+    pub splits: usize,
+    pub repeats: usize,
+    pub seed: u64,
+    pub baseline: f64,
+    pub mean: Vec<f64>,
+    pub spread: Vec<f64>,
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]

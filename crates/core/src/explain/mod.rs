@@ -8,6 +8,8 @@
 //! - [`importance`]: impurity importance, permutation importance on given rows (repeated,
 //!   grouped, groups suggested from correlation) and out-of-bag permutation importance per
 //!   tree for bagging and forests (Breiman 2001);
+//! - [`held_out`]: permutation importance on held-out records, refitting the judging's
+//!   splits (holdout, k-fold, grouped folds);
 //! - [`dependence`]: partial dependence for one predictor or a pair (Friedman 2001), ICE
 //!   curves (Goldstein et al. 2015), counts per grid cell, Friedman's H statistic.
 //!
@@ -15,6 +17,7 @@
 //! TreeSHAP explains), and reading a table's outcome in the model's terms.
 
 pub mod dependence;
+pub mod held_out;
 pub mod importance;
 pub mod shap;
 

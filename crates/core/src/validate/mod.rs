@@ -245,6 +245,25 @@ fn predict_all(model: &Model, rows: Rows<'_>) -> Vec<f64> {
     out
 }
 
+/// Fits a split's training rows `train` as judging does (bins learnt from them alone) and
+/// reads its test rows `test` by that fit's bins; a cancelled (partial) fit is an error.
+/// [`run_split`] and held-out permutation importance
+/// ([`crate::explain::held_out`]) both refit through here, so they fit the same models.
+pub fn fit_training_part(
+    train: Design,
+    test: &Design,
+    settings: &FitSettings,
+    options: FitOptions<'_>,
+    progress: &mut dyn Progress,
+) -> Result<(Fitted, Records)> {
+    let fitted = fit_design(train, settings, None, options, progress)?;
+    if fitted.model.partial {
+        return Err(cancelled());
+    }
+    let records = records_of(test, &fitted.binned.columns);
+    Ok((fitted, records))
+}
+
 /// Fits `split`'s training rows and predicts its test rows.
 pub fn run_split(
     design: &Design,
@@ -263,12 +282,8 @@ pub fn run_split(
     } else {
         (None, None)
     };
-    let fitted = fit_design(train, settings, None, options, progress)?;
-    if fitted.model.partial {
-        return Err(cancelled());
-    }
+    let (fitted, records) = fit_training_part(train, &test, settings, options, progress)?;
     let model = &fitted.model;
-    let records = records_of(&test, &fitted.binned.columns);
     let predictions = predict_all(model, Rows::Records(&records));
     // The out-of-sample test rows (all but a bootstrap resample's own rows).
     let error_by_size = if split.out_of_sample.iter().all(|&o| o) {

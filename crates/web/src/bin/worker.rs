@@ -55,6 +55,8 @@ struct Run {
     /// of the fitted design, the probability of the second class (NaN where the row has
     /// none). Two-class outcomes only.
     judged: Option<JudgedRows>,
+    /// How it was judged (held-out importance refits the same splits).
+    judging: Option<Judging>,
 }
 
 /// A judged run's scheme in words and, per row of its design, its out-of-sample probability
@@ -570,6 +572,7 @@ fn fit(
         design,
         model: fitted.model,
         judged,
+        judging,
     });
     Ok(result)
 }

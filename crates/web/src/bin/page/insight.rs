@@ -1,6 +1,7 @@
 //! Step 5, insight into one chosen run (the worker computes, see worker/explain.rs): which
 //! predictors it leans on (out-of-bag permutation importance for bagging and forests,
-//! permutation on the training rows, impurity importance with its caution), how its
+//! permutation on held-out records for other runs judged by holdout or folds, permutation
+//! on the training rows, marked apparent, impurity importance with its caution), how its
 //! prediction moves with one chosen predictor (partial dependence, ICE curves and the data's
 //! counts), why one chosen record scored as it did (TreeSHAP contributions from the base
 //! value to the prediction), and a picture of its first tree (a big one summarised). Each
@@ -293,10 +294,15 @@ pub fn refused(page: &Shared, id: u32, text: &str) {
     message(&p.doc, &format!("{text}."));
 }
 
-/// The predictor with the largest out-of-bag (or else permutation) importance.
+/// The predictor with the largest out-of-bag (or else held-out, or else training-record)
+/// permutation importance.
 fn top_predictor(d: &protocol::Insight) -> Option<String> {
     let imp = d.importance.as_ref()?;
-    let values = imp.out_of_bag.as_ref().map_or(&imp.mean, |o| &o.mean);
+    let values = match (&imp.out_of_bag, &imp.held_out) {
+        (Some(o), _) => &o.mean,
+        (None, Some(h)) => &h.mean,
+        (None, None) => &imp.mean,
+    };
     let best = (0..values.len()).max_by(|&a, &b| values[a].total_cmp(&values[b]))?;
     d.predictors.get(best).cloned()
 }
@@ -380,8 +386,33 @@ fn render_importance(p: &Page, d: &protocol::Insight, imp: &protocol::InsightImp
             })
             .collect()
     };
-    let (chart, facts) = match &imp.out_of_bag {
-        Some(o) => (
+    // Which records each figure comes from, in words and as `data-basis` (for the tests).
+    let basis = |kind: &str, words: &str| {
+        format!(
+            "<span class=\"basis\" data-basis=\"{kind}\">{}</span>",
+            esc(words)
+        )
+    };
+    let (chart, facts) = match (&imp.out_of_bag, &imp.held_out) {
+        (None, Some(h)) => (
+            ImportanceChart {
+                title: String::new(),
+                value_label: format!("loss of {} when the predictor is shuffled", imp.metric),
+                bars: bars(&h.mean, Some(h.spread.as_slice())),
+                caption: format!(
+                    "{}. Whiskers: ± one standard deviation over {} splits × {} shuffles.",
+                    capitalised(&h.words),
+                    h.splits,
+                    h.repeats
+                ),
+                colour: PALETTE[0],
+            },
+            format!(
+                "<strong>Shuffling on held-out records</strong> ({}): the run's settings refitted on the training part of each of the {} splits its judging used, then how much the {} ({:.4} on average as the held-out records are) worsens when one predictor's values are shuffled among the records that split's model did not learn from; mean ± standard deviation over splits × {} shuffles (seed {}). The training-record figure (apparent) is in the second table.",
+                basis("held-out", &h.words), h.splits, esc(&imp.metric), h.baseline, h.repeats, h.seed
+            ),
+        ),
+        (Some(o), _) => (
             ImportanceChart {
                 title: String::new(),
                 value_label: format!("rise in each tree's {} on its out-of-bag records", o.error),
@@ -394,7 +425,7 @@ fn render_importance(p: &Page, d: &protocol::Insight, imp: &protocol::InsightImp
                 o.trees, esc(&o.error)
             ),
         ),
-        None => (
+        (None, None) => (
             ImportanceChart {
                 title: String::new(),
                 value_label: format!("loss of {} when the predictor is shuffled", imp.metric),
@@ -406,8 +437,10 @@ fn render_importance(p: &Page, d: &protocol::Insight, imp: &protocol::InsightImp
                 colour: PALETTE[0],
             },
             format!(
-                "<strong>Shuffling on the training records</strong>: how much the {} ({:.4} as the records are) worsens when one predictor's values are shuffled across {}; mean ± standard deviation over {} shuffles (seed {}). <span class=\"apparent-note\">Only bagging and forests keep out-of-bag records; for this run the figure comes from records it learnt from.</span>",
-                esc(&imp.metric), imp.baseline, esc(&imp.rows_words), imp.repeats, imp.seed
+                "<strong>Shuffling {}</strong>: how much the {} ({:.4} as the records are) worsens when one predictor's values are shuffled across {}; mean ± standard deviation over {} shuffles (seed {}). <span class=\"apparent-note\">No records were held out from this run ({}); the figure comes from records it learnt from.</span>",
+                basis("apparent", "on training records (apparent)"),
+                esc(&imp.metric), imp.baseline, esc(&imp.rows_words), imp.repeats, imp.seed,
+                esc(imp.held_out_missing.as_deref().unwrap_or("only bagging and forests keep out-of-bag records"))
             ),
         ),
     };
@@ -425,9 +458,10 @@ fn render_importance(p: &Page, d: &protocol::Insight, imp: &protocol::InsightImp
     draw_by_id(doc, "impurity-canvas", 0.6, &|area, s| {
         draw_importance(area, &impurity, s)
     });
-    // Shuffling on the training records too, when the chart shows out-of-bag figures.
+    // Shuffling on the training records too, when the chart shows out-of-bag or held-out
+    // figures.
     let mut html = table_html(&importance_table(&chart));
-    if imp.out_of_bag.is_some() {
+    if imp.out_of_bag.is_some() || imp.held_out.is_some() {
         let training = ImportanceChart {
             title: String::new(),
             value_label: String::new(),
@@ -446,6 +480,14 @@ fn render_importance(p: &Page, d: &protocol::Insight, imp: &protocol::InsightImp
         "impurity-numbers",
         &table_html(&importance_table(&impurity)),
     );
+}
+
+/// `text` with its first letter in capitals.
+fn capitalised(text: &str) -> String {
+    let mut c = text.chars();
+    c.next()
+        .map(|f| f.to_uppercase().chain(c).collect())
+        .unwrap_or_default()
 }
 
 fn render_dependence(p: &Page, dep: &protocol::InsightDependence) {

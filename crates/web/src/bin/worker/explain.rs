@@ -2,8 +2,10 @@
 //! beside scored records), all from `spinney_core::explain` and called as `spinney explain`
 //! calls it (crates/cli/src/explain.rs), with the same defaults, so the page and the command
 //! line give the same numbers on the same data: impurity importance with its caution;
-//! permutation importance on the rows with an outcome (5 shuffles, seed 1) and, for bagging
-//! and forests, Breiman's out-of-bag importance; partial dependence and ICE curves on a
+//! permutation importance on the rows with an outcome (5 shuffles, seed 1; apparent) and,
+//! for bagging and forests, Breiman's out-of-bag importance, for other runs judged by
+//! holdout, k-fold or grouped folds, permutation importance on held-out records (the
+//! judging's splits refitted, as `spinney explain --held-out`); partial dependence and ICE curves on a
 //! sample of 1,000 rows (20 grid values, 50 curves); one record's TreeSHAP contributions;
 //! the first tree as boxes.
 
@@ -12,6 +14,7 @@ use spinney_core::ensemble::forest::argmax;
 use spinney_core::explain::dependence::{
     grid, label_of, partial_dependence, predictor_index, sample_rows,
 };
+use spinney_core::explain::held_out::{held_out_permutation, why_not_held_out, APPARENT};
 use spinney_core::explain::importance::{
     impurity, out_of_bag, permutation, Metric, Shuffles, IMPURITY_CAUTION,
 };
@@ -21,9 +24,10 @@ use spinney_core::model::{Ensemble, Model, Reading};
 use spinney_core::progress::Silent;
 use spinney_core::settings::FitSettings;
 use spinney_core::tree::{Rows, Tree};
+use spinney_core::validate::Scheme;
 use spinney_web::protocol::{
-    Contribution, Insight, InsightContributions, InsightDependence, InsightImportance, InsightTree,
-    OutOfBagImportance, TreeNodeView,
+    Contribution, HeldOutImportance, Insight, InsightContributions, InsightDependence,
+    InsightImportance, InsightTree, OutOfBagImportance, TreeNodeView,
 };
 
 use super::{run_on_table, Held, Reporter};
@@ -153,6 +157,69 @@ pub fn explain(
             &mut Reporter::new(id),
         )
         .map_err(|e| e.to_string())?;
+        // Held out: the run's judging's splits refitted (its scheme, seed and settings).
+        let (mut held_out, mut held_out_missing) = (None, None);
+        if !matches!(model.ensemble, Ensemble::Forest(_)) {
+            let judging = r.judging.as_ref();
+            let scheme = judging
+                .map(|j| Scheme::parse(&j.scheme))
+                .transpose()
+                .map_err(|e| e.to_string())?;
+            match (judging, scheme) {
+                (Some(j), Some(scheme)) if why_not_held_out(&scheme).is_none() => {
+                    let sets: Vec<(String, String)> = model
+                        .settings
+                        .iter()
+                        .map(|(k, v)| (k.clone(), v.clone()))
+                        .collect();
+                    let (design, settings) =
+                        super::design_and_settings(held, &r.design, model.method.word(), &sets)?;
+                    let h = held_out_permutation(
+                        &design,
+                        &settings,
+                        &scheme,
+                        j.seed,
+                        &groups,
+                        Shuffles {
+                            metric,
+                            repeats: REPEATS,
+                            seed: SEED,
+                        },
+                        None,
+                        &mut Reporter::new(id),
+                    );
+                    // A judging the splits refused (its refusal is shown with the run) leaves
+                    // the training-record figure, with the reason.
+                    match h {
+                        Ok(h) => {
+                            held_out = Some(HeldOutImportance {
+                                words: h.words(),
+                                splits: h.splits(),
+                                repeats: h.repeats,
+                                seed: h.seed,
+                                baseline: h.baseline(),
+                                mean: h.mean,
+                                spread: h.spread,
+                            })
+                        }
+                        Err(e) => {
+                            held_out_missing =
+                                Some(format!("its judging's splits could not be refitted: {e}"))
+                        }
+                    }
+                }
+                (_, Some(scheme)) => {
+                    held_out_missing = why_not_held_out(&scheme).map(str::to_string);
+                }
+                _ => {
+                    held_out_missing = Some(
+                        "this run was not judged, so no records were held out from it; \
+                         judge it by folds for a held-out figure"
+                            .into(),
+                    );
+                }
+            }
+        }
         let out_of_bag = match &model.ensemble {
             Ensemble::Forest(_) => {
                 let m = with_all_settings(model)?;
@@ -180,13 +247,15 @@ pub fn explain(
             seed: SEED,
             rows: kept.rows,
             rows_words: format!(
-                "the {} training records that have an outcome: rows the model learnt from, so \
-                 this flatters predictors it may have memorised",
+                "the {} training records that have an outcome ({APPARENT}): rows the model \
+                 learnt from, so this flatters predictors it may have memorised",
                 kept.rows
             ),
             mean: p.mean,
             spread: p.spread,
             out_of_bag,
+            held_out,
+            held_out_missing,
         });
     }
 
