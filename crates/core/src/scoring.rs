@@ -27,8 +27,14 @@ pub struct PredictionRows<'a> {
     model: &'a Model,
     records: &'a Records,
     kept: Vec<&'a Column>,
-    out: Vec<f64>,
+    /// Predictions of rows `block_start..` (`outputs` a row), computed a block at a time
+    /// ([`Model::predict_rows`]) as the rows are asked for.
+    block: Vec<f64>,
+    block_start: usize,
 }
+
+/// Rows predicted together when scoring: their predictions and one tree fit in the cache.
+const SCORING_BLOCK: usize = 4096;
 
 impl<'a> PredictionRows<'a> {
     /// `keep`: columns of `table` to copy in front (names not in the table are skipped;
@@ -38,7 +44,8 @@ impl<'a> PredictionRows<'a> {
             model,
             records,
             kept: keep.iter().filter_map(|k| table.column(k)).collect(),
-            out: vec![0.0; model.outputs()],
+            block: Vec::new(),
+            block_start: 0,
         }
     }
 
@@ -63,14 +70,23 @@ impl<'a> PredictionRows<'a> {
             .iter()
             .map(|c| c.display(row).unwrap_or_default())
             .collect();
-        self.model
-            .predict(Rows::Records(self.records), row, &mut self.out);
+        let k = self.model.outputs();
+        let held = self.block.len() / k.max(1);
+        if row < self.block_start || row >= self.block_start + held {
+            let end = (row + SCORING_BLOCK).min(self.records.rows);
+            self.block.resize((end - row) * k, 0.0);
+            self.model
+                .predict_rows(Rows::Records(self.records), row..end, &mut self.block);
+            self.block_start = row;
+        }
+        let at = (row - self.block_start) * k;
+        let out = &self.block[at..at + k];
         match &self.model.classes {
             Some(classes) => {
-                line.push(classes.get(argmax(&self.out)).cloned().unwrap_or_default());
-                line.extend(self.out.iter().map(|x| x.to_string()));
+                line.push(classes.get(argmax(out)).cloned().unwrap_or_default());
+                line.extend(out.iter().map(|x| x.to_string()));
             }
-            None => line.push(self.out[0].to_string()),
+            None => line.push(out[0].to_string()),
         }
         line
     }

@@ -448,6 +448,14 @@ mod tests {
         };
         let staged = model.staged_errors(Rows::Binned(&m), &y).unwrap();
         assert_eq!(staged.len(), 15);
+        // A tree at a time over the rows, or row by row: the same predictions to the bit.
+        let mut by_tree = vec![0.0; 2 * (m.rows - 7)];
+        model.predict_rows(Rows::Binned(&m), 7..m.rows, &mut by_tree);
+        let mut one = [0.0; 2];
+        for (i, r) in (7..m.rows).enumerate() {
+            model.predict(Rows::Binned(&m), r, &mut one);
+            assert_eq!(&by_tree[2 * i..2 * i + 2], &one[..], "row {r}");
+        }
         assert_eq!(model.training_errors(&m, &y).unwrap(), staged);
         // Numbers: the mean squared error, summed the same way.
         let mut text = String::from("y,a,b\n");

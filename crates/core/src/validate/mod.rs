@@ -237,11 +237,8 @@ pub fn records_of(design: &Design, columns: &[BinnedColumn]) -> Records {
 }
 
 fn predict_all(model: &Model, rows: Rows<'_>) -> Vec<f64> {
-    let k = model.outputs();
-    let mut out = vec![0.0; rows.len() * k];
-    for (r, o) in out.chunks_exact_mut(k).enumerate() {
-        model.predict(rows, r, o);
-    }
+    let mut out = vec![0.0; rows.len() * model.outputs()];
+    model.predict_rows(rows, 0..rows.len(), &mut out);
     out
 }
 
