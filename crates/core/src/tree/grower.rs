@@ -387,14 +387,21 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             _ => None,
         };
         if width == 2 {
-            // The same sums in the same order, from the pairs kept beside the rows.
+            // The same sums in the same order, from the pairs kept beside the rows; the range
+            // of values only where purity is judged by it (not for classes).
             let [mut t0, mut t1] = [0.0; 2];
+            let ranged = matches!(
+                criterion,
+                Criterion::SquaredError | Criterion::Gradient { .. }
+            );
             for s in &self.pairs[start..end] {
                 t0 += s[0];
                 t1 += s[1];
-                if let Some(a) = alone(s) {
-                    y_min = y_min.min(a);
-                    y_max = y_max.max(a);
+                if ranged {
+                    if let Some(a) = alone(s) {
+                        y_min = y_min.min(a);
+                        y_max = y_max.max(a);
+                    }
                 }
             }
             self.totals.copy_from_slice(&[t0, t1]);
