@@ -5,7 +5,8 @@
 // shows for it (local accuracy of SHAP values: Lundberg et al., Nat Mach Intell 2020, eq. 1 /
 // property 1), and that importance, partial dependence and contributions equal those of
 // `spinney explain` on the same data with the same forest (the command line's own fit). The
-// step's controls are reached by keyboard. Screenshots go to tests/out/e2e/.
+// step's controls are reached by keyboard. A long computation is cancelled (the runs stay, a
+// later one works). Screenshots go to tests/out/e2e/.
 //   node tests/e2e/insight.test.mjs        (after trunk build and cargo build -p spinney-cli)
 import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
@@ -173,6 +174,32 @@ try {
     await page.keyboard.press('Enter');
     await page.waitForFunction(() => document.querySelector('#insight-record-facts .facts')?.dataset.record === '7', null, { timeout: 60000 });
     expect(await page.$eval('#insight-row', (e) => e.labels[0].textContent.includes('Record')), 'record box not labelled');
+  });
+
+  await check('a long insight computation is cancelled, says so, keeps the runs, and a later one works', async () => {
+    // A bigger forest, whose importance takes seconds (each of its 800 trees shuffled).
+    await page.check('input[name=method][value=forest]');
+    await page.fill('#set-trees', '800');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 180000 });
+    await page.selectOption('#insight-run', '1');
+    await page.click('#insight-go');
+    await page.waitForFunction(() => Number(document.querySelector('#insight-progress').value) > 0, null, { timeout: 60000 });
+    const t0 = Date.now();
+    await page.click('#insight-cancel');
+    await page.waitForSelector('#insight-status', { state: 'hidden', timeout: 1000 });
+    const said = await page.$eval('#insight-message', (m) => ({ text: m.textContent, how: m.dataset.cancelled, hidden: m.hidden }));
+    expect(!said.hidden && /^Cancelled: the computation was stopped/.test(said.text) && said.how === 'in-place', JSON.stringify(said));
+    expect(await page.$$eval('table.runs tbody tr', (r) => r.length) === 2, 'a run was lost by the cancel');
+    // The worker is free again: the small forest's insight comes (it would wait behind the big
+    // one's importance had that not stopped).
+    await page.selectOption('#insight-run', '0');
+    await page.click('#insight-go');
+    await page.waitForSelector('#importance-numbers table', { state: 'attached', timeout: 120000 });
+    await settled();
+    console.log(`  (cancel to the next insight answered: ${Date.now() - t0} ms)`);
+    expect(await page.$eval('#insight-message', (m) => m.hidden), 'the cancel message stayed after a new answer');
+    expect((await tableRows('#importance-numbers')).length === 12, 'importance of the small forest missing');
   });
 
   await checkNothingLeft(requests, origin, consoleErrors);

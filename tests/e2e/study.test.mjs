@@ -5,7 +5,8 @@
 // the notebook and grows its runs again to the same figures), clear the kept copy, open the
 // saved study and choose the same data (same figures to the bit), choose other data (refused
 // with the reason, then run as new data on request), open broken studies (message, notebook
-// intact), and reach every new control by keyboard. Screenshots go to tests/out/e2e/.
+// intact), reach every new control by keyboard, and remove a run (gone from every step and
+// from the kept copy, so a reload does not bring it back). Screenshots go to tests/out/e2e/.
 //   node tests/e2e/study.test.mjs        (after trunk build and cargo build -p spinney-cli)
 import { createHash } from 'node:crypto';
 import { readFileSync, writeFileSync } from 'node:fs';
@@ -222,6 +223,34 @@ try {
     await page.keyboard.press('Space');
     const [file] = await Promise.all([page.waitForEvent('download'), (async () => { await page.focus('#study-save'); await page.keyboard.press('Enter'); })()]);
     expect(/spinney-study\.json$/.test(file.suggestedFilename()), file.suggestedFilename());
+  });
+
+  await check('a run removed in step 4 (a labelled button, by keyboard) leaves every step and the kept copy, and stays gone after a reload', async () => {
+    const before = await runRows();
+    expect(before.length === 2, `${before.length} runs before`);
+    const button = '#compare-table button[data-remove="0"]';
+    const label = await page.$eval(button, (b) => b.getAttribute('aria-label'));
+    expect(/^Remove run 1 \(Random forest/.test(label), label);
+    const saved0 = await saves();
+    await page.focus(button);
+    await page.keyboard.press('Enter');
+    await page.waitForFunction(() => document.querySelectorAll('table.runs tbody tr').length === 1);
+    await waitSaves(saved0);
+    const after = await runRows();
+    expect(after[0].training === before[1].training && /Single tree/.test(after[0].text), JSON.stringify(after));
+    const compared = await page.$$eval('#compare-table tr[data-run]', (r) => r.map((x) => x.textContent));
+    expect(compared.length === 1 && /Single tree/.test(compared[0]), JSON.stringify(compared));
+    expect(/Run 1 \(random forest\) removed; the other runs are unchanged/.test(await page.textContent('#compare-message')), await page.textContent('#compare-message'));
+    // The steps that pick a run offer only the one left.
+    for (const id of ['insight-run', 'score-run']) {
+      const offered = await page.$$eval(`#${id} option`, (o) => o.map((x) => x.textContent));
+      expect(offered.length === 1 && /Single tree/.test(offered[0]), `${id}: ${offered}`);
+    }
+    await page.reload();
+    await page.waitForSelector('#app[data-ready=yes]', { timeout: 30000 });
+    await regrown(1);
+    const restored = await runRows();
+    expect(restored.length === 1 && restored[0].training === before[1].training && restored[0].same === 'yes', JSON.stringify(restored));
   });
 
   await checkNothingLeft(requests, origin, consoleErrors);

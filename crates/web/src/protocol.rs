@@ -9,7 +9,7 @@ use spinney_core::data::TableReport;
 use spinney_core::validate::FoldRun;
 
 /// Bumped when a message changes incompatibly.
-pub const PROTOCOL_VERSION: u32 = 4;
+pub const PROTOCOL_VERSION: u32 = 5;
 
 /// Rows of the preview table.
 pub const PREVIEW_ROWS: usize = 20;
@@ -100,6 +100,9 @@ pub enum Request {
     },
     /// The per-row predictions of a kept two-class run (see [`RunPredictions`]).
     Predictions { v: u32, id: u32, run: u32 },
+    /// The user removed kept run `run`: the worker drops its model and judged predictions
+    /// (the other runs keep their numbers). No answer.
+    Forget { v: u32, id: u32, run: u32 },
     /// The kept runs' models as model files (`None` asks for nothing in that place).
     ModelFiles {
         v: u32,
@@ -476,6 +479,7 @@ impl Request {
             | Request::Reread { v, .. }
             | Request::Fit { v, .. }
             | Request::Predictions { v, .. }
+            | Request::Forget { v, .. }
             | Request::Score { v, .. }
             | Request::ModelFiles { v, .. }
             | Request::FitPart { v, .. }

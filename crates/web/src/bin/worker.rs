@@ -43,9 +43,20 @@ struct Held {
     /// The splits' fits of a judging done by extra workers, for the fit of this id.
     fold_runs: Option<(u32, Vec<FoldRun>)>,
     /// Every model fitted since the worker started, by run number (for the later steps:
-    /// insight, threshold, scoring). A cancel restarts the worker, so the list starts again.
-    runs: Vec<Run>,
+    /// insight, threshold, scoring); `None` once the user removed it (the numbers of the
+    /// others stay). A cancel restarts the worker, so the list starts again.
+    runs: Vec<Option<Run>>,
 }
+
+impl Held {
+    /// Kept run `run`, unless it was removed (or never fitted by this worker).
+    fn kept(&self, run: u32) -> Option<&Run> {
+        self.runs.get(run as usize)?.as_ref()
+    }
+}
+
+/// Why a run asked for is not there.
+const GONE: &str = "the worker no longer holds this run (it was removed, or the worker was restarted after a cancel); grow the run again";
 
 /// One kept run: the columns asked for and the model (its method and settings inside).
 struct Run {
@@ -99,8 +110,28 @@ impl Reporter {
     }
 }
 
+thread_local! {
+    /// The page's stop list (see [`stopped`]), once it sent one.
+    static STOP: std::cell::RefCell<Option<js_sys::Int32Array>> = const { std::cell::RefCell::new(None) };
+}
+
+/// Whether the page asked to stop request `id`: its number is in the shared stop list the
+/// page sends with its messages (a SharedArrayBuffer, read while this worker computes; only
+/// where the page is cross-origin isolated). The page writes the ids of the insight requests
+/// it cancels there.
+pub fn stopped(id: u32) -> bool {
+    STOP.with(|s| {
+        s.borrow().as_ref().is_some_and(|list| {
+            (0..list.length()).any(|i| js_sys::Atomics::load(list, i).ok() == Some(id as i32))
+        })
+    })
+}
+
 impl Progress for Reporter {
     fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
+        if stopped(self.id) {
+            return Flow::Stop;
+        }
         let now = js_sys::Date::now();
         if done == total || now - self.last >= 100.0 {
             self.last = now;
@@ -192,7 +223,7 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             let files = runs
                 .iter()
                 .map(|r| {
-                    let run = held.runs.get((*r)? as usize)?;
+                    let run = held.kept((*r)?)?;
                     write_model(&run.model).ok()
                 })
                 .collect();
@@ -217,6 +248,13 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
                 tree,
             );
             return answer(held, id, result, |result| Reply::Explained { id, result });
+        }
+        Request::Forget { run, .. } => {
+            // Dropping the run frees its model and judged predictions.
+            if let Some(r) = held.runs.get_mut(run as usize) {
+                *r = None;
+            }
+            return;
         }
         Request::Predictions { id, run, .. } => {
             let result = predictions(held, run);
@@ -564,11 +602,11 @@ fn fit(
         validation_refused,
         notices: d.notices.clone(),
     };
-    held.runs.push(Run {
+    held.runs.push(Some(Run {
         design,
         model: fitted.model,
         judged,
-    });
+    }));
     Ok(result)
 }
 
@@ -830,9 +868,7 @@ fn score(
     bytes: &[u8],
     keep: &[String],
 ) -> Result<ScoreResult, String> {
-    let r = held.runs.get(run as usize).ok_or(
-        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
-    )?;
+    let r = held.kept(run).ok_or(GONE)?;
     let model = &r.model;
     let options = ReadOptions {
         file_name: Some(name.to_string()),
@@ -905,9 +941,7 @@ fn run_on_table(held: &Held, run: u32) -> Result<(&Loaded, &Run), String> {
         .loaded
         .as_ref()
         .ok_or("no table is loaded yet; choose a file first")?;
-    let r = held.runs.get(run as usize).ok_or(
-        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
-    )?;
+    let r = held.kept(run).ok_or(GONE)?;
     if r.model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
         return Err("the data changed after this run was grown; grow it again on this data".into());
     }
@@ -1002,6 +1036,12 @@ fn main() {
             .ok()
             .filter(|b| b.is_instance_of::<Uint8Array>())
             .map(|b| b.unchecked_into::<Uint8Array>());
+        if let Some(list) = Reflect::get(&data, &"stop".into())
+            .ok()
+            .filter(|s| s.is_instance_of::<js_sys::Int32Array>())
+        {
+            STOP.with(|s| *s.borrow_mut() = Some(list.unchecked_into()));
+        }
         match serde_wasm_bindgen::from_value::<Request>(msg) {
             Ok(request) if request.version() > PROTOCOL_VERSION => post(&Reply::Failed {
                 id: 0,

@@ -43,6 +43,14 @@ pub struct Insight {
     data: Option<protocol::Insight>,
 }
 
+impl Insight {
+    /// Run `gone` (index) was removed: later indices close up; what was shown for it goes
+    /// (at the next refresh).
+    pub fn run_removed(&mut self, gone: usize) {
+        self.chosen = super::runs::shifted(self.chosen, gone);
+    }
+}
+
 /// Runs the step can use: held by the worker and grown on the current data.
 fn eligible(p: &Page) -> Vec<usize> {
     p.fits
@@ -78,6 +86,7 @@ pub fn refresh(page: &Shared) {
             ..Insight::default()
         };
         show(&p.doc, "insight-body", false);
+        show(&p.doc, "insight-status", false);
     }
     if runs.is_empty() {
         return;
@@ -167,8 +176,39 @@ fn ask(
 
 fn message(doc: &web_sys::Document, text: &str) {
     let el = by_id(doc, "insight-message");
+    el.set_class_name("message error");
+    let _ = el.remove_attribute("data-cancelled");
     el.set_text_content(Some(text));
     show(doc, "insight-message", !text.is_empty());
+}
+
+/// Stops what the step asked for. Where the page has shared memory (see `stop_request` in
+/// page.rs) the worker stops between two trees and keeps every run; what is shown stays.
+/// Otherwise only restarting the worker stops it, as a fit's cancel does: the runs' figures
+/// stay, but the worker no longer holds their models.
+fn cancel(page: &Shared) {
+    let asked = std::mem::take(&mut page.borrow_mut().insight.asked);
+    if asked.is_empty() {
+        return;
+    }
+    let in_place = asked.iter().all(|&id| super::stop_request(id));
+    if !in_place {
+        super::cancel(page, "");
+    }
+    let p = page.borrow();
+    show(&p.doc, "insight-status", false);
+    let el = by_id(&p.doc, "insight-message");
+    el.set_class_name("message");
+    el.set_text_content(Some(if in_place {
+        "Cancelled: the computation was stopped. The runs and everything shown here are kept; ask again when you like."
+    } else {
+        "Cancelled by restarting the worker (this page is not cross-origin isolated, as when opened from a file, so the computation could not be stopped in place). The runs' figures are kept; grow a run again to look inside it."
+    }));
+    let _ = el.set_attribute(
+        "data-cancelled",
+        if in_place { "in-place" } else { "restart" },
+    );
+    show(&p.doc, "insight-message", true);
 }
 
 /// Progress of the request in flight.
@@ -703,6 +743,9 @@ pub fn listen(page: &Shared) {
             .and_then(|r| r.parse::<usize>().ok())
         {
             return explain_record(&pg, r);
+        }
+        if target.id() == "insight-cancel" {
+            return cancel(&pg);
         }
         if target.id() == "insight-go" {
             let chosen = pg

@@ -1016,6 +1016,69 @@ pub fn results(fits: &Fits) -> Vec<(usize, String, &RunResult)> {
         .collect()
 }
 
+/// Where a run at index `at` of the runs table stands after run `gone` was removed: one
+/// place up when it came after it, `None` when it was that run.
+pub fn shifted(at: Option<usize>, gone: usize) -> Option<usize> {
+    match at {
+        Some(i) if i == gone => None,
+        Some(i) if i > gone => Some(i - 1),
+        other => other,
+    }
+}
+
+/// Removes run `i` (the comparison step's Remove button): the worker drops its model and
+/// judged predictions, every step that shows runs redraws without it, and the notebook is
+/// saved again. The other runs keep their models (the worker numbers runs for good); their
+/// numbers in the tables close up.
+pub fn remove(page: &Shared, i: usize) {
+    let forget = {
+        let mut p = page.borrow_mut();
+        if i >= p.fits.runs.len() {
+            return;
+        }
+        let gone = p.fits.runs.remove(i);
+        let last = p.fits.runs.len().checked_sub(1);
+        p.fits.charted = shifted(p.fits.charted, i).or(last);
+        p.threshold.run_removed(i);
+        p.insight.run_removed(i);
+        if p.scoring.run_removed(i) {
+            set_html(&p.doc, "score-result", "");
+        }
+        let _ =
+            by_id(&p.doc, "step-runs").set_attribute("data-runs", &p.fits.runs.len().to_string());
+        render_runs(&p);
+        render_chart(&p);
+        super::compare::render(&p);
+        let text = format!(
+            "Run {} ({}) removed; the other runs are unchanged.",
+            i + 1,
+            method_label(gone.ask.method).to_lowercase()
+        );
+        let said = by_id(&p.doc, "compare-message");
+        said.set_text_content(Some(&text));
+        show(&p.doc, "compare-message", true);
+        gone.held.then_some(gone.result.run)
+    };
+    if let Some(run) = forget {
+        let id = {
+            let mut p = page.borrow_mut();
+            p.next_id += 1;
+            p.next_id
+        };
+        send(
+            page,
+            Request::Forget {
+                v: PROTOCOL_VERSION,
+                id,
+                run,
+            },
+            None,
+        );
+    }
+    super::runs_changed(page);
+    super::study::autosave(page);
+}
+
 /// The fit failed: its message in the step, the runs as they were.
 pub fn failed(page: &Shared, message: &str) {
     let mut p = page.borrow_mut();

@@ -163,6 +163,7 @@ pub fn explain(
                         mean: o.mean,
                         standard_error: o.standard_error,
                     }),
+                    Err(e) if super::stopped(id) => return Err(e.to_string()),
                     Err(e) => {
                         insight.notes.push(format!("no out-of-bag importance: {e}"));
                         None
