@@ -22,12 +22,20 @@ pub fn csv_field(text: &str) -> String {
 }
 
 /// Writes the predictions of `model` for the rows of `table` (read as `records`), a line at
-/// a time.
+/// a time; or predictions made elsewhere ([`PredictionRows::given`], the page's baseline).
 pub struct PredictionRows<'a> {
-    model: &'a Model,
-    records: &'a Records,
+    source: Source<'a>,
+    outcome: &'a str,
+    classes: Option<&'a [String]>,
+    rows: usize,
     kept: Vec<&'a Column>,
     out: Vec<f64>,
+}
+
+enum Source<'a> {
+    Model(&'a Model, &'a Records),
+    /// `outputs` values per row.
+    Given(&'a [f64]),
 }
 
 impl<'a> PredictionRows<'a> {
@@ -35,22 +43,44 @@ impl<'a> PredictionRows<'a> {
     /// callers check them first).
     pub fn new(model: &'a Model, table: &'a Table, records: &'a Records, keep: &[String]) -> Self {
         PredictionRows {
-            model,
-            records,
+            source: Source::Model(model, records),
+            outcome: &model.outcome,
+            classes: model.classes.as_deref(),
+            rows: records.rows,
             kept: keep.iter().filter_map(|k| table.column(k)).collect(),
             out: vec![0.0; model.outputs()],
         }
     }
 
+    /// The same lines for `predictions` of every row of `table` made by another model:
+    /// class probabilities (one per class) or the number.
+    pub fn given(
+        outcome: &'a str,
+        classes: Option<&'a [String]>,
+        predictions: &'a [f64],
+        table: &'a Table,
+        keep: &[String],
+    ) -> Self {
+        let outputs = classes.map_or(1, <[String]>::len);
+        PredictionRows {
+            source: Source::Given(predictions),
+            outcome,
+            classes,
+            rows: predictions.len() / outputs.max(1),
+            kept: keep.iter().filter_map(|k| table.column(k)).collect(),
+            out: vec![0.0; outputs],
+        }
+    }
+
     pub fn rows(&self) -> usize {
-        self.records.rows
+        self.rows
     }
 
     /// The header line's fields.
     pub fn header(&self) -> Vec<String> {
         let mut header: Vec<String> = self.kept.iter().map(|c| c.name.clone()).collect();
-        header.push(format!("predicted_{}", self.model.outcome));
-        if let Some(classes) = &self.model.classes {
+        header.push(format!("predicted_{}", self.outcome));
+        if let Some(classes) = self.classes {
             header.extend(classes.iter().map(|c| format!("probability_{c}")));
         }
         header
@@ -63,9 +93,16 @@ impl<'a> PredictionRows<'a> {
             .iter()
             .map(|c| c.display(row).unwrap_or_default())
             .collect();
-        self.model
-            .predict(Rows::Records(self.records), row, &mut self.out);
-        match &self.model.classes {
+        match self.source {
+            Source::Model(model, records) => {
+                model.predict(Rows::Records(records), row, &mut self.out)
+            }
+            Source::Given(p) => {
+                let k = self.out.len();
+                self.out.copy_from_slice(&p[row * k..(row + 1) * k]);
+            }
+        }
+        match self.classes {
             Some(classes) => {
                 line.push(classes.get(argmax(&self.out)).cloned().unwrap_or_default());
                 line.extend(self.out.iter().map(|x| x.to_string()));

@@ -204,18 +204,24 @@ pub enum BaselineModel {
     Ridge(baseline::Linear),
 }
 
+/// Refuses a baseline penalty that is not a finite number above 0.
+pub fn check_penalty(penalty: f64) -> Result<()> {
+    if penalty > 0.0 && penalty.is_finite() {
+        return Ok(());
+    }
+    Err(Error::new(ErrorKind::BadSetting {
+        setting: "penalty".into(),
+        reason: format!(
+            "{penalty} is not a number above 0; give the penalty's strength, e.g. 1 (larger: \
+             coefficients pulled closer to 0)"
+        ),
+    }))
+}
+
 /// Fits the baseline on every row of `design` with penalty strength `penalty` (> 0): the
 /// logistic regression's C is 1 / `penalty`, ridge's α is `penalty`.
 pub fn fit_baseline_model(design: &Design, penalty: f64) -> Result<BaselineModel> {
-    if !(penalty > 0.0 && penalty.is_finite()) {
-        return Err(Error::new(ErrorKind::BadSetting {
-            setting: "penalty".into(),
-            reason: format!(
-                "{penalty} is not a number above 0; give the penalty's strength, e.g. 1 (larger: \
-                 coefficients pulled closer to 0)"
-            ),
-        }));
-    }
+    check_penalty(penalty)?;
     let cols = baseline_columns(design);
     let weights = design.weights.as_deref();
     Ok(match &design.outcome {
@@ -236,10 +242,14 @@ impl BaselineModel {
     /// Predictions for the rows of `design` (class probabilities, or the number), in the
     /// layout of [`Model::predict`]: `outputs` per row.
     pub fn predict(&self, design: &Design) -> Result<Vec<f64>> {
-        let cols = baseline_columns(design);
+        self.predict_columns(&baseline_columns(design))
+    }
+
+    /// The same for predictor columns given one by one (in the fitted order).
+    pub fn predict_columns(&self, columns: &[baseline::Column]) -> Result<Vec<f64>> {
         match self {
-            BaselineModel::Logistic(m) => m.predict(&cols),
-            BaselineModel::Ridge(m) => m.predict(&cols),
+            BaselineModel::Logistic(m) => m.predict(columns),
+            BaselineModel::Ridge(m) => m.predict(columns),
         }
     }
 
@@ -279,9 +289,13 @@ pub struct BaselineContributions {
 }
 
 impl BaselineModel {
-    /// The contributions of every row of `design`, against the means of `train` (the rows
-    /// it was fitted on).
-    pub fn contributions(&self, train: &Design, design: &Design) -> Result<BaselineContributions> {
+    /// The contributions of every row of `columns` (the predictors in the fitted order),
+    /// against the means of `train` (the rows it was fitted on).
+    pub fn contributions(
+        &self,
+        train: &Design,
+        columns: &[baseline::Column],
+    ) -> Result<BaselineContributions> {
         let prep = self.preparation();
         let width = prep.width();
         let train_x = prep.apply(&baseline_columns(train))?;
@@ -301,7 +315,7 @@ impl BaselineModel {
             .map(|(b, c)| c + b.iter().zip(&means).map(|(b, m)| b * m).sum::<f64>())
             .collect();
         let widths = prep.widths();
-        let x = prep.apply(&baseline_columns(design))?;
+        let x = prep.apply(columns)?;
         let mut values = Vec::with_capacity(x.len() / width.max(1) * widths.len() * k);
         for row in x.chunks_exact(width.max(1)) {
             let mut at = 0;
@@ -992,7 +1006,7 @@ mod tests {
         // linear predictor, whose logistic function is the predicted probability.
         let d = problem();
         let m = fit_baseline_model(&d, 1.0).unwrap();
-        let c = m.contributions(&d, &d).unwrap();
+        let c = m.contributions(&d, &baseline_columns(&d)).unwrap();
         let p = m.predict(&d).unwrap();
         assert_eq!(c.predictors, 4);
         for r in [0, 7, 399] {

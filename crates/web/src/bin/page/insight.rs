@@ -253,6 +253,7 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
             dependence: None,
             contributions: None,
             tree: None,
+            coefficients: None,
             notes: Vec::new(),
             ..result.clone()
         });
@@ -262,6 +263,7 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
             dependence: result.dependence.is_some(),
             contributions: result.contributions.is_some(),
             tree: result.tree.is_some(),
+            coefficients: result.coefficients.is_some(),
         };
         if fresh.importance {
             data.importance = result.importance;
@@ -274,6 +276,9 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
         }
         if fresh.tree {
             data.tree = result.tree;
+        }
+        if fresh.coefficients {
+            data.coefficients = result.coefficients;
         }
         show(&p.doc, "insight-body", true);
         // The tree in a task of its own, so no single task holds the page for long.
@@ -293,6 +298,7 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
                         dependence: false,
                         contributions: false,
                         tree: true,
+                        coefficients: false,
                     },
                 )
             });
@@ -365,6 +371,7 @@ struct Fresh {
     dependence: bool,
     contributions: bool,
     tree: bool,
+    coefficients: bool,
 }
 
 /// Draws the parts a reply brought (each chart is drawn once per answer, so the page's
@@ -386,6 +393,21 @@ fn render(p: &Page, fresh: Fresh) {
             format!("<ul class=\"notices\">{notes}</ul>")
         },
     );
+    // A baseline run: its coefficients instead of the trees' charts.
+    let linear = d.coefficients.is_some();
+    for id in [
+        "insight-importance",
+        "insight-impurity",
+        "insight-dependence",
+        "insight-tree",
+    ] {
+        show(doc, id, !linear);
+    }
+    show(doc, "insight-coefficients", linear);
+    match &d.coefficients {
+        Some(c) if fresh.coefficients => render_coefficients(p, c),
+        _ => {}
+    }
     match &d.importance {
         Some(imp) if fresh.importance => render_importance(p, d, imp),
         _ => {}
@@ -405,6 +427,38 @@ fn render(p: &Page, fresh: Fresh) {
         Some(t) if fresh.tree => render_tree(p, t),
         _ => {}
     }
+}
+
+/// A baseline's coefficients as a table, largest first.
+fn render_coefficients(p: &Page, c: &protocol::InsightCoefficients) {
+    set_html(
+        &p.doc,
+        "coefficients-facts",
+        &format!(
+            "<p class=\"facts\" data-penalty=\"{}\">Penalty {}. Each coefficient is in {}. The predictors are on one scale, so the sizes compare; a coefficient describes the model, not a cause.</p>",
+            c.penalty,
+            c.penalty,
+            esc(&c.scale)
+        ),
+    );
+    let mut html = String::from("<table class=\"curve-numbers coefficients\"><caption>Coefficients on the standardised predictors, largest first</caption><thead><tr><th scope=\"col\">model column</th>");
+    for o in &c.outputs {
+        html += &format!("<th scope=\"col\">{}</th>", esc(o));
+    }
+    html += "</tr></thead><tbody><tr><th scope=\"row\">intercept</th>";
+    for b in &c.intercepts {
+        html += &format!("<td class=\"num\">{b}</td>");
+    }
+    html += "</tr>";
+    for (name, values) in &c.terms {
+        html += &format!("<tr><th scope=\"row\">{}</th>", esc(name));
+        for v in values {
+            html += &format!("<td class=\"num\">{v}</td>");
+        }
+        html += "</tr>";
+    }
+    html += "</tbody></table>";
+    set_html(&p.doc, "coefficients-numbers", &html);
 }
 
 fn render_importance(p: &Page, d: &protocol::Insight, imp: &protocol::InsightImportance) {
@@ -542,6 +596,11 @@ fn render_dependence(p: &Page, dep: &protocol::InsightDependence) {
 
 fn render_contributions(p: &Page, c: &protocol::InsightContributions) {
     let doc = &p.doc;
+    let linear = p
+        .insight
+        .data
+        .as_ref()
+        .is_some_and(|d| d.coefficients.is_some());
     let total: f64 = c.base + c.contributions.iter().map(|x| x.amount).sum::<f64>();
     let chart = ContributionChart {
         title: String::new(),
@@ -566,7 +625,7 @@ fn render_contributions(p: &Page, c: &protocol::InsightContributions) {
         doc,
         "insight-record-facts",
         &format!(
-            "<p class=\"facts\" data-record=\"{}\" data-base=\"{:e}\" data-sum=\"{:e}\" data-total=\"{:e}\">Record {}: the model predicts <strong>{}</strong>. On the scale of {} — {} — the record starts from the base value {:.4} (the model's average over its training records) and its predictors' contributions (TreeSHAP) take it to {:.4}.</p>",
+            "<p class=\"facts\" data-record=\"{}\" data-base=\"{:e}\" data-sum=\"{:e}\" data-total=\"{:e}\">Record {}: the model predicts <strong>{}</strong>. On the scale of {} — {} — the record starts from the base value {:.4} ({}) and its predictors' contributions ({}) take it to {:.4}.</p>",
             c.record + 1,
             c.base,
             c.sum,
@@ -576,6 +635,16 @@ fn render_contributions(p: &Page, c: &protocol::InsightContributions) {
             esc(&c.output),
             esc(&c.scale),
             c.base,
+            if linear {
+                "the baseline at the training records' mean values"
+            } else {
+                "the model's average over its training records"
+            },
+            if linear {
+                "coefficient × standardised value"
+            } else {
+                "TreeSHAP"
+            },
             c.sum
         ),
     );

@@ -26,7 +26,7 @@ use spinney_web::protocol::{
     OutOfBagImportance, TreeNodeView,
 };
 
-use super::{run_on_table, Held, Reporter};
+use super::{trees_on_table, Held, Reporter};
 
 /// The seed of the shuffles and samples (the command line's default).
 pub const SEED: u64 = 1;
@@ -112,8 +112,7 @@ pub fn explain(
     record: Option<usize>,
     tree: bool,
 ) -> Result<Insight, String> {
-    let (loaded, r) = run_on_table(held, run)?;
-    let model = &r.model;
+    let (loaded, model) = trees_on_table(held, run)?;
     let table = &loaded.table;
     let (records, _) = model.records(table).map_err(|e| e.to_string())?;
     let names: Vec<String> = model.predictors.iter().map(|p| p.name.clone()).collect();
@@ -132,6 +131,7 @@ pub fn explain(
         dependence: None,
         contributions: None,
         tree: None,
+        coefficients: None,
         notes,
     };
 
