@@ -797,8 +797,8 @@ fn pooled(
     };
     let mut notes = Vec::new();
     let predictions =
-        pool(n, outputs, &s, |i| Some(runs[i].predictions.clone())).unwrap_or_default();
-    let baseline_predictions = pool(n, outputs, &s, |i| runs[i].baseline.clone());
+        pool(n, outputs, s, |i| Some(runs[i].predictions.clone())).unwrap_or_default();
+    let baseline_predictions = pool(n, outputs, s, |i| runs[i].baseline.clone());
     let mut model = judge_pooled(design, &predictions, outputs, plan, spread);
     let mut baseline = baseline_predictions
         .as_ref()

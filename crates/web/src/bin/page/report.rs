@@ -221,10 +221,13 @@ fn interval(f: &Figure) -> String {
     }
 }
 
+/// Settings by name, and the seed (`None` for the baseline, which draws nothing at random).
+type InEffect = (Vec<(String, String)>, Option<u64>);
+
 /// Every setting in effect for a run (the method's defaults with the given ones applied),
 /// by name, and the seed its model records; `None` if the settings no longer apply (they
 /// did when it was grown).
-fn in_effect(run: &RunView) -> Option<(Vec<(String, String)>, Option<u64>)> {
+fn in_effect(run: &RunView) -> Option<InEffect> {
     let a = &run.ask;
     let regression = run.result.error_name == "mean squared error";
     let Grown::Trees(method) = a.method else {

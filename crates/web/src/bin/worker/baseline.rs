@@ -203,6 +203,7 @@ fn outputs(b: &BaselineRun) -> (Vec<String>, String) {
 
 /// Step 5 for a baseline run: its coefficients when `importance` is asked, a record's
 /// contributions when `record` is; what does not apply to it said in the notes.
+#[allow(clippy::too_many_arguments)]
 pub fn explain(
     loaded: &Loaded,
     run: &Run,
