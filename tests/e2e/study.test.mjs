@@ -296,7 +296,7 @@ try {
     expect(again.auc === first.auc && again.shown === first.shown, `reopened: ${again.shown} vs ${first.shown}`);
   });
 
-  await check('step 5 shows the baseline\'s coefficients and a record\'s contributions that add up to its probability; step 7 scores with it', async () => {
+  await check('step 5 shows the baseline\'s coefficients and a record\'s contributions that add up to its probability; steps 6 and 7 use it', async () => {
     await page.selectOption('#insight-run', '1');
     await page.click('#insight-go');
     await page.waitForSelector('#coefficients-numbers table', { state: 'attached', timeout: 60000 });
@@ -311,6 +311,12 @@ try {
     // logistic function is the probability the page shows.
     const shown = Number(/probability of 'yes' ([0-9.e-]+)/.exec(facts.text)?.[1]);
     expect(Math.abs(total - facts.sum) < 1e-9 && Math.abs(1 / (1 + Math.exp(-facts.sum)) - shown) < 1e-9, `${total} / ${facts.sum} / ${shown}`);
+    // Step 6 on its cross-validated predictions: every one of the 3000 records counted.
+    await page.selectOption('#threshold-run', '1');
+    await page.waitForFunction(() => document.querySelector('.threshold-tables')?.dataset.outOfSample === 'true'
+      && /5-fold cross-validation/.test(document.querySelector('#threshold-result').textContent), null, { timeout: 30000 });
+    const cells = await page.$eval('.threshold-tables', (t) => ['tp', 'fp', 'tn', 'fn'].reduce((a, k) => a + Number(t.dataset[k]), 0));
+    expect(cells === 3000, `${cells} records in the confusion matrix`);
     await page.selectOption('#score-run', '1');
     await page.setInputFiles('#score-input', join(out, 'surgery-first-3000.csv'));
     await page.waitForFunction(() => document.querySelector('#score-result .facts') || document.querySelector('#score-message').textContent, null, { timeout: 60000 });

@@ -45,8 +45,13 @@ pub struct Insight {
 
 impl Insight {
     /// Run `gone` (index) was removed: later indices close up; what was shown for it goes
-    /// (at the next refresh).
+    /// (at the next refresh), and what the worker computes for it is stopped where it can be.
     pub fn run_removed(&mut self, gone: usize) {
+        if self.chosen == Some(gone) {
+            for &id in &self.asked {
+                super::stop_request(id);
+            }
+        }
         self.chosen = super::runs::shifted(self.chosen, gone);
     }
 }

@@ -1,8 +1,9 @@
-//! The model-runs step of the page: the method and its settings form (checked as typed by
-//! the core's own settings rules, so the page refuses what the command line refuses, in the
-//! same words), the Run button, the progress bar with elapsed and remaining time and Cancel,
-//! the table of runs kept so far, and the error chart by number of trees or rounds (drawn by
-//! spinney-charts on a canvas, with its numbers as a table beside it).
+//! The model-runs step of the page: the method (a tree method, or the baseline as a run of
+//! its own) and its settings form (checked as typed by the core's own settings rules, so the
+//! page refuses what the command line refuses, in the same words), the Run button, the
+//! progress bar with elapsed and remaining time and Cancel, the table of runs kept so far,
+//! the error chart by number of trees or rounds (drawn by spinney-charts on a canvas, with
+//! its numbers as a table beside it), and removing a kept run (`remove`, from step 4).
 //!
 //! All fitting happens in the worker; this module only sends the request and shows replies.
 //! Cancel restarts the worker (see `cancel` in page.rs); the runs table is the page's own and

@@ -533,7 +533,7 @@ fn result_of(run: &StudyRun) -> RunResult {
         members: r.members as usize,
         member_name: match run.method.as_str() {
             "adaboost" | "boosting" => "rounds",
-            "baseline" => "models",
+            "baseline" => "model",
             _ => "trees",
         }
         .into(),

@@ -146,7 +146,7 @@ pub fn fit(
         }
         .into(),
         members: 1,
-        member_name: "models".into(),
+        member_name: "model".into(),
         training_error: training_error(&d, &fitted_on_all),
         training_curve: Vec::new(),
         oob_error: None,
@@ -259,7 +259,13 @@ pub fn explain(
                 None
             } else {
                 Some(record_contributions(
-                    b, &d, &one, &c, row, &p, &scale, &names[0],
+                    b,
+                    &d,
+                    &loaded.table,
+                    &c,
+                    row,
+                    &p,
+                    &names[0],
                 ))
             }
         }
@@ -282,21 +288,23 @@ pub fn explain(
 fn record_contributions(
     b: &BaselineRun,
     d: &Design,
-    one: &Design,
+    table: &Table,
     c: &BaselineContributions,
     row: usize,
     p: &[f64],
-    scale: &str,
     output: &str,
 ) -> InsightContributions {
     let mut list: Vec<Contribution> = d
         .predictors
         .iter()
-        .zip(&one.predictors)
         .enumerate()
-        .map(|(j, (p, v))| Contribution {
+        .map(|(j, p)| Contribution {
             predictor: p.name.clone(),
-            value: value_words(&v.values),
+            // As the table shows it (a date as a date, yes/no as its word).
+            value: table
+                .column(&p.name)
+                .and_then(|col| col.display(row))
+                .unwrap_or_else(|| "missing".into()),
             amount: c.values[j],
         })
         .filter(|x| x.amount != 0.0)
@@ -320,27 +328,13 @@ fn record_contributions(
     };
     InsightContributions {
         record: row,
-        scale: format!(
-            "coefficient × the record's standardised value, less the training records' mean, on the {scale}; they add up, from the mean record's value, to the record's"
-        ),
+        scale: "coefficient × the record's standardised value, less the training records' mean (a regression's contributions)".into(),
         output: output.to_string(),
         base: c.base[0],
         contributions: list,
         sum,
         prediction,
         predicted_class,
-    }
-}
-
-/// A one-row predictor's value in words.
-fn value_words(v: &PredictorValues) -> String {
-    match v {
-        PredictorValues::Numbers(x) if x[0].is_nan() => "missing".into(),
-        PredictorValues::Numbers(x) => x[0].to_string(),
-        PredictorValues::Levels { codes, levels } => levels
-            .get(codes[0] as usize)
-            .cloned()
-            .unwrap_or_else(|| "missing".into()),
     }
 }
 
