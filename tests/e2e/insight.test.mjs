@@ -191,6 +191,12 @@ try {
     const said = await page.$eval('#insight-message', (m) => ({ text: m.textContent, how: m.dataset.cancelled, hidden: m.hidden }));
     expect(!said.hidden && /^Cancelled: the computation was stopped/.test(said.text) && said.how === 'in-place', JSON.stringify(said));
     expect(await page.$$eval('table.runs tbody tr', (r) => r.length) === 2, 'a run was lost by the cancel');
+    // The big forest itself still answers: a typed record's contributions (one record, quick,
+    // where its importance would have taken many seconds).
+    await page.fill('#insight-row', '3');
+    await page.click('#insight-row-go');
+    await page.waitForFunction(() => document.querySelector('#insight-record-facts .facts')?.dataset.record === '3', null, { timeout: 120000 });
+    console.log(`  (cancel to the big forest's record answered: ${Date.now() - t0} ms)`);
     // The worker is free again: the small forest's insight comes (it would wait behind the big
     // one's importance had that not stopped).
     await page.selectOption('#insight-run', '0');

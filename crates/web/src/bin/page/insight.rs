@@ -764,7 +764,15 @@ fn render_tree(p: &Page, t: &protocol::InsightTree) {
 
 /// The record number typed, checked: a whole number from 1 to the table's rows.
 fn typed_record(p: &Page) -> Result<usize, String> {
-    let rows = p.insight.data.as_ref().map_or(0, |d| d.rows);
+    // The run's table is the one loaded (the step offers only runs on it), also before any
+    // answer came (or after one was cancelled).
+    let rows = p
+        .insight
+        .data
+        .as_ref()
+        .map(|d| d.rows)
+        .or(p.report.as_ref().map(|r| r.rows))
+        .unwrap_or(0);
     let input: HtmlInputElement = by_id(&p.doc, "insight-row").unchecked_into();
     let text = input.value();
     match text.trim().parse::<usize>() {
