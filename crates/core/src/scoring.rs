@@ -146,6 +146,55 @@ mod tests {
     use super::*;
 
     #[test]
+    fn given_predictions_write_the_same_lines_as_the_model() {
+        // Our own consistency rule (common practice, no source): the page's baseline writes
+        // its predictions through `given`, in the very columns and numbers `spinney predict`
+        // writes for a model.
+        use crate::data::{read_table, ReadOptions};
+        use crate::design::{build_design, DesignSpec};
+        use crate::fit::{fit_design, FitOptions};
+        use crate::model::Method;
+        use crate::progress::Silent;
+        use crate::settings::FitSettings;
+        let mut text = String::from("y,a,c\n");
+        for i in 0..40 {
+            let y = if (i * 7) % 10 < 4 { "yes" } else { "no" };
+            text += &format!("{y},{},{}\n", i % 9, ["k", "\"l, m\""][i % 2]);
+        }
+        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table;
+        let spec = DesignSpec {
+            outcome: "y".into(),
+            predictors: vec!["a".into(), "c".into()],
+            weight: None,
+            group: None,
+            positive: None,
+        };
+        let design = build_design(&table, &spec).unwrap();
+        let settings = FitSettings::build(Method::Tree, 2, false, "y", &[]).unwrap();
+        let model = fit_design(design, &settings, None, FitOptions::default(), &mut Silent)
+            .unwrap()
+            .model;
+        let (records, _) = model.records(&table).unwrap();
+        let keep = ["c".to_string()];
+        let mut p = Vec::new();
+        let mut out = vec![0.0; model.outputs()];
+        for r in 0..records.rows {
+            model.predict(Rows::Records(&records), r, &mut out);
+            p.extend_from_slice(&out);
+        }
+        let mut by_model = PredictionRows::new(&model, &table, &records, &keep);
+        let mut given =
+            PredictionRows::given(&model.outcome, model.classes.as_deref(), &p, &table, &keep);
+        assert_eq!(by_model.header(), given.header());
+        assert_eq!(by_model.rows(), given.rows());
+        for r in 0..records.rows {
+            assert_eq!(by_model.fields(r), given.fields(r), "row {r}");
+        }
+    }
+
+    #[test]
     fn fields_are_quoted_as_rfc_4180_asks() {
         // RFC 4180, section 2, rules 6 and 7.
         assert_eq!(csv_field("plain"), "plain");
