@@ -2,7 +2,8 @@
 // dependencies). Used by scripts/serve and by the browser tests. Every response carries the
 // page's Content-Security-Policy as an HTTP header, the same policy as the meta tag in the
 // served index.html (read from it, so the two cannot drift apart); the header also covers the
-// worker and service-worker scripts, which a meta tag cannot reach.
+// worker and service-worker scripts, which a meta tag cannot reach. The cross-origin isolation
+// headers let the page share memory with its worker (see the comment below).
 //   node scripts/static-server.mjs DIR [PORT]     (PORT 0 = any free port)
 // Prints "serving DIR at http://127.0.0.1:PORT/" once listening.
 import { createServer } from 'node:http';
@@ -41,6 +42,11 @@ export function serve(dir, port = 0) {
         'cache-control': 'no-cache',
         'x-content-type-options': 'nosniff',
         'referrer-policy': 'no-referrer',
+        // Cross-origin isolation: the page loads nothing from elsewhere anyway, and with these
+        // two the browser grants shared memory, through which Cancel stops step 5's work in
+        // the worker without restarting it (and losing the models it holds).
+        'cross-origin-opener-policy': 'same-origin',
+        'cross-origin-embedder-policy': 'require-corp',
       });
       res.end(body);
     } catch {

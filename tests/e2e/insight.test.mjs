@@ -9,7 +9,8 @@
 // cross-validation shows permutation importance on held-out records (its judging's folds
 // refitted), equal to `spinney explain --held-out folds:5`, with the noise predictors' figures
 // near zero there though positive on the training records (definitional: Breiman 2001;
-// Fisher, Rudin & Dominici 2019). Screenshots go to tests/out/e2e/.
+// Fisher, Rudin & Dominici 2019). A long computation is cancelled (the runs stay, a later one
+// works). Screenshots go to tests/out/e2e/.
 //   node tests/e2e/insight.test.mjs        (after trunk build and cargo build -p spinney-cli)
 import { join } from 'node:path';
 import { serve } from '../../scripts/static-server.mjs';
@@ -220,6 +221,39 @@ try {
     const top = heldOut.slice(0, 3).map((x) => x[1]);
     for (const name of top) expect(trueDrivers.includes(name), `${name} is in the held-out top 3 (${top.join(', ')}) but is no driver`);
     await page.locator('#step-insight').screenshot({ path: join(out, 'insight-held-out.png') });
+  });
+
+  await check('a long insight computation is cancelled, says so, keeps the runs, and a later one works', async () => {
+    // A bigger forest, whose importance takes seconds (each of its 800 trees shuffled).
+    await page.check('input[name=method][value=forest]');
+    await page.fill('#set-trees', '800');
+    await page.selectOption('#judging', 'oob');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="3"]', { timeout: 180000 });
+    await page.selectOption('#insight-run', '2');
+    await page.click('#insight-go');
+    await page.waitForFunction(() => Number(document.querySelector('#insight-progress').value) > 0, null, { timeout: 60000 });
+    const t0 = Date.now();
+    await page.click('#insight-cancel');
+    await page.waitForSelector('#insight-status', { state: 'hidden', timeout: 1000 });
+    const said = await page.$eval('#insight-message', (m) => ({ text: m.textContent, how: m.dataset.cancelled, hidden: m.hidden }));
+    expect(!said.hidden && /^Cancelled: the computation was stopped/.test(said.text) && said.how === 'in-place', JSON.stringify(said));
+    expect(await page.$$eval('table.runs tbody tr', (r) => r.length) === 3, 'a run was lost by the cancel');
+    // The big forest itself still answers: a typed record's contributions (one record, quick,
+    // where its importance would have taken many seconds).
+    await page.fill('#insight-row', '3');
+    await page.click('#insight-row-go');
+    await page.waitForFunction(() => document.querySelector('#insight-record-facts .facts')?.dataset.record === '3', null, { timeout: 120000 });
+    console.log(`  (cancel to the big forest's record answered: ${Date.now() - t0} ms)`);
+    // The worker is free again: the small forest's insight comes (it would wait behind the big
+    // one's importance had that not stopped).
+    await page.selectOption('#insight-run', '0');
+    await page.click('#insight-go');
+    await page.waitForSelector('#importance-numbers table', { state: 'attached', timeout: 120000 });
+    await settled();
+    console.log(`  (cancel to the next insight answered: ${Date.now() - t0} ms)`);
+    expect(await page.$eval('#insight-message', (m) => m.hidden), 'the cancel message stayed after a new answer');
+    expect((await tableRows('#importance-numbers')).length === 12, 'importance of the small forest missing');
   });
 
   await checkNothingLeft(requests, origin, consoleErrors);

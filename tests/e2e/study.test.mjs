@@ -5,7 +5,10 @@
 // the notebook and grows its runs again to the same figures), clear the kept copy, open the
 // saved study and choose the same data (same figures to the bit), choose other data (refused
 // with the reason, then run as new data on request), open broken studies (message, notebook
-// intact), and reach every new control by keyboard. Screenshots go to tests/out/e2e/.
+// intact), reach every new control by keyboard, and remove a run (gone from every step and
+// from the kept copy, so a reload does not bring it back), and grow a baseline as a run (its
+// row against `spinney evaluate --baseline`, then saved and reopened to the same figures).
+// Screenshots go to tests/out/e2e/.
 //   node tests/e2e/study.test.mjs        (after trunk build and cargo build -p spinney-cli)
 import { createHash } from 'node:crypto';
 import { readFileSync, writeFileSync } from 'node:fs';
@@ -222,6 +225,104 @@ try {
     await page.keyboard.press('Space');
     const [file] = await Promise.all([page.waitForEvent('download'), (async () => { await page.focus('#study-save'); await page.keyboard.press('Enter'); })()]);
     expect(/spinney-study\.json$/.test(file.suggestedFilename()), file.suggestedFilename());
+  });
+
+  await check('a run removed in step 4 (a labelled button, by keyboard) leaves every step and the kept copy, and stays gone after a reload', async () => {
+    const before = await runRows();
+    expect(before.length === 2, `${before.length} runs before`);
+    const button = '#compare-table button[data-remove="0"]';
+    const label = await page.$eval(button, (b) => b.getAttribute('aria-label'));
+    expect(/^Remove run 1 \(Random forest/.test(label), label);
+    const saved0 = await saves();
+    await page.focus(button);
+    await page.keyboard.press('Enter');
+    await page.waitForFunction(() => document.querySelectorAll('table.runs tbody tr').length === 1);
+    await waitSaves(saved0);
+    const after = await runRows();
+    expect(after[0].training === before[1].training && /Single tree/.test(after[0].text), JSON.stringify(after));
+    const compared = await page.$$eval('#compare-table tr[data-run]', (r) => r.map((x) => x.textContent));
+    expect(compared.length === 1 && /Single tree/.test(compared[0]), JSON.stringify(compared));
+    expect(/Run 1 \(random forest\) removed; the other runs are unchanged/.test(await page.textContent('#compare-message')), await page.textContent('#compare-message'));
+    // The steps that pick a run offer only the one left.
+    for (const id of ['insight-run', 'score-run']) {
+      const offered = await page.$$eval(`#${id} option`, (o) => o.map((x) => x.textContent));
+      expect(offered.length === 1 && /Single tree/.test(offered[0]), `${id}: ${offered}`);
+    }
+    await page.reload();
+    await page.waitForSelector('#app[data-ready=yes]', { timeout: 30000 });
+    await regrown(1);
+    const restored = await runRows();
+    expect(restored.length === 1 && restored[0].training === before[1].training && restored[0].same === 'yes', JSON.stringify(restored));
+  });
+
+  await check('a baseline grown as a run has its own row with AUC and interval equal to `spinney evaluate --baseline`\'s, and survives save and reopen', async () => {
+    await page.check('input[name=method][value=baseline]');
+    // Its one setting, with its help, checked as typed.
+    expect(/pulled towards zero/.test(await page.textContent('#help-penalty')), 'no help for the penalty');
+    await page.fill('#set-penalty', '0');
+    expect(/not a number above 0/.test(await page.textContent('#err-penalty')), await page.textContent('#err-penalty'));
+    await page.fill('#set-penalty', '1');
+    await page.selectOption('#judging', 'folds:5');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="2"]', { timeout: 60000 });
+    const row = () => page.$eval('#compare-table tr[data-run="2"]', (r) => {
+      const auc = r.querySelector('[data-figure=auc]');
+      return { text: r.textContent, auc: auc.dataset.value, shown: auc.textContent };
+    });
+    const first = await row();
+    expect(/Baseline, penalty 1/.test(first.text) && /\d\.\d{3} \(\d\.\d{3} to \d\.\d{3}\)/.test(first.shown), JSON.stringify(first));
+    // The command line judges the same baseline beside a run on the same splits (seed 1, 500
+    // resamples, the run's predictors).
+    await page.evaluate(() => window.dispatchEvent(new Event('beforeprint')));
+    const predictors = await page.$eval('#report .report-run[data-run="2"] [data-report=predictors]', (e) => e.textContent);
+    const cli = spinney(['evaluate', join(out, 'surgery-first-3000.csv'), '--outcome', 'complication_30d', '--method', 'tree',
+      '--validate', 'folds:5', '--baseline', '--resamples', '500', '--predictors', predictors.split(', ').join(','), '--json']);
+    expect(cli.status === 0, cli.stderr);
+    const auc = JSON.parse(cli.stdout).baseline.metrics.auc;
+    expect(Number(first.auc) === auc.value, `page ${first.auc}, command line ${auc.value}`);
+    const [low, high] = /\((\d\.\d+) to (\d\.\d+)\)/.exec(first.shown).slice(1).map(Number);
+    expect(low === Number(auc.low.toFixed(3)) && high === Number(auc.high.toFixed(3)), `interval ${low} to ${high} vs ${auc.low} to ${auc.high}`);
+    const file = await download(() => page.click('#study-save'), 'with-baseline.spinney-study.json');
+    const st = JSON.parse(file.text);
+    expect(st.version.minor === 2 && st.runs[1].method === 'baseline' && st.runs[1].settings.penalty === '1', `${JSON.stringify(st.version)} ${JSON.stringify(st.runs[1]).slice(0, 200)}`);
+    // The same data is loaded, so the study grows its runs on it at once.
+    await page.evaluate(() => { delete document.querySelector('#study-status').dataset.regrown; });
+    const text = await openStudy(file.path);
+    expect(/Study opened on its own data/.test(text), text);
+    await regrown(2);
+    const rows = await runRows();
+    expect(rows.every((r) => r.same === 'yes'), JSON.stringify(rows.map((r) => r.same)));
+    const again = await row();
+    expect(again.auc === first.auc && again.shown === first.shown, `reopened: ${again.shown} vs ${first.shown}`);
+  });
+
+  await check('step 5 shows the baseline\'s coefficients and a record\'s contributions that add up to its probability; steps 6 and 7 use it', async () => {
+    await page.selectOption('#insight-run', '1');
+    await page.click('#insight-go');
+    await page.waitForSelector('#coefficients-numbers table', { state: 'attached', timeout: 60000 });
+    await page.waitForFunction(() => document.querySelector('#insight-status').hidden, null, { timeout: 60000 });
+    expect(await page.$eval('#insight-importance', (f) => f.hidden) && !(await page.$eval('#insight-coefficients', (f) => f.hidden)), 'tree charts shown for a baseline');
+    expect(/not trees/.test(await page.textContent('#insight-notes')), 'no word of what does not apply');
+    await page.locator('#step-insight').screenshot({ path: join(out, 'study-baseline-insight.png') });
+    const facts = await page.$eval('#insight-record-facts .facts', (f) => ({ base: Number(f.dataset.base), sum: Number(f.dataset.sum), text: f.textContent }));
+    const amounts = await page.$$eval('#contributions-numbers table.contributions-all tbody td.num', (c) => c.map((x) => Number(x.textContent)));
+    const total = facts.base + amounts.reduce((a, b) => a + b, 0);
+    // Local accuracy (Lundberg & Lee 2017): base + contributions = the log-odds, whose
+    // logistic function is the probability the page shows.
+    const shown = Number(/probability of 'yes' ([0-9.e-]+)/.exec(facts.text)?.[1]);
+    expect(Math.abs(total - facts.sum) < 1e-9 && Math.abs(1 / (1 + Math.exp(-facts.sum)) - shown) < 1e-9, `${total} / ${facts.sum} / ${shown}`);
+    // Step 6 on its cross-validated predictions: every one of the 3000 records counted.
+    await page.selectOption('#threshold-run', '1');
+    await page.waitForFunction(() => document.querySelector('.threshold-tables')?.dataset.outOfSample === 'true'
+      && /5-fold cross-validation/.test(document.querySelector('#threshold-result').textContent), null, { timeout: 30000 });
+    const cells = await page.$eval('.threshold-tables', (t) => ['tp', 'fp', 'tn', 'fn'].reduce((a, k) => a + Number(t.dataset[k]), 0));
+    expect(cells === 3000, `${cells} records in the confusion matrix`);
+    await page.selectOption('#score-run', '1');
+    await page.setInputFiles('#score-input', join(out, 'surgery-first-3000.csv'));
+    await page.waitForFunction(() => document.querySelector('#score-result .facts') || document.querySelector('#score-message').textContent, null, { timeout: 60000 });
+    expect(await page.$eval('#score-result .facts', (f) => f.dataset.rows) === '3000', await page.textContent('#score-message'));
+    const header = await page.$$eval('#score-result table thead th', (h) => h.map((x) => x.textContent));
+    expect(header.includes('probability_yes') && header.includes('top_1_predictor'), header.join(','));
   });
 
   await checkNothingLeft(requests, origin, consoleErrors);

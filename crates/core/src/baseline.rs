@@ -218,6 +218,21 @@ impl Preparation {
         self.features.len()
     }
 
+    /// How many model columns each predictor became, in order (they are contiguous).
+    pub fn widths(&self) -> Vec<usize> {
+        self.columns
+            .iter()
+            .map(|p| match p {
+                Prepared::Number { missing_column, .. } => 1 + usize::from(*missing_column),
+                Prepared::Category {
+                    levels,
+                    missing_column,
+                    ..
+                } => levels + usize::from(*missing_column),
+            })
+            .collect()
+    }
+
     /// The model columns of `columns` (the same predictors, in the same order, as at fit),
     /// row-major: rows × [`Preparation::width`].
     pub fn apply(&self, columns: &[Column]) -> Result<Vec<f64>> {

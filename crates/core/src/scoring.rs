@@ -22,12 +22,16 @@ pub fn csv_field(text: &str) -> String {
 }
 
 /// Writes the predictions of `model` for the rows of `table` (read as `records`), a line at
-/// a time.
+/// a time; or predictions made elsewhere ([`PredictionRows::given`], the page's baseline).
 pub struct PredictionRows<'a> {
-    model: &'a Model,
-    records: &'a Records,
+    source: Source<'a>,
+    outcome: &'a str,
+    classes: Option<&'a [String]>,
+    rows: usize,
     kept: Vec<&'a Column>,
-    /// Predictions of rows `block_start..` (`outputs` a row), computed a block at a time
+    /// Values a row: class probabilities, or the number.
+    outputs: usize,
+    /// A model's predictions of rows `block_start..` (`outputs` a row), computed a block at a time
     /// ([`Model::predict_rows`]) as the rows are asked for.
     block: Vec<f64>,
     block_start: usize,
@@ -36,28 +40,59 @@ pub struct PredictionRows<'a> {
 /// Rows predicted together when scoring: their predictions and one tree fit in the cache.
 const SCORING_BLOCK: usize = 4096;
 
+enum Source<'a> {
+    Model(&'a Model, &'a Records),
+    /// `outputs` values per row.
+    Given(&'a [f64]),
+}
+
 impl<'a> PredictionRows<'a> {
     /// `keep`: columns of `table` to copy in front (names not in the table are skipped;
     /// callers check them first).
     pub fn new(model: &'a Model, table: &'a Table, records: &'a Records, keep: &[String]) -> Self {
         PredictionRows {
-            model,
-            records,
+            source: Source::Model(model, records),
+            outcome: &model.outcome,
+            classes: model.classes.as_deref(),
+            rows: records.rows,
             kept: keep.iter().filter_map(|k| table.column(k)).collect(),
+            outputs: model.outputs(),
+            block: Vec::new(),
+            block_start: 0,
+        }
+    }
+
+    /// The same lines for `predictions` of every row of `table` made by another model:
+    /// class probabilities (one per class) or the number.
+    pub fn given(
+        outcome: &'a str,
+        classes: Option<&'a [String]>,
+        predictions: &'a [f64],
+        table: &'a Table,
+        keep: &[String],
+    ) -> Self {
+        let outputs = classes.map_or(1, <[String]>::len);
+        PredictionRows {
+            source: Source::Given(predictions),
+            outcome,
+            classes,
+            rows: predictions.len() / outputs.max(1),
+            kept: keep.iter().filter_map(|k| table.column(k)).collect(),
+            outputs,
             block: Vec::new(),
             block_start: 0,
         }
     }
 
     pub fn rows(&self) -> usize {
-        self.records.rows
+        self.rows
     }
 
     /// The header line's fields.
     pub fn header(&self) -> Vec<String> {
         let mut header: Vec<String> = self.kept.iter().map(|c| c.name.clone()).collect();
-        header.push(format!("predicted_{}", self.model.outcome));
-        if let Some(classes) = &self.model.classes {
+        header.push(format!("predicted_{}", self.outcome));
+        if let Some(classes) = self.classes {
             header.extend(classes.iter().map(|c| format!("probability_{c}")));
         }
         header
@@ -70,18 +105,22 @@ impl<'a> PredictionRows<'a> {
             .iter()
             .map(|c| c.display(row).unwrap_or_default())
             .collect();
-        let k = self.model.outputs();
-        let held = self.block.len() / k.max(1);
-        if row < self.block_start || row >= self.block_start + held {
-            let end = (row + SCORING_BLOCK).min(self.records.rows);
-            self.block.resize((end - row) * k, 0.0);
-            self.model
-                .predict_rows(Rows::Records(self.records), row..end, &mut self.block);
-            self.block_start = row;
-        }
-        let at = (row - self.block_start) * k;
-        let out = &self.block[at..at + k];
-        match &self.model.classes {
+        let k = self.outputs;
+        let out = match self.source {
+            Source::Model(model, records) => {
+                let held = self.block.len() / k.max(1);
+                if row < self.block_start || row >= self.block_start + held {
+                    let end = (row + SCORING_BLOCK).min(records.rows);
+                    self.block.resize((end - row) * k, 0.0);
+                    model.predict_rows(Rows::Records(records), row..end, &mut self.block);
+                    self.block_start = row;
+                }
+                let at = (row - self.block_start) * k;
+                &self.block[at..at + k]
+            }
+            Source::Given(p) => &p[row * k..(row + 1) * k],
+        };
+        match self.classes {
             Some(classes) => {
                 line.push(classes.get(argmax(out)).cloned().unwrap_or_default());
                 line.extend(out.iter().map(|x| x.to_string()));
@@ -123,6 +162,55 @@ pub fn partial_note(model: &Model) -> Option<String> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn given_predictions_write_the_same_lines_as_the_model() {
+        // Our own consistency rule (common practice, no source): the page's baseline writes
+        // its predictions through `given`, in the very columns and numbers `spinney predict`
+        // writes for a model.
+        use crate::data::{read_table, ReadOptions};
+        use crate::design::{build_design, DesignSpec};
+        use crate::fit::{fit_design, FitOptions};
+        use crate::model::Method;
+        use crate::progress::Silent;
+        use crate::settings::FitSettings;
+        let mut text = String::from("y,a,c\n");
+        for i in 0..40 {
+            let y = if (i * 7) % 10 < 4 { "yes" } else { "no" };
+            text += &format!("{y},{},{}\n", i % 9, ["k", "\"l, m\""][i % 2]);
+        }
+        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table;
+        let spec = DesignSpec {
+            outcome: "y".into(),
+            predictors: vec!["a".into(), "c".into()],
+            weight: None,
+            group: None,
+            positive: None,
+        };
+        let design = build_design(&table, &spec).unwrap();
+        let settings = FitSettings::build(Method::Tree, 2, false, "y", &[]).unwrap();
+        let model = fit_design(design, &settings, None, FitOptions::default(), &mut Silent)
+            .unwrap()
+            .model;
+        let (records, _) = model.records(&table).unwrap();
+        let keep = ["c".to_string()];
+        let mut p = Vec::new();
+        let mut out = vec![0.0; model.outputs()];
+        for r in 0..records.rows {
+            model.predict(Rows::Records(&records), r, &mut out);
+            p.extend_from_slice(&out);
+        }
+        let mut by_model = PredictionRows::new(&model, &table, &records, &keep);
+        let mut given =
+            PredictionRows::given(&model.outcome, model.classes.as_deref(), &p, &table, &keep);
+        assert_eq!(by_model.header(), given.header());
+        assert_eq!(by_model.rows(), given.rows());
+        for r in 0..records.rows {
+            assert_eq!(by_model.fields(r), given.fields(r), "row {r}");
+        }
+    }
 
     #[test]
     fn fields_are_quoted_as_rfc_4180_asks() {

@@ -3,7 +3,7 @@
 //!
 //! One JSON object, format version 1:
 //!
-//! - `format` (`"spinney-study"`), `version` (`{"major": 1, "minor": 1}`), `written_by`;
+//! - `format` (`"spinney-study"`), `version` (`{"major": 1, "minor": 2}`), `written_by`;
 //! - `data`: the file's name, its SHA-256 `fingerprint`, `rows`, how it was `reading` (sheet,
 //!   extra missing-value codes, kinds the user chose), every column's `name`, `kind` and
 //!   `role` (outcome, predictor, group, weight, ignore), and only if the user asked for it,
@@ -13,7 +13,10 @@
 //!   `earlier_data` (before the roles or reading changed), its `result` figures, and
 //!   optionally its fitted `model` (a model file, see [`crate::model_file`]);
 //! - since 1.1, each run's `positive` (optional: the class called positive), and `threshold` (optional): the decision threshold step's choice, the `run`
-//!   (1-based, in `runs`), the class called `positive` and the threshold `value`.
+//!   (1-based, in `runs`), the class called `positive` and the threshold `value`;
+//! - since 1.2, a run's `method` may be `baseline` ([`BASELINE`]: the penalised logistic or
+//!   ridge regression grown as a run of its own, its one setting `penalty`); such a run has
+//!   no `model` (model files hold tree models).
 //!
 //! The reader accepts any 1.x file (unknown fields skipped), refuses a newer major version,
 //! non-JSON, other JSON, cut files and contents that do not hold together (roles, kinds,
@@ -37,7 +40,9 @@ pub const FORMAT: &str = "spinney-study";
 /// The major version written and the newest read.
 pub const MAJOR: u64 = 1;
 /// The minor version written: additions older 1.x readers can skip.
-pub const MINOR: u64 = 1;
+pub const MINOR: u64 = 2;
+/// The `method` of a baseline run (since 1.2; see [`crate::validate::validate_baseline`]).
+pub const BASELINE: &str = "baseline";
 /// The roles a column can have, as the file spells them.
 pub const ROLES: [&str; 5] = ["outcome", "predictor", "group", "weight", "ignore"];
 
@@ -372,10 +377,15 @@ fn check(study: &Study) -> std::result::Result<(), String> {
     }
     for (i, run) in study.runs.iter().enumerate() {
         let n = i + 1;
-        if Method::from_word(&run.method).is_none() {
+        if Method::from_word(&run.method).is_none() && run.method != BASELINE {
             return Err(format!(
-                "run {n} has the method '{}', not one of tree, bagging, forest, adaboost, boosting",
+                "run {n} has the method '{}', not one of tree, bagging, forest, adaboost, boosting, baseline",
                 run.method
+            ));
+        }
+        if run.method == BASELINE && run.model.is_some() {
+            return Err(format!(
+                "run {n} is a baseline run but holds a model file, which only tree models have"
             ));
         }
         if !run.earlier_data {
@@ -609,10 +619,25 @@ mod tests {
         s.threshold = None;
         let text = write_study(&s)
             .unwrap()
-            .replace("\"minor\": 1", "\"minor\": 0");
+            .replace(&format!("\"minor\": {MINOR}"), "\"minor\": 0");
         let back = read_study(text.as_bytes()).unwrap();
         assert_eq!(back.threshold, None);
         assert_eq!(back.runs, s.runs);
+    }
+
+    #[test]
+    fn a_baseline_run_reads_back_and_version_1_1_still_reads() {
+        let mut s = study();
+        s.runs[0].method = BASELINE.into();
+        s.runs[0].settings = [("penalty".to_string(), "2".to_string())].into();
+        let text = write_study(&s).unwrap();
+        assert!(text.contains("\"minor\": 2"), "the format's minor version");
+        assert_eq!(read_study(text.as_bytes()).unwrap(), s);
+        // A 1.1 file (no baseline runs) still reads.
+        let old = write_study(&study())
+            .unwrap()
+            .replace("\"minor\": 2", "\"minor\": 1");
+        assert_eq!(read_study(old.as_bytes()).unwrap().runs, study().runs);
     }
 
     #[test]
@@ -655,11 +680,9 @@ mod tests {
             "{e}"
         );
         // A newer minor version is read, its unknown fields skipped.
-        let minor = text.replace("\"minor\": 1", "\"minor\": 3").replacen(
-            "\"runs\"",
-            "\"later_field\": [1, 2],\n  \"runs\"",
-            1,
-        );
+        let minor = text
+            .replace(&format!("\"minor\": {MINOR}"), "\"minor\": 9")
+            .replacen("\"runs\"", "\"later_field\": [1, 2],\n  \"runs\"", 1);
         assert!(read_study(minor.as_bytes()).is_ok());
         assert!(refused("not json at all").contains("not valid JSON"));
         assert!(refused("[1, 2]").contains("one JSON object"));

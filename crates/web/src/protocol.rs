@@ -9,7 +9,7 @@ use spinney_core::data::TableReport;
 use spinney_core::validate::FoldRun;
 
 /// Bumped when a message changes incompatibly.
-pub const PROTOCOL_VERSION: u32 = 4;
+pub const PROTOCOL_VERSION: u32 = 5;
 
 /// Rows of the preview table.
 pub const PREVIEW_ROWS: usize = 20;
@@ -50,7 +50,8 @@ pub enum Request {
         v: u32,
         id: u32,
         design: FitDesign,
-        /// `tree`, `bagging`, `forest` or `adaboost` (the command line's `--method` words).
+        /// `tree`, `bagging`, `forest`, `adaboost` or `boosting` (the command line's
+        /// `--method` words), or `baseline` (its one setting `penalty`).
         method: String,
         /// (name, value) pairs by the command line's `--set` names; the rest keep the
         /// method's defaults.
@@ -100,6 +101,9 @@ pub enum Request {
     },
     /// The per-row predictions of a kept two-class run (see [`RunPredictions`]).
     Predictions { v: u32, id: u32, run: u32 },
+    /// The user removed kept run `run`: the worker drops its model and judged predictions
+    /// (the other runs keep their numbers). No answer.
+    Forget { v: u32, id: u32, run: u32 },
     /// The kept runs' models as model files (`None` asks for nothing in that place).
     ModelFiles {
         v: u32,
@@ -168,7 +172,24 @@ pub struct Insight {
     pub dependence: Option<InsightDependence>,
     pub contributions: Option<InsightContributions>,
     pub tree: Option<InsightTree>,
+    /// A baseline run's coefficients (shown instead of the trees' importance and pictures).
+    #[serde(default)]
+    pub coefficients: Option<InsightCoefficients>,
     pub notes: Vec<String>,
+}
+
+/// A baseline run's coefficients on its prepared columns (numbers standardised, one 0/1
+/// column per category level and per predictor with missing values).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct InsightCoefficients {
+    /// What one unit of a coefficient means, in a sentence.
+    pub scale: String,
+    /// The name of each coefficient row: "log-odds of 'yes'", a class, or the outcome.
+    pub outputs: Vec<String>,
+    pub intercepts: Vec<f64>,
+    /// (model column, one coefficient per row), largest first (by the first row's size).
+    pub terms: Vec<(String, Vec<f64>)>,
+    pub penalty: f64,
 }
 
 /// Importance three ways (spinney_core::explain::importance).
@@ -500,6 +521,7 @@ impl Request {
             | Request::Reread { v, .. }
             | Request::Fit { v, .. }
             | Request::Predictions { v, .. }
+            | Request::Forget { v, .. }
             | Request::Score { v, .. }
             | Request::ModelFiles { v, .. }
             | Request::FitPart { v, .. }

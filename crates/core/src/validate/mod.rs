@@ -174,7 +174,7 @@ pub fn run_in_order(
 }
 
 /// The baseline's view of a design's predictors.
-fn baseline_columns(design: &Design) -> Vec<baseline::Column<'_>> {
+pub fn baseline_columns(design: &Design) -> Vec<baseline::Column<'_>> {
     design
         .predictors
         .iter()
@@ -191,30 +191,154 @@ fn baseline_columns(design: &Design) -> Vec<baseline::Column<'_>> {
         .collect()
 }
 
-/// Penalty of the baseline: C = 1 for logistic regression and α = 1 for ridge, the
-/// defaults of scikit-learn's LogisticRegression and Ridge (common practice, no source).
-const BASELINE_PENALTY: f64 = 1.0;
+/// Penalty of the baseline judged beside a run: 1, so C = 1 for logistic regression and
+/// α = 1 for ridge, the defaults of scikit-learn's LogisticRegression and Ridge (common
+/// practice, no source).
+pub const BASELINE_PENALTY: f64 = 1.0;
 
-/// Fits the baseline on `train` and predicts `test` and `train`.
-fn fit_baseline(train: &Design, test: &Design) -> Result<(Vec<f64>, Vec<f64>)> {
-    let cols = baseline_columns(train);
-    let test_cols = baseline_columns(test);
-    match &train.outcome {
-        Outcome::Classes { codes, labels } => {
-            let m = baseline::fit_logistic(
-                &cols,
-                codes,
-                labels.len(),
-                train.weights.as_deref(),
-                BASELINE_PENALTY,
-            )?;
-            Ok((m.predict(&test_cols)?, m.predict(&cols)?))
-        }
+/// A baseline fitted on a design: L2-penalised logistic regression (classes) or ridge
+/// regression (numbers), as [`crate::baseline`] fits them.
+#[derive(Debug, Clone, PartialEq)]
+pub enum BaselineModel {
+    Logistic(baseline::Logistic),
+    Ridge(baseline::Linear),
+}
+
+/// Refuses a baseline penalty that is not a finite number above 0.
+pub fn check_penalty(penalty: f64) -> Result<()> {
+    if penalty > 0.0 && penalty.is_finite() {
+        return Ok(());
+    }
+    Err(Error::new(ErrorKind::BadSetting {
+        setting: "penalty".into(),
+        reason: format!(
+            "{penalty} is not a number above 0; give the penalty's strength, e.g. 1 (larger: \
+             coefficients pulled closer to 0)"
+        ),
+    }))
+}
+
+/// Fits the baseline on every row of `design` with penalty strength `penalty` (> 0): the
+/// logistic regression's C is 1 / `penalty`, ridge's α is `penalty`.
+pub fn fit_baseline_model(design: &Design, penalty: f64) -> Result<BaselineModel> {
+    check_penalty(penalty)?;
+    let cols = baseline_columns(design);
+    let weights = design.weights.as_deref();
+    Ok(match &design.outcome {
+        Outcome::Classes { codes, labels } => BaselineModel::Logistic(baseline::fit_logistic(
+            &cols,
+            codes,
+            labels.len(),
+            weights,
+            1.0 / penalty,
+        )?),
         Outcome::Numbers(y) => {
-            let m = baseline::fit_ridge(&cols, y, train.weights.as_deref(), BASELINE_PENALTY)?;
-            Ok((m.predict(&test_cols)?, m.predict(&cols)?))
+            BaselineModel::Ridge(baseline::fit_ridge(&cols, y, weights, penalty)?)
+        }
+    })
+}
+
+impl BaselineModel {
+    /// Predictions for the rows of `design` (class probabilities, or the number), in the
+    /// layout of [`Model::predict`]: `outputs` per row.
+    pub fn predict(&self, design: &Design) -> Result<Vec<f64>> {
+        self.predict_columns(&baseline_columns(design))
+    }
+
+    /// The same for predictor columns given one by one (in the fitted order).
+    pub fn predict_columns(&self, columns: &[baseline::Column]) -> Result<Vec<f64>> {
+        match self {
+            BaselineModel::Logistic(m) => m.predict(columns),
+            BaselineModel::Ridge(m) => m.predict(columns),
         }
     }
+
+    pub fn preparation(&self) -> &baseline::Preparation {
+        match self {
+            BaselineModel::Logistic(m) => &m.preparation,
+            BaselineModel::Ridge(m) => &m.preparation,
+        }
+    }
+
+    /// The coefficient rows on the prepared (standardised) columns and their intercepts:
+    /// one row for two classes (log-odds of the second) or a number, one per class otherwise.
+    pub fn rows(&self) -> (Vec<&[f64]>, Vec<f64>) {
+        match self {
+            BaselineModel::Logistic(m) => (
+                m.coefficients.iter().map(Vec::as_slice).collect(),
+                m.intercepts.clone(),
+            ),
+            BaselineModel::Ridge(m) => (vec![m.coefficients.as_slice()], vec![m.intercept]),
+        }
+    }
+}
+
+/// Each predictor's contribution to a baseline's linear predictor, for every row of a
+/// design: the sum over the predictor's model columns of β·(x − m), with m the column's mean
+/// over the training rows, so `base` plus a row's contributions is its linear predictor (the
+/// log-odds of the second class for two classes, the class's score for several, the number
+/// for ridge). For a linear model these are its exact SHAP values when predictors are taken
+/// as independent (Lundberg & Lee, NeurIPS 2017, "linear SHAP", from memory).
+#[derive(Debug, Clone, PartialEq)]
+pub struct BaselineContributions {
+    /// One per coefficient row (see [`BaselineModel::rows`]).
+    pub base: Vec<f64>,
+    pub predictors: usize,
+    /// Row-major: rows × predictors × coefficient rows.
+    pub values: Vec<f64>,
+}
+
+impl BaselineModel {
+    /// The contributions of every row of `columns` (the predictors in the fitted order),
+    /// against the means of `train` (the rows it was fitted on).
+    pub fn contributions(
+        &self,
+        train: &Design,
+        columns: &[baseline::Column],
+    ) -> Result<BaselineContributions> {
+        let prep = self.preparation();
+        let width = prep.width();
+        let train_x = prep.apply(&baseline_columns(train))?;
+        let rows = train_x.len().checked_div(width).unwrap_or(0).max(1);
+        let mut means = vec![0.0; width];
+        for row in train_x.chunks_exact(width.max(1)) {
+            for (m, x) in means.iter_mut().zip(row) {
+                *m += x;
+            }
+        }
+        means.iter_mut().for_each(|m| *m /= rows as f64);
+        let (coefficients, intercepts) = self.rows();
+        let k = coefficients.len();
+        let base: Vec<f64> = coefficients
+            .iter()
+            .zip(&intercepts)
+            .map(|(b, c)| c + b.iter().zip(&means).map(|(b, m)| b * m).sum::<f64>())
+            .collect();
+        let widths = prep.widths();
+        let x = prep.apply(columns)?;
+        let mut values = Vec::with_capacity(x.len() / width.max(1) * widths.len() * k);
+        for row in x.chunks_exact(width.max(1)) {
+            let mut at = 0;
+            for w in &widths {
+                let cols = at..at + w;
+                for b in &coefficients {
+                    values.push(cols.clone().map(|j| b[j] * (row[j] - means[j])).sum());
+                }
+                at += w;
+            }
+        }
+        Ok(BaselineContributions {
+            base,
+            predictors: widths.len(),
+            values,
+        })
+    }
+}
+
+/// Fits the baseline on `train` and predicts `test` and `train`.
+fn fit_baseline(train: &Design, test: &Design, penalty: f64) -> Result<(Vec<f64>, Vec<f64>)> {
+    let m = fit_baseline_model(train, penalty)?;
+    Ok((m.predict(test)?, m.predict(train)?))
 }
 
 /// New records of `design`'s rows read by the bins of a model fitted on other rows:
@@ -274,7 +398,7 @@ pub fn run_split(
     let test = design.select_rows(&split.test);
     let bootstrap = matches!(plan.scheme, Scheme::Bootstrap { .. });
     let (baseline, baseline_train) = if plan.baseline {
-        let (t, a) = fit_baseline(&train, &test)?;
+        let (t, a) = fit_baseline(&train, &test, BASELINE_PENALTY)?;
         (Some(t), Some(a))
     } else {
         (None, None)
@@ -511,6 +635,7 @@ pub fn out_of_bag_spread(
             let (p, _) = fit_baseline(
                 &design.select_rows(&split.train),
                 &design.select_rows(&split.test),
+                BASELINE_PENALTY,
             )?;
             for (pos, &r) in split.test.iter().enumerate() {
                 pooled[r * outputs..(r + 1) * outputs]
@@ -561,22 +686,7 @@ pub fn validate(
     runner: Option<FoldRunner<'_>>,
     progress: &mut dyn Progress,
 ) -> Result<Validation> {
-    if !(plan.threshold > 0.0 && plan.threshold < 1.0) {
-        return Err(Error::new(ErrorKind::BadSetting {
-            setting: "threshold".into(),
-            reason: format!(
-                "{} is outside (0, 1); give the probability from which a row is called an \
-                 event, e.g. 0.5",
-                plan.threshold
-            ),
-        }));
-    }
-    let n = design.outcome.len();
-    let outputs = match &design.outcome {
-        Outcome::Classes { labels, .. } => labels.len(),
-        Outcome::Numbers(_) => 1,
-    };
-    let mut notes = Vec::new();
+    check_threshold(plan)?;
     let run_splits = |splits: &[Split], plan: &Plan, progress: &mut dyn Progress| {
         let job = |i: usize, options: FitOptions<'_>, progress: &mut dyn Progress| {
             run_split(design, settings, plan, &splits[i], options, progress)
@@ -603,13 +713,107 @@ pub fn validate(
 
     let s = splits(design, &plan.scheme, plan.seed)?;
     let runs = run_splits(&s, plan, progress)?;
+    // Bootstrap's apparent fit: every row, judged on those rows.
+    let mut apparent = || -> Result<Vec<f64>> {
+        let fitted = fit_design(design.clone(), settings, None, options, &mut *progress)?;
+        if fitted.model.partial {
+            return Err(cancelled());
+        }
+        Ok(predict_all(&fitted.model, Rows::Binned(&fitted.binned)))
+    };
+    pooled(design, plan, &s, runs, options.spread, &mut apparent)
+}
+
+/// Refuses a two-class threshold outside (0, 1).
+fn check_threshold(plan: &Plan) -> Result<()> {
+    if plan.threshold > 0.0 && plan.threshold < 1.0 {
+        return Ok(());
+    }
+    Err(Error::new(ErrorKind::BadSetting {
+        setting: "threshold".into(),
+        reason: format!(
+            "{} is outside (0, 1); give the probability from which a row is called an \
+             event, e.g. 0.5",
+            plan.threshold
+        ),
+    }))
+}
+
+/// Validates the baseline itself (not beside a run): [`fit_baseline_model`] with `penalty`
+/// fitted on each split's training rows and judged on its test rows, pooled and judged as
+/// [`validate`] judges a run (so its figures equal the baseline judged beside a run on the
+/// same splits with the same penalty). Out-of-bag is refused: a baseline is not grown from
+/// resamples.
+pub fn validate_baseline(
+    design: &Design,
+    penalty: f64,
+    plan: &Plan,
+    progress: &mut dyn Progress,
+) -> Result<Validation> {
+    check_threshold(plan)?;
+    if plan.scheme == Scheme::OutOfBag {
+        return Err(Error::new(ErrorKind::BadSetting {
+            setting: "validate".into(),
+            reason: "oob: the baseline is not grown from resamples, so it has no out-of-bag \
+                     records; use folds:5"
+                .into(),
+        }));
+    }
+    let s = splits(design, &plan.scheme, plan.seed)?;
+    let bootstrap = matches!(plan.scheme, Scheme::Bootstrap { .. });
+    let mut runs = Vec::with_capacity(s.len());
+    for (i, split) in s.iter().enumerate() {
+        if progress.step("fits", i as u64, s.len() as u64) == Flow::Stop {
+            return Err(cancelled());
+        }
+        let train = design.select_rows(&split.train);
+        let test = design.select_rows(&split.test);
+        let (on_test, on_train) = fit_baseline(&train, &test, penalty)?;
+        runs.push(FoldRun {
+            figures: figures(&test.outcome, &on_test, plan.threshold),
+            apparent: bootstrap.then(|| figures(&train.outcome, &on_train, plan.threshold)),
+            predictions: on_test,
+            baseline: None,
+            error_by_size: None,
+            training_error_by_size: None,
+            baseline_figures: None,
+            baseline_apparent: None,
+            members: 1,
+        });
+    }
+    progress.step("fits", s.len() as u64, s.len() as u64);
+    let plan = Plan {
+        baseline: false,
+        ..plan.clone()
+    };
+    let mut apparent = || fit_baseline_model(design, penalty)?.predict(design);
+    pooled(design, &plan, &s, runs, None, &mut apparent)
+}
+
+/// Pools the splits' fits `runs` (of splits `s`) into each row's out-of-sample prediction
+/// and judges them as `plan` says; `fit_all` gives the predictions on every row of a fit
+/// on every row (asked for bootstrap's optimism correction only).
+fn pooled(
+    design: &Design,
+    plan: &Plan,
+    s: &[Split],
+    runs: Vec<FoldRun>,
+    spread: Option<Spread<'_>>,
+    fit_all: &mut dyn FnMut() -> Result<Vec<f64>>,
+) -> Result<Validation> {
+    let n = design.outcome.len();
+    let outputs = match &design.outcome {
+        Outcome::Classes { labels, .. } => labels.len(),
+        Outcome::Numbers(_) => 1,
+    };
+    let mut notes = Vec::new();
     let predictions =
-        pool(n, outputs, &s, |i| Some(runs[i].predictions.clone())).unwrap_or_default();
-    let baseline_predictions = pool(n, outputs, &s, |i| runs[i].baseline.clone());
-    let mut model = judge_pooled(design, &predictions, outputs, plan, options.spread);
+        pool(n, outputs, s, |i| Some(runs[i].predictions.clone())).unwrap_or_default();
+    let baseline_predictions = pool(n, outputs, s, |i| runs[i].baseline.clone());
+    let mut model = judge_pooled(design, &predictions, outputs, plan, spread);
     let mut baseline = baseline_predictions
         .as_ref()
-        .map(|p| judge_pooled(design, p, outputs, plan, options.spread));
+        .map(|p| judge_pooled(design, p, outputs, plan, spread));
     let judged_rows = model.rows;
     let mut fold_of_row = vec![None; n];
     for split in s.iter().filter(|x| x.repeat == 0) {
@@ -635,11 +839,7 @@ pub fn validate(
     match &plan.scheme {
         Scheme::Bootstrap { resamples } => {
             // The apparent fit: every row, judged on those rows.
-            let fitted = fit_design(design.clone(), settings, None, options, progress)?;
-            if fitted.model.partial {
-                return Err(cancelled());
-            }
-            let p = predict_all(&fitted.model, Rows::Binned(&fitted.binned));
+            let p = fit_all()?;
             let a = figures(&design.outcome, &p, plan.threshold);
             let pairs: Vec<(&Figures, &Figures)> = runs
                 .iter()
@@ -648,7 +848,7 @@ pub fn validate(
             let o = optimism(&pairs);
             correct(&mut model, &a, &o);
             if plan.baseline {
-                let (_, train_pred) = fit_baseline(design, design)?;
+                let (_, train_pred) = fit_baseline(design, design, BASELINE_PENALTY)?;
                 let ba = figures(&design.outcome, &train_pred, plan.threshold);
                 let pairs: Vec<(&Figures, &Figures)> = runs
                     .iter()
@@ -767,6 +967,73 @@ mod tests {
             &[("trees".into(), trees.to_string())],
         )
         .unwrap()
+    }
+
+    #[test]
+    fn the_baseline_judged_alone_equals_the_baseline_judged_beside_a_run() {
+        // Our own consistency rule (common practice, no source): a baseline run on a scheme is
+        // the baseline `spinney evaluate --baseline` judges beside a run on the same splits,
+        // to the bit, bootstrap optimism correction included. (Its coefficients are checked
+        // against scikit-learn in tests/reference/check_metrics.py.)
+        let d = problem();
+        for scheme in ["folds:5", "holdout:0.25", "bootstrap:8", "folds:4:2"] {
+            let beside = validate(
+                &d,
+                &forest(5),
+                &plan(scheme),
+                FitOptions::default(),
+                None,
+                &mut Silent,
+            )
+            .unwrap();
+            let alone =
+                validate_baseline(&d, BASELINE_PENALTY, &plan(scheme), &mut Silent).unwrap();
+            assert_eq!(Some(&alone.model), beside.baseline.as_ref(), "{scheme}");
+            // Bit for bit (holdout leaves NaN for rows never held out).
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(
+                bits(&alone.predictions),
+                bits(beside.baseline_predictions.as_deref().unwrap())
+            );
+            assert_eq!(alone.apparent, beside.baseline_apparent, "{scheme}");
+            assert!(alone.baseline.is_none() && alone.error_by_size.is_none());
+            assert_eq!(alone.notes, beside.notes, "{scheme}");
+        }
+        // A stronger penalty gives another model; out-of-bag and a bad penalty are refused.
+        let strong = validate_baseline(&d, 100.0, &plan("folds:5"), &mut Silent).unwrap();
+        let usual = validate_baseline(&d, 1.0, &plan("folds:5"), &mut Silent).unwrap();
+        assert_ne!(strong.predictions, usual.predictions);
+        let oob = validate_baseline(&d, 1.0, &plan("oob"), &mut Silent).unwrap_err();
+        assert!(oob.to_string().contains("no out-of-bag"), "{oob}");
+        let zero = validate_baseline(&d, 0.0, &plan("folds:5"), &mut Silent).unwrap_err();
+        assert!(zero.to_string().contains("penalty"), "{zero}");
+        // Stopped between splits.
+        assert!(validate_baseline(&d, 1.0, &plan("folds:5"), &mut StopAfter(2)).is_err());
+    }
+
+    #[test]
+    fn baseline_contributions_add_up_to_its_prediction() {
+        // Local accuracy (Lundberg & Lee 2017, property 1): base + Σ contributions is the
+        // linear predictor, whose logistic function is the predicted probability.
+        let d = problem();
+        let m = fit_baseline_model(&d, 1.0).unwrap();
+        let c = m.contributions(&d, &baseline_columns(&d)).unwrap();
+        let p = m.predict(&d).unwrap();
+        assert_eq!(c.predictors, 4);
+        for r in [0, 7, 399] {
+            let sum = c.base[0] + c.values[r * 4..(r + 1) * 4].iter().sum::<f64>();
+            let prob = 1.0 / (1.0 + (-sum).exp());
+            assert!(
+                (prob - p[r * 2 + 1]).abs() < 1e-12,
+                "row {r}: {prob} vs {}",
+                p[r * 2 + 1]
+            );
+        }
+        // Averaged over the training rows each predictor's contribution is 0.
+        for j in 0..4 {
+            let mean: f64 = (0..400).map(|r| c.values[r * 4 + j]).sum::<f64>() / 400.0;
+            assert!(mean.abs() < 1e-12, "predictor {j}: mean {mean}");
+        }
     }
 
     #[test]

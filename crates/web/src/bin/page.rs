@@ -287,10 +287,50 @@ fn send(page: &Shared, request: Request, bytes: Option<Uint8Array>) {
     post_now(&p.worker, &request, bytes.as_ref());
 }
 
+/// Slots in the stop list: more insight requests than this are never waiting at once.
+const STOP_SLOTS: u32 = 32;
+
+thread_local! {
+    /// Ids of requests the page wants stopped, shared with the workers (a SharedArrayBuffer
+    /// of [`STOP_SLOTS`] numbers, read by a busy worker between trees; see `stopped` in
+    /// worker.rs), and the next slot to write. `None` where the page is not cross-origin
+    /// isolated (opened from a file, or served without the two headers), which browsers
+    /// require for shared memory.
+    static STOP_LIST: RefCell<Option<(js_sys::Int32Array, u32)>> = RefCell::new(
+        web_sys::window()
+            .and_then(|w| Reflect::get(&w, &"crossOriginIsolated".into()).ok())
+            .and_then(|v| v.as_bool())
+            .filter(|isolated| *isolated)
+            .map(|_| {
+                let shared = js_sys::SharedArrayBuffer::new(4 * STOP_SLOTS);
+                (js_sys::Int32Array::new(&shared), 0)
+            }),
+    );
+}
+
+/// Asks the workers to stop request `id` where they can see it (see [`STOP_LIST`]); false
+/// when the page has no shared memory and the worker cannot be told.
+fn stop_request(id: u32) -> bool {
+    STOP_LIST.with(|s| {
+        let mut s = s.borrow_mut();
+        let Some((list, next)) = s.as_mut() else {
+            return false;
+        };
+        let _ = js_sys::Atomics::store(&*list, *next, id as i32);
+        *next = (*next + 1) % STOP_SLOTS;
+        true
+    })
+}
+
 fn post_now(worker: &Worker, request: &Request, bytes: Option<&Uint8Array>) {
     let envelope = Object::new();
     let msg = serde_wasm_bindgen::to_value(request).unwrap_or(JsValue::NULL);
     let _ = Reflect::set(&envelope, &"msg".into(), &msg);
+    STOP_LIST.with(|s| {
+        if let Some((list, _)) = s.borrow().as_ref() {
+            let _ = Reflect::set(&envelope, &"stop".into(), list);
+        }
+    });
     let transfer = Array::new();
     if let Some(b) = bytes {
         let _ = Reflect::set(&envelope, &"bytes".into(), b);
@@ -1195,6 +1235,7 @@ fn main() {
         cancel(&pg, "Reading cancelled.")
     });
     runs::listen(&page);
+    compare::listen(&page);
     checks::listen(&page);
     insight::listen(&page);
     threshold::listen(&page);

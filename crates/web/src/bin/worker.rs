@@ -31,6 +31,9 @@ use spinney_web::protocol::{
 };
 use wasm_bindgen::prelude::*;
 use web_sys::{DedicatedWorkerGlobalScope, MessageEvent};
+// The baseline as a run of its own (fit, insight, scoring), beside this file.
+#[path = "worker/baseline.rs"]
+mod baseline;
 // Insight into a kept run (importance, dependence, contributions, a tree), beside this file.
 #[path = "worker/explain.rs"]
 mod explain;
@@ -43,20 +46,54 @@ struct Held {
     /// The splits' fits of a judging done by extra workers, for the fit of this id.
     fold_runs: Option<(u32, Vec<FoldRun>)>,
     /// Every model fitted since the worker started, by run number (for the later steps:
-    /// insight, threshold, scoring). A cancel restarts the worker, so the list starts again.
-    runs: Vec<Run>,
+    /// insight, threshold, scoring); `None` once the user removed it (the numbers of the
+    /// others stay). A cancel restarts the worker, so the list starts again.
+    runs: Vec<Option<Run>>,
 }
 
-/// One kept run: the columns asked for and the model (its method and settings inside).
+impl Held {
+    /// Kept run `run`, unless it was removed (or never fitted by this worker).
+    fn kept(&self, run: u32) -> Option<&Run> {
+        self.runs.get(run as usize)?.as_ref()
+    }
+}
+
+/// Why a run asked for is not there.
+const GONE: &str = "the worker no longer holds this run (it was removed, or the worker was restarted after a cancel); grow the run again";
+
+/// One kept run: the columns asked for and the model.
 struct Run {
     design: FitDesign,
-    model: Model,
+    kept: Kept,
     /// Its out-of-sample predictions when it was judged: the scheme in words and, per row
     /// of the fitted design, the probability of the second class (NaN where the row has
     /// none). Two-class outcomes only.
     judged: Option<JudgedRows>,
     /// How it was judged (held-out importance refits the same splits).
     judging: Option<Judging>,
+}
+
+/// A kept run's model: a tree model (its method and settings inside), or the baseline.
+enum Kept {
+    Trees(Model),
+    Baseline(baseline::BaselineRun),
+}
+
+impl Kept {
+    /// The fingerprint of the data it was fitted on.
+    fn fingerprint(&self) -> Option<&str> {
+        match self {
+            Kept::Trees(m) => m.training_fingerprint.as_deref(),
+            Kept::Baseline(b) => Some(&b.fingerprint),
+        }
+    }
+
+    fn classes(&self) -> Option<&[String]> {
+        match self {
+            Kept::Trees(m) => m.classes.as_deref(),
+            Kept::Baseline(b) => b.classes.as_deref(),
+        }
+    }
 }
 
 /// A judged run's scheme in words and, per row of its design, its out-of-sample probability
@@ -101,8 +138,28 @@ impl Reporter {
     }
 }
 
+thread_local! {
+    /// The page's stop list (see [`stopped`]), once it sent one.
+    static STOP: std::cell::RefCell<Option<js_sys::Int32Array>> = const { std::cell::RefCell::new(None) };
+}
+
+/// Whether the page asked to stop request `id`: its number is in the shared stop list the
+/// page sends with its messages (a SharedArrayBuffer, read while this worker computes; only
+/// where the page is cross-origin isolated). The page writes the ids of the insight requests
+/// it cancels there.
+pub fn stopped(id: u32) -> bool {
+    STOP.with(|s| {
+        s.borrow().as_ref().is_some_and(|list| {
+            (0..list.length()).any(|i| js_sys::Atomics::load(list, i).ok() == Some(id as i32))
+        })
+    })
+}
+
 impl Progress for Reporter {
     fn step(&mut self, stage: &str, done: u64, total: u64) -> Flow {
+        if stopped(self.id) {
+            return Flow::Stop;
+        }
         let now = js_sys::Date::now();
         if done == total || now - self.last >= 100.0 {
             self.last = now;
@@ -194,8 +251,11 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             let files = runs
                 .iter()
                 .map(|r| {
-                    let run = held.runs.get((*r)? as usize)?;
-                    write_model(&run.model).ok()
+                    match &held.kept((*r)?)?.kept {
+                        Kept::Trees(model) => write_model(model).ok(),
+                        // Model files hold tree models; a study keeps a baseline's settings.
+                        Kept::Baseline(_) => None,
+                    }
                 })
                 .collect();
             return post(&Reply::ModelFiles { id, files });
@@ -209,6 +269,19 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             tree,
             ..
         } => {
+            if let Some((loaded, r, b)) = baseline_on_table(held, run) {
+                let result = baseline::explain(
+                    loaded,
+                    r,
+                    b,
+                    run,
+                    importance,
+                    predictor.as_deref(),
+                    record,
+                    tree,
+                );
+                return answer(held, id, result, |result| Reply::Explained { id, result });
+            }
             let result = explain::explain(
                 held,
                 id,
@@ -219,6 +292,13 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
                 tree,
             );
             return answer(held, id, result, |result| Reply::Explained { id, result });
+        }
+        Request::Forget { run, .. } => {
+            // Dropping the run frees its model and judged predictions.
+            if let Some(r) = held.runs.get_mut(run as usize) {
+                *r = None;
+            }
+            return;
         }
         Request::Predictions { id, run, .. } => {
             let result = predictions(held, run);
@@ -233,7 +313,12 @@ fn handle(held: &mut Held, request: Request, bytes: Option<Vec<u8>>, fingerprint
             ..
         } => {
             let kept_previous = held.loaded.is_some();
-            match fit(held, id, design, &method, settings, judging, None) {
+            let fitted = if method == baseline::METHOD {
+                baseline::fit(held, id, design, settings, judging)
+            } else {
+                fit(held, id, design, &method, settings, judging, None)
+            };
+            match fitted {
                 Ok(result) => post(&Reply::Fitted {
                     id,
                     result: Box::new(result),
@@ -568,12 +653,12 @@ fn fit(
         validation_refused,
         notices: d.notices.clone(),
     };
-    held.runs.push(Run {
+    held.runs.push(Some(Run {
         design,
-        model: fitted.model,
+        kept: Kept::Trees(fitted.model),
         judged,
         judging,
-    });
+    }));
     Ok(result)
 }
 
@@ -835,10 +920,25 @@ fn score(
     bytes: &[u8],
     keep: &[String],
 ) -> Result<ScoreResult, String> {
-    let r = held.runs.get(run as usize).ok_or(
-        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
-    )?;
-    let model = &r.model;
+    let r = held.kept(run).ok_or(GONE)?;
+    let model = match &r.kept {
+        Kept::Trees(model) => model,
+        Kept::Baseline(b) => {
+            let (loaded, _) = run_on_table(held, run)?;
+            return baseline::score(
+                loaded,
+                r,
+                b,
+                id,
+                run,
+                name,
+                bytes,
+                keep,
+                explain::TOP,
+                SCORE_PREVIEW_ROWS,
+            );
+        }
+    };
     let options = ReadOptions {
         file_name: Some(name.to_string()),
         kinds: model.reading_kinds(),
@@ -910,13 +1010,29 @@ fn run_on_table(held: &Held, run: u32) -> Result<(&Loaded, &Run), String> {
         .loaded
         .as_ref()
         .ok_or("no table is loaded yet; choose a file first")?;
-    let r = held.runs.get(run as usize).ok_or(
-        "the worker no longer holds this run (it was restarted after a cancel); grow the run again",
-    )?;
-    if r.model.training_fingerprint.as_deref() != Some(loaded.fingerprint.as_str()) {
+    let r = held.kept(run).ok_or(GONE)?;
+    if r.kept.fingerprint() != Some(loaded.fingerprint.as_str()) {
         return Err("the data changed after this run was grown; grow it again on this data".into());
     }
     Ok((loaded, r))
+}
+
+/// The held table and kept tree run `run` (see [`run_on_table`]).
+fn trees_on_table(held: &Held, run: u32) -> Result<(&Loaded, &Run, &Model), String> {
+    let (loaded, r) = run_on_table(held, run)?;
+    match &r.kept {
+        Kept::Trees(model) => Ok((loaded, r, model)),
+        Kept::Baseline(_) => Err("this is a baseline run, not a tree model".into()),
+    }
+}
+
+/// The held table and kept run `run` when it is a baseline fitted on that table.
+fn baseline_on_table(held: &Held, run: u32) -> Option<(&Loaded, &Run, &baseline::BaselineRun)> {
+    let (loaded, r) = run_on_table(held, run).ok()?;
+    match &r.kept {
+        Kept::Baseline(b) => Some((loaded, r, b)),
+        Kept::Trees(_) => None,
+    }
 }
 
 /// The per-row predictions of kept run `run` on the table it was fitted on: its judged
@@ -924,8 +1040,7 @@ fn run_on_table(held: &Held, run: u32) -> Result<(&Loaded, &Run), String> {
 /// every tree saw left out), the training rows' own otherwise (apparent).
 fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
     let (loaded, r) = run_on_table(held, run)?;
-    let model = &r.model;
-    let classes = match model.classes.as_deref() {
+    let classes = match r.kept.classes() {
         Some([a, b]) => [a.clone(), b.clone()],
         Some(c) => {
             return Err(format!(
@@ -956,20 +1071,33 @@ fn predictions(held: &Held, run: u32) -> Result<RunPredictions, String> {
     };
     // Out-of-sample where the run was judged (or is a forest, judged by its out-of-bag
     // rows); the training rows' own predictions otherwise, labelled as apparent.
-    let judged_by = match (&r.judged, &model.ensemble) {
+    let judged_by = match (&r.judged, &r.kept) {
         (Some((words, second)), _) if second.len() == codes.len() => {
             for (&y, &p) in codes.iter().zip(second) {
                 keep(y, p);
             }
             Some(words.clone())
         }
-        (_, Ensemble::Forest(f)) if f.oob_prediction.len() == 2 * codes.len() => {
+        (
+            _,
+            Kept::Trees(Model {
+                ensemble: Ensemble::Forest(f),
+                ..
+            }),
+        ) if f.oob_prediction.len() == 2 * codes.len() => {
             for (i, &y) in codes.iter().enumerate() {
                 keep(y, f.oob_prediction[2 * i + 1]);
             }
             Some("out-of-bag records".to_string())
         }
-        _ => {
+        (_, Kept::Baseline(b)) => {
+            let p = b.model.predict(&d).map_err(|e| e.to_string())?;
+            for (i, &y) in codes.iter().enumerate() {
+                keep(y, p[2 * i + 1]);
+            }
+            None
+        }
+        (_, Kept::Trees(model)) => {
             let (records, _) = model.records(&loaded.table).map_err(|e| e.to_string())?;
             let mut out = vec![0.0; model.outputs()];
             for (i, &y) in codes.iter().enumerate() {
@@ -1007,6 +1135,12 @@ fn main() {
             .ok()
             .filter(|b| b.is_instance_of::<Uint8Array>())
             .map(|b| b.unchecked_into::<Uint8Array>());
+        if let Some(list) = Reflect::get(&data, &"stop".into())
+            .ok()
+            .filter(|s| s.is_instance_of::<js_sys::Int32Array>())
+        {
+            STOP.with(|s| *s.borrow_mut() = Some(list.unchecked_into()));
+        }
         match serde_wasm_bindgen::from_value::<Request>(msg) {
             Ok(request) if request.version() > PROTOCOL_VERSION => post(&Reply::Failed {
                 id: 0,

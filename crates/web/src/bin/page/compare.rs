@@ -2,7 +2,8 @@
 //! out-of-sample figures with their 95% intervals and the baseline judged on the same splits
 //! beside it, the computed warnings, and for two-class outcomes the ROC, calibration and
 //! decision curves of the judged runs (each chart with its numbers as a table, its text
-//! alternative). Runs fitted without a validation say so and show no figures here.
+//! alternative). Runs fitted without a validation say so and show no figures here. Each run
+//! has a Remove button here (`runs::remove` drops it everywhere).
 
 use spinney_charts::{
     calibration_table, decision_table, draw_calibration, draw_decision, draw_roc, roc_table,
@@ -111,11 +112,16 @@ pub fn render(p: &Page) {
         html +=
             &format!("<th scope=\"col\">{heading} <span class=\"unit\">(95% interval)</span></th>");
     }
-    html += "<th scope=\"col\">Fit time</th></tr></thead><tbody>";
+    html += "<th scope=\"col\">Fit time</th><th scope=\"col\"><span class=\"visually-hidden\">Remove</span></th></tr></thead><tbody>";
     let mut warnings: Vec<String> = Vec::new();
     for (i, label, r) in &runs {
         let blank = "<td class=\"num\">—</td>".repeat(columns.len());
         let fit = super::runs::fmt_seconds(r.fit_seconds);
+        let remove = format!(
+            "<td><button type=\"button\" class=\"button quiet\" data-remove=\"{i}\" aria-label=\"Remove run {} ({})\">Remove</button></td>",
+            i + 1,
+            esc(label)
+        );
         match &r.validation {
             Some(v) => {
                 html += &format!(
@@ -138,7 +144,7 @@ pub fn render(p: &Page) {
                         cell(&v.figures, name)
                     );
                 }
-                html += &format!("<td class=\"num\">{fit}</td></tr>");
+                html += &format!("<td class=\"num\">{fit}</td>{remove}</tr>");
                 if let Some(b) = &v.baseline {
                     html += &format!(
                         "<tr class=\"baseline\" data-baseline-of=\"{}\"><th scope=\"row\"></th><td>baseline: {}</td><td>the same splits</td>",
@@ -148,7 +154,7 @@ pub fn render(p: &Page) {
                     for (name, _) in columns {
                         html += &format!("<td class=\"num\">{}</td>", cell(b, name));
                     }
-                    html += "<td></td></tr>";
+                    html += "<td></td><td></td></tr>";
                 }
                 for w in &v.warnings {
                     if !warnings.contains(w) {
@@ -162,7 +168,7 @@ pub fn render(p: &Page) {
                     |e| format!("could not be judged as asked: {e}"),
                 );
                 html += &format!(
-                    "<tr data-run=\"{}\" data-judged=\"no\"><th scope=\"row\">{}</th><td>{}</td><td class=\"note\">{}</td>{blank}<td class=\"num\">{fit}</td></tr>",
+                    "<tr data-run=\"{}\" data-judged=\"no\"><th scope=\"row\">{}</th><td>{}</td><td class=\"note\">{}</td>{blank}<td class=\"num\">{fit}</td>{remove}</tr>",
                     i + 1,
                     i + 1,
                     esc(label),
@@ -184,6 +190,26 @@ pub fn render(p: &Page) {
     };
     set_html(&p.doc, "compare-warnings", &warned);
     render_charts(p, &runs);
+}
+
+/// The Remove buttons of the table (one listener for the container).
+pub fn listen(page: &super::Shared) {
+    let doc = page.borrow().doc.clone();
+    let pg = page.clone();
+    super::on(
+        &by_id(&doc, "compare-table"),
+        "click",
+        move |e: web_sys::Event| {
+            let Some(i) = super::target_element(&e)
+                .and_then(|t| t.closest("[data-remove]").ok().flatten())
+                .and_then(|b| b.get_attribute("data-remove"))
+                .and_then(|v| v.parse::<usize>().ok())
+            else {
+                return;
+            };
+            super::runs::remove(&pg, i);
+        },
+    );
 }
 
 /// The ROC, calibration and decision charts of the judged two-class runs.

@@ -44,6 +44,19 @@ pub struct Insight {
     data: Option<protocol::Insight>,
 }
 
+impl Insight {
+    /// Run `gone` (index) was removed: later indices close up; what was shown for it goes
+    /// (at the next refresh), and what the worker computes for it is stopped where it can be.
+    pub fn run_removed(&mut self, gone: usize) {
+        if self.chosen == Some(gone) {
+            for &id in &self.asked {
+                super::stop_request(id);
+            }
+        }
+        self.chosen = super::runs::shifted(self.chosen, gone);
+    }
+}
+
 /// Runs the step can use: held by the worker and grown on the current data.
 fn eligible(p: &Page) -> Vec<usize> {
     p.fits
@@ -79,6 +92,7 @@ pub fn refresh(page: &Shared) {
             ..Insight::default()
         };
         show(&p.doc, "insight-body", false);
+        show(&p.doc, "insight-status", false);
     }
     if runs.is_empty() {
         return;
@@ -168,8 +182,39 @@ fn ask(
 
 fn message(doc: &web_sys::Document, text: &str) {
     let el = by_id(doc, "insight-message");
+    el.set_class_name("message error");
+    let _ = el.remove_attribute("data-cancelled");
     el.set_text_content(Some(text));
     show(doc, "insight-message", !text.is_empty());
+}
+
+/// Stops what the step asked for. Where the page has shared memory (see `stop_request` in
+/// page.rs) the worker stops between two trees and keeps every run; what is shown stays.
+/// Otherwise only restarting the worker stops it, as a fit's cancel does: the runs' figures
+/// stay, but the worker no longer holds their models.
+fn cancel(page: &Shared) {
+    let asked = std::mem::take(&mut page.borrow_mut().insight.asked);
+    if asked.is_empty() {
+        return;
+    }
+    let in_place = asked.iter().all(|&id| super::stop_request(id));
+    if !in_place {
+        super::cancel(page, "");
+    }
+    let p = page.borrow();
+    show(&p.doc, "insight-status", false);
+    let el = by_id(&p.doc, "insight-message");
+    el.set_class_name("message");
+    el.set_text_content(Some(if in_place {
+        "Cancelled: the computation was stopped. The runs and everything shown here are kept; ask again when you like."
+    } else {
+        "Cancelled by restarting the worker (this page is not cross-origin isolated, as when opened from a file, so the computation could not be stopped in place). The runs' figures are kept; grow a run again to look inside it."
+    }));
+    let _ = el.set_attribute(
+        "data-cancelled",
+        if in_place { "in-place" } else { "restart" },
+    );
+    show(&p.doc, "insight-message", true);
 }
 
 /// Progress of the request in flight.
@@ -214,6 +259,7 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
             dependence: None,
             contributions: None,
             tree: None,
+            coefficients: None,
             notes: Vec::new(),
             ..result.clone()
         });
@@ -223,6 +269,7 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
             dependence: result.dependence.is_some(),
             contributions: result.contributions.is_some(),
             tree: result.tree.is_some(),
+            coefficients: result.coefficients.is_some(),
         };
         if fresh.importance {
             data.importance = result.importance;
@@ -235,6 +282,9 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
         }
         if fresh.tree {
             data.tree = result.tree;
+        }
+        if fresh.coefficients {
+            data.coefficients = result.coefficients;
         }
         show(&p.doc, "insight-body", true);
         // The tree in a task of its own, so no single task holds the page for long.
@@ -254,6 +304,7 @@ pub fn arrived(page: &Shared, id: u32, result: protocol::Insight) {
                         dependence: false,
                         contributions: false,
                         tree: true,
+                        coefficients: false,
                     },
                 )
             });
@@ -331,6 +382,7 @@ struct Fresh {
     dependence: bool,
     contributions: bool,
     tree: bool,
+    coefficients: bool,
 }
 
 /// Draws the parts a reply brought (each chart is drawn once per answer, so the page's
@@ -352,6 +404,21 @@ fn render(p: &Page, fresh: Fresh) {
             format!("<ul class=\"notices\">{notes}</ul>")
         },
     );
+    // A baseline run: its coefficients instead of the trees' charts.
+    let linear = d.coefficients.is_some();
+    for id in [
+        "insight-importance",
+        "insight-impurity",
+        "insight-dependence",
+        "insight-tree",
+    ] {
+        show(doc, id, !linear);
+    }
+    show(doc, "insight-coefficients", linear);
+    match &d.coefficients {
+        Some(c) if fresh.coefficients => render_coefficients(p, c),
+        _ => {}
+    }
     match &d.importance {
         Some(imp) if fresh.importance => render_importance(p, d, imp),
         _ => {}
@@ -371,6 +438,38 @@ fn render(p: &Page, fresh: Fresh) {
         Some(t) if fresh.tree => render_tree(p, t),
         _ => {}
     }
+}
+
+/// A baseline's coefficients as a table, largest first.
+fn render_coefficients(p: &Page, c: &protocol::InsightCoefficients) {
+    set_html(
+        &p.doc,
+        "coefficients-facts",
+        &format!(
+            "<p class=\"facts\" data-penalty=\"{}\">Penalty {}. Each coefficient is in {}. The predictors are on one scale, so the sizes compare; a coefficient describes the model, not a cause.</p>",
+            c.penalty,
+            c.penalty,
+            esc(&c.scale)
+        ),
+    );
+    let mut html = String::from("<table class=\"curve-numbers coefficients\"><caption>Coefficients on the standardised predictors, largest first</caption><thead><tr><th scope=\"col\">model column</th>");
+    for o in &c.outputs {
+        html += &format!("<th scope=\"col\">{}</th>", esc(o));
+    }
+    html += "</tr></thead><tbody><tr><th scope=\"row\">intercept</th>";
+    for b in &c.intercepts {
+        html += &format!("<td class=\"num\">{b}</td>");
+    }
+    html += "</tr>";
+    for (name, values) in &c.terms {
+        html += &format!("<tr><th scope=\"row\">{}</th>", esc(name));
+        for v in values {
+            html += &format!("<td class=\"num\">{v}</td>");
+        }
+        html += "</tr>";
+    }
+    html += "</tbody></table>";
+    set_html(&p.doc, "coefficients-numbers", &html);
 }
 
 fn render_importance(p: &Page, d: &protocol::Insight, imp: &protocol::InsightImportance) {
@@ -544,6 +643,11 @@ fn render_dependence(p: &Page, dep: &protocol::InsightDependence) {
 
 fn render_contributions(p: &Page, c: &protocol::InsightContributions) {
     let doc = &p.doc;
+    let linear = p
+        .insight
+        .data
+        .as_ref()
+        .is_some_and(|d| d.coefficients.is_some());
     let total: f64 = c.base + c.contributions.iter().map(|x| x.amount).sum::<f64>();
     let chart = ContributionChart {
         title: String::new(),
@@ -568,7 +672,7 @@ fn render_contributions(p: &Page, c: &protocol::InsightContributions) {
         doc,
         "insight-record-facts",
         &format!(
-            "<p class=\"facts\" data-record=\"{}\" data-base=\"{:e}\" data-sum=\"{:e}\" data-total=\"{:e}\">Record {}: the model predicts <strong>{}</strong>. On the scale of {} — {} — the record starts from the base value {:.4} (the model's average over its training records) and its predictors' contributions (TreeSHAP) take it to {:.4}.</p>",
+            "<p class=\"facts\" data-record=\"{}\" data-base=\"{:e}\" data-sum=\"{:e}\" data-total=\"{:e}\">Record {}: the model predicts <strong>{}</strong>. On the scale of {} — {} — the record starts from the base value {:.4} ({}) and its predictors' contributions ({}) take it to {:.4}.</p>",
             c.record + 1,
             c.base,
             c.sum,
@@ -578,6 +682,16 @@ fn render_contributions(p: &Page, c: &protocol::InsightContributions) {
             esc(&c.output),
             esc(&c.scale),
             c.base,
+            if linear {
+                "the baseline at the training records' mean values"
+            } else {
+                "the model's average over its training records"
+            },
+            if linear {
+                "coefficient × standardised value"
+            } else {
+                "TreeSHAP"
+            },
             c.sum
         ),
     );
@@ -692,7 +806,15 @@ fn render_tree(p: &Page, t: &protocol::InsightTree) {
 
 /// The record number typed, checked: a whole number from 1 to the table's rows.
 fn typed_record(p: &Page) -> Result<usize, String> {
-    let rows = p.insight.data.as_ref().map_or(0, |d| d.rows);
+    // The run's table is the one loaded (the step offers only runs on it), also before any
+    // answer came (or after one was cancelled).
+    let rows = p
+        .insight
+        .data
+        .as_ref()
+        .map(|d| d.rows)
+        .or(p.report.as_ref().map(|r| r.rows))
+        .unwrap_or(0);
     let input: HtmlInputElement = by_id(&p.doc, "insight-row").unchecked_into();
     let text = input.value();
     match text.trim().parse::<usize>() {
@@ -745,6 +867,9 @@ pub fn listen(page: &Shared) {
             .and_then(|r| r.parse::<usize>().ok())
         {
             return explain_record(&pg, r);
+        }
+        if target.id() == "insight-cancel" {
+            return cancel(&pg);
         }
         if target.id() == "insight-go" {
             let chosen = pg

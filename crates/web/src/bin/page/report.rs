@@ -19,7 +19,7 @@ use wasm_bindgen::prelude::*;
 use wasm_bindgen_futures::{spawn_local, JsFuture};
 use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlSelectElement};
 
-use super::runs::{fmt_seconds, method_label, RunView};
+use super::runs::{fmt_seconds, method_label, Grown, RunView};
 use super::{
     by_id, data_facts, esc, fmt_value, offer_blob, on, show, summary_cell, Page, Role, Shared,
 };
@@ -221,14 +221,25 @@ fn interval(f: &Figure) -> String {
     }
 }
 
+/// Settings by name, and the seed (`None` for the baseline, which draws nothing at random).
+type InEffect = (Vec<(String, String)>, Option<u64>);
+
 /// Every setting in effect for a run (the method's defaults with the given ones applied),
 /// by name, and the seed its model records; `None` if the settings no longer apply (they
 /// did when it was grown).
-fn in_effect(run: &RunView) -> Option<(Vec<(String, String)>, u64)> {
+fn in_effect(run: &RunView) -> Option<InEffect> {
     let a = &run.ask;
     let regression = run.result.error_name == "mean squared error";
+    let Grown::Trees(method) = a.method else {
+        // The baseline's one setting; it has no random draws, so no seed.
+        let penalty = a.settings.iter().find(|(n, _)| n == "penalty").map_or_else(
+            || spinney_core::validate::BASELINE_PENALTY.to_string(),
+            |(_, v)| v.clone(),
+        );
+        return Some((vec![("penalty".into(), penalty)], None));
+    };
     let mut s = FitSettings::defaults(
-        a.method,
+        method,
         a.design.predictors.len(),
         regression,
         &a.design.outcome,
@@ -237,7 +248,7 @@ fn in_effect(run: &RunView) -> Option<(Vec<(String, String)>, u64)> {
     for (name, value) in &a.settings {
         s.apply(name, value).ok()?;
     }
-    Some((s.describe().into_iter().collect(), s.seed()))
+    Some((s.describe().into_iter().collect(), Some(s.seed())))
 }
 
 /// Each kept run: what it was grown on and how, how it was judged and its figures.
@@ -303,7 +314,9 @@ fn run_html(i: usize, run: &RunView) -> String {
                 })
                 .collect();
             html += &fact("Settings in effect", given.join(" · "));
-            html += &fact("Seed", format!("<span data-report=\"seed\">{seed}</span>"));
+            if let Some(seed) = seed {
+                html += &fact("Seed", format!("<span data-report=\"seed\">{seed}</span>"));
+            }
         }
         None => html += &fact("Settings", esc(&a.summary)),
     }

@@ -1,8 +1,9 @@
-//! The model-runs step of the page: the method and its settings form (checked as typed by
-//! the core's own settings rules, so the page refuses what the command line refuses, in the
-//! same words), the Run button, the progress bar with elapsed and remaining time and Cancel,
-//! the table of runs kept so far, and the error chart by number of trees or rounds (drawn by
-//! spinney-charts on a canvas, with its numbers as a table beside it).
+//! The model-runs step of the page: the method (a tree method, or the baseline as a run of
+//! its own) and its settings form (checked as typed by the core's own settings rules, so the
+//! page refuses what the command line refuses, in the same words), the Run button, the
+//! progress bar with elapsed and remaining time and Cancel, the table of runs kept so far,
+//! the error chart by number of trees or rounds (drawn by spinney-charts on a canvas, with
+//! its numbers as a table beside it), and removing a kept run (`remove`, from step 4).
 //!
 //! All fitting happens in the worker; this module only sends the request and shows replies.
 //! Cancel restarts the worker (see `cancel` in page.rs); the runs table is the page's own and
@@ -14,6 +15,7 @@ use spinney_charts::{draw_error_curves, Curve, ErrorChart, COLOURS};
 use spinney_core::model::Method as FitMethod;
 use spinney_core::settings::FitSettings;
 use spinney_core::study::RunFigures;
+use spinney_core::validate::check_penalty;
 use spinney_web::protocol::{FitDesign, Judging, Request, RunResult, PROTOCOL_VERSION};
 use wasm_bindgen::JsCast;
 use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlInputElement};
@@ -21,10 +23,42 @@ use web_sys::{Document, Element, Event, HtmlCanvasElement, HtmlInputElement};
 use super::measured::draw_on;
 use super::{by_id, cancel, design_of, esc, on, send, set_html, show, Page, Shared};
 
+/// What the form grows: one of the core's tree methods, or the baseline (a penalised
+/// logistic or ridge regression, `spinney evaluate --baseline`'s, grown as a run of its own).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Grown {
+    Trees(FitMethod),
+    Baseline,
+}
+
+impl Grown {
+    /// The word the worker and the study file use.
+    pub fn word(self) -> &'static str {
+        match self {
+            Grown::Trees(m) => m.word(),
+            Grown::Baseline => "baseline",
+        }
+    }
+
+    pub fn from_word(word: &str) -> Option<Grown> {
+        match word {
+            "baseline" => Some(Grown::Baseline),
+            w => FitMethod::from_word(w).map(Grown::Trees),
+        }
+    }
+
+    fn bagged(self) -> bool {
+        matches!(
+            self,
+            Grown::Trees(FitMethod::Forest) | Grown::Trees(FitMethod::Bagging)
+        )
+    }
+}
+
 /// A fit to send: what the form (or a study being re-run) asks for.
 #[derive(Clone)]
 pub struct FitAsk {
-    pub method: FitMethod,
+    pub method: Grown,
     pub design: FitDesign,
     /// The settings given, by their `--set` names; the rest are the method's defaults.
     pub settings: Vec<(String, String)>,
@@ -75,7 +109,7 @@ pub struct Fits {
     /// Fits waiting for the one in flight (a study's runs being grown again).
     pub queue: VecDeque<FitAsk>,
     /// The method chosen in the form (a random forest until the user picks another).
-    method: Option<FitMethod>,
+    method: Option<Grown>,
     /// What the user typed, by (method, setting); untouched settings show their defaults.
     typed: HashMap<(&'static str, &'static str), String>,
     /// The run whose curves the chart shows.
@@ -106,14 +140,14 @@ impl Fits {
         self.queue.clear();
     }
 
-    fn method(&self) -> FitMethod {
-        self.method.unwrap_or(FitMethod::Forest)
+    fn method(&self) -> Grown {
+        self.method.unwrap_or(Grown::Trees(FitMethod::Forest))
     }
 
     /// The validation scheme for `method`: the user's choice where it applies, else the
     /// method's default.
-    fn scheme(&self, method: FitMethod) -> String {
-        let bagged = matches!(method, FitMethod::Forest | FitMethod::Bagging);
+    fn scheme(&self, method: Grown) -> String {
+        let bagged = method.bagged();
         match self.scheme.as_deref() {
             Some("oob") if !bagged => "folds:5".into(),
             Some(s) => s.into(),
@@ -171,15 +205,27 @@ const SEED: Field = Field {
 };
 
 /// The methods the page offers.
-const METHODS: [FitMethod; 5] = [
-    FitMethod::Tree,
-    FitMethod::Bagging,
-    FitMethod::Forest,
-    FitMethod::AdaBoost,
-    FitMethod::Boosting,
+const METHODS: [Grown; 6] = [
+    Grown::Trees(FitMethod::Tree),
+    Grown::Trees(FitMethod::Bagging),
+    Grown::Trees(FitMethod::Forest),
+    Grown::Trees(FitMethod::AdaBoost),
+    Grown::Trees(FitMethod::Boosting),
+    Grown::Baseline,
 ];
 
-fn fields(method: FitMethod) -> Vec<Field> {
+fn fields(method: Grown) -> Vec<Field> {
+    let method = match method {
+        Grown::Baseline => {
+            return vec![Field {
+                name: "penalty",
+                label: "Penalty",
+                help: "How strongly the coefficients are pulled towards zero (an L2 penalty on the standardised predictors), above 0. 1 is usual (the command line's baseline); larger values give a more cautious model, smaller ones follow the records more closely.",
+                optional: false,
+            }]
+        }
+        Grown::Trees(m) => m,
+    };
     match method {
         FitMethod::Boosting => vec![
             Field {
@@ -274,17 +320,22 @@ fn fields(method: FitMethod) -> Vec<Field> {
     }
 }
 
-pub fn method_label(m: FitMethod) -> &'static str {
+pub fn method_label(m: Grown) -> &'static str {
     match m {
-        FitMethod::Tree => "Single tree",
-        FitMethod::Bagging => "Bagging",
-        FitMethod::Forest => "Random forest",
-        FitMethod::AdaBoost => "AdaBoost",
-        FitMethod::Boosting => "Gradient boosting",
+        Grown::Trees(FitMethod::Tree) => "Single tree",
+        Grown::Trees(FitMethod::Bagging) => "Bagging",
+        Grown::Trees(FitMethod::Forest) => "Random forest",
+        Grown::Trees(FitMethod::AdaBoost) => "AdaBoost",
+        Grown::Trees(FitMethod::Boosting) => "Gradient boosting",
+        Grown::Baseline => "Baseline",
     }
 }
 
-fn method_help(m: FitMethod) -> &'static str {
+fn method_help(m: Grown) -> &'static str {
+    let m = match m {
+        Grown::Baseline => return "a penalised logistic regression (ridge regression for a number outcome) on the standardised predictors, gaps filled with the median or most frequent value and flagged: what a simple model achieves, to set the trees against",
+        Grown::Trees(m) => m,
+    };
     match m {
         FitMethod::Tree => "one set of yes/no questions; easy to read, but sways with the sample",
         FitMethod::Bagging => "many trees, each grown on a resample of the records, averaged",
@@ -315,8 +366,11 @@ fn default_text(s: &FitSettings, name: &str) -> String {
 
 /// The method's defaults for the current design (`None` until an outcome is chosen, or with
 /// the reason the method cannot fit it).
-fn defaults(p: &Page, method: FitMethod) -> Option<Result<FitSettings, String>> {
+fn defaults(p: &Page, method: Grown) -> Option<Result<FitSettings, String>> {
     let (design, regression) = design_of(p)?;
+    let Grown::Trees(method) = method else {
+        return None;
+    };
     Some(FitSettings::defaults(
         method,
         design.predictors.len(),
@@ -326,7 +380,7 @@ fn defaults(p: &Page, method: FitMethod) -> Option<Result<FitSettings, String>> 
 }
 
 /// The value of each field of the chosen method: typed, or the default.
-fn values(p: &Page, method: FitMethod, defaults: Option<&FitSettings>) -> Vec<(Field, String)> {
+fn values(p: &Page, method: Grown, defaults: Option<&FitSettings>) -> Vec<(Field, String)> {
     fields(method)
         .into_iter()
         .map(|f| {
@@ -335,7 +389,10 @@ fn values(p: &Page, method: FitMethod, defaults: Option<&FitSettings>) -> Vec<(F
                 .typed
                 .get(&(method.word(), f.name))
                 .cloned()
-                .or_else(|| defaults.map(|d| default_text(d, f.name)))
+                .or_else(|| match method {
+                    Grown::Baseline => Some(spinney_core::validate::BASELINE_PENALTY.to_string()),
+                    Grown::Trees(_) => defaults.map(|d| default_text(d, f.name)),
+                })
                 .unwrap_or_default();
             (f, v)
         })
@@ -343,7 +400,29 @@ fn values(p: &Page, method: FitMethod, defaults: Option<&FitSettings>) -> Vec<(F
 }
 
 /// Checks each value as the worker will (the core's rules); errors by setting.
-fn check(p: &Page, method: FitMethod) -> (Vec<(&'static str, String)>, Option<String>) {
+fn check(p: &Page, method: Grown) -> (Vec<(&'static str, String)>, Option<String>) {
+    if method == Grown::Baseline {
+        if design_of(p).is_none() {
+            return (
+                Vec::new(),
+                Some("Choose an outcome in step 2 first.".into()),
+            );
+        }
+        let errors = values(p, method, None)
+            .into_iter()
+            .filter_map(|(f, v)| {
+                let e = match v.trim().parse::<f64>() {
+                    Ok(x) => check_penalty(x).err()?.to_string(),
+                    Err(_) => format!(
+                        "penalty: '{}' is not a number; give the penalty's strength, e.g. 1",
+                        v.trim()
+                    ),
+                };
+                Some((f.name, e))
+            })
+            .collect();
+        return (errors, None);
+    }
     let base = match defaults(p, method) {
         None => {
             return (
@@ -397,7 +476,7 @@ fn directions_problem(p: &Page, value: &str) -> Option<String> {
 }
 
 /// The (name, value) pairs to send, and their plain summary.
-fn chosen(p: &Page, method: FitMethod) -> (Vec<(String, String)>, String) {
+fn chosen(p: &Page, method: Grown) -> (Vec<(String, String)>, String) {
     let base = defaults(p, method).and_then(Result::ok);
     let mut sets = Vec::new();
     let mut summary = Vec::new();
@@ -484,10 +563,10 @@ fn render_form(p: &Page) {
 }
 
 /// The validation choice and the baseline tick box.
-fn judging_controls(p: &Page, method: FitMethod) -> String {
+fn judging_controls(p: &Page, method: Grown) -> String {
     let chosen = p.fits.scheme(method);
     let mut options: Vec<(String, String)> = Vec::new();
-    if matches!(method, FitMethod::Forest | FitMethod::Bagging) {
+    if method.bagged() {
         options.push(("oob".into(), "its out-of-bag records (no refitting)".into()));
     }
     for (value, words) in [
@@ -519,8 +598,14 @@ fn judging_controls(p: &Page, method: FitMethod) -> String {
             )
         })
         .collect();
+    let scheme = format!(
+        "<label class=\"field\"><span class=\"name\">Judge it on</span><select id=\"judging\" aria-describedby=\"help-judging\">{list}</select><span class=\"help\" id=\"help-judging\">Records the model did not learn from give honest figures; step 4 compares the runs on them.</span></label>"
+    );
+    if method == Grown::Baseline {
+        return scheme;
+    }
     format!(
-        "<label class=\"field\"><span class=\"name\">Judge it on</span><select id=\"judging\" aria-describedby=\"help-judging\">{list}</select><span class=\"help\" id=\"help-judging\">Records the model did not learn from give honest figures; step 4 compares the runs on them.</span></label><label class=\"field tick\"><input type=\"checkbox\" id=\"baseline\"{}> <span class=\"name\">Judge a baseline beside it</span><span class=\"help\">A penalised logistic (or linear) regression on the same splits, to show what the trees add.</span></label>",
+        "{scheme}<label class=\"field tick\"><input type=\"checkbox\" id=\"baseline\"{}> <span class=\"name\">Judge a baseline beside it</span><span class=\"help\">A penalised logistic (or linear) regression on the same splits, to show what the trees add.</span></label>",
         if p.fits.no_baseline { "" } else { " checked" }
     )
 }
@@ -803,7 +888,8 @@ fn start(page: &Shared) {
             design,
             settings,
             summary,
-            judging: (scheme != "none").then(|| judging(scheme, !p.fits.no_baseline)),
+            judging: (scheme != "none")
+                .then(|| judging(scheme, !p.fits.no_baseline && method != Grown::Baseline)),
             expected: None,
         }
     };
@@ -863,19 +949,17 @@ pub fn start_fit(page: &Shared, ask: FitAsk) {
             method: method.word().to_string(),
             settings,
             judging,
-            trees: if matches!(method, FitMethod::Forest | FitMethod::Bagging) {
-                trees
-            } else {
-                0
-            },
+            trees: if method.bagged() { trees } else { 0 },
             workers,
         }
     };
     // A judging that refits on splits spreads its splits over extra workers first.
-    let splits = grow
-        .judging
-        .as_ref()
-        .is_some_and(|j| j.scheme != "oob" && j.scheme != "none");
+    // (A baseline's splits are quick: its own worker fits them.)
+    let splits = grow.method != Grown::Baseline.word()
+        && grow
+            .judging
+            .as_ref()
+            .is_some_and(|j| j.scheme != "oob" && j.scheme != "none");
     if grow.workers > 1 && splits {
         super::pool::start_folds(page, grow);
     } else {
@@ -938,10 +1022,10 @@ pub fn progress(p: &Page, done: u64, total: u64) {
     let share = done as f64 / total.max(1) as f64;
     let _ = by_id(&p.doc, "fit-progress").set_attribute("value", &format!("{share:.3}"));
     let elapsed = (now() - f.started) / 1000.0;
-    let unit = if matches!(f.ask.method, FitMethod::AdaBoost | FitMethod::Boosting) {
-        "rounds"
-    } else {
-        "trees"
+    let unit = match f.ask.method {
+        Grown::Trees(FitMethod::AdaBoost | FitMethod::Boosting) => "rounds",
+        Grown::Trees(_) => "trees",
+        Grown::Baseline => "fits",
     };
     let left = if done > 0 {
         format!(
@@ -1016,6 +1100,69 @@ pub fn results(fits: &Fits) -> Vec<(usize, String, &RunResult)> {
         .collect()
 }
 
+/// Where a run at index `at` of the runs table stands after run `gone` was removed: one
+/// place up when it came after it, `None` when it was that run.
+pub fn shifted(at: Option<usize>, gone: usize) -> Option<usize> {
+    match at {
+        Some(i) if i == gone => None,
+        Some(i) if i > gone => Some(i - 1),
+        other => other,
+    }
+}
+
+/// Removes run `i` (the comparison step's Remove button): the worker drops its model and
+/// judged predictions, every step that shows runs redraws without it, and the notebook is
+/// saved again. The other runs keep their models (the worker numbers runs for good); their
+/// numbers in the tables close up.
+pub fn remove(page: &Shared, i: usize) {
+    let forget = {
+        let mut p = page.borrow_mut();
+        if i >= p.fits.runs.len() {
+            return;
+        }
+        let gone = p.fits.runs.remove(i);
+        let last = p.fits.runs.len().checked_sub(1);
+        p.fits.charted = shifted(p.fits.charted, i).or(last);
+        p.threshold.run_removed(i);
+        p.insight.run_removed(i);
+        if p.scoring.run_removed(i) {
+            set_html(&p.doc, "score-result", "");
+        }
+        let _ =
+            by_id(&p.doc, "step-runs").set_attribute("data-runs", &p.fits.runs.len().to_string());
+        render_runs(&p);
+        render_chart(&p);
+        super::compare::render(&p);
+        let text = format!(
+            "Run {} ({}) removed; the other runs are unchanged.",
+            i + 1,
+            method_label(gone.ask.method).to_lowercase()
+        );
+        let said = by_id(&p.doc, "compare-message");
+        said.set_text_content(Some(&text));
+        show(&p.doc, "compare-message", true);
+        gone.held.then_some(gone.result.run)
+    };
+    if let Some(run) = forget {
+        let id = {
+            let mut p = page.borrow_mut();
+            p.next_id += 1;
+            p.next_id
+        };
+        send(
+            page,
+            Request::Forget {
+                v: PROTOCOL_VERSION,
+                id,
+                run,
+            },
+            None,
+        );
+    }
+    super::runs_changed(page);
+    super::study::autosave(page);
+}
+
 /// The fit failed: its message in the step, the runs as they were.
 pub fn failed(page: &Shared, message: &str) {
     let mut p = page.borrow_mut();
@@ -1048,7 +1195,7 @@ fn on_form(page: &Shared, event: Event) {
         "change" if target.get_attribute("name").as_deref() == Some("method") => {
             let value = target.unchecked_ref::<HtmlInputElement>().value();
             let mut p = page.borrow_mut();
-            p.fits.method = FitMethod::from_word(&value).filter(|m| METHODS.contains(m));
+            p.fits.method = Grown::from_word(&value).filter(|m| METHODS.contains(m));
             render_form(&p);
         }
         "input" => {
@@ -1121,7 +1268,7 @@ pub fn listen(page: &Shared) {
 }
 
 /// The plain summary of a run's settings, in the form's words (for runs from a study).
-pub fn summary_of(method: FitMethod, settings: &[(String, String)]) -> String {
+pub fn summary_of(method: Grown, settings: &[(String, String)]) -> String {
     let fields = fields(method);
     let parts: Vec<String> = settings
         .iter()

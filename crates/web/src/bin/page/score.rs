@@ -25,6 +25,20 @@ pub struct Scoring {
     result: Option<ScoreResult>,
 }
 
+impl Scoring {
+    /// Run `gone` (index) was removed: later indices close up; its predictions go (true:
+    /// the step showed them).
+    pub fn run_removed(&mut self, gone: usize) -> bool {
+        let shown = self.chosen == Some(gone);
+        if shown {
+            self.asked = None;
+            self.result = None;
+        }
+        self.chosen = super::runs::shifted(self.chosen, gone);
+        shown
+    }
+}
+
 /// Runs the worker still holds.
 fn held(p: &Page) -> Vec<usize> {
     p.fits

@@ -6,10 +6,10 @@
 //! Opening a study and restoring the browser's copy take one path: the study waits
 //! (`pending`) until its data is read, then its roles are applied and its runs queued.
 
-use spinney_core::model::Method;
 use spinney_core::settings::FitSettings;
 use spinney_core::study::{
     include_data, read_study, write_study, Study, StudyColumn, StudyData, StudyReading, StudyRun,
+    BASELINE,
 };
 use spinney_web::protocol::{FitDesign, ReadSettings, Request, RunResult, PROTOCOL_VERSION};
 use wasm_bindgen::JsCast;
@@ -97,8 +97,12 @@ fn seed_of(run: &RunView) -> u64 {
         }
     }
     let regression = run.result.error_name == "mean squared error";
+    // A baseline has no random draws; its judging's splits have their own seed (1).
+    let runs::Grown::Trees(method) = run.ask.method else {
+        return 1;
+    };
     FitSettings::defaults(
-        run.ask.method,
+        method,
         run.result.predictors,
         regression,
         &run.ask.design.outcome,
@@ -219,7 +223,8 @@ pub fn models_arrived(page: &Shared, id: u32, files: Vec<Option<String>>) {
     let mut missing = 0;
     for (run, file) in study.runs.iter_mut().zip(files) {
         run.model = file.and_then(|f| serde_json::from_str(&f).ok());
-        missing += usize::from(run.model.is_none());
+        // A baseline has no model file; its penalty regrows it exactly.
+        missing += usize::from(run.model.is_none() && run.method != BASELINE);
     }
     finish_save(page, study, with_data, missing);
 }
@@ -446,7 +451,7 @@ fn apply(page: &Shared) {
         p.positive = w.study.runs.iter().rev().find_map(|r| r.positive.clone());
         let mut asks = Vec::new();
         for run in &w.study.runs {
-            let Some(method) = Method::from_word(&run.method) else {
+            let Some(method) = runs::Grown::from_word(&run.method) else {
                 continue;
             };
             let settings: Vec<(String, String)> = run
@@ -526,10 +531,10 @@ fn result_of(run: &StudyRun) -> RunResult {
         predictors: r.predictors as usize,
         error_name: r.error_name.clone(),
         members: r.members as usize,
-        member_name: if matches!(run.method.as_str(), "adaboost" | "boosting") {
-            "rounds"
-        } else {
-            "trees"
+        member_name: match run.method.as_str() {
+            "adaboost" | "boosting" => "rounds",
+            "baseline" => "model",
+            _ => "trees",
         }
         .into(),
         training_error: r.training_error,

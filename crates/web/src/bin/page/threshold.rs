@@ -32,6 +32,21 @@ pub struct Threshold {
     wanted: Option<(usize, String)>,
 }
 
+impl Threshold {
+    /// Run `gone` (index) was removed: later indices close up; its predictions go.
+    pub fn run_removed(&mut self, gone: usize) {
+        if self.chosen == Some(gone) {
+            self.asked = None;
+            self.data = None;
+        }
+        self.chosen = super::runs::shifted(self.chosen, gone);
+        self.wanted = self
+            .wanted
+            .take()
+            .and_then(|(i, label)| Some((super::runs::shifted(Some(i), gone)?, label)));
+    }
+}
+
 /// The step's choice as a study keeps it (`None` before a run is chosen).
 pub fn choice(p: &Page) -> Option<StudyThreshold> {
     let t = &p.threshold;

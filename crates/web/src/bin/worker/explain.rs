@@ -30,7 +30,7 @@ use spinney_web::protocol::{
     InsightImportance, InsightTree, OutOfBagImportance, TreeNodeView,
 };
 
-use super::{run_on_table, Held, Reporter};
+use super::{trees_on_table, Held, Reporter};
 
 /// The seed of the shuffles and samples (the command line's default).
 pub const SEED: u64 = 1;
@@ -116,8 +116,7 @@ pub fn explain(
     record: Option<usize>,
     tree: bool,
 ) -> Result<Insight, String> {
-    let (loaded, r) = run_on_table(held, run)?;
-    let model = &r.model;
+    let (loaded, r, model) = trees_on_table(held, run)?;
     let table = &loaded.table;
     let (records, _) = model.records(table).map_err(|e| e.to_string())?;
     let names: Vec<String> = model.predictors.iter().map(|p| p.name.clone()).collect();
@@ -136,6 +135,7 @@ pub fn explain(
         dependence: None,
         contributions: None,
         tree: None,
+        coefficients: None,
         notes,
     };
 
@@ -230,6 +230,7 @@ pub fn explain(
                         mean: o.mean,
                         standard_error: o.standard_error,
                     }),
+                    Err(e) if super::stopped(id) => return Err(e.to_string()),
                     Err(e) => {
                         insight.notes.push(format!("no out-of-bag importance: {e}"));
                         None
