@@ -61,14 +61,25 @@ impl ForestSettings {
     }
 }
 
-/// One fitted tree and how many times each row was in its sample.
+/// One fitted tree and, for every row, where it stood: out of the tree's sample
+/// ([`OUT_OF_BAG`]), in it and ended in leaf `leaves[r]` when the tree was grown (so the
+/// training error needs no walk down the tree for it), or in it with its leaf not known
+/// ([`IN_BAG`]: a tree read from bytes; the row is walked). One number a row, whatever the
+/// number of times the row was drawn.
 pub struct FittedTree {
     pub tree: Tree,
-    pub in_bag: Vec<u32>,
-    /// The leaf each row of the sample ended in when the tree was grown (`u32::MAX` for rows
-    /// not in the sample), so the training error needs no walk down the tree for them;
-    /// empty when not known (a tree read from bytes), and then the rows are walked.
     pub leaves: Vec<u32>,
+}
+
+/// [`FittedTree::leaves`]: a row the tree did not see.
+pub const OUT_OF_BAG: u32 = u32::MAX;
+/// [`FittedTree::leaves`]: a row in the tree's sample whose leaf is not known.
+pub const IN_BAG: u32 = u32::MAX - 1;
+
+impl FittedTree {
+    pub fn in_bag(&self, row: usize) -> bool {
+        self.leaves[row] != OUT_OF_BAG
+    }
 }
 
 /// Fits trees `range` of the ensemble (each from its own streams).
@@ -95,10 +106,6 @@ pub fn fit_trees(
     let mut out = Vec::with_capacity(range.len());
     for i in range {
         let rows = tree_rows(settings, n, &by_class, i);
-        let mut in_bag = vec![0u32; n];
-        for &r in &rows {
-            in_bag[r as usize] += 1;
-        }
         let mut pred_rng = stream(settings.seed, Purpose::TreePredictors, i as u64);
         // The predictors tried at each split, in a random order: a random subset for a
         // forest, all of them for bagging. The order matters when two splits gain exactly the
@@ -121,7 +128,7 @@ pub fn fit_trees(
             Some(&mut choose),
             Constraints::default(),
         );
-        let mut leaves = vec![u32::MAX; n];
+        let mut leaves = vec![OUT_OF_BAG; n];
         for (id, node) in grown.tree.nodes.iter().enumerate() {
             if node.is_leaf() {
                 let (start, end) = grown.spans[id];
@@ -132,7 +139,6 @@ pub fn fit_trees(
         }
         out.push(FittedTree {
             tree: grown.tree,
-            in_bag,
             leaves,
         });
         if progress.step("trees", out.len() as u64, total) == Flow::Stop {
@@ -261,12 +267,13 @@ impl OobTally {
         let (mut wrong, mut squares) = (0.0, 0.0);
         let trees_so_far = (self.trees.len() + 1) as f64;
         for r in 0..n {
-            let leaf = match fitted.leaves.get(r) {
-                Some(&leaf) if leaf != u32::MAX => leaf as usize,
-                _ => tree.leaf(Rows::Binned(binned), r),
+            let known = fitted.leaves[r];
+            let leaf = match known {
+                OUT_OF_BAG | IN_BAG => tree.leaf(Rows::Binned(binned), r),
+                leaf => leaf as usize,
             };
             let p = tree.node_values(leaf);
-            if fitted.in_bag[r] == 0 {
+            if known == OUT_OF_BAG {
                 self.out_of_bag += 1;
                 self.votes[r] += 1;
                 for (s, v) in self.sums[r * outputs..(r + 1) * outputs].iter_mut().zip(p) {
@@ -423,12 +430,19 @@ mod tests {
         s.trees = 15;
         // Bytes lose the leaves the grower saw, so the second tally walks every row.
         let mut walked = OobTally::new(m.rows, 2);
-        for mut f in fit_trees(&m, &stats, 2, &s, 0..15, &mut Silent) {
-            assert_eq!(
-                f.leaves.iter().filter(|&&l| l != u32::MAX).count(),
-                f.in_bag.iter().filter(|&&c| c > 0).count()
-            );
-            f.leaves.clear();
+        for (i, mut f) in fit_trees(&m, &stats, 2, &s, 0..15, &mut Silent)
+            .into_iter()
+            .enumerate()
+        {
+            let drawn = tree_rows(&s, m.rows, &[], i);
+            for r in 0..m.rows {
+                assert_eq!(f.in_bag(r), drawn.contains(&(r as u32)), "tree {i} row {r}");
+                // Every row drawn ended in a leaf, which the walk finds again.
+                if f.in_bag(r) {
+                    assert_eq!(f.leaves[r] as usize, f.tree.leaf(Rows::Binned(&m), r));
+                    f.leaves[r] = IN_BAG;
+                }
+            }
             walked.add(f, &m, &y);
         }
         let walked = walked.finish(false);
@@ -517,9 +531,14 @@ mod tests {
         s.trees = 1;
         s.balanced = true;
         let t = fit_trees(&m, &stats, k, &s, 0..1, &mut Silent).remove(0);
-        let rare: u32 = t.in_bag[..10].iter().sum();
-        let common: u32 = t.in_bag[10..].iter().sum();
-        assert_eq!((rare, common), (50, 50));
+        let classes: Vec<u32> = (0..100)
+            .map(|r| argmax(&stats[r * k..(r + 1) * k]) as u32)
+            .collect();
+        let drawn = tree_rows(&s, 100, &class_rows(&classes, k), 0);
+        let rare = drawn.iter().filter(|&&r| r < 10).count();
+        assert_eq!((rare, drawn.len() - rare), (50, 50));
+        // The rows the tree saw are the rows drawn.
+        assert!((0..100).all(|r| t.in_bag(r) == drawn.contains(&(r as u32))));
     }
 
     #[test]

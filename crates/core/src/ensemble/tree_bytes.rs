@@ -8,7 +8,9 @@
 //! value index (u32); the leaf values (f64 each); and one bit per row, set when the row was
 //! in the tree's sample (the out-of-bag tally needs no more than that).
 
-use super::forest::{tree_outputs, FittedTree, Forest, ForestSettings, OobTally};
+use super::forest::{
+    tree_outputs, FittedTree, Forest, ForestSettings, OobTally, IN_BAG, OUT_OF_BAG,
+};
 use crate::binning::BinnedMatrix;
 use crate::design::Outcome;
 use crate::error::{Error, ErrorKind, Result};
@@ -27,7 +29,7 @@ pub fn encode_trees(trees: &[FittedTree]) -> Vec<u8> {
         u32s(&mut out, t.outputs as u32);
         u32s(&mut out, t.nodes.len() as u32);
         u32s(&mut out, t.values.len() as u32);
-        u32s(&mut out, f.in_bag.len() as u32);
+        u32s(&mut out, f.leaves.len() as u32);
         for n in &t.nodes {
             u32s(&mut out, n.feature);
             out.push(n.numeric as u8);
@@ -46,9 +48,9 @@ pub fn encode_trees(trees: &[FittedTree]) -> Vec<u8> {
         for v in &t.values {
             out.extend_from_slice(&v.to_le_bytes());
         }
-        let mut bits = vec![0u8; f.in_bag.len().div_ceil(8)];
-        for (r, &c) in f.in_bag.iter().enumerate() {
-            if c > 0 {
+        let mut bits = vec![0u8; f.leaves.len().div_ceil(8)];
+        for r in 0..f.leaves.len() {
+            if f.in_bag(r) {
                 bits[r / 8] |= 1 << (r % 8);
             }
         }
@@ -206,8 +208,12 @@ fn read_block(
             values.push(r.f64()?);
         }
         let bits = r.take(rows.div_ceil(8))?;
-        let in_bag = (0..rows)
-            .map(|row| ((bits[row / 8] >> (row % 8)) & 1) as u32)
+        // The leaves the sender's grower saw do not travel: in-bag rows are walked again.
+        let leaves = (0..rows)
+            .map(|row| match (bits[row / 8] >> (row % 8)) & 1 {
+                1 => IN_BAG,
+                _ => OUT_OF_BAG,
+            })
             .collect();
         trees.push(FittedTree {
             tree: Tree {
@@ -215,8 +221,7 @@ fn read_block(
                 values,
                 outputs,
             },
-            in_bag,
-            leaves: Vec::new(),
+            leaves,
         });
     }
     Ok(())

@@ -853,11 +853,14 @@ mod tests {
         let s = sampling_of(&model).unwrap();
         for (t, ft) in fitted.iter().enumerate() {
             assert_eq!(ft.tree, f.trees[t]);
-            let mut in_bag = vec![0u32; records.rows];
+            let mut in_bag = vec![false; records.rows];
             for r in tree_rows(&s, records.rows, &[], t) {
-                in_bag[r as usize] += 1;
+                in_bag[r as usize] = true;
             }
-            assert_eq!(in_bag, ft.in_bag, "tree {t}");
+            assert!(
+                (0..records.rows).all(|r| in_bag[r] == ft.in_bag(r)),
+                "tree {t}"
+            );
         }
         let oob = out_of_bag(&model, &records, &outcome, 1, &mut Silent).unwrap();
         assert_eq!(oob.trees, f.trees.len());
