@@ -88,11 +88,14 @@ try {
     await page.click('button[data-record="4"]');
     await page.waitForFunction(() => document.querySelector('#insight-record-facts .facts')?.dataset.record === '5', null, { timeout: 60000 });
     await settled();
-    const facts = await page.$eval('#insight-record-facts .facts', (f) => ({ base: Number(f.dataset.base), text: f.textContent }));
+    const facts = await page.$eval('#insight-record-facts .facts', (f) => ({ base: Number(f.dataset.base), predicted: f.dataset.predicted, text: f.textContent }));
     const amounts = (await tableRows('#contributions-numbers', 1)).map((r) => Number(r[2]));
     expect(amounts.length >= 5, `${amounts.length} contributions`);
-    const shown = Number(/probability of 'yes' ([0-9.e-]+)/.exec(facts.text)?.[1]);
-    expect(Number.isFinite(shown), `no probability of 'yes' in: ${facts.text}`);
+    // The sentence rounds to four decimals; the paragraph carries the prediction unrounded
+    // (classes in order: no, yes).
+    const shown = Number(facts.predicted.split(' ')[1]);
+    const words = /probability of 'yes' ([0-9.]+)/.exec(facts.text)?.[1];
+    expect(Number.isFinite(shown) && words === shown.toFixed(4), `probability of 'yes' ${words} in the words, ${facts.predicted} carried`);
     const total = facts.base + amounts.reduce((a, b) => a + b, 0);
     expect(close(total, shown, 1e-9), `base + contributions ${total} but the page shows ${shown}`);
     expect(facts.text.includes('mean of the trees'), `scale not stated: ${facts.text}`);

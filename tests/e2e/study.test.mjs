@@ -304,12 +304,15 @@ try {
     expect(await page.$eval('#insight-importance', (f) => f.hidden) && !(await page.$eval('#insight-coefficients', (f) => f.hidden)), 'tree charts shown for a baseline');
     expect(/not trees/.test(await page.textContent('#insight-notes')), 'no word of what does not apply');
     await page.locator('#step-insight').screenshot({ path: join(out, 'study-baseline-insight.png') });
-    const facts = await page.$eval('#insight-record-facts .facts', (f) => ({ base: Number(f.dataset.base), sum: Number(f.dataset.sum), text: f.textContent }));
+    const facts = await page.$eval('#insight-record-facts .facts', (f) => ({ base: Number(f.dataset.base), sum: Number(f.dataset.sum), predicted: f.dataset.predicted, text: f.textContent }));
     const amounts = await page.$$eval('#contributions-numbers table.contributions-all tbody td.num', (c) => c.map((x) => Number(x.textContent)));
     const total = facts.base + amounts.reduce((a, b) => a + b, 0);
     // Local accuracy (Lundberg & Lee 2017): base + contributions = the log-odds, whose
     // logistic function is the probability the page shows.
-    const shown = Number(/probability of 'yes' ([0-9.e-]+)/.exec(facts.text)?.[1]);
+    // The sentence rounds to four decimals; the paragraph carries the prediction unrounded
+    // (classes in order: no, yes).
+    const shown = Number(facts.predicted.split(' ')[1]);
+    expect(/probability of 'yes' ([0-9.]+)/.exec(facts.text)?.[1] === shown.toFixed(4), `words ${facts.text}`);
     expect(Math.abs(total - facts.sum) < 1e-9 && Math.abs(1 / (1 + Math.exp(-facts.sum)) - shown) < 1e-9, `${total} / ${facts.sum} / ${shown}`);
     // Step 6 on its cross-validated predictions: every one of the 3000 records counted.
     await page.selectOption('#threshold-run', '1');

@@ -284,10 +284,13 @@ pub struct InsightContributions {
     pub contributions: Vec<Contribution>,
     /// The model's own sum for the record on that scale (what base + contributions equal).
     pub sum: f64,
-    /// The model's prediction for the record in words (class and probability, or number),
-    /// and the predicted class, if any.
+    /// The model's prediction for the record in words (class and probabilities to four
+    /// decimals, or the number), the predicted class, if any, and the prediction unrounded
+    /// (one probability per class, or the number).
     pub prediction: String,
     pub predicted_class: Option<String>,
+    #[serde(default)]
+    pub predicted: Vec<f64>,
 }
 
 /// One tree drawn as boxes (the chart's `TreeNode`s), with a summary for big ones.

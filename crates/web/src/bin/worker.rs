@@ -100,6 +100,26 @@ impl Kept {
 /// of the second class (NaN where the row has none).
 type JudgedRows = (String, Vec<f64>);
 
+/// A record's prediction in words for step 5: the most probable class with every class's
+/// probability to four decimals, or the number; and the class.
+fn prediction_words(classes: Option<&[String]>, p: &[f64]) -> (String, Option<String>) {
+    match classes {
+        Some(classes) => {
+            let best = spinney_core::ensemble::forest::argmax(p);
+            let shares: Vec<String> = classes
+                .iter()
+                .zip(p)
+                .map(|(c, p)| format!("probability of '{c}' {p:.4}"))
+                .collect();
+            (
+                format!("'{}' ({})", classes[best], shares.join(", ")),
+                Some(classes[best].clone()),
+            )
+        }
+        None => (format!("{:.6}", p[0]), None),
+    }
+}
+
 fn scope() -> DedicatedWorkerGlobalScope {
     js_sys::global().unchecked_into()
 }

@@ -458,13 +458,13 @@ fn render_coefficients(p: &Page, c: &protocol::InsightCoefficients) {
     }
     html += "</tr></thead><tbody><tr><th scope=\"row\">intercept</th>";
     for b in &c.intercepts {
-        html += &format!("<td class=\"num\">{b}</td>");
+        html += &format!("<td class=\"num\" data-value=\"{b:e}\">{b:.4}</td>");
     }
     html += "</tr>";
     for (name, values) in &c.terms {
         html += &format!("<tr><th scope=\"row\">{}</th>", esc(name));
         for v in values {
-            html += &format!("<td class=\"num\">{v}</td>");
+            html += &format!("<td class=\"num\" data-value=\"{v:e}\">{v:.4}</td>");
         }
         html += "</tr>";
     }
@@ -672,11 +672,16 @@ fn render_contributions(p: &Page, c: &protocol::InsightContributions) {
         doc,
         "insight-record-facts",
         &format!(
-            "<p class=\"facts\" data-record=\"{}\" data-base=\"{:e}\" data-sum=\"{:e}\" data-total=\"{:e}\">Record {}: the model predicts <strong>{}</strong>. On the scale of {} — {} — the record starts from the base value {:.4} ({}) and its predictors' contributions ({}) take it to {:.4}.</p>",
+            "<p class=\"facts\" data-record=\"{}\" data-base=\"{:e}\" data-sum=\"{:e}\" data-total=\"{:e}\" data-predicted=\"{}\">Record {}: the model predicts <strong>{}</strong>. On the scale of {} — {} — the record starts from the base value {:.4} ({}) and its predictors' contributions ({}) take it to {:.4}.</p>",
             c.record + 1,
             c.base,
             c.sum,
             total,
+            c.predicted
+                .iter()
+                .map(|v| format!("{v:e}"))
+                .collect::<Vec<_>>()
+                .join(" "),
             c.record + 1,
             esc(&c.prediction),
             esc(&c.output),

@@ -312,21 +312,7 @@ fn record_contributions(
         .collect();
     list.sort_by(|a, b| b.amount.abs().total_cmp(&a.amount.abs()));
     let sum = c.base[0] + c.values.iter().sum::<f64>();
-    let (prediction, predicted_class) = match &b.classes {
-        Some(classes) => {
-            let best = argmax(p);
-            let shares: Vec<String> = classes
-                .iter()
-                .zip(p)
-                .map(|(c, p)| format!("probability of '{c}' {p}"))
-                .collect();
-            (
-                format!("'{}' ({})", classes[best], shares.join(", ")),
-                Some(classes[best].clone()),
-            )
-        }
-        None => (p[0].to_string(), None),
-    };
+    let (prediction, predicted_class) = super::prediction_words(b.classes.as_deref(), p);
     InsightContributions {
         record: row,
         scale: "coefficient × the record's standardised value, less the training records' mean (a regression's contributions)".into(),
@@ -336,6 +322,7 @@ fn record_contributions(
         sum,
         prediction,
         predicted_class,
+        predicted: p.to_vec(),
     }
 }
 

@@ -322,21 +322,7 @@ pub fn explain(
         let mut sums = vec![0.0; add.width()];
         add.sums(Rows::Records(&records), row, &mut sums);
         let o = explained_output(model, c.outputs, &prediction);
-        let (words, class) = match &model.classes {
-            Some(classes) => {
-                let best = argmax(&prediction);
-                let shares: Vec<String> = classes
-                    .iter()
-                    .zip(&prediction)
-                    .map(|(c, p)| format!("probability of '{c}' {p}"))
-                    .collect();
-                (
-                    format!("'{}' ({})", classes[best], shares.join(", ")),
-                    Some(classes[best].clone()),
-                )
-            }
-            None => (format!("{}", prediction[0]), None),
-        };
+        let (words, class) = super::prediction_words(model.classes.as_deref(), &prediction);
         insight.contributions = Some(InsightContributions {
             record: row,
             scale: c.scale.clone(),
@@ -346,6 +332,7 @@ pub fn explain(
             sum: sums[o],
             prediction: words,
             predicted_class: class,
+            predicted: prediction.clone(),
         });
     }
 
