@@ -113,6 +113,9 @@ pub fn draw_calibration<DB: DrawingBackend>(
     ))
     .map_err(fail)?;
     let mut entries = Vec::new();
+    // Several runs: one legend entry each (their colour), and one saying what dots and
+    // lines are, so the legend leaves the curves in sight.
+    let several = chart.runs.iter().filter(|r| shown(r)).count() > 1;
     let cap = f64::from(look.px(4.0)) / f64::from(c.plotting_area().dim_in_pixel().0.max(1));
     for run in chart.runs.iter().filter(|r| shown(r)) {
         let colour = rgb(run.colour);
@@ -120,11 +123,15 @@ pub fn draw_calibration<DB: DrawingBackend>(
             &c,
             run.smoothed.iter().map(|&(x, y)| (x, y.clamp(0.0, 1.0))),
         );
-        if smooth.len() >= 2 {
+        let smooth_drawn = smooth.len() >= 2;
+        if smooth_drawn {
             c.draw_series(LineSeries::new(smooth, look.line(colour, 2.0)))
                 .map_err(fail)?;
             entries.push((
-                format!("{}: smoothed", run.name),
+                match several {
+                    true => run.name.clone(),
+                    false => format!("{}: smoothed", run.name),
+                },
                 Mark::Line {
                     colour,
                     dashed: false,
@@ -153,12 +160,18 @@ pub fn draw_calibration<DB: DrawingBackend>(
             )
         }))
         .map_err(fail)?;
-        if !bins.is_empty() {
+        if !bins.is_empty() && (!several || !smooth_drawn) {
             entries.push((
                 format!("{}: groups, 95% interval", run.name),
                 Mark::Dot(colour),
             ));
         }
+    }
+    if several {
+        entries.push((
+            "dots: tenths of the predictions, 95% interval; lines: smoothed".into(),
+            Mark::Dot(REFERENCE),
+        ));
     }
     entries.push((
         "ideal (observed = predicted)".into(),
@@ -359,7 +372,9 @@ mod tests {
         });
         assert_eq!(filled_rects(&out, run_colour(0)), 20);
         assert_eq!(filled_rects(&out, run_colour(1)), 20);
-        assert!(out.contains("boosting: smoothed"));
+        // One legend entry a run, and one for what dots and lines are.
+        assert!(out.contains("boosting") && !out.contains("boosting: smoothed"));
+        assert!(out.contains("dots: tenths of the predictions"));
         let table = calibration_table(&chart);
         assert_eq!(table.rows.len(), 2 * (10 + 20));
         // Group 3 of the forest: mean 0.25, 0.25^1.3 of 100 rows = 16 events.

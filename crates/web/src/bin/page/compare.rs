@@ -125,7 +125,7 @@ pub fn render(p: &Page) {
         match &r.validation {
             Some(v) => {
                 html += &format!(
-                    "<tr data-run=\"{}\" data-judged=\"yes\"><th scope=\"row\">{}</th><td>{}</td><td>{} <span class=\"unit\">({} records)</span></td>",
+                    "<tr data-run=\"{}\" data-judged=\"yes\"><th scope=\"row\">{}</th><td class=\"model\">{}</td><td class=\"judged\">{} <span class=\"unit\">({} records)</span></td>",
                     i + 1,
                     i + 1,
                     esc(label),
@@ -168,7 +168,7 @@ pub fn render(p: &Page) {
                     |e| format!("could not be judged as asked: {e}"),
                 );
                 html += &format!(
-                    "<tr data-run=\"{}\" data-judged=\"no\"><th scope=\"row\">{}</th><td>{}</td><td class=\"note\">{}</td>{blank}<td class=\"num\">{fit}</td>{remove}</tr>",
+                    "<tr data-run=\"{}\" data-judged=\"no\"><th scope=\"row\">{}</th><td class=\"model\">{}</td><td class=\"note\">{}</td>{blank}<td class=\"num\">{fit}</td>{remove}</tr>",
                     i + 1,
                     i + 1,
                     esc(label),
@@ -230,7 +230,12 @@ fn render_charts(p: &Page, runs: &[(usize, String, &spinney_web::protocol::RunRe
     for id in ["roc-canvas", "calibration-canvas", "decision-canvas"] {
         let _ = by_id(&p.doc, id).set_attribute("data-runs", &numbers.join("-"));
     }
-    let name = |i: usize, label: &str| format!("run {}: {label}", i + 1);
+    // The legends name each run by its number and method (its settings are in the table
+    // above), so they stay short enough to leave the curves in sight.
+    let name = |i: usize, label: &str| {
+        let method = label.split(',').next().unwrap_or(label);
+        format!("run {}: {method}", i + 1)
+    };
     let auc = |v: &RunValidation| v.figures.iter().find(|f| f.name == "auc").map(|f| f.value);
     let mut roc = RocChart {
         title: String::new(),
