@@ -653,12 +653,15 @@ fn fmt_error(x: f64) -> String {
 }
 
 pub fn fmt_seconds(s: f64) -> String {
-    if s < 10.0 {
+    if s < 0.1 {
+        format!("{:.0} ms", s * 1000.0)
+    } else if s < 10.0 {
         format!("{s:.1} s")
     } else if s < 120.0 {
         format!("{s:.0} s")
     } else {
-        format!("{:.0} min {:.0} s", (s / 60.0).floor(), s % 60.0)
+        let whole = s.round() as u64;
+        format!("{} min {} s", whole / 60, whole % 60)
     }
 }
 
