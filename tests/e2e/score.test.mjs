@@ -59,7 +59,10 @@ try {
     const head = await page.$$eval('table.predictions thead th', (t) => t.map((x) => x.textContent));
     expect(JSON.stringify(head) === JSON.stringify(['Row', 'patient_id', 'predicted_complication_30d', 'probability_no', 'probability_yes',
       'top_1_predictor', 'top_1_amount', 'top_2_predictor', 'top_2_amount', 'top_3_predictor', 'top_3_amount', 'amount_scale']), head.join(' | '));
-    const first = await page.$$eval('table.predictions tbody tr:first-child td', (t) => t.map((x) => x.textContent));
+    // Model numbers read to four decimals, unrounded in data-value.
+    const first = await page.$$eval('table.predictions tbody tr:first-child td', (t) => t.map((x) => x.dataset.value ?? x.textContent));
+    const shown = await page.$$eval('table.predictions tbody tr:first-child td', (t) => t.map((x) => x.textContent));
+    expect(shown[2] === Number(first[2]).toFixed(4), `probability shown as ${shown[2]} for ${first[2]}`);
     expect(first[0] === 'P00001' && ['yes', 'no'].includes(first[1]) && Math.abs(Number(first[2]) + Number(first[3]) - 1) < 1e-12, first.join(' | '));
     await page.screenshot({ path: join(out, 'score-step.png'), fullPage: true });
   });

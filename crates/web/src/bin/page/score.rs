@@ -164,10 +164,24 @@ pub fn scored(page: &Shared, id: u32, result: ScoreResult) {
         html += &format!("<th scope=\"col\">{}</th>", esc(h));
     }
     html += "</tr></thead><tbody>";
+    // The model's numbers read to four decimals here (unrounded in `data-value` and in the
+    // downloaded file); the file's own columns as they are.
+    let rounded: Vec<bool> = result
+        .header
+        .iter()
+        .map(|h| {
+            h.starts_with("probability_") || h.ends_with("_amount") || h.starts_with("predicted_")
+        })
+        .collect();
     for (r, row) in result.preview.iter().enumerate() {
         html += &format!("<tr><th scope=\"row\">{}</th>", r + 1);
-        for f in row {
-            html += &format!("<td>{}</td>", esc(f));
+        for (f, &round) in row.iter().zip(&rounded) {
+            match f.parse::<f64>() {
+                Ok(x) if round && x.is_finite() => {
+                    html += &format!("<td class=\"num\" data-value=\"{}\">{x:.4}</td>", esc(f))
+                }
+                _ => html += &format!("<td>{}</td>", esc(f)),
+            }
         }
         html += "</tr>";
     }
