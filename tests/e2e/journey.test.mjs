@@ -107,7 +107,14 @@ try {
     const auc = await page.$$eval('#compare-table [data-figure=auc]', (c) => c.map((x) => x.textContent));
     expect(auc.every((a) => /^0\.\d+ \(0\.\d+ to 0\.\d+\)$/.test(a)), `AUC cells ${auc}`);
     expect((await page.$$('#compare-table tr.baseline')).length === 2, 'no baseline rows');
-    for (const id of ['roc-canvas', 'calibration-canvas', 'decision-canvas']) {
+    // Error by size, both runs on one chart: each one's out-of-sample curve and its training
+    // curve (the issue's "boosting still improving after training error reaches zero").
+    const heads = await page.$$eval('#sizes-numbers table thead th', (h) => h.map((x) => x.textContent));
+    for (const want of ['run 1: out-of-bag', 'run 1: training', 'run 2: held out', 'run 2: training']) {
+      expect(heads.includes(want), `no '${want}' among ${heads.join(' | ')}`);
+    }
+    expect(/number of trees or rounds/.test(heads[0]), heads[0]);
+    for (const id of ['roc-canvas', 'calibration-canvas', 'decision-canvas', 'sizes-canvas']) {
       const ink = await page.$eval(`#${id}`, (c) => {
         const d = c.getContext('2d').getImageData(0, 0, c.width, c.height).data;
         let n = 0;

@@ -1,14 +1,14 @@
 //! Step 4, comparing the runs on records they did not learn from: one table of every run's
 //! out-of-sample figures with their 95% intervals and the baseline judged on the same splits
 //! beside it, the computed warnings, and for two-class outcomes the ROC, calibration and
-//! decision curves of the judged runs (each chart with its numbers as a table, its text
-//! alternative). Runs fitted without a validation say so and show no figures here. Each run
+//! decision curves of the judged runs and their errors by number of trees or rounds (each
+//! chart with its numbers as a table, its text alternative). Runs fitted without a validation say so and show no figures here. Each run
 //! has a Remove button here (`runs::remove` drops it everywhere).
 
 use spinney_charts::{
-    calibration_table, decision_table, draw_calibration, draw_decision, draw_roc, roc_table,
-    run_colour, CalibrationBin, CalibrationChart, CalibrationRun, DecisionChart, DecisionRun,
-    RocChart, RocRun, Table,
+    calibration_table, decision_table, draw_calibration, draw_decision, draw_error_curves,
+    draw_roc, error_table, roc_table, run_colour, CalibrationBin, CalibrationChart, CalibrationRun,
+    Curve, DecisionChart, DecisionRun, ErrorChart, RocChart, RocRun, Table,
 };
 use spinney_web::protocol::{Figure, RunValidation};
 use wasm_bindgen::JsCast;
@@ -325,4 +325,64 @@ fn render_charts(p: &Page, runs: &[(usize, String, &spinney_web::protocol::RunRe
         "decision-numbers",
         &table_html(&decision_table(&decision)),
     );
+
+    // Error by number of trees or rounds, every judged ensemble on one chart: out of sample
+    // solid, training (apparent) dashed, each run in its colour, so boosting still improving
+    // after its training error reaches zero, and a forest settling, show side by side.
+    let sized: Vec<&(usize, String, &spinney_web::protocol::RunResult)> = runs
+        .iter()
+        .filter(|(_, _, r)| {
+            r.members > 1 && r.validation.as_ref().is_some_and(|v| !v.roc.is_empty())
+        })
+        .collect();
+    let error_name = sized.first().map(|(_, _, r)| r.error_name.clone());
+    let mut curves = Vec::new();
+    let mut members: Vec<&str> = Vec::new();
+    for (i, _, r) in sized
+        .iter()
+        .filter(|(_, _, r)| Some(&r.error_name) == error_name.as_ref())
+    {
+        // Short legend words (the figure's caption and the other charts' legends say the
+        // rest), so the legend leaves the curves in sight.
+        let held_out = match r.oob_curve.is_empty() {
+            false => Some(("out-of-bag", &r.oob_curve)),
+            true => r
+                .validation
+                .as_ref()
+                .filter(|v| !v.error_by_size.is_empty())
+                .map(|v| ("held out", &v.error_by_size)),
+        };
+        if let Some((how, values)) = held_out {
+            curves.push(Curve {
+                name: format!("run {}: {how}", i + 1),
+                values: values.clone(),
+                colour: run_colour(*i),
+                dashed: false,
+            });
+        }
+        if !r.training_curve.is_empty() {
+            curves.push(Curve {
+                name: format!("run {}: training", i + 1),
+                values: r.training_curve.clone(),
+                colour: run_colour(*i),
+                dashed: true,
+            });
+        }
+        if !members.contains(&r.member_name.as_str()) {
+            members.push(&r.member_name);
+        }
+    }
+    show(&p.doc, "sizes-figure", !curves.is_empty());
+    if let Some(error_name) = error_name.filter(|_| !curves.is_empty()) {
+        let sizes = ErrorChart {
+            title: String::new(),
+            x_label: format!("number of {}", members.join(" or ")),
+            y_label: error_name,
+            curves,
+        };
+        draw_by_id(&p.doc, "sizes-canvas", 0.7, &|area, s| {
+            draw_error_curves(area, &sizes, s)
+        });
+        set_html(&p.doc, "sizes-numbers", &table_html(&error_table(&sizes)));
+    }
 }
