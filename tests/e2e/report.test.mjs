@@ -77,7 +77,8 @@ try {
     await page.waitForSelector('#step-threshold:not([hidden]) .threshold-tables', { timeout: 30000 });
     report = await makeReport(page);
     const status = await page.textContent('#report-status');
-    expect(/1 run\(s\), 4 chart\(s\)/.test(status) && /Save as PDF/.test(status), status);
+    // The run's error chart (step 3), and ROC, calibration, decision and error by size (step 4).
+    expect(/1 run\(s\), 5 chart\(s\)/.test(status) && /Save as PDF/.test(status), status);
     // Nothing of the report shows on screen; the print stylesheet shows it.
     expect(await page.$eval('#report', (r) => getComputedStyle(r).display) === 'none', 'the report shows on screen');
   });
@@ -169,12 +170,12 @@ try {
       table: !!f.nextElementSibling?.querySelector('table'),
     })));
     const canvases = await page.$$eval('.notebook figure.curve canvas', (cs) => cs.filter((c) => !c.closest('[hidden]')).map((c) => c.width));
-    expect(charts.length === 4 && canvases.length === 4, `${charts.length} charts in the report, ${canvases.length} on the page`);
+    expect(charts.length === 5 && canvases.length === 5, `${charts.length} charts in the report, ${canvases.length} on the page`);
     charts.forEach((c, i) => {
       expect(c.width === canvases[i] && c.natural === canvases[i], `${c.chart}: image ${c.natural} px vs canvas ${canvases[i]} px`);
       expect(c.alt.length > 10 && c.table, `${c.chart}: no text alternative`);
     });
-    expect(charts.map((c) => c.chart).join() === 'error-curves-run-1,roc-curves-run-1,calibration-run-1,decision-curves-run-1', charts.map((c) => c.chart).join());
+    expect(charts.map((c) => c.chart).join() === 'error-curves-run-1,roc-curves-run-1,calibration-run-1,decision-curves-run-1,error-by-size-run-1', charts.map((c) => c.chart).join());
   });
 
   await check('printed to PDF on A4 and Letter, with pages', async () => {
@@ -183,7 +184,7 @@ try {
     const letter = join(out, 'report-letter.pdf');
     await page.pdf({ path: letter, format: 'Letter' });
     const pages = [pdfPages(readFileSync(a4)), pdfPages(readFileSync(letter))];
-    // Data, one run, comparison, threshold and four charts with their numbers: several pages.
+    // Data, one run, comparison, threshold and five charts with their numbers: several pages.
     expect(pages.every((n) => n >= 3 && n < 40), `pages: A4 ${pages[0]}, Letter ${pages[1]}`);
     console.log(`  report pages: A4 ${pages[0]}, Letter ${pages[1]}`);
   });
@@ -278,7 +279,7 @@ try {
     const text = await makeReport(w.page);
     const sha = createHash('sha256').update(readFileSync(demo)).digest('hex');
     expect(text.includes(sha) && text.includes('For research use'), text.slice(0, 300));
-    expect(await w.page.$$eval('#report img.report-chart', (i) => i.filter((x) => x.naturalWidth > 0).length) === 4, 'charts missing');
+    expect(await w.page.$$eval('#report img.report-chart', (i) => i.filter((x) => x.naturalWidth > 0).length) === 5, 'charts missing');
     const pdf = join(out, 'report-single-file.pdf');
     await w.page.pdf({ path: pdf, format: 'A4' });
     expect(pdfPages(readFileSync(pdf)) >= 2, 'no pages');

@@ -227,7 +227,12 @@ fn render_charts(p: &Page, runs: &[(usize, String, &spinney_web::protocol::RunRe
     }
     // The runs drawn, for the name of a saved PNG ("1-2-3").
     let numbers: Vec<String> = judged.iter().map(|(i, _, _)| (i + 1).to_string()).collect();
-    for id in ["roc-canvas", "calibration-canvas", "decision-canvas"] {
+    for id in [
+        "roc-canvas",
+        "calibration-canvas",
+        "decision-canvas",
+        "sizes-canvas",
+    ] {
         let _ = by_id(&p.doc, id).set_attribute("data-runs", &numbers.join("-"));
     }
     // The legends name each run by its number and method (its settings are in the table
