@@ -44,7 +44,11 @@ async function download(click, as) {
 async function openStudy(path) {
   await page.evaluate(() => { document.querySelector('#study-status').textContent = ''; });
   await page.setInputFiles('#study-input', path);
-  await page.waitForFunction(() => document.querySelector('#study-status').textContent.length > 0);
+  // The first words may be the interim "Opening the study…"; wait for the outcome.
+  await page.waitForFunction(() => {
+    const t = document.querySelector('#study-status').textContent;
+    return t.length > 0 && !t.endsWith('…');
+  }, null, { timeout: 60000 });
   return page.textContent('#study-status');
 }
 async function regrown(n) {
