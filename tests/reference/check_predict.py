@@ -95,42 +95,26 @@ def main():
         print("%d passed, %d failed" % (passed, failed))
         return 1
     with tempfile.TemporaryDirectory() as tmp:
-        # A single exact tree on wine: probabilities per class.
-        name = "wine tree depth 3: predict_proba"
-        try:
-            data = load_wine()
-            X, y = data.data.astype(np.float32), data.target
-            new_X = new_points(X, 1)
-            rows = spinney_predictions(tmp, X, y, True, new_X,
-                                       ["--method", "tree", "--set", "depth=3", "--set", "split_search=exact"])
-            ref = DecisionTreeClassifier(max_depth=3, random_state=0).fit(X, y).predict_proba(new_X)
-            ours = [[float(r["probability_k%d" % k]) for k in range(3)] for r in rows]
-            gap = largest_gap(ours, ref)
-            report(name, None if len(ours) == len(new_X) and gap <= 1e-12 else
-                   "%d rows, largest difference %g" % (len(ours), gap))
-        except Exception as e:  # noqa: BLE001 - report any failure of the binary
-            report(name, str(e))
-
-        # The same tree scoring points with missing cells, none of which training had:
-        # scikit-learn sends a missing value at such a split to the child with more
-        # training samples (its user guide, "Missing Values Support" for decision trees),
-        # and so does Spinney.
-        name = "wine tree depth 3: predict_proba with missing values unseen in training"
-        try:
-            data = load_wine()
-            X, y = data.data.astype(np.float32), data.target
-            new_X = new_points(X, 4)
-            holes = np.random.default_rng(4).random(new_X.shape) < 0.3
-            new_X[holes] = np.nan
-            rows = spinney_predictions(tmp, X, y, True, new_X,
-                                       ["--method", "tree", "--set", "depth=3", "--set", "split_search=exact"])
-            ref = DecisionTreeClassifier(max_depth=3, random_state=0).fit(X, y).predict_proba(new_X)
-            ours = [[float(r["probability_k%d" % k]) for k in range(3)] for r in rows]
-            gap = largest_gap(ours, ref)
-            report(name, None if len(ours) == len(new_X) and gap <= 1e-12 else
-                   "%d rows, largest difference %g" % (len(ours), gap))
-        except Exception as e:  # noqa: BLE001
-            report(name, str(e))
+        # A single exact tree on wine: probabilities per class; then the same tree scoring
+        # points with missing cells, none of which training had: scikit-learn sends a missing
+        # value at such a split to the child with more training samples (its user guide,
+        # "Missing Values Support" for decision trees), and so does Spinney.
+        data = load_wine()
+        X, y = data.data.astype(np.float32), data.target
+        with_holes = new_points(X, 4)
+        with_holes[np.random.default_rng(4).random(with_holes.shape) < 0.3] = np.nan
+        for name, new_X in [("wine tree depth 3: predict_proba", new_points(X, 1)),
+                            ("wine tree depth 3: predict_proba with missing values unseen in training", with_holes)]:
+            try:
+                rows = spinney_predictions(tmp, X, y, True, new_X,
+                                           ["--method", "tree", "--set", "depth=3", "--set", "split_search=exact"])
+                ref = DecisionTreeClassifier(max_depth=3, random_state=0).fit(X, y).predict_proba(new_X)
+                ours = [[float(r["probability_k%d" % k]) for k in range(3)] for r in rows]
+                gap = largest_gap(ours, ref)
+                report(name, None if len(ours) == len(new_X) and gap <= 1e-12 else
+                       "%d rows, largest difference %g" % (len(ours), gap))
+            except Exception as e:  # noqa: BLE001 - report any failure of the binary
+                report(name, str(e))
 
         # A single exact regression tree on diabetes.
         name = "diabetes[:250] tree depth 3: predict"

@@ -42,6 +42,14 @@ impl Outcome {
         self.len() == 0
     }
 
+    /// Values a prediction has for this outcome: one probability per class, or the number.
+    pub fn outputs(&self) -> usize {
+        match self {
+            Outcome::Classes { labels, .. } => labels.len(),
+            Outcome::Numbers(_) => 1,
+        }
+    }
+
     /// The outcome of `rows` only (indices, in that order; repeats allowed).
     pub fn select(&self, rows: &[usize]) -> Outcome {
         match self {

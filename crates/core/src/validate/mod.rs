@@ -604,10 +604,7 @@ pub fn out_of_bag_spread(
     spread: Option<Spread<'_>>,
 ) -> Result<Validation> {
     let n = design.outcome.len();
-    let outputs = match &design.outcome {
-        Outcome::Classes { labels, .. } => labels.len(),
-        Outcome::Numbers(_) => 1,
-    };
+    let outputs = design.outcome.outputs();
     let mut notes = Vec::new();
     if fitted.model.partial {
         return Err(cancelled());
@@ -802,10 +799,7 @@ fn pooled(
     fit_all: &mut dyn FnMut() -> Result<Vec<f64>>,
 ) -> Result<Validation> {
     let n = design.outcome.len();
-    let outputs = match &design.outcome {
-        Outcome::Classes { labels, .. } => labels.len(),
-        Outcome::Numbers(_) => 1,
-    };
+    let outputs = design.outcome.outputs();
     let mut notes = Vec::new();
     let predictions =
         pool(n, outputs, s, |i| Some(runs[i].predictions.clone())).unwrap_or_default();

@@ -274,10 +274,7 @@ pub fn tune(
             _ => Scheme::Folds { k, repeats: 1 },
         };
         let outer = splits(design, &outer_scheme, plan.seed.wrapping_add(1))?;
-        let outputs = match &design.outcome {
-            Outcome::Classes { labels, .. } => labels.len(),
-            Outcome::Numbers(_) => 1,
-        };
+        let outputs = design.outcome.outputs();
         let mut pooled = vec![f64::NAN; design.outcome.len() * outputs];
         let mut folds = Vec::with_capacity(outer.len());
         for split in &outer {
