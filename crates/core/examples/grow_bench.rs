@@ -30,6 +30,8 @@ fn main() {
     let mut args = std::env::args().skip(1);
     let rows: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(40_000);
     let trees: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(60);
+    // "numbers": a number outcome (the logistic model's linear part plus noise) instead.
+    let numbers = args.next().is_some_and(|a| a == "numbers");
     let mut rng = stream(5, Purpose::ExplainSample, u64::MAX);
     let beta = [1.0, -0.8, 0.6, 0.5, -0.4, 0.3];
     let mut text = String::from("y");
@@ -41,11 +43,13 @@ fn main() {
         let x: Vec<f64> = (0..PREDICTORS).map(|_| normal(&mut rng)).collect();
         let eta: f64 = x.iter().zip(beta).map(|(a, b)| a * b).sum::<f64>() - 1.0;
         let u = (rng.next_u64() >> 11) as f64 / (1u64 << 53) as f64;
-        text += if u < 1.0 / (1.0 + (-eta).exp()) {
-            "1"
+        if numbers {
+            text += &format!("{:.6}", eta + normal(&mut rng));
+        } else if u < 1.0 / (1.0 + (-eta).exp()) {
+            text += "1";
         } else {
-            "0"
-        };
+            text += "0";
+        }
         for v in &x {
             text += &format!(",{v:.6}");
         }
@@ -65,7 +69,7 @@ fn main() {
     .expect("design");
     let binned = bin_design(&design, BinSettings::default()).expect("bins");
     let (stats, width) = design.row_statistics(false);
-    let mut settings = ForestSettings::random_forest(PREDICTORS, false, 1);
+    let mut settings = ForestSettings::random_forest(PREDICTORS, numbers, 1);
     settings.trees = trees;
 
     let start = Instant::now();
@@ -78,10 +82,25 @@ fn main() {
         &mut Silent,
     );
     let fit = start.elapsed().as_secs_f64();
+    // A fingerprint of every split and value, so a change meant only to be faster can be
+    // seen to grow the same trees (FNV-1a over the fields' bits).
+    let mut print = 0xcbf2_9ce4_8422_2325u64;
+    let mut mix = |x: u64| {
+        for byte in x.to_le_bytes() {
+            print = (print ^ u64::from(byte)).wrapping_mul(0x0100_0000_01b3);
+        }
+    };
+    for t in &forest.trees {
+        for n in &t.nodes {
+            mix(u64::from(n.feature) << 32 | u64::from(n.threshold_bin) << 16 | u64::from(n.left));
+            mix(n.threshold.to_bits() ^ n.gain.to_bits().rotate_left(7) ^ n.weight.to_bits());
+        }
+        t.values.iter().for_each(|v| mix(v.to_bits()));
+    }
     let nodes: usize = forest.trees.iter().map(|t| t.nodes.len()).sum();
     let depth: usize = forest.trees.iter().map(|t| t.depth()).sum();
     println!(
-        "forest: {trees} trees on {rows} x {PREDICTORS}: {fit:.2} s, {:.1} ms a tree (out-of-bag tally included); mean {:.0} nodes, depth {:.1}; OOB error {:.4}",
+        "forest: {trees} trees on {rows} x {PREDICTORS}: {fit:.2} s, {:.1} ms a tree (out-of-bag tally included); mean {:.0} nodes, depth {:.1}; OOB error {:.4}; fingerprint {print:016x}",
         fit * 1e3 / trees as f64,
         nodes as f64 / trees as f64,
         depth as f64 / trees as f64,
