@@ -203,11 +203,12 @@ struct Grower<'a, 'c, B: Bin> {
     /// `width + 1` numbers, one per cell value, so slot 255 holds missing values); `None` in
     /// exact mode, where bins are too many to keep densely.
     dense_offsets: Option<Vec<usize>>,
-    /// With two statistics per row: each row's pair beside it, `pairs[i]` the statistics of
-    /// row `work[i]`, partitioned with the rows, so a node reads its statistics in order
-    /// instead of scattered over the whole data (empty otherwise).
-    pairs: Vec<[f64; 2]>,
-    pairs_scratch: Vec<[f64; 2]>,
+    /// With two statistics per row: each row's statistics and its row count beside it,
+    /// `pairs[i]` those of row `work[i]` (times the number of times the row was drawn, see
+    /// [`collapse_repeats`]), partitioned with the rows, so a node reads its statistics in
+    /// order instead of scattered over the whole data (empty otherwise).
+    pairs: Vec<[f64; 3]>,
+    pairs_scratch: Vec<[f64; 3]>,
     /// The split points of one dense scan.
     points: Points,
     /// Dense histogram buffers free for reuse.
@@ -229,6 +230,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         monotone: &'a [i8],
     ) -> Self {
         let outputs = settings.criterion.outputs(width);
+        let (work, pairs) = match width {
+            2 => collapse_repeats(rows, stats, binned.rows),
+            _ => (rows.to_vec(), Vec::new()),
+        };
         Grower {
             binned,
             cells,
@@ -242,8 +247,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 values: Vec::new(),
                 outputs,
             },
-            work: rows.to_vec(),
-            scratch: Vec::with_capacity(rows.len()),
+            scratch: Vec::with_capacity(work.len()),
+            work,
             hist: vec![0.0; (B::MISSING.index() + 1) * (width + 1)],
             touched: Vec::with_capacity(256),
             order: Vec::with_capacity(256),
@@ -255,13 +260,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .map(|j| j * DENSE_SLOTS * (width + 1))
                     .collect()
             }),
-            pairs: match width {
-                2 => rows
-                    .iter()
-                    .map(|&r| [stats[2 * r as usize], stats[2 * r as usize + 1]])
-                    .collect(),
-                _ => Vec::new(),
-            },
+            pairs,
             pairs_scratch: Vec::new(),
             points: Points::default(),
             pool: Vec::new(),
@@ -380,6 +379,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         self.spans[id] = (start, end);
         self.totals.iter_mut().for_each(|t| *t = 0.0);
         let (mut y_min, mut y_max) = (f64::INFINITY, f64::NEG_INFINITY);
+        // Rows in the node, repeats counted.
+        let mut n = end - start;
         // The value a row alone would give a node (mean, or Newton step direction).
         let alone = |s: &[f64]| match criterion {
             Criterion::SquaredError if s[0] > 0.0 => Some(s[1] / s[0]),
@@ -389,7 +390,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         if width == 2 {
             // The same sums in the same order, from the pairs kept beside the rows; the range
             // of values only where purity is judged by it (not for classes).
-            let [mut t0, mut t1] = [0.0; 2];
+            let [mut t0, mut t1, mut tc] = [0.0; 3];
             let ranged = matches!(
                 criterion,
                 Criterion::SquaredError | Criterion::Gradient { .. }
@@ -397,6 +398,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             for s in &self.pairs[start..end] {
                 t0 += s[0];
                 t1 += s[1];
+                tc += s[2];
                 if ranged {
                     if let Some(a) = alone(s) {
                         y_min = y_min.min(a);
@@ -405,6 +407,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 }
             }
             self.totals.copy_from_slice(&[t0, t1]);
+            n = tc as usize;
         } else {
             for &r in &self.work[start..end] {
                 let s = &stats[r as usize * width..(r as usize + 1) * width];
@@ -428,7 +431,6 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             let last = self.tree.values.len() - 1;
             self.tree.values[last] = own_value;
         }
-        let n = end - start;
         let parent_cost = if bounded {
             criterion.cost_at(&self.totals, own_value)
         } else {
@@ -457,7 +459,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         }
         // A large node trying every predictor sums them all densely, for its children's sake.
         if dense.is_none()
-            && n >= DENSE_MIN_ROWS
+            && end - start >= DENSE_MIN_ROWS
             && self.dense_offsets.is_some()
             && candidates.len() == self.binned.columns.len()
         {
@@ -515,6 +517,25 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 continue;
             }
             let column = self.column(j);
+            if width == 2
+                && numeric
+                && !bounded
+                && limits.monotone == 0
+                && B::MISSING.index() < DENSE_SLOTS
+            {
+                let (slots, _) = self.hist.as_chunks_mut::<3>();
+                scan_rows_pairs(
+                    slots,
+                    column,
+                    &self.work[start..end],
+                    &self.pairs[start..end],
+                    j,
+                    parent_cost,
+                    settings,
+                    &mut best,
+                );
+                continue;
+            }
             fill_histogram(
                 &mut self.hist,
                 &mut self.touched,
@@ -680,7 +701,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         }
         let pairs = !self.pairs.is_empty();
         if pairs && self.pairs_scratch.len() < len {
-            self.pairs_scratch.resize(len, [0.0; 2]);
+            self.pairs_scratch.resize(len, [0.0; 3]);
         }
         let (work, scratch) = (&mut self.work[c.start..c.end], &mut self.scratch[..len]);
         let (pw, ps) = match pairs {
@@ -762,6 +783,37 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
     }
 }
 
+/// The rows to grow on and their statistics with a row count, `[s0, s1, rows]`. A row drawn
+/// several times (a bootstrap) is kept once with its statistics times the number of draws,
+/// as scikit-learn's forests weight a bootstrap (from memory), and the kept rows are in row
+/// order, so every node reads the columns in order. Rows without repeats keep their order.
+/// (With whole-number statistics, class weights of 1 say, every sum is exact either way, so
+/// the trees are those grown on the repeats; with fractions, sums may round differently.)
+fn collapse_repeats(rows: &[u32], stats: &[f64], n: usize) -> (Vec<u32>, Vec<[f64; 3]>) {
+    let mut counts = vec![0u32; n];
+    let mut repeats = false;
+    for &r in rows {
+        let c = &mut counts[r as usize];
+        repeats |= *c > 0;
+        *c += 1;
+    }
+    let pair = |r: usize, c: f64| match c {
+        1.0 => [stats[2 * r], stats[2 * r + 1], 1.0],
+        _ => [c * stats[2 * r], c * stats[2 * r + 1], c],
+    };
+    if !repeats {
+        let pairs = rows.iter().map(|&r| pair(r as usize, 1.0)).collect();
+        return (rows.to_vec(), pairs);
+    }
+    let mut kept = Vec::with_capacity(rows.len());
+    let mut pairs = Vec::with_capacity(rows.len());
+    for (r, &c) in counts.iter().enumerate().filter(|(_, &c)| c > 0) {
+        kept.push(r as u32);
+        pairs.push(pair(r, f64::from(c)));
+    }
+    (kept, pairs)
+}
+
 /// Puts the rows of `work` whose cell goes left first and the others after, both in their
 /// order, and returns how many go left; with `PAIRS`, `pairs` (one per row) moves alike.
 /// Every row is written to both `work` and `scratch` and only one cursor advances, so the
@@ -770,8 +822,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
 fn partition<B: Bin, const PAIRS: bool>(
     work: &mut [u32],
     scratch: &mut [u32],
-    pairs: &mut [[f64; 2]],
-    pairs_scratch: &mut [[f64; 2]],
+    pairs: &mut [[f64; 3]],
+    pairs_scratch: &mut [[f64; 3]],
     column: &[B],
     goes_left: impl Fn(B) -> bool,
 ) -> usize {
@@ -799,20 +851,20 @@ fn slots(h: &mut [f64]) -> &mut [[f64; 3]; DENSE_SLOTS] {
     slots.try_into().expect("256 slots of three")
 }
 
-/// Adds the pairs `ordered[i]` (and a row count) to the slots of `K` predictors' cells of row
+/// Adds the pairs and row counts `ordered[i]` to the slots of `K` predictors' cells of row
 /// `rows[i]` (`None`: row `i`), in row order.
 fn add_pairs<B: Bin, const K: usize>(
     mut hists: [&mut [[f64; 3]; DENSE_SLOTS]; K],
     columns: [&[B]; K],
     rows: Option<&[u32]>,
-    ordered: &[[f64; 2]],
+    ordered: &[[f64; 3]],
 ) {
-    let mut add = |cells: [B; K], [g, h]: [f64; 2]| {
+    let mut add = |cells: [B; K], [g, h, c]: [f64; 3]| {
         for (hist, b) in hists.iter_mut().zip(cells) {
             let at = &mut hist[b.index() & (DENSE_SLOTS - 1)];
             at[0] += g;
             at[1] += h;
-            at[2] += 1.0;
+            at[2] += c;
         }
     };
     match rows {
@@ -838,7 +890,7 @@ fn fill_histogram<B: Bin>(
     touched: &mut Vec<B>,
     column: &[B],
     rows: &[u32],
-    pairs: Option<&[[f64; 2]]>,
+    pairs: Option<&[[f64; 3]]>,
     stats: &[f64],
     width: usize,
 ) {
@@ -849,12 +901,12 @@ fn fill_histogram<B: Bin>(
             // A large node: a fixed-width loop without the per-row first-touch test, the
             // bins touched found afterwards in bin order. (Profiled: this loop is most of
             // the time of boosting; common practice, no source.)
-            for (&r, &[g, h]) in rows.iter().zip(pairs) {
+            for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
                 let b = column[r as usize].index();
                 let at = &mut hist[b * 3..b * 3 + 3];
                 at[0] += g;
                 at[1] += h;
-                at[2] += 1.0;
+                at[2] += c;
             }
             touched.extend(
                 (0..=B::MISSING.index())
@@ -863,7 +915,7 @@ fn fill_histogram<B: Bin>(
             );
             return;
         }
-        for (&r, &[g, h]) in rows.iter().zip(pairs) {
+        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
             let b = column[r as usize];
             let at = &mut hist[b.index() * 3..b.index() * 3 + 3];
             if at[2] == 0.0 {
@@ -871,7 +923,7 @@ fn fill_histogram<B: Bin>(
             }
             at[0] += g;
             at[1] += h;
-            at[2] += 1.0;
+            at[2] += c;
         }
         return;
     }
@@ -981,39 +1033,28 @@ fn scan<B: Bin>(
     if width == 2 && !limits.bounded && limits.monotone == 0 {
         // The common case (two classes, numbers, gradients; no bounds): the running sums in
         // registers, and the criterion chosen once here rather than at every split point.
-        let scan = PairScan {
-            hist,
+        let (slots, _) = hist.as_chunks::<3>();
+        let found = PairScan {
+            slots,
             order,
             missing: [missing[0], missing[1], missing[2]],
             total: [total[0], total[1], total[2]],
             sides,
-            feature,
-            numeric,
             parent_cost,
             min_leaf,
-            min_weight: settings.min_weight_leaf,
-        };
-        match criterion {
-            Criterion::Gini => scan.run(
-                |s| Criterion::Gini.cost(s),
-                |s| Criterion::Gini.weight(s),
-                best,
-            ),
-            Criterion::Entropy => scan.run(
-                |s| Criterion::Entropy.cost(s),
-                |s| Criterion::Entropy.weight(s),
-                best,
-            ),
-            Criterion::SquaredError => scan.run(
-                |s| Criterion::SquaredError.cost(s),
-                |s| Criterion::SquaredError.weight(s),
-                best,
-            ),
-            Criterion::Gradient { l2 } => scan.run(
-                |s| Criterion::Gradient { l2 }.cost(s),
-                |s| Criterion::Gradient { l2 }.weight(s),
-                best,
-            ),
+            min_weight: (settings.min_weight_leaf > 0.0).then_some(settings.min_weight_leaf),
+        }
+        .best(criterion, best.as_ref().map(|b| b.gain));
+        if let Some((gain, i, missing_left)) = found {
+            *best = Some(split_at(
+                gain,
+                feature,
+                numeric,
+                order,
+                i,
+                missing_left,
+                (0.0, 0.0),
+            ));
         }
         return;
     }
@@ -1076,40 +1117,44 @@ fn scan<B: Bin>(
 
 /// [`scan`]'s two-statistic loop without bounds, for one criterion's `cost` and `weight`
 /// (each a constant variant, so the compiler drops the match on the criterion). The same
-/// additions in the same order as the general loop, so the same splits.
+/// additions in the same order as the general loop, so the same splits. `slots` holds each
+/// bin's `(s0, s1, rows)`.
 struct PairScan<'h, B: Bin> {
-    hist: &'h [f64],
+    slots: &'h [[f64; 3]],
     order: &'h [B],
     missing: [f64; 3],
     total: [f64; 3],
     sides: &'h [bool],
-    feature: usize,
-    numeric: bool,
     parent_cost: f64,
     min_leaf: f64,
-    min_weight: f64,
+    /// The least weight of a side, `None` when it is not above zero (weights are never
+    /// negative, so no side is too light).
+    min_weight: Option<f64>,
 }
 
 impl<B: Bin> PairScan<'_, B> {
+    /// The split point that gains most, the first on ties, if it gains more than `bar`
+    /// (`None`: any point will do): its gain, its place in `order` and the side of missing
+    /// values.
     #[inline(always)]
     fn run(
         &self,
         cost: impl Fn(&[f64]) -> f64,
         weight: impl Fn(&[f64]) -> f64,
-        best: &mut Option<Split>,
-    ) {
+        mut bar: Option<f64>,
+    ) -> Option<(f64, usize, bool)> {
         let [t0, t1, tc] = self.total;
-        let hist = self.hist;
+        let mut found = None;
         for &missing_left in self.sides {
             let [mut l0, mut l1, mut lc] = match missing_left {
                 true => self.missing,
                 false => [0.0; 3],
             };
             for (i, &b) in self.order.iter().enumerate() {
-                let at = b.index() * 3;
-                l0 += hist[at];
-                l1 += hist[at + 1];
-                lc += hist[at + 2];
+                let [h0, h1, hc] = self.slots[b.index()];
+                l0 += h0;
+                l1 += h1;
+                lc += hc;
                 if lc < self.min_leaf {
                     continue;
                 }
@@ -1117,23 +1162,138 @@ impl<B: Bin> PairScan<'_, B> {
                     break;
                 }
                 let (l, r) = ([l0, l1], [t0 - l0, t1 - l1]);
-                if weight(&l) < self.min_weight || weight(&r) < self.min_weight {
-                    continue;
+                if let Some(least) = self.min_weight {
+                    if weight(&l) < least || weight(&r) < least {
+                        continue;
+                    }
                 }
                 let gain = self.parent_cost - cost(&l) - cost(&r);
-                if best.as_ref().is_none_or(|b| gain > b.gain) {
-                    *best = Some(split_at(
-                        gain,
-                        self.feature,
-                        self.numeric,
-                        self.order,
-                        i,
-                        missing_left,
-                        (0.0, 0.0),
-                    ));
+                if bar.is_none_or(|b| gain > b) {
+                    bar = Some(gain);
+                    found = Some((gain, i, missing_left));
                 }
             }
         }
+        found
+    }
+
+    /// [`PairScan::run`] with the criterion's functions.
+    fn best(&self, criterion: Criterion, bar: Option<f64>) -> Option<(f64, usize, bool)> {
+        match criterion {
+            Criterion::Gini => self.run(
+                |s| Criterion::Gini.cost(s),
+                |s| Criterion::Gini.weight(s),
+                bar,
+            ),
+            Criterion::Entropy => self.run(
+                |s| Criterion::Entropy.cost(s),
+                |s| Criterion::Entropy.weight(s),
+                bar,
+            ),
+            Criterion::SquaredError => self.run(
+                |s| Criterion::SquaredError.cost(s),
+                |s| Criterion::SquaredError.weight(s),
+                bar,
+            ),
+            Criterion::Gradient { l2 } => self.run(
+                |s| Criterion::Gradient { l2 }.cost(s),
+                |s| Criterion::Gradient { l2 }.weight(s),
+                bar,
+            ),
+        }
+    }
+}
+
+/// [`scan`] for a number predictor with two statistics per row and small cells, straight
+/// from the node's rows: sums each bin's `(s0, s1, rows)` into `slots` (all zero on entry
+/// and again on return), marking the bins used in a 256-bit map that is then read back in bin
+/// order, and scans them. The same sums in the same order as filling a histogram and calling
+/// [`scan`], so the same split, without the list of touched bins, the separate clearing pass
+/// or a split written at every better point. (Profiled: this is most of a forest's time.)
+#[allow(clippy::too_many_arguments)]
+fn scan_rows_pairs<B: Bin>(
+    slots: &mut [[f64; 3]],
+    column: &[B],
+    rows: &[u32],
+    pairs: &[[f64; 3]],
+    feature: usize,
+    parent_cost: f64,
+    settings: &GrowSettings,
+    best: &mut Option<Split>,
+) {
+    let mut bits = [0u64; 4];
+    if rows.len() >= 256 {
+        // Many rows: no per-row mark; the bins used are read off the counts afterwards.
+        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
+            let at = &mut slots[column[r as usize].index() & 255];
+            at[0] += g;
+            at[1] += h;
+            at[2] += c;
+        }
+        for (b, at) in slots[..256].iter().enumerate() {
+            bits[b >> 6] |= u64::from(at[2] > 0.0) << (b & 63);
+        }
+    } else {
+        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
+            let b = column[r as usize].index() & 255;
+            bits[b >> 6] |= 1 << (b & 63);
+            let at = &mut slots[b];
+            at[0] += g;
+            at[1] += h;
+            at[2] += c;
+        }
+    }
+    let m = B::MISSING.index() & 255;
+    bits[m >> 6] &= !(1 << (m & 63));
+    let mut order = [0u8; 256];
+    let mut used = 0;
+    for (w, mut word) in bits.into_iter().enumerate() {
+        while word != 0 {
+            order[used] = (w * 64 + word.trailing_zeros() as usize) as u8;
+            used += 1;
+            word &= word - 1;
+        }
+    }
+    let order = &order[..used];
+    let missing = slots[m];
+    let mut total = missing;
+    for &b in order {
+        let at = slots[b as usize];
+        total[0] += at[0];
+        total[1] += at[1];
+        total[2] += at[2];
+    }
+    let sides: &[bool] = if missing[2] > 0.0 {
+        &[true, false]
+    } else {
+        &[false]
+    };
+    let found = PairScan {
+        slots,
+        order,
+        missing,
+        total,
+        sides,
+        parent_cost,
+        min_leaf: settings.min_rows_leaf.max(1) as f64,
+        min_weight: (settings.min_weight_leaf > 0.0).then_some(settings.min_weight_leaf),
+    }
+    .best(settings.criterion, best.as_ref().map(|b| b.gain));
+    for &b in order {
+        slots[b as usize] = [0.0; 3];
+    }
+    slots[m] = [0.0; 3];
+    if let Some((gain, i, missing_left)) = found {
+        *best = Some(Split {
+            gain,
+            feature,
+            numeric: true,
+            threshold_bin: usize::from(order[i]),
+            next_bin: order.get(i + 1).map(|&b| usize::from(b)),
+            categories: BinSet::default(),
+            missing_left,
+            values: (0.0, 0.0),
+        });
     }
 }
 
