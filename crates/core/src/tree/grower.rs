@@ -1139,11 +1139,14 @@ impl<B: Bin> PairScan<'_, B> {
     #[inline(always)]
     fn run(
         &self,
-        cost: impl Fn(&[f64]) -> f64,
-        weight: impl Fn(&[f64]) -> f64,
-        mut bar: Option<f64>,
+        cost: impl Fn(f64, f64) -> f64,
+        weight: impl Fn(f64, f64) -> f64,
+        bar: Option<f64>,
     ) -> Option<(f64, usize, bool)> {
         let [t0, t1, tc] = self.total;
+        let (pc, min_leaf) = (self.parent_cost, self.min_leaf);
+        // The gain to beat; `open`: none yet, any point will do.
+        let (mut open, mut bar) = (bar.is_none(), bar.unwrap_or(0.0));
         let mut found = None;
         for &missing_left in self.sides {
             let [mut l0, mut l1, mut lc] = match missing_left {
@@ -1155,21 +1158,21 @@ impl<B: Bin> PairScan<'_, B> {
                 l0 += h0;
                 l1 += h1;
                 lc += hc;
-                if lc < self.min_leaf {
+                if lc < min_leaf {
                     continue;
                 }
-                if tc - lc < self.min_leaf {
+                if tc - lc < min_leaf {
                     break;
                 }
-                let (l, r) = ([l0, l1], [t0 - l0, t1 - l1]);
+                let (r0, r1) = (t0 - l0, t1 - l1);
                 if let Some(least) = self.min_weight {
-                    if weight(&l) < least || weight(&r) < least {
+                    if weight(l0, l1) < least || weight(r0, r1) < least {
                         continue;
                     }
                 }
-                let gain = self.parent_cost - cost(&l) - cost(&r);
-                if bar.is_none_or(|b| gain > b) {
-                    bar = Some(gain);
+                let gain = pc - cost(l0, l1) - cost(r0, r1);
+                if gain > bar || open {
+                    (open, bar) = (false, gain);
                     found = Some((gain, i, missing_left));
                 }
             }
@@ -1181,23 +1184,23 @@ impl<B: Bin> PairScan<'_, B> {
     fn best(&self, criterion: Criterion, bar: Option<f64>) -> Option<(f64, usize, bool)> {
         match criterion {
             Criterion::Gini => self.run(
-                |s| Criterion::Gini.cost(s),
-                |s| Criterion::Gini.weight(s),
+                |a, b| Criterion::Gini.cost2(a, b),
+                |a, b| Criterion::Gini.weight2(a, b),
                 bar,
             ),
             Criterion::Entropy => self.run(
-                |s| Criterion::Entropy.cost(s),
-                |s| Criterion::Entropy.weight(s),
+                |a, b| Criterion::Entropy.cost2(a, b),
+                |a, b| Criterion::Entropy.weight2(a, b),
                 bar,
             ),
             Criterion::SquaredError => self.run(
-                |s| Criterion::SquaredError.cost(s),
-                |s| Criterion::SquaredError.weight(s),
+                |a, b| Criterion::SquaredError.cost2(a, b),
+                |a, b| Criterion::SquaredError.weight2(a, b),
                 bar,
             ),
             Criterion::Gradient { l2 } => self.run(
-                |s| Criterion::Gradient { l2 }.cost(s),
-                |s| Criterion::Gradient { l2 }.weight(s),
+                |a, b| Criterion::Gradient { l2 }.cost2(a, b),
+                |a, b| Criterion::Gradient { l2 }.weight2(a, b),
                 bar,
             ),
         }
