@@ -711,8 +711,17 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             ),
             false => (&mut [][..], &mut [][..]),
         };
-        let left = if B::MISSING.index() < 256 {
-            // Small cells look their side up in a table of all 256 values.
+        let left = if B::MISSING.index() < 256 && split.numeric {
+            // Small cells on a number split: the missing bin (255) is above every threshold
+            // bin, so one comparison and the missing side, without a branch.
+            let (last, missing) = (split.threshold_bin, split.missing_left);
+            let side = |b: B| (b.index() <= last) | ((b == B::MISSING) & missing);
+            match pairs {
+                true => partition::<B, true>(work, scratch, pw, ps, column, side),
+                false => partition::<B, false>(work, scratch, pw, ps, column, side),
+            }
+        } else if B::MISSING.index() < 256 {
+            // Small cells on a category split look their side up in a table of all 256 values.
             let mut table = [false; 256];
             for (v, t) in table.iter_mut().enumerate() {
                 *t = goes_left(B::from_bin((v != B::MISSING.index()).then_some(v)));
