@@ -30,8 +30,10 @@ fn main() {
     let mut args = std::env::args().skip(1);
     let rows: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(40_000);
     let trees: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(60);
-    // "numbers": a number outcome (the logistic model's linear part plus noise) instead.
-    let numbers = args.next().is_some_and(|a| a == "numbers");
+    // "numbers": a number outcome (the logistic model's linear part plus noise) instead;
+    // "mixed": the last five predictors as categories and a tenth of x6..x11 missing.
+    let kind = args.next().unwrap_or_default();
+    let (numbers, mixed) = (kind == "numbers", kind == "mixed");
     let mut rng = stream(5, Purpose::ExplainSample, u64::MAX);
     let beta = [1.0, -0.8, 0.6, 0.5, -0.4, 0.3];
     let mut text = String::from("y");
@@ -50,8 +52,15 @@ fn main() {
         } else {
             text += "0";
         }
-        for v in &x {
-            text += &format!(",{v:.6}");
+        for (j, v) in x.iter().enumerate() {
+            if mixed && j >= PREDICTORS - 5 {
+                text += ["a", "b", "c", "d", "e", "f"][((v + 3.0).clamp(0.0, 5.9)) as usize];
+                text.insert(text.len() - 1, ',');
+            } else if mixed && (6..12).contains(&j) && rng.next_u64() % 10 == 0 {
+                text += ",NA";
+            } else {
+                text += &format!(",{v:.6}");
+            }
         }
         text.push('\n');
     }

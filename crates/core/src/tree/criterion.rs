@@ -209,7 +209,7 @@ mod tests {
             match x % 5 {
                 0 => 0.0,
                 1 => (x % 7) as f64,
-                _ => (x >> 11) as f64 / (1u64 << 40) as f64 - 1000.0 * ((x % 3 == 0) as u8 as f64),
+                _ => (x >> 11) as f64 / (1u64 << 40) as f64 - 1000.0 * (x.is_multiple_of(3) as u8 as f64),
             }
         };
         for c in [

@@ -193,6 +193,9 @@ struct Grower<'a, 'c, B: Bin> {
     /// touches are filled and cleared again, so small nodes deep in a tree cost in proportion
     /// to their rows, not to the number of bins.
     hist: Vec<f64>,
+    /// Four histograms of small cells' `(s0, s1, rows)` slots, filled together (kept zeroed
+    /// between uses like `hist`).
+    batch_hist: Vec<f64>,
     touched: Vec<B>,
     /// The bins in scan order, and the scan's running sums.
     order: Vec<B>,
@@ -250,6 +253,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             scratch: Vec::with_capacity(work.len()),
             work,
             hist: vec![0.0; (B::MISSING.index() + 1) * (width + 1)],
+            batch_hist: Vec::new(),
             touched: Vec::with_capacity(256),
             order: Vec::with_capacity(256),
             sums: ScanSums::new(width),
@@ -467,7 +471,49 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         }
         let mut best: Option<Split> = None;
         let stride = width + 1;
-        for &j in &candidates {
+        // The common case of a forest (two statistics, number predictors, small cells, no
+        // bounds or dense histograms): the node's rows read once per four predictors.
+        let batched = width == 2
+            && !bounded
+            && dense.is_none()
+            && B::MISSING.index() < DENSE_SLOTS
+            && candidates.iter().all(|&j| {
+                self.binned.columns[j].rule.is_numeric()
+                    && self.monotone.get(j).copied().unwrap_or(0) == 0
+            });
+        if batched {
+            let slots_len = (B::MISSING.index() + 1) * 3;
+            if self.batch_hist.len() < 4 * slots_len {
+                self.batch_hist.resize(4 * slots_len, 0.0);
+            }
+            let rows = &self.work[start..end];
+            let pairs = &self.pairs[start..end];
+            for group in candidates.chunks(4) {
+                let mut bits = [[0u64; 4]; 4];
+                let (all, _) = self.batch_hist.as_chunks_mut::<3>();
+                let mut parts = all.chunks_exact_mut(256);
+                let n = self.binned.rows;
+                let column = |j: usize| &self.cells[j * n..(j + 1) * n];
+                if let [a, b, c, d] = *group {
+                    let slots = [(); 4].map(|_| parts.next().expect("four histograms"));
+                    let mut four = [[0u64; 4]; 4];
+                    fill_rows_pairs(slots, &mut four, [a, b, c, d].map(column), rows, pairs);
+                    bits = four;
+                } else {
+                    for (k, &j) in group.iter().enumerate() {
+                        let slots = parts.next().expect("a histogram per predictor");
+                        let mut one = [[0u64; 4]; 1];
+                        fill_rows_pairs([slots], &mut one, [column(j)], rows, pairs);
+                        bits[k] = one[0];
+                    }
+                }
+                let (all, _) = self.batch_hist.as_chunks_mut::<3>();
+                for ((&j, slots), bits) in group.iter().zip(all.chunks_exact_mut(256)).zip(bits) {
+                    scan_filled_pairs::<B>(slots, bits, j, parent_cost, settings, &mut best);
+                }
+            }
+        }
+        for &j in candidates.iter().filter(|_| !batched) {
             let numeric = self.binned.columns[j].rule.is_numeric();
             let bins = self.binned.columns[j].bins;
             let limits = Limits {
@@ -523,17 +569,12 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 && limits.monotone == 0
                 && B::MISSING.index() < DENSE_SLOTS
             {
+                // One predictor of a node that cannot be batched (some are categories).
                 let (slots, _) = self.hist.as_chunks_mut::<3>();
-                scan_rows_pairs(
-                    slots,
-                    column,
-                    &self.work[start..end],
-                    &self.pairs[start..end],
-                    j,
-                    parent_cost,
-                    settings,
-                    &mut best,
-                );
+                let mut bits = [[0u64; 4]; 1];
+                let (rows, pairs) = (&self.work[start..end], &self.pairs[start..end]);
+                fill_rows_pairs([&mut *slots], &mut bits, [column], rows, pairs);
+                scan_filled_pairs::<B>(slots, bits[0], j, parent_cost, settings, &mut best);
                 continue;
             }
             fill_histogram(
@@ -1216,45 +1257,60 @@ impl<B: Bin> PairScan<'_, B> {
     }
 }
 
-/// [`scan`] for a number predictor with two statistics per row and small cells, straight
-/// from the node's rows: sums each bin's `(s0, s1, rows)` into `slots` (all zero on entry
-/// and again on return), marking the bins used in a 256-bit map that is then read back in bin
-/// order, and scans them. The same sums in the same order as filling a histogram and calling
-/// [`scan`], so the same split, without the list of touched bins, the separate clearing pass
-/// or a split written at every better point. (Profiled: this is most of a forest's time.)
-#[allow(clippy::too_many_arguments)]
-fn scan_rows_pairs<B: Bin>(
-    slots: &mut [[f64; 3]],
-    column: &[B],
+/// Sums each bin's `(s0, s1, rows)` of `K` predictors (two statistics per row, small cells)
+/// over the node's rows into `slots[k]` (all zero on entry), reading each row and its
+/// statistics once for all `K`, and marks the bins used in `bits[k]`: per row when the rows
+/// are few, otherwise read off the counts afterwards. Each bin sums its rows in row order.
+fn fill_rows_pairs<B: Bin, const K: usize>(
+    mut slots: [&mut [[f64; 3]]; K],
+    bits: &mut [[u64; 4]; K],
+    columns: [&[B]; K],
     rows: &[u32],
     pairs: &[[f64; 3]],
+) {
+    *bits = [[0; 4]; K];
+    if rows.len() >= 256 {
+        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
+            for (slots, column) in slots.iter_mut().zip(columns) {
+                let at = &mut slots[column[r as usize].index() & 255];
+                at[0] += g;
+                at[1] += h;
+                at[2] += c;
+            }
+        }
+        for (slots, bits) in slots.iter().zip(bits.iter_mut()) {
+            for (b, at) in slots[..256].iter().enumerate() {
+                bits[b >> 6] |= u64::from(at[2] > 0.0) << (b & 63);
+            }
+        }
+    } else {
+        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
+            for ((slots, bits), column) in slots.iter_mut().zip(bits.iter_mut()).zip(columns) {
+                let b = column[r as usize].index() & 255;
+                bits[b >> 6] |= 1 << (b & 63);
+                let at = &mut slots[b];
+                at[0] += g;
+                at[1] += h;
+                at[2] += c;
+            }
+        }
+    }
+}
+
+/// [`scan`] for a number predictor with two statistics per row and small cells, from its
+/// bins' sums in `slots` and the bins used in `bits` ([`fill_rows_pairs`]); the slots are
+/// all zero again on return. The bin map is read back in bin order, so the sums are those
+/// of filling a histogram and calling [`scan`], and so is the split, without a list of
+/// touched bins, a separate clearing pass or a split written at every better point.
+/// (Profiled: this is most of a forest's time.)
+fn scan_filled_pairs<B: Bin>(
+    slots: &mut [[f64; 3]],
+    mut bits: [u64; 4],
     feature: usize,
     parent_cost: f64,
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) {
-    let mut bits = [0u64; 4];
-    if rows.len() >= 256 {
-        // Many rows: no per-row mark; the bins used are read off the counts afterwards.
-        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
-            let at = &mut slots[column[r as usize].index() & 255];
-            at[0] += g;
-            at[1] += h;
-            at[2] += c;
-        }
-        for (b, at) in slots[..256].iter().enumerate() {
-            bits[b >> 6] |= u64::from(at[2] > 0.0) << (b & 63);
-        }
-    } else {
-        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
-            let b = column[r as usize].index() & 255;
-            bits[b >> 6] |= 1 << (b & 63);
-            let at = &mut slots[b];
-            at[0] += g;
-            at[1] += h;
-            at[2] += c;
-        }
-    }
     let m = B::MISSING.index() & 255;
     bits[m >> 6] &= !(1 << (m & 63));
     let mut order = [0u8; 256];
