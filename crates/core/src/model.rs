@@ -291,10 +291,37 @@ impl Model {
     /// Error after 1, 2, ... members (trees or rounds), in one pass over the members: error
     /// rate for classes, mean squared error for numbers. `None` for a single tree.
     pub fn staged_errors(&self, rows: Rows<'_>, outcome: &Outcome) -> Option<Vec<f64>> {
+        self.staged_sums(rows, outcome).map(|(curve, _)| curve)
+    }
+
+    /// [`Model::staged_errors`] and, for bagging and forests, the predictions
+    /// [`Model::predict_rows`] gives (the staged sums divided by the number of trees: the same
+    /// additions in the same order, so the same numbers to the last digit), from one walk of
+    /// every row down every tree instead of two.
+    pub fn staged_errors_and_predictions(
+        &self,
+        rows: Rows<'_>,
+        outcome: &Outcome,
+    ) -> (Option<Vec<f64>>, Option<Vec<f64>>) {
+        let Ensemble::Forest(f) = &self.ensemble else {
+            return (self.staged_errors(rows, outcome), None);
+        };
+        match self.staged_sums(rows, outcome) {
+            Some((curve, mut sums)) => {
+                let trees = f.trees.len().max(1) as f64;
+                sums.iter_mut().for_each(|s| *s /= trees);
+                (Some(curve), Some(sums))
+            }
+            None => (None, None),
+        }
+    }
+
+    /// The staged error curve and the final sums of the members' outputs (votes for AdaBoost).
+    fn staged_sums(&self, rows: Rows<'_>, outcome: &Outcome) -> Option<(Vec<f64>, Vec<f64>)> {
         let n = rows.len();
         let outputs = self.outputs();
         if let Ensemble::Boosting(b) = &self.ensemble {
-            return Some(boosting_staged_errors(b, rows, outcome));
+            return Some((boosting_staged_errors(b, rows, outcome), Vec::new()));
         }
         let (members, voting): (Vec<(&Tree, f64)>, bool) = match &self.ensemble {
             Ensemble::Tree(_) | Ensemble::Boosting(_) => return None,
@@ -324,7 +351,7 @@ impl Model {
             }
             curve.push(err / n.max(1) as f64);
         }
-        Some(curve)
+        Some((curve, sums))
     }
 
     /// The predictions for rows `range` into `out` (`outputs()` values a row, row after row):
@@ -871,4 +898,50 @@ fn boosting_staged_errors(b: &Boosting, rows: Rows<'_>, outcome: &Outcome) -> Ve
         curve.push(err / n as f64);
     }
     curve
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::data::{read_table, ReadOptions};
+    use crate::design::{build_design, DesignSpec};
+    use crate::fit::{fit_design, FitOptions};
+    use crate::model::Method;
+    use crate::progress::Silent;
+    use crate::settings::FitSettings;
+    use crate::tree::Rows;
+
+    #[test]
+    fn one_walk_gives_a_forests_error_by_size_and_its_predictions_to_the_bit() {
+        // Two ways of computing the same sums (our own consistency rule, no source needed).
+        let mut text = String::from("y,a,b,c\n");
+        for i in 0..300u64 {
+            let (a, b) = ((i * 37) % 101, (i * 53) % 89);
+            let y = ["p", "q", "r"][((a + b + i % 7) % 3) as usize];
+            text += &format!("{y},{a},{b},{}\n", ["k", "l", "m"][(i % 3) as usize]);
+        }
+        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table;
+        let spec = DesignSpec {
+            outcome: "y".into(),
+            predictors: vec!["a".into(), "b".into(), "c".into()],
+            ..DesignSpec::default()
+        };
+        let design = build_design(&table, &spec).unwrap();
+        let outcome = design.outcome.clone();
+        let settings =
+            FitSettings::build(Method::Forest, 3, false, "y", &[("trees".into(), "25".into())]).unwrap();
+        let model = fit_design(design, &settings, None, FitOptions::default(), &mut Silent)
+            .unwrap()
+            .model;
+        let (records, _) = model.records(&table).unwrap();
+        let rows = Rows::Records(&records);
+        let (curve, predictions) = model.staged_errors_and_predictions(rows, &outcome);
+        let mut direct = vec![0.0; records.rows * model.outputs()];
+        model.predict_rows(rows, 0..records.rows, &mut direct);
+        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&predictions.unwrap()), bits(&direct));
+        assert_eq!(curve, model.staged_errors(rows, &outcome));
+        assert_eq!(curve.map(|c| c.len()), Some(25));
+    }
 }

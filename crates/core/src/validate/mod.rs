@@ -405,10 +405,14 @@ pub fn run_split(
     };
     let (fitted, records) = fit_training_part(train, &test, settings, options, progress)?;
     let model = &fitted.model;
-    let predictions = predict_all(model, Rows::Records(&records));
-    // The out-of-sample test rows (all but a bootstrap resample's own rows).
+    // The out-of-sample test rows (all but a bootstrap resample's own rows); when they are
+    // every test row, a forest's predictions come from the same walk as its error by size.
+    let mut predictions = None;
     let error_by_size = if split.out_of_sample.iter().all(|&o| o) {
-        model.staged_errors(Rows::Records(&records), &test.outcome)
+        let (curve, staged) =
+            model.staged_errors_and_predictions(Rows::Records(&records), &test.outcome);
+        predictions = staged;
+        curve
     } else {
         let keep: Vec<usize> = (0..split.test.len())
             .filter(|&i| split.out_of_sample[i])
@@ -416,6 +420,8 @@ pub fn run_split(
         let held = test.select_rows(&keep);
         model.staged_errors(Rows::Records(&records.select_rows(&keep)), &held.outcome)
     };
+    let predictions =
+        predictions.unwrap_or_else(|| predict_all(model, Rows::Records(&records)));
     let training_error_by_size = model.training_errors(&fitted.binned, &fitted.design.outcome);
     let apparent = bootstrap.then(|| {
         let p = predict_all(model, Rows::Binned(&fitted.binned));
