@@ -17,7 +17,7 @@ use crate::ensemble::adaboost::{AdaBoost, Stop};
 use crate::ensemble::boosting::Boosting;
 use crate::ensemble::forest::{argmax, Forest};
 use crate::error::{Error, ErrorKind, Result};
-use crate::tree::{Rows, Tree};
+use crate::tree::{walk, Rows, Tree};
 
 /// How the model was fitted.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -330,10 +330,12 @@ impl Model {
         };
         let mut sums = vec![0.0; n * outputs];
         let mut curve = Vec::with_capacity(members.len());
+        let mut at = vec![0; n];
         for (t, (tree, alpha)) in members.iter().enumerate() {
             let mut err = 0.0;
+            walk::leaves(tree, rows, |i| i, &mut at);
             for r in 0..n {
-                let p = tree.predict(rows, r);
+                let p = tree.node_values(at[r] as usize);
                 let s = &mut sums[r * outputs..(r + 1) * outputs];
                 if voting {
                     if let Some(v) = s.get_mut(argmax(p)) {
@@ -363,9 +365,11 @@ impl Model {
         match &self.ensemble {
             Ensemble::Forest(f) => {
                 out.iter_mut().for_each(|o| *o = 0.0);
+                let mut at = vec![0; range.len()];
                 for t in &f.trees {
-                    for (r, o) in range.clone().zip(out.chunks_exact_mut(k)) {
-                        for (a, v) in o.iter_mut().zip(t.predict(rows, r)) {
+                    walk::leaves(t, rows, |i| range.start + i, &mut at);
+                    for (&leaf, o) in at.iter().zip(out.chunks_exact_mut(k)) {
+                        for (a, v) in o.iter_mut().zip(t.node_values(leaf as usize)) {
                             *a += v;
                         }
                     }
@@ -929,8 +933,14 @@ mod tests {
         };
         let design = build_design(&table, &spec).unwrap();
         let outcome = design.outcome.clone();
-        let settings =
-            FitSettings::build(Method::Forest, 3, false, "y", &[("trees".into(), "25".into())]).unwrap();
+        let settings = FitSettings::build(
+            Method::Forest,
+            3,
+            false,
+            "y",
+            &[("trees".into(), "25".into())],
+        )
+        .unwrap();
         let model = fit_design(design, &settings, None, FitOptions::default(), &mut Silent)
             .unwrap()
             .model;

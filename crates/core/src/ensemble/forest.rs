@@ -12,7 +12,7 @@ use crate::progress::{Flow, Progress, Silent};
 use crate::random::{below, stream, Purpose};
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::{grow_rows, Constraints, GrowSettings};
-use crate::tree::{Rows, Tree};
+use crate::tree::{walk, Rows, Tree};
 
 /// Settings of a bagged ensemble.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -266,10 +266,17 @@ impl OobTally {
         let tree = &fitted.tree;
         let (mut wrong, mut squares) = (0.0, 0.0);
         let trees_so_far = (self.trees.len() + 1) as f64;
+        // The rows whose leaves are not known, walked down the tree together.
+        let unknown: Vec<u32> = (0..n as u32)
+            .filter(|&r| matches!(fitted.leaves[r as usize], OUT_OF_BAG | IN_BAG))
+            .collect();
+        let mut walked = vec![0; unknown.len()];
+        walk::leaves(tree, Rows::Binned(binned), |i| unknown[i] as usize, &mut walked);
+        let mut walked = walked.into_iter();
         for r in 0..n {
             let known = fitted.leaves[r];
             let leaf = match known {
-                OUT_OF_BAG | IN_BAG => tree.leaf(Rows::Binned(binned), r),
+                OUT_OF_BAG | IN_BAG => walked.next().expect("a leaf per row walked") as usize,
                 leaf => leaf as usize,
             };
             let p = tree.node_values(leaf);

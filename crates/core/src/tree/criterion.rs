@@ -209,7 +209,10 @@ mod tests {
             match x % 5 {
                 0 => 0.0,
                 1 => (x % 7) as f64,
-                _ => (x >> 11) as f64 / (1u64 << 40) as f64 - 1000.0 * (x.is_multiple_of(3) as u8 as f64),
+                _ => {
+                    (x >> 11) as f64 / (1u64 << 40) as f64
+                        - 1000.0 * (x.is_multiple_of(3) as u8 as f64)
+                }
             }
         };
         for c in [
@@ -226,7 +229,11 @@ mod tests {
                 } else {
                     (a, b)
                 };
-                assert_eq!(c.cost2(a, b).to_bits(), c.cost(&[a, b]).to_bits(), "{c:?} {a} {b}");
+                assert_eq!(
+                    c.cost2(a, b).to_bits(),
+                    c.cost(&[a, b]).to_bits(),
+                    "{c:?} {a} {b}"
+                );
                 assert_eq!(c.weight2(a, b).to_bits(), c.weight(&[a, b]).to_bits());
             }
         }

@@ -12,6 +12,7 @@
 pub mod criterion;
 pub mod grower;
 pub mod prune;
+pub mod walk;
 
 use crate::binning::{BinnedMatrix, Records};
 

@@ -420,8 +420,7 @@ pub fn run_split(
         let held = test.select_rows(&keep);
         model.staged_errors(Rows::Records(&records.select_rows(&keep)), &held.outcome)
     };
-    let predictions =
-        predictions.unwrap_or_else(|| predict_all(model, Rows::Records(&records)));
+    let predictions = predictions.unwrap_or_else(|| predict_all(model, Rows::Records(&records)));
     let training_error_by_size = model.training_errors(&fitted.binned, &fitted.design.outcome);
     let apparent = bootstrap.then(|| {
         let p = predict_all(model, Rows::Binned(&fitted.binned));

@@ -1,0 +1,241 @@
+//! Walking many rows down one tree at once.
+//!
+//! [`Tree::leaf`] walks one row through the tree's full [`Node`]s (over a hundred bytes each,
+//! so a deep forest tree of ten thousand nodes does not fit the cache) and branches on each
+//! side taken (half of them mispredicted on noisy data). A [`Walk`] is the same tree as
+//! sixteen-byte steps, and walks eight rows side by side: each step picks the child without a
+//! branch (a node's children are stored next to each other: right = left + 1; a leaf leads to
+//! itself), and the eight rows' memory reads overlap instead of waiting on one another.
+//! (Common practice for tree ensembles, no source.) Same leaves as [`Tree::leaf`], tested.
+
+use super::{BinSet, Rows, Tree};
+use crate::binning::{Bin, Cells};
+
+/// One node for the walk: numbers up to `threshold` go left (a bin number for binned rows, a
+/// value for records; +∞ for leaves, which lead to themselves). For a category split,
+/// `threshold` is the index of its bins in `Walk::sets`.
+#[derive(Debug, Clone, Copy)]
+struct Step {
+    threshold: f64,
+    /// The predictor, and the flags [`MISSING_LEFT`], [`CATEGORY`] and [`LEAF`].
+    feature: u32,
+    left: u32,
+}
+
+const MISSING_LEFT: u32 = 1 << 31;
+const CATEGORY: u32 = 1 << 30;
+const LEAF: u32 = 1 << 29;
+const FEATURE: u32 = LEAF - 1;
+
+/// Rows walked side by side.
+const LANES: usize = 8;
+
+/// A tree laid out for walking rows of one kind (binned or records).
+pub struct Walk {
+    steps: Vec<Step>,
+    sets: Vec<BinSet>,
+}
+
+impl Walk {
+    /// The walk of `tree` for binned rows (`binned`) or records. `None` when the tree does
+    /// not have the layout a walk needs (children side by side, under 2²⁹ predictors); the
+    /// caller then walks [`Tree::leaf`].
+    pub fn new(tree: &Tree, binned: bool) -> Option<Walk> {
+        let mut steps = Vec::with_capacity(tree.nodes.len());
+        let mut sets = Vec::new();
+        for (i, n) in tree.nodes.iter().enumerate() {
+            if n.is_leaf() {
+                steps.push(Step {
+                    threshold: f64::INFINITY,
+                    feature: LEAF | MISSING_LEFT,
+                    left: i as u32,
+                });
+                continue;
+            }
+            if n.right != n.left + 1 || n.feature >= FEATURE {
+                return None;
+            }
+            let mut feature = n.feature | if n.missing_left { MISSING_LEFT } else { 0 };
+            let threshold = if !n.numeric {
+                feature |= CATEGORY;
+                sets.push(n.categories);
+                (sets.len() - 1) as f64
+            } else if binned {
+                f64::from(n.threshold_bin)
+            } else {
+                n.threshold
+            };
+            steps.push(Step {
+                threshold,
+                feature,
+                left: n.left,
+            });
+        }
+        Some(Walk { steps, sets })
+    }
+
+    /// The leaf of each row `row(i)` for `i` in `0..out.len()`, into `out[i]`.
+    pub fn leaves(&self, rows: Rows<'_>, row: impl Fn(usize) -> usize, out: &mut [u32]) {
+        match rows {
+            Rows::Binned(b) => match &b.cells {
+                Cells::Narrow(c) => self.walk(out, &row, |j, r| cell(c, b.rows, j, r)),
+                Cells::Wide(c) => self.walk(out, &row, |j, r| cell(c, b.rows, j, r)),
+            },
+            Rows::Records(records) => self.walk(out, &row, |j, r| records.value(j, r)),
+        }
+    }
+
+    /// Walks the rows eight at a time, a lane taking the next row as soon as its row reaches
+    /// a leaf; `value(j, r)` is row `r`'s number in predictor `j` (NaN: missing).
+    #[inline(always)]
+    fn walk(
+        &self,
+        out: &mut [u32],
+        row: &impl Fn(usize) -> usize,
+        value: impl Fn(usize, usize) -> f64,
+    ) {
+        let steps = &self.steps[..];
+        let n = out.len();
+        // Lane k walks row `of[k]` (output `slot[k]`), now at node `at[k]`.
+        let mut at = [0u32; LANES];
+        let mut of = [0usize; LANES];
+        let mut slot = [usize::MAX; LANES];
+        let mut next = 0;
+        for k in 0..LANES.min(n) {
+            (slot[k], of[k]) = (next, row(next));
+            next += 1;
+        }
+        let mut walking = LANES.min(n);
+        while walking > 0 {
+            for k in 0..LANES {
+                if slot[k] == usize::MAX {
+                    continue;
+                }
+                let s = steps[at[k] as usize];
+                if s.feature & LEAF != 0 {
+                    out[slot[k]] = at[k];
+                    at[k] = 0;
+                    if next < n {
+                        (slot[k], of[k]) = (next, row(next));
+                        next += 1;
+                    } else {
+                        slot[k] = usize::MAX;
+                        walking -= 1;
+                    }
+                    continue;
+                }
+                let x = value((s.feature & FEATURE) as usize, of[k]);
+                let left = if s.feature & CATEGORY != 0 {
+                    match x.is_nan() || !(0.0..256.0).contains(&x) {
+                        true => s.feature & MISSING_LEFT != 0 && x.is_nan(),
+                        false => self.sets[s.threshold as usize].contains(x as u8),
+                    }
+                } else {
+                    (x <= s.threshold) | (x.is_nan() & (s.feature & MISSING_LEFT != 0))
+                };
+                at[k] = s.left + u32::from(!left);
+            }
+        }
+    }
+}
+
+/// The leaf of each row `row(i)` of `tree` into `out[i]`: by a [`Walk`] where the tree allows
+/// one, else row by row ([`Tree::leaf`]).
+pub fn leaves(tree: &Tree, rows: Rows<'_>, row: impl Fn(usize) -> usize, out: &mut [u32]) {
+    match Walk::new(tree, matches!(rows, Rows::Binned(_))) {
+        Some(walk) => walk.leaves(rows, row, out),
+        None => {
+            for (i, o) in out.iter_mut().enumerate() {
+                *o = tree.leaf(rows, row(i)) as u32;
+            }
+        }
+    }
+}
+
+/// A binned row's bin as a number (NaN: missing).
+#[inline(always)]
+fn cell<B: Bin>(cells: &[B], rows: usize, j: usize, r: usize) -> f64 {
+    let b = cells[j * rows + r];
+    if b == B::MISSING {
+        f64::NAN
+    } else {
+        b.index() as f64
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::{read_table, ReadOptions};
+    use crate::design::{build_design, DesignSpec};
+    use crate::fit::{fit_design, FitOptions};
+    use crate::model::Ensemble;
+    use crate::model::Method;
+    use crate::progress::Silent;
+    use crate::settings::FitSettings;
+
+    #[test]
+    fn a_walk_reaches_the_leaves_a_row_by_row_walk_reaches() {
+        // Two ways of walking the same tree (our own consistency rule, no source needed), on
+        // numbers, categories and missing values, binned rows and records.
+        let mut text = String::from("y,a,b,c\n");
+        for i in 0..500u64 {
+            let (a, b) = ((i * 37) % 101, (i * 53) % 89);
+            let y = ["p", "q"][((a + b + i % 7) % 2) as usize];
+            let b = if i % 9 == 0 {
+                "NA".to_string()
+            } else {
+                b.to_string()
+            };
+            text += &format!("{y},{a},{b},{}\n", ["k", "l", "m", "n"][(i % 4) as usize]);
+        }
+        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
+            .unwrap()
+            .table;
+        let spec = DesignSpec {
+            outcome: "y".into(),
+            predictors: vec!["a".into(), "b".into(), "c".into()],
+            ..DesignSpec::default()
+        };
+        let design = build_design(&table, &spec).unwrap();
+        let settings = FitSettings::build(
+            Method::Forest,
+            3,
+            false,
+            "y",
+            &[("trees".into(), "20".into())],
+        )
+        .unwrap();
+        let fitted =
+            fit_design(design, &settings, None, FitOptions::default(), &mut Silent).unwrap();
+        let (records, _) = fitted.model.records(&table).unwrap();
+        let Ensemble::Forest(forest) = &fitted.model.ensemble else {
+            unreachable!("a forest")
+        };
+        let mut categories = 0;
+        for tree in &forest.trees {
+            categories += tree
+                .nodes
+                .iter()
+                .filter(|n| !n.is_leaf() && !n.numeric)
+                .count();
+            for (rows, binned) in [
+                (Rows::Binned(&fitted.binned), true),
+                (Rows::Records(&records), false),
+            ] {
+                let walk = Walk::new(tree, binned).expect("children side by side");
+                let n = rows.len();
+                let mut out = vec![0; n];
+                walk.leaves(rows, |i| i, &mut out);
+                let each: Vec<u32> = (0..n).map(|r| tree.leaf(rows, r) as u32).collect();
+                assert_eq!(out, each);
+                // Any list of rows, in any order.
+                let some: Vec<usize> = (0..n).rev().step_by(3).collect();
+                let mut out = vec![0; some.len()];
+                walk.leaves(rows, |i| some[i], &mut out);
+                assert!(some.iter().zip(&out).all(|(&r, &l)| each[r] == l));
+            }
+        }
+        assert!(categories > 0, "the check covers category splits");
+    }
+}
