@@ -57,7 +57,7 @@ fn main() {
             if mixed && j >= PREDICTORS - 5 {
                 text += ["a", "b", "c", "d", "e", "f"][((v + 3.0).clamp(0.0, 5.9)) as usize];
                 text.insert(text.len() - 1, ',');
-            } else if mixed && (6..12).contains(&j) && rng.next_u64() % 10 == 0 {
+            } else if mixed && (6..12).contains(&j) && rng.next_u64().is_multiple_of(10) {
                 text += ",NA";
             } else {
                 text += &format!(",{v:.6}");
