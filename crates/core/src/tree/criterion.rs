@@ -95,22 +95,32 @@ impl Criterion {
     #[inline(always)]
     pub fn cost2(self, a: f64, b: f64) -> f64 {
         match self {
+            // Each computed whatever the guard says and then chosen, so a loop over split
+            // points has no branch and vectorises (a division by zero is no error here).
             Criterion::Gini => {
                 let w = a + b;
+                let c = w - (a * a + b * b) / w;
                 if w <= 0.0 {
                     0.0
                 } else {
-                    w - (a * a + b * b) / w
+                    c
                 }
             }
-            Criterion::SquaredError if a <= 0.0 => 0.0,
-            Criterion::SquaredError => -(b * b) / a,
+            Criterion::SquaredError => {
+                let c = -(b * b) / a;
+                if a <= 0.0 {
+                    0.0
+                } else {
+                    c
+                }
+            }
             Criterion::Gradient { l2 } => {
                 let d = b + l2;
+                let c = -(a * a) / d;
                 if d <= 0.0 {
                     0.0
                 } else {
-                    -(a * a) / d
+                    c
                 }
             }
             Criterion::Entropy => self.cost(&[a, b]),

@@ -196,6 +196,7 @@ struct Grower<'a, 'c, B: Bin> {
     /// Four histograms of small cells' `(s0, s1, rows)` slots, filled together (kept zeroed
     /// between uses like `hist`).
     batch_hist: Vec<f64>,
+    left_sums: LeftSums,
     touched: Vec<B>,
     /// The bins in scan order, and the scan's running sums.
     order: Vec<B>,
@@ -254,6 +255,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             work,
             hist: vec![0.0; (B::MISSING.index() + 1) * (width + 1)],
             batch_hist: Vec::new(),
+            left_sums: LeftSums::new(),
             touched: Vec::with_capacity(256),
             order: Vec::with_capacity(256),
             sums: ScanSums::new(width),
@@ -509,7 +511,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 }
                 let (all, _) = self.batch_hist.as_chunks_mut::<3>();
                 for ((&j, slots), bits) in group.iter().zip(all.chunks_exact_mut(256)).zip(bits) {
-                    scan_filled_pairs::<B>(slots, bits, j, parent_cost, settings, &mut best);
+                    let sums = &mut self.left_sums;
+                    scan_filled_pairs::<B>(slots, bits, j, parent_cost, settings, sums, &mut best);
                 }
             }
         }
@@ -574,7 +577,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 let mut bits = [[0u64; 4]; 1];
                 let (rows, pairs) = (&self.work[start..end], &self.pairs[start..end]);
                 fill_rows_pairs([&mut *slots], &mut bits, [column], rows, pairs);
-                scan_filled_pairs::<B>(slots, bits[0], j, parent_cost, settings, &mut best);
+                let sums = &mut self.left_sums;
+                scan_filled_pairs::<B>(slots, bits[0], j, parent_cost, settings, sums, &mut best);
                 continue;
             }
             fill_histogram(
@@ -1309,10 +1313,15 @@ fn scan_filled_pairs<B: Bin>(
     feature: usize,
     parent_cost: f64,
     settings: &GrowSettings,
+    sums: &mut LeftSums,
     best: &mut Option<Split>,
 ) {
     let m = B::MISSING.index() & 255;
     bits[m >> 6] &= !(1 << (m & 63));
+    if slots[m][2] == 0.0 {
+        scan_filled_present::<B>(slots, bits, feature, parent_cost, settings, sums, best);
+        return;
+    }
     let mut order = [0u8; 256];
     let mut used = 0;
     for (w, mut word) in bits.into_iter().enumerate() {
@@ -1363,6 +1372,119 @@ fn scan_filled_pairs<B: Bin>(
             values: (0.0, 0.0),
         });
     }
+}
+
+/// The running sums of [`scan_filled_present`], one entry per bin used (flat arrays, so its
+/// gain loop vectorises), with the bins and the gains; allocated once per tree.
+struct LeftSums {
+    bins: Box<[u8; 256]>,
+    s0: Box<[f64; 256]>,
+    s1: Box<[f64; 256]>,
+    rows: Box<[f64; 256]>,
+    gain: Box<[f64; 256]>,
+}
+
+impl LeftSums {
+    fn new() -> Self {
+        LeftSums {
+            bins: Box::new([0; 256]),
+            s0: Box::new([0.0; 256]),
+            s1: Box::new([0.0; 256]),
+            rows: Box::new([0.0; 256]),
+            gain: Box::new([0.0; 256]),
+        }
+    }
+}
+
+/// [`scan_filled_pairs`] when the node's rows have no missing value in the predictor (so one
+/// side to try), in three flat loops: the left sums after each bin used (in bin order,
+/// clearing each slot as it is read); every split point's gain on its own (independent
+/// divisions the compiler can vectorise; too few rows on a side: −∞, which no real gain
+/// equals); the first of the largest. The running left sums are those [`PairScan`] adds, the
+/// total is the last of them (as [`scan`] sums it: from the empty missing slot, then the bins
+/// in order), and the right side shrinks to too few rows only once, so the split is
+/// [`PairScan`]'s to the bit ("not below" written `!(x < least)`, as the plain loop skips a
+/// point only when a sum is below its least).
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+fn scan_filled_present<B: Bin>(
+    slots: &mut [[f64; 3]],
+    bits: [u64; 4],
+    feature: usize,
+    parent_cost: f64,
+    settings: &GrowSettings,
+    sums: &mut LeftSums,
+    best: &mut Option<Split>,
+) {
+    let LeftSums {
+        bins,
+        s0,
+        s1,
+        rows,
+        gain,
+    } = sums;
+    let [mut t0, mut t1, mut tc] = [0.0; 3];
+    let mut used = 0;
+    for (w, mut word) in bits.into_iter().enumerate() {
+        while word != 0 {
+            let b = w * 64 + word.trailing_zeros() as usize;
+            let [h0, h1, hc] = std::mem::replace(&mut slots[b], [0.0; 3]);
+            t0 += h0;
+            t1 += h1;
+            tc += hc;
+            (bins[used], s0[used], s1[used], rows[used]) = (b as u8, t0, t1, tc);
+            used += 1;
+            word &= word - 1;
+        }
+    }
+    let m = B::MISSING.index() & 255;
+    slots[m] = [0.0; 3];
+    let min_leaf = settings.min_rows_leaf.max(1) as f64;
+    let min_weight = settings.min_weight_leaf;
+    let weigh = min_weight > 0.0;
+    let lanes = gain[..used]
+        .iter_mut()
+        .zip(&s0[..used])
+        .zip(&s1[..used])
+        .zip(&rows[..used]);
+    macro_rules! gains {
+        ($c:expr) => {
+            for (((out, &l0), &l1), &lc) in lanes {
+                let (r0, r1) = (t0 - l0, t1 - l1);
+                let ok = !(lc < min_leaf)
+                    & !(tc - lc < min_leaf)
+                    & !(weigh & (($c).weight2(l0, l1) < min_weight))
+                    & !(weigh & (($c).weight2(r0, r1) < min_weight));
+                let v = parent_cost - ($c).cost2(l0, l1) - ($c).cost2(r0, r1);
+                *out = if ok { v } else { f64::NEG_INFINITY };
+            }
+        };
+    }
+    // One loop per criterion, each a constant the compiler folds into the arithmetic.
+    match settings.criterion {
+        Criterion::Gini => gains!(Criterion::Gini),
+        Criterion::SquaredError => gains!(Criterion::SquaredError),
+        Criterion::Gradient { l2 } => gains!(Criterion::Gradient { l2 }),
+        Criterion::Entropy => gains!(Criterion::Entropy),
+    }
+    let (mut at, mut g) = (0, f64::NEG_INFINITY);
+    for (i, &v) in gain[..used].iter().enumerate() {
+        if v > g {
+            (at, g) = (i, v);
+        }
+    }
+    if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
+        return;
+    }
+    *best = Some(Split {
+        gain: g,
+        feature,
+        numeric: true,
+        threshold_bin: usize::from(bins[at]),
+        next_bin: (at + 1 < used).then(|| usize::from(bins[at + 1])),
+        categories: BinSet::default(),
+        missing_left: false,
+        values: (0.0, 0.0),
+    });
 }
 
 /// Scratch of [`scan_dense_numbers`], one entry per bin (flat arrays, so the gain loop
