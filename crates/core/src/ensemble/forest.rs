@@ -271,7 +271,12 @@ impl OobTally {
             .filter(|&r| matches!(fitted.leaves[r as usize], OUT_OF_BAG | IN_BAG))
             .collect();
         let mut walked = vec![0; unknown.len()];
-        walk::leaves(tree, Rows::Binned(binned), |i| unknown[i] as usize, &mut walked);
+        walk::leaves(
+            tree,
+            Rows::Binned(binned),
+            |i| unknown[i] as usize,
+            &mut walked,
+        );
         let mut walked = walked.into_iter();
         for r in 0..n {
             let known = fitted.leaves[r];
