@@ -207,12 +207,11 @@ struct Grower<'a, 'c, B: Bin> {
     /// `width + 1` numbers, one per cell value, so slot 255 holds missing values); `None` in
     /// exact mode, where bins are too many to keep densely.
     dense_offsets: Option<Vec<usize>>,
-    /// With two statistics per row: each row's statistics and its row count beside it,
-    /// `pairs[i]` those of row `work[i]` (times the number of times the row was drawn, see
-    /// [`collapse_repeats`]), partitioned with the rows, so a node reads its statistics in
-    /// order instead of scattered over the whole data (empty otherwise).
+    /// With two statistics per row: each sampled row's statistics and its row count, by row
+    /// (times the number of times the row was drawn, see [`collapse_repeats`]); a node reads
+    /// those of its rows, which stay in row order, and only the row numbers move when a node
+    /// is split (empty otherwise).
     pairs: Vec<[f64; 3]>,
-    pairs_scratch: Vec<[f64; 3]>,
     /// The split points of one dense scan.
     points: Points,
     /// Dense histogram buffers free for reuse.
@@ -267,7 +266,6 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .collect()
             }),
             pairs,
-            pairs_scratch: Vec::new(),
             points: Points::default(),
             pool: Vec::new(),
             spans: Vec::new(),
@@ -401,7 +399,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 criterion,
                 Criterion::SquaredError | Criterion::Gradient { .. }
             );
-            for s in &self.pairs[start..end] {
+            for s in self.work[start..end]
+                .iter()
+                .map(|&r| &self.pairs[r as usize])
+            {
                 t0 += s[0];
                 t1 += s[1];
                 tc += s[2];
@@ -489,7 +490,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 self.batch_hist.resize(4 * slots_len, 0.0);
             }
             let rows = &self.work[start..end];
-            let pairs = &self.pairs[start..end];
+            let pairs = &self.pairs[..];
             for group in candidates.chunks(4) {
                 let mut bits = [[0u64; 4]; 4];
                 let (all, _) = self.batch_hist.as_chunks_mut::<3>();
@@ -575,7 +576,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 // One predictor of a node that cannot be batched (some are categories).
                 let (slots, _) = self.hist.as_chunks_mut::<3>();
                 let mut bits = [[0u64; 4]; 1];
-                let (rows, pairs) = (&self.work[start..end], &self.pairs[start..end]);
+                let (rows, pairs) = (&self.work[start..end], &self.pairs[..]);
                 fill_rows_pairs([&mut *slots], &mut bits, [column], rows, pairs);
                 let sums = &mut self.left_sums;
                 scan_filled_pairs::<B>(slots, bits[0], j, parent_cost, settings, sums, &mut best);
@@ -586,7 +587,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 &mut self.touched,
                 column,
                 &self.work[start..end],
-                (width == 2).then(|| &self.pairs[start..end]),
+                (width == 2).then_some(&self.pairs[..]),
                 stats,
                 width,
             );
@@ -694,7 +695,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             // row order beside the rows, then four predictors filled per pass over the rows
             // (their histograms together fit in the first-level cache). The root of a tree
             // on every row in order reads the columns straight through.
-            let ordered = &self.pairs[start..end];
+            let pairs = &self.pairs[..];
             let all = rows.len() == n && rows.iter().enumerate().all(|(i, &r)| r as usize == i);
             let rows = (!all).then_some(rows);
             let mut columns = self.cells.chunks_exact(n.max(1));
@@ -703,10 +704,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             for _ in 0..p / 4 {
                 let c = [(); 4].map(|_| columns.next().expect("a column per predictor"));
                 let hs = [(); 4].map(|_| hists.next().expect("a histogram per predictor"));
-                add_pairs(hs, c, rows, ordered);
+                add_pairs(hs, c, rows, pairs);
             }
             for (c, hj) in columns.zip(hists).take(p % 4) {
-                add_pairs([hj], [c], rows, ordered);
+                add_pairs([hj], [c], rows, pairs);
             }
             return h;
         }
@@ -744,48 +745,25 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         if self.scratch.len() < len {
             self.scratch.resize(len, 0);
         }
-        let pairs = !self.pairs.is_empty();
-        if pairs && self.pairs_scratch.len() < len {
-            self.pairs_scratch.resize(len, [0.0; 3]);
-        }
         let (work, scratch) = (&mut self.work[c.start..c.end], &mut self.scratch[..len]);
-        let (pw, ps) = match pairs {
-            true => (
-                &mut self.pairs[c.start..c.end],
-                &mut self.pairs_scratch[..len],
-            ),
-            false => (&mut [][..], &mut [][..]),
-        };
         let left = if B::MISSING.index() < 256 && split.numeric {
             // Small cells on a number split: the missing bin (255) is above every threshold
             // bin, so one comparison and the missing side, without a branch.
             let (last, missing) = (split.threshold_bin, split.missing_left);
-            let side = |b: B| (b.index() <= last) | ((b == B::MISSING) & missing);
-            match pairs {
-                true => partition::<B, true>(work, scratch, pw, ps, column, side),
-                false => partition::<B, false>(work, scratch, pw, ps, column, side),
-            }
+            partition(work, scratch, column, |b: B| {
+                (b.index() <= last) | ((b == B::MISSING) & missing)
+            })
         } else if B::MISSING.index() < 256 {
             // Small cells on a category split look their side up in a table of all 256 values.
             let mut table = [false; 256];
             for (v, t) in table.iter_mut().enumerate() {
                 *t = goes_left(B::from_bin((v != B::MISSING.index()).then_some(v)));
             }
-            let side = |b: B| table[b.index() & 255];
-            match pairs {
-                true => partition::<B, true>(work, scratch, pw, ps, column, side),
-                false => partition::<B, false>(work, scratch, pw, ps, column, side),
-            }
+            partition(work, scratch, column, |b: B| table[b.index() & 255])
         } else {
-            match pairs {
-                true => partition::<B, true>(work, scratch, pw, ps, column, goes_left),
-                false => partition::<B, false>(work, scratch, pw, ps, column, goes_left),
-            }
+            partition(work, scratch, column, goes_left)
         };
         work[left..].copy_from_slice(&scratch[..len - left]);
-        if pairs {
-            pw[left..].copy_from_slice(&ps[..len - left]);
-        }
         let k = c.start + left;
         // Missing values the node's rows never had (here or anywhere in training) follow the
         // side with more rows, as scikit-learn's trees send them (from memory), rather than
@@ -837,47 +815,44 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
     }
 }
 
-/// The rows to grow on and their statistics with a row count, `[s0, s1, rows]`. A row drawn
-/// several times (a bootstrap) is kept once with its statistics times the number of draws,
-/// as scikit-learn's forests weight a bootstrap (from memory), and the kept rows are in row
-/// order, so every node reads the columns in order. Rows without repeats keep their order.
-/// (With whole-number statistics, class weights of 1 say, every sum is exact either way, so
-/// the trees are those grown on the repeats; with fractions, sums may round differently.)
+/// The rows to grow on, and every row's statistics with a row count, `[s0, s1, rows]`, by
+/// row (zero for rows not drawn). A row drawn several times (a bootstrap) is kept once with
+/// its statistics times the number of draws, as scikit-learn's forests weight a bootstrap
+/// (from memory), and the kept rows are in row order, so every node reads the columns in
+/// order. Rows without repeats keep their order. (With whole-number statistics, class
+/// weights of 1 say, every sum is exact either way, so the trees are those grown on the
+/// repeats; with fractions, sums may round differently.)
 fn collapse_repeats(rows: &[u32], stats: &[f64], n: usize) -> (Vec<u32>, Vec<[f64; 3]>) {
-    let mut counts = vec![0u32; n];
+    let mut pairs = vec![[0.0; 3]; n];
     let mut repeats = false;
     for &r in rows {
-        let c = &mut counts[r as usize];
-        repeats |= *c > 0;
-        *c += 1;
+        let c = &mut pairs[r as usize][2];
+        repeats |= *c > 0.0;
+        *c += 1.0;
     }
-    let pair = |r: usize, c: f64| match c {
-        1.0 => [stats[2 * r], stats[2 * r + 1], 1.0],
-        _ => [c * stats[2 * r], c * stats[2 * r + 1], c],
+    for (r, p) in pairs.iter_mut().enumerate().filter(|(_, p)| p[2] > 0.0) {
+        let c = p[2];
+        *p = match c {
+            1.0 => [stats[2 * r], stats[2 * r + 1], 1.0],
+            _ => [c * stats[2 * r], c * stats[2 * r + 1], c],
+        };
+    }
+    let kept = match repeats {
+        false => rows.to_vec(),
+        true => (0..n as u32)
+            .filter(|&r| pairs[r as usize][2] > 0.0)
+            .collect(),
     };
-    if !repeats {
-        let pairs = rows.iter().map(|&r| pair(r as usize, 1.0)).collect();
-        return (rows.to_vec(), pairs);
-    }
-    let mut kept = Vec::with_capacity(rows.len());
-    let mut pairs = Vec::with_capacity(rows.len());
-    for (r, &c) in counts.iter().enumerate().filter(|(_, &c)| c > 0) {
-        kept.push(r as u32);
-        pairs.push(pair(r, f64::from(c)));
-    }
     (kept, pairs)
 }
 
 /// Puts the rows of `work` whose cell goes left first and the others after, both in their
-/// order, and returns how many go left; with `PAIRS`, `pairs` (one per row) moves alike.
-/// Every row is written to both `work` and `scratch` and only one cursor advances, so the
-/// loop has no branch on the side (rows go either way at random). The right rows (and
-/// pairs) are left at the start of `scratch` (`pairs_scratch`).
-fn partition<B: Bin, const PAIRS: bool>(
+/// order, and returns how many go left. Every row is written to both `work` and `scratch`
+/// and only one cursor advances, so the loop has no branch on the side (rows go either way at
+/// random). The right rows are left at the start of `scratch`.
+fn partition<B: Bin>(
     work: &mut [u32],
     scratch: &mut [u32],
-    pairs: &mut [[f64; 3]],
-    pairs_scratch: &mut [[f64; 3]],
     column: &[B],
     goes_left: impl Fn(B) -> bool,
 ) -> usize {
@@ -888,11 +863,6 @@ fn partition<B: Bin, const PAIRS: bool>(
         // `k <= i`: the row read is never one already written.
         work[k] = r;
         scratch[j] = r;
-        if PAIRS {
-            let p = pairs[i];
-            pairs[k] = p;
-            pairs_scratch[j] = p;
-        }
         k += left as usize;
         j += !left as usize;
     }
@@ -905,13 +875,13 @@ fn slots(h: &mut [f64]) -> &mut [[f64; 3]; DENSE_SLOTS] {
     slots.try_into().expect("256 slots of three")
 }
 
-/// Adds the pairs and row counts `ordered[i]` to the slots of `K` predictors' cells of row
-/// `rows[i]` (`None`: row `i`), in row order.
+/// Adds the pairs and row counts `pairs[r]` of rows `r` in `rows` (`None`: every row) to the
+/// slots of `K` predictors' cells of the row, in row order.
 fn add_pairs<B: Bin, const K: usize>(
     mut hists: [&mut [[f64; 3]; DENSE_SLOTS]; K],
     columns: [&[B]; K],
     rows: Option<&[u32]>,
-    ordered: &[[f64; 3]],
+    pairs: &[[f64; 3]],
 ) {
     let mut add = |cells: [B; K], [g, h, c]: [f64; 3]| {
         for (hist, b) in hists.iter_mut().zip(cells) {
@@ -923,12 +893,12 @@ fn add_pairs<B: Bin, const K: usize>(
     };
     match rows {
         Some(rows) => {
-            for (&r, &pair) in rows.iter().zip(ordered) {
-                add(columns.map(|c| c[r as usize]), pair);
+            for &r in rows {
+                add(columns.map(|c| c[r as usize]), pairs[r as usize]);
             }
         }
         None => {
-            for (i, &pair) in ordered.iter().enumerate() {
+            for (i, &pair) in pairs.iter().enumerate() {
                 add(columns.map(|c| c[i]), pair);
             }
         }
@@ -937,8 +907,7 @@ fn add_pairs<B: Bin, const K: usize>(
 
 /// Sums statistics (and a row count) per bin of one predictor over the node's rows.
 /// `hist` must be all zero on entry; `touched` receives the bins filled. With two
-/// statistics per row, `pairs` holds row `rows[i]`'s at `pairs[i]` (the same numbers as
-/// `stats`, read in order instead of scattered over every row).
+/// statistics per row, `pairs` holds row `r`'s with its row count at `pairs[r]`.
 fn fill_histogram<B: Bin>(
     hist: &mut [f64],
     touched: &mut Vec<B>,
@@ -955,7 +924,8 @@ fn fill_histogram<B: Bin>(
             // A large node: a fixed-width loop without the per-row first-touch test, the
             // bins touched found afterwards in bin order. (Profiled: this loop is most of
             // the time of boosting; common practice, no source.)
-            for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
+            for &r in rows {
+                let [g, h, c] = pairs[r as usize];
                 let b = column[r as usize].index();
                 let at = &mut hist[b * 3..b * 3 + 3];
                 at[0] += g;
@@ -969,7 +939,8 @@ fn fill_histogram<B: Bin>(
             );
             return;
         }
-        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
+        for &r in rows {
+            let [g, h, c] = pairs[r as usize];
             let b = column[r as usize];
             let at = &mut hist[b.index() * 3..b.index() * 3 + 3];
             if at[2] == 0.0 {
@@ -1261,9 +1232,9 @@ impl<B: Bin> PairScan<'_, B> {
     }
 }
 
-/// Sums each bin's `(s0, s1, rows)` of `K` predictors (two statistics per row, small cells)
-/// over the node's rows into `slots[k]` (all zero on entry), reading each row and its
-/// statistics once for all `K`, and marks the bins used in `bits[k]`: per row when the rows
+/// Sums each bin's `(s0, s1, rows)` of `K` predictors (two statistics per row, small cells;
+/// row `r`'s at `pairs[r]`) over the node's rows into `slots[k]` (all zero on entry), reading
+/// each row and its statistics once for all `K`, and marks the bins used in `bits[k]`: per row when the rows
 /// are few, otherwise read off the counts afterwards. Each bin sums its rows in row order.
 fn fill_rows_pairs<B: Bin, const K: usize>(
     mut slots: [&mut [[f64; 3]]; K],
@@ -1274,7 +1245,8 @@ fn fill_rows_pairs<B: Bin, const K: usize>(
 ) {
     *bits = [[0; 4]; K];
     if rows.len() >= 256 {
-        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
+        for &r in rows {
+            let [g, h, c] = pairs[r as usize];
             for (slots, column) in slots.iter_mut().zip(columns) {
                 let at = &mut slots[column[r as usize].index() & 255];
                 at[0] += g;
@@ -1288,7 +1260,8 @@ fn fill_rows_pairs<B: Bin, const K: usize>(
             }
         }
     } else {
-        for (&r, &[g, h, c]) in rows.iter().zip(pairs) {
+        for &r in rows {
+            let [g, h, c] = pairs[r as usize];
             for ((slots, bits), column) in slots.iter_mut().zip(bits.iter_mut()).zip(columns) {
                 let b = column[r as usize].index() & 255;
                 bits[b >> 6] |= 1 << (b & 63);
