@@ -499,9 +499,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 let column = |j: usize| &self.cells[j * n..(j + 1) * n];
                 if let [a, b, c, d] = *group {
                     let slots = [(); 4].map(|_| parts.next().expect("four histograms"));
-                    let mut four = [[0u64; 4]; 4];
-                    fill_rows_pairs(slots, &mut four, [a, b, c, d].map(column), rows, pairs);
-                    bits = four;
+                    fill_rows_pairs(slots, &mut bits, [a, b, c, d].map(column), rows, pairs);
                 } else {
                     for (k, &j) in group.iter().enumerate() {
                         let slots = parts.next().expect("a histogram per predictor");
@@ -691,10 +689,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         let stride = width + 1;
         let n = self.binned.rows;
         if width == 2 {
-            // The common case (two classes, numbers, gradients): the node's pairs, kept in
-            // row order beside the rows, then four predictors filled per pass over the rows
-            // (their histograms together fit in the first-level cache). The root of a tree
-            // on every row in order reads the columns straight through.
+            // The common case (two classes, numbers, gradients): four predictors filled per
+            // pass over the node's rows and their statistics (their histograms together fit
+            // in the first-level cache). The root of a tree on every row in order reads the
+            // columns and statistics straight through.
             let pairs = &self.pairs[..];
             let all = rows.len() == n && rows.iter().enumerate().all(|(i, &r)| r as usize == i);
             let rows = (!all).then_some(rows);
