@@ -1,12 +1,13 @@
 //! Walking many rows down one tree at once.
 //!
-//! [`Tree::leaf`] walks one row through the tree's full [`Node`]s (over a hundred bytes each,
-//! so a deep forest tree of ten thousand nodes does not fit the cache) and branches on each
-//! side taken (half of them mispredicted on noisy data). A [`Walk`] is the same tree as
+//! [`Tree::leaf`] walks one row through the tree's full nodes ([`super::Node`], over a hundred
+//! bytes each, so a deep forest tree of ten thousand nodes does not fit the cache) and
+//! branches on each side taken (often mispredicted on noisy data). A [`Walk`] is the same tree as
 //! sixteen-byte steps, and walks eight rows side by side: each step picks the child without a
 //! branch (a node's children are stored next to each other: right = left + 1; a leaf leads to
 //! itself), and the eight rows' memory reads overlap instead of waiting on one another.
-//! (Common practice for tree ensembles, no source.) Same leaves as [`Tree::leaf`], tested.
+//! (Common practice for tree ensembles, no source.) Same leaves as [`Tree::leaf`], tested;
+//! `grow_bench` times both (140 and 60 ns a row and tree on its forest).
 
 use super::{BinSet, Rows, Tree};
 use crate::binning::{Bin, Cells};
