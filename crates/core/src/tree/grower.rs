@@ -1418,24 +1418,27 @@ fn scan_filled_present<B: Bin>(
         .zip(&s1[..used])
         .zip(&rows[..used]);
     macro_rules! gains {
-        ($c:expr) => {
+        ($c:expr, $weigh:expr) => {
             for (((out, &l0), &l1), &lc) in lanes {
                 let (r0, r1) = (t0 - l0, t1 - l1);
                 let ok = !(lc < min_leaf)
                     & !(tc - lc < min_leaf)
-                    & !(weigh & (($c).weight2(l0, l1) < min_weight))
-                    & !(weigh & (($c).weight2(r0, r1) < min_weight));
+                    & !($weigh & (($c).weight2(l0, l1) < min_weight))
+                    & !($weigh & (($c).weight2(r0, r1) < min_weight));
                 let v = parent_cost - ($c).cost2(l0, l1) - ($c).cost2(r0, r1);
                 *out = if ok { v } else { f64::NEG_INFINITY };
             }
         };
     }
-    // One loop per criterion, each a constant the compiler folds into the arithmetic.
-    match settings.criterion {
-        Criterion::Gini => gains!(Criterion::Gini),
-        Criterion::SquaredError => gains!(Criterion::SquaredError),
-        Criterion::Gradient { l2 } => gains!(Criterion::Gradient { l2 }),
-        Criterion::Entropy => gains!(Criterion::Entropy),
+    // One loop per criterion and weight rule, each a constant the compiler folds into the
+    // arithmetic (forests set no least weight).
+    match (settings.criterion, weigh) {
+        (Criterion::Gini, false) => gains!(Criterion::Gini, false),
+        (Criterion::Gini, true) => gains!(Criterion::Gini, true),
+        (Criterion::SquaredError, false) => gains!(Criterion::SquaredError, false),
+        (Criterion::SquaredError, true) => gains!(Criterion::SquaredError, true),
+        (Criterion::Gradient { l2 }, w) => gains!(Criterion::Gradient { l2 }, w),
+        (Criterion::Entropy, w) => gains!(Criterion::Entropy, w),
     }
     let (mut at, mut g) = (0, f64::NEG_INFINITY);
     for (i, &v) in gain[..used].iter().enumerate() {
