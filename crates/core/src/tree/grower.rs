@@ -144,9 +144,10 @@ pub fn grow_with<'a>(
     grow_rows(binned, stats, width, rows, settings, choose, constraints).tree
 }
 
-/// A grown tree and where its rows went: `rows` (the rows grown on, reordered) holds node
-/// `i`'s rows at `rows[spans[i].0..spans[i].1]`, in their given order, so a caller can update
-/// the rows of each leaf without walking them down the tree.
+/// A grown tree and where its rows went: `rows` (the rows grown on, reordered; with two
+/// statistics per row, a row given several times appears once, see `collapse_repeats`)
+/// holds node `i`'s rows at `rows[spans[i].0..spans[i].1]`, in their given order, so a caller
+/// can update the rows of each leaf without walking them down the tree.
 pub struct Grown {
     pub tree: Tree,
     pub rows: Vec<u32>,
