@@ -269,6 +269,38 @@ pub fn fit_design(
     })
 }
 
+/// For tests across the crate: the table read from CSV `text` and a forest of `trees` trees
+/// fitted on it, outcome `y`, predictors `a`, `b` and `c`.
+#[cfg(test)]
+pub(crate) fn forest_from_csv(text: &str, trees: usize) -> (crate::data::Table, Fitted) {
+    use crate::data::{read_table, ReadOptions};
+    use crate::design::{build_design, DesignSpec};
+    let table = read_table(
+        text.as_bytes(),
+        &ReadOptions::default(),
+        &mut crate::progress::Silent,
+    )
+    .unwrap()
+    .table;
+    let spec = DesignSpec {
+        outcome: "y".into(),
+        predictors: vec!["a".into(), "b".into(), "c".into()],
+        ..DesignSpec::default()
+    };
+    let design = build_design(&table, &spec).unwrap();
+    let sets = [("trees".to_string(), trees.to_string())];
+    let settings = FitSettings::build(Method::Forest, 3, false, "y", &sets).unwrap();
+    let fitted = fit_design(
+        design,
+        &settings,
+        None,
+        FitOptions::default(),
+        &mut crate::progress::Silent,
+    )
+    .unwrap();
+    (table, fitted)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -906,12 +906,7 @@ fn boosting_staged_errors(b: &Boosting, rows: Rows<'_>, outcome: &Outcome) -> Ve
 
 #[cfg(test)]
 mod tests {
-    use crate::data::{read_table, ReadOptions};
-    use crate::design::{build_design, DesignSpec};
-    use crate::fit::{fit_design, FitOptions};
-    use crate::model::Method;
-    use crate::progress::Silent;
-    use crate::settings::FitSettings;
+    use crate::fit::forest_from_csv;
     use crate::tree::Rows;
 
     #[test]
@@ -923,35 +918,16 @@ mod tests {
             let y = ["p", "q", "r"][((a + b + i % 7) % 3) as usize];
             text += &format!("{y},{a},{b},{}\n", ["k", "l", "m"][(i % 3) as usize]);
         }
-        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
-            .unwrap()
-            .table;
-        let spec = DesignSpec {
-            outcome: "y".into(),
-            predictors: vec!["a".into(), "b".into(), "c".into()],
-            ..DesignSpec::default()
-        };
-        let design = build_design(&table, &spec).unwrap();
-        let outcome = design.outcome.clone();
-        let settings = FitSettings::build(
-            Method::Forest,
-            3,
-            false,
-            "y",
-            &[("trees".into(), "25".into())],
-        )
-        .unwrap();
-        let model = fit_design(design, &settings, None, FitOptions::default(), &mut Silent)
-            .unwrap()
-            .model;
+        let (table, fitted) = forest_from_csv(&text, 25);
+        let (model, outcome) = (&fitted.model, &fitted.design.outcome);
         let (records, _) = model.records(&table).unwrap();
         let rows = Rows::Records(&records);
-        let (curve, predictions) = model.staged_errors_and_predictions(rows, &outcome);
+        let (curve, predictions) = model.staged_errors_and_predictions(rows, outcome);
         let mut direct = vec![0.0; records.rows * model.outputs()];
         model.predict_rows(rows, 0..records.rows, &mut direct);
         let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
         assert_eq!(bits(&predictions.unwrap()), bits(&direct));
-        assert_eq!(curve, model.staged_errors(rows, &outcome));
+        assert_eq!(curve, model.staged_errors(rows, outcome));
         assert_eq!(curve.map(|c| c.len()), Some(25));
     }
 }

@@ -167,13 +167,8 @@ fn cell<B: Bin>(cells: &[B], rows: usize, j: usize, r: usize) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::data::{read_table, ReadOptions};
-    use crate::design::{build_design, DesignSpec};
-    use crate::fit::{fit_design, FitOptions};
+    use crate::fit::forest_from_csv;
     use crate::model::Ensemble;
-    use crate::model::Method;
-    use crate::progress::Silent;
-    use crate::settings::FitSettings;
 
     #[test]
     fn a_walk_reaches_the_leaves_a_row_by_row_walk_reaches() {
@@ -190,25 +185,7 @@ mod tests {
             };
             text += &format!("{y},{a},{b},{}\n", ["k", "l", "m", "n"][(i % 4) as usize]);
         }
-        let table = read_table(text.as_bytes(), &ReadOptions::default(), &mut Silent)
-            .unwrap()
-            .table;
-        let spec = DesignSpec {
-            outcome: "y".into(),
-            predictors: vec!["a".into(), "b".into(), "c".into()],
-            ..DesignSpec::default()
-        };
-        let design = build_design(&table, &spec).unwrap();
-        let settings = FitSettings::build(
-            Method::Forest,
-            3,
-            false,
-            "y",
-            &[("trees".into(), "20".into())],
-        )
-        .unwrap();
-        let fitted =
-            fit_design(design, &settings, None, FitOptions::default(), &mut Silent).unwrap();
+        let (table, fitted) = forest_from_csv(&text, 20);
         let (records, _) = fitted.model.records(&table).unwrap();
         let Ensemble::Forest(forest) = &fitted.model.ensemble else {
             unreachable!("a forest")
