@@ -1421,43 +1421,18 @@ fn scan_filled_present<B: Bin>(
     }
     let m = B::MISSING.index() & 255;
     slots[m] = [0.0; 3];
-    let min_leaf = settings.min_rows_leaf.max(1) as f64;
-    let min_weight = settings.min_weight_leaf;
-    let weigh = min_weight > 0.0;
-    let lanes = gain[..used]
-        .iter_mut()
-        .zip(&s0[..used])
-        .zip(&s1[..used])
-        .zip(&rows[..used]);
-    macro_rules! gains {
-        ($c:expr, $weigh:expr) => {
-            for (((out, &l0), &l1), &lc) in lanes {
-                let (r0, r1) = (t0 - l0, t1 - l1);
-                let ok = !(lc < min_leaf)
-                    & !(tc - lc < min_leaf)
-                    & !($weigh & (($c).weight2(l0, l1) < min_weight))
-                    & !($weigh & (($c).weight2(r0, r1) < min_weight));
-                let v = parent_cost - ($c).cost2(l0, l1) - ($c).cost2(r0, r1);
-                *out = if ok { v } else { f64::NEG_INFINITY };
-            }
-        };
-    }
-    // One loop per criterion and weight rule, each a constant the compiler folds into the
-    // arithmetic (forests set no least weight).
-    match (settings.criterion, weigh) {
-        (Criterion::Gini, false) => gains!(Criterion::Gini, false),
-        (Criterion::Gini, true) => gains!(Criterion::Gini, true),
-        (Criterion::SquaredError, false) => gains!(Criterion::SquaredError, false),
-        (Criterion::SquaredError, true) => gains!(Criterion::SquaredError, true),
-        (Criterion::Gradient { l2 }, w) => gains!(Criterion::Gradient { l2 }, w),
-        (Criterion::Entropy, w) => gains!(Criterion::Entropy, w),
-    }
-    let (mut at, mut g) = (0, f64::NEG_INFINITY);
-    for (i, &v) in gain[..used].iter().enumerate() {
-        if v > g {
-            (at, g) = (i, v);
-        }
-    }
+    let left = [&s0[..used], &s1[..used], &rows[..used]];
+    // Every bin used holds rows: each is a split point.
+    let all = std::iter::repeat(&1.0);
+    point_gains(
+        &mut gain[..used],
+        all,
+        left,
+        [t0, t1, tc],
+        parent_cost,
+        settings,
+    );
+    let (at, g) = first_best(&gain[..used]);
     if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
         return;
     }
@@ -1504,9 +1479,6 @@ fn scan_dense_numbers(
     points: &mut Points,
     best: &mut Option<Split>,
 ) {
-    let criterion = settings.criterion;
-    let min_weight = settings.min_weight_leaf;
-    let min_leaf = settings.min_rows_leaf.max(1) as f64;
     let (present, _) = h[..bins * 3].as_chunks::<3>();
     let m = (DENSE_SLOTS - 1) * 3;
     let missing = [h[m], h[m + 1], h[m + 2]];
@@ -1535,52 +1507,8 @@ fn scan_dense_numbers(
     let mut found: Option<(f64, usize, bool)> = None;
     for &missing_left in sides {
         let [l0, l1, lc] = if missing_left { &*a } else { &*b };
-        // Not a split point, or too light a side: no gain (−∞, which no real gain equals:
-        // costs are finite). `&` rather than `&&`, and selects, keep the loop free of branches.
-        let lanes = gain.iter_mut().zip(rows.iter()).zip(l0).zip(l1).zip(lc);
-        if let Criterion::Gradient { l2 } = criterion {
-            // [`Criterion::cost`] and [`Criterion::weight`] written out for gradients.
-            let cost = |g: f64, h: f64| {
-                let d = h + l2;
-                let c = -(g * g) / d;
-                if d <= 0.0 {
-                    0.0
-                } else {
-                    c
-                }
-            };
-            for ((((out, &n), &s0), &s1), &sc) in lanes {
-                let (r0, r1) = (t[0] - s0, t[1] - s1);
-                let v = parent_cost - cost(s0, s1) - cost(r0, r1);
-                let ok = (n > 0.0)
-                    & !(sc < min_leaf)
-                    & !(t[2] - sc < min_leaf)
-                    & !(s1 < min_weight)
-                    & !(r1 < min_weight);
-                *out = if ok { v } else { f64::NEG_INFINITY };
-            }
-        } else {
-            for ((((out, &n), &s0), &s1), &sc) in lanes {
-                let (l, r) = ([s0, s1], [t[0] - s0, t[1] - s1]);
-                let ok = (n > 0.0)
-                    & !(sc < min_leaf)
-                    & !(t[2] - sc < min_leaf)
-                    & !(criterion.weight(&l) < min_weight)
-                    & !(criterion.weight(&r) < min_weight);
-                *out = if ok {
-                    parent_cost - criterion.cost(&l) - criterion.cost(&r)
-                } else {
-                    f64::NEG_INFINITY
-                };
-            }
-        }
-        // The first of the largest gains of this side, then against the best so far.
-        let (mut at, mut g) = (0, f64::NEG_INFINITY);
-        for (i, &v) in gain.iter().enumerate() {
-            if v > g {
-                (at, g) = (i, v);
-            }
-        }
+        point_gains(gain, rows.iter(), [l0, l1, lc], t, parent_cost, settings);
+        let (at, g) = first_best(gain);
         if g == f64::NEG_INFINITY {
             continue;
         }
@@ -1606,6 +1534,67 @@ fn scan_dense_numbers(
             values: (0.0, 0.0),
         });
     }
+}
+
+/// Every split point's gain into `gain`, from the left side's sums after each bin
+/// (`left`: `s0`, `s1`, rows) and the node's totals `t`: −∞ (which no real gain equals:
+/// costs are finite) where the bin holds no rows (`present`, one number a bin) or a side has
+/// too few rows or too little weight. `&` rather than `&&`, selects rather than branches,
+/// and one loop per criterion and least-weight rule (each a constant the compiler folds into
+/// the arithmetic; forests set no least weight) keep it branch-free, so it vectorises. Costs
+/// by [`Criterion::cost2`], equal to [`Criterion::cost`] to the bit. "Not below" is written
+/// `!(x < least)`, as the plain loop skips a point only when a sum is below its least.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+fn point_gains<'p>(
+    gain: &mut [f64],
+    present: impl Iterator<Item = &'p f64>,
+    left: [&[f64]; 3],
+    t: [f64; 3],
+    parent_cost: f64,
+    settings: &GrowSettings,
+) {
+    let min_leaf = settings.min_rows_leaf.max(1) as f64;
+    let min_weight = settings.min_weight_leaf;
+    let lanes = gain
+        .iter_mut()
+        .zip(present)
+        .zip(left[0])
+        .zip(left[1])
+        .zip(left[2]);
+    macro_rules! gains {
+        ($c:expr, $weigh:expr) => {
+            for ((((out, &n), &l0), &l1), &lc) in lanes {
+                let (r0, r1) = (t[0] - l0, t[1] - l1);
+                let ok = (n > 0.0)
+                    & !(lc < min_leaf)
+                    & !(t[2] - lc < min_leaf)
+                    & !($weigh & (($c).weight2(l0, l1) < min_weight))
+                    & !($weigh & (($c).weight2(r0, r1) < min_weight));
+                let v = parent_cost - ($c).cost2(l0, l1) - ($c).cost2(r0, r1);
+                *out = if ok { v } else { f64::NEG_INFINITY };
+            }
+        };
+    }
+    match (settings.criterion, min_weight > 0.0) {
+        (Criterion::Gini, false) => gains!(Criterion::Gini, false),
+        (Criterion::Gini, true) => gains!(Criterion::Gini, true),
+        (Criterion::SquaredError, false) => gains!(Criterion::SquaredError, false),
+        (Criterion::SquaredError, true) => gains!(Criterion::SquaredError, true),
+        (Criterion::Gradient { l2 }, false) => gains!(Criterion::Gradient { l2 }, false),
+        (Criterion::Gradient { l2 }, true) => gains!(Criterion::Gradient { l2 }, true),
+        (Criterion::Entropy, w) => gains!(Criterion::Entropy, w),
+    }
+}
+
+/// The first of the largest of `gain` and where it is (−∞ when every point is −∞).
+fn first_best(gain: &[f64]) -> (usize, f64) {
+    let (mut at, mut g) = (0, f64::NEG_INFINITY);
+    for (i, &v) in gain.iter().enumerate() {
+        if v > g {
+            (at, g) = (i, v);
+        }
+    }
+    (at, g)
 }
 
 /// The running sums of `present`'s slots `(s0, s1, rows)` from `start`, bins with no rows
