@@ -34,7 +34,8 @@ fn main() {
     // "numbers": a number outcome (the logistic model's linear part plus noise) instead;
     // "mixed": the last five predictors as categories and a tenth of x6..x11 missing.
     let kind = args.next().unwrap_or_default();
-    let (numbers, mixed) = (kind == "numbers", kind == "mixed");
+    // "gaps": a tenth of x6..x11 missing, every predictor a number.
+    let (numbers, mixed, gaps) = (kind == "numbers", kind == "mixed", kind == "gaps");
     let mut rng = stream(5, Purpose::ExplainSample, u64::MAX);
     let beta = [1.0, -0.8, 0.6, 0.5, -0.4, 0.3];
     let mut text = String::from("y");
@@ -57,7 +58,7 @@ fn main() {
             if mixed && j >= PREDICTORS - 5 {
                 text += ["a", "b", "c", "d", "e", "f"][((v + 3.0).clamp(0.0, 5.9)) as usize];
                 text.insert(text.len() - 1, ',');
-            } else if mixed && (6..12).contains(&j) && rng.next_u64().is_multiple_of(10) {
+            } else if (mixed || gaps) && (6..12).contains(&j) && rng.next_u64().is_multiple_of(10) {
                 text += ",NA";
             } else {
                 text += &format!(",{v:.6}");

@@ -218,6 +218,12 @@ struct Grower<'a, 'c, B: Bin> {
     /// those of its rows, which stay in row order, and only the row numbers move when a node
     /// is split (empty otherwise).
     pairs: Vec<[f64; 3]>,
+    /// Two classes whose rows all count whole (class weights of 1): each row's class-1 count
+    /// and row count packed as `(s1 << 32) | rows` by row, so one integer addition sums both
+    /// ([`pack_counts`]; empty otherwise).
+    packed: Vec<u64>,
+    /// [`BATCH`] histograms of packed counts, 256 slots each (kept zeroed between uses).
+    packed_hist: Vec<u64>,
     /// The split points of one dense scan.
     points: Points,
     /// Dense histogram buffers free for reuse.
@@ -271,6 +277,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .map(|j| j * DENSE_SLOTS * (width + 1))
                     .collect()
             }),
+            packed: pack_counts(&pairs, settings.criterion),
+            packed_hist: Vec::new(),
             pairs,
             points: Points::default(),
             pool: Vec::new(),
@@ -497,7 +505,46 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             }
             let rows = &self.work[start..end];
             let pairs = &self.pairs[..];
-            for group in candidates.chunks(BATCH) {
+            if !self.packed.is_empty() {
+                if self.packed_hist.len() < BATCH * 256 {
+                    self.packed_hist.resize(BATCH * 256, 0);
+                }
+                let packed = &self.packed[..];
+                let n = self.binned.rows;
+                let column = |j: usize| &self.cells[j * n..(j + 1) * n];
+                for group in candidates.chunks(BATCH) {
+                    let mut parts = self.packed_hist.chunks_exact_mut(256);
+                    let mut bits = [[0u64; 4]; BATCH];
+                    // The group's predictors filled in one pass, however many (up to BATCH).
+                    macro_rules! fill {
+                        ($k:literal) => {{
+                            let slots = [(); $k].map(|_| parts.next().expect("a histogram each"));
+                            let columns: [&[B]; $k] = std::array::from_fn(|i| column(group[i]));
+                            let mut some = [[0u64; 4]; $k];
+                            fill_rows_packed(slots, &mut some, columns, rows, packed);
+                            bits[..$k].copy_from_slice(&some);
+                        }};
+                    }
+                    match group.len() {
+                        1 => fill!(1),
+                        2 => fill!(2),
+                        3 => fill!(3),
+                        4 => fill!(4),
+                        _ => fill!(5),
+                    }
+                    let (spill, _) = self.hist.as_chunks_mut::<3>();
+                    for ((&j, slots), bits) in group
+                        .iter()
+                        .zip(self.packed_hist.chunks_exact_mut(256))
+                        .zip(bits)
+                    {
+                        let sums = &mut self.left_sums;
+                        let at = (j, parent_cost);
+                        scan_packed::<B>(slots, bits, at, settings, spill, sums, &mut best);
+                    }
+                }
+            }
+            for group in candidates.chunks(BATCH).filter(|_| self.packed.is_empty()) {
                 let mut bits = [[0u64; 4]; BATCH];
                 let (all, _) = self.batch_hist.as_chunks_mut::<3>();
                 let mut parts = all.chunks_exact_mut(256);
@@ -854,6 +901,30 @@ fn collapse_repeats(rows: &[u32], stats: &[f64], n: usize) -> (Vec<u32>, Vec<[f6
             .collect(),
     };
     (kept, pairs)
+}
+
+/// Each row's class-1 count and row count packed as `(s1 << 32) | rows`, by row, when the
+/// criterion is a class one and every row of `pairs` (`[s0, s1, rows]`, see
+/// [`collapse_repeats`]) counts whole: `s0` and `s1` whole numbers with `s0 + s1 = rows`
+/// (class weights of 1), and all rows together fewer than 2³² (so no count spills into
+/// the other). Empty otherwise. Sums of whole numbers are exact in either form, so a scan
+/// of packed counts sees the very numbers a scan of `pairs` sees.
+fn pack_counts(pairs: &[[f64; 3]], criterion: Criterion) -> Vec<u64> {
+    if !matches!(criterion, Criterion::Gini | Criterion::Entropy) {
+        return Vec::new();
+    }
+    let whole = |v: f64| v >= 0.0 && v.fract() == 0.0;
+    let fits = pairs.iter().map(|p| p[2]).sum::<f64>() < 4_294_967_296.0;
+    let counts = pairs
+        .iter()
+        .all(|&[s0, s1, c]| whole(s0) && whole(s1) && s0 + s1 == c);
+    if !fits || !counts {
+        return Vec::new();
+    }
+    pairs
+        .iter()
+        .map(|&[_, s1, c]| ((s1 as u64) << 32) | c as u64)
+        .collect()
 }
 
 /// Puts the rows of `work` whose cell goes left first and the others after, both in their
@@ -1284,6 +1355,89 @@ fn fill_rows_pairs<B: Bin, const K: usize>(
     }
 }
 
+/// [`fill_rows_pairs`] for packed counts ([`pack_counts`]): one addition a row and
+/// predictor.
+fn fill_rows_packed<B: Bin, const K: usize>(
+    mut slots: [&mut [u64]; K],
+    bits: &mut [[u64; 4]; K],
+    columns: [&[B]; K],
+    rows: &[u32],
+    packed: &[u64],
+) {
+    *bits = [[0; 4]; K];
+    if rows.len() >= 256 {
+        for &r in rows {
+            let p = packed[r as usize];
+            for (slots, column) in slots.iter_mut().zip(columns) {
+                slots[column[r as usize].index() & 255] += p;
+            }
+        }
+        for (slots, bits) in slots.iter().zip(bits.iter_mut()) {
+            for (b, &at) in slots[..256].iter().enumerate() {
+                bits[b >> 6] |= u64::from(at != 0) << (b & 63);
+            }
+        }
+    } else {
+        for &r in rows {
+            let p = packed[r as usize];
+            for ((slots, bits), column) in slots.iter_mut().zip(bits.iter_mut()).zip(columns) {
+                let b = column[r as usize].index() & 255;
+                bits[b >> 6] |= 1 << (b & 63);
+                slots[b] += p;
+            }
+        }
+    }
+}
+
+/// [`scan_filled_pairs`] from packed counts (`slots`, see [`pack_counts`]; all zero again
+/// on return): the same running sums, unpacked per bin, so the same split. With missing
+/// values in the node the used slots are unpacked into `spill` (all zero on entry and on
+/// return) for [`scan_filled_pairs`].
+fn scan_packed<B: Bin>(
+    slots: &mut [u64],
+    mut bits: [u64; 4],
+    (feature, parent_cost): (usize, f64),
+    settings: &GrowSettings,
+    spill: &mut [[f64; 3]],
+    sums: &mut LeftSums,
+    best: &mut Option<Split>,
+) {
+    let unpack = |p: u64| {
+        let (s1, c) = ((p >> 32) as f64, (p as u32) as f64);
+        [c - s1, s1, c]
+    };
+    let m = B::MISSING.index() & 255;
+    if slots[m] != 0 {
+        bits[m >> 6] |= 1 << (m & 63);
+        for (w, mut word) in bits.into_iter().enumerate() {
+            while word != 0 {
+                let b = w * 64 + word.trailing_zeros() as usize;
+                spill[b] = unpack(std::mem::replace(&mut slots[b], 0));
+                word &= word - 1;
+            }
+        }
+        scan_filled_pairs::<B>(spill, bits, feature, parent_cost, settings, sums, best);
+        return;
+    }
+    bits[m >> 6] &= !(1 << (m & 63));
+    let LeftSums {
+        bins, s0, s1, rows, ..
+    } = sums;
+    let mut acc = 0u64;
+    let mut used = 0;
+    for (w, mut word) in bits.into_iter().enumerate() {
+        while word != 0 {
+            let b = w * 64 + word.trailing_zeros() as usize;
+            acc += std::mem::replace(&mut slots[b], 0);
+            let [l0, l1, lc] = unpack(acc);
+            (bins[used], s0[used], s1[used], rows[used]) = (b as u8, l0, l1, lc);
+            used += 1;
+            word &= word - 1;
+        }
+    }
+    present_best(sums, used, feature, parent_cost, settings, best);
+}
+
 /// [`scan`] for a number predictor with two statistics per row and small cells, from its
 /// bins' sums in `slots` and the bins used in `bits` ([`fill_rows_pairs`]); the slots are
 /// all zero again on return. The bin map is read back in bin order, so the sums are those
@@ -1399,11 +1553,7 @@ fn scan_filled_present<B: Bin>(
     best: &mut Option<Split>,
 ) {
     let LeftSums {
-        bins,
-        s0,
-        s1,
-        rows,
-        gain,
+        bins, s0, s1, rows, ..
     } = sums;
     let [mut t0, mut t1, mut tc] = [0.0; 3];
     let mut used = 0;
@@ -1421,17 +1571,36 @@ fn scan_filled_present<B: Bin>(
     }
     let m = B::MISSING.index() & 255;
     slots[m] = [0.0; 3];
+    present_best(sums, used, feature, parent_cost, settings, best);
+}
+
+/// The best split of a number predictor without missing values from its running left sums
+/// after each of the `used` bins in `sums` (the last of them the node's totals), if it beats
+/// `best`: every split point's gain, then the first of the largest.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+fn present_best(
+    sums: &mut LeftSums,
+    used: usize,
+    feature: usize,
+    parent_cost: f64,
+    settings: &GrowSettings,
+    best: &mut Option<Split>,
+) {
+    if used == 0 {
+        return;
+    }
+    let LeftSums {
+        bins,
+        s0,
+        s1,
+        rows,
+        gain,
+    } = sums;
+    let t = [s0[used - 1], s1[used - 1], rows[used - 1]];
     let left = [&s0[..used], &s1[..used], &rows[..used]];
     // Every bin used holds rows: each is a split point.
     let all = std::iter::repeat(&1.0);
-    point_gains(
-        &mut gain[..used],
-        all,
-        left,
-        [t0, t1, tc],
-        parent_cost,
-        settings,
-    );
+    point_gains(&mut gain[..used], all, left, t, parent_cost, settings);
     let (at, g) = first_best(&gain[..used]);
     if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
         return;
@@ -1917,6 +2086,64 @@ mod tests {
                 assert!(differ < m.rows / 20, "{differ}");
             }
         }
+    }
+
+    #[test]
+    fn packed_counts_grow_the_tree_the_pairs_grow() {
+        // A forest's tree (a bootstrap with repeats, two of three predictors a node, missing
+        // values in c) from packed counts, and again from the statistics as numbers: counts
+        // are whole, so the trees must be equal to the bit, in both class criteria.
+        let design = design_from_csv(&many_values(3000), "y", &["a", "b", "c"]);
+        let (stats, k) = design.row_statistics(false);
+        let m = bin_design(&design, BinSettings::default()).unwrap();
+        let mut state = 0x2545_F491_4F6C_DD1Du64;
+        let mut next = |n: u64| {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state % n
+        };
+        let rows: Vec<u32> = (0..m.rows).map(|_| next(m.rows as u64) as u32).collect();
+        let picks: Vec<u64> = (0..100_000).map(|_| next(3)).collect();
+        let Cells::Narrow(cells) = &m.cells else {
+            panic!("small cells")
+        };
+        for criterion in [Criterion::Gini, Criterion::Entropy] {
+            let settings = GrowSettings {
+                criterion,
+                ..GrowSettings::default()
+            };
+            let grow_one = |packed: bool| {
+                let mut at = picks.iter();
+                let mut choose = |c: &mut Vec<usize>| {
+                    c.remove(*at.next().unwrap() as usize);
+                };
+                let mut g = Grower::new(
+                    &m,
+                    cells,
+                    &stats,
+                    k,
+                    &rows,
+                    &settings,
+                    Some(&mut choose),
+                    &[],
+                );
+                assert!(!g.packed.is_empty(), "whole counts are packed");
+                if !packed {
+                    g.packed.clear();
+                }
+                g.run().tree
+            };
+            let (a, b) = (grow_one(true), grow_one(false));
+            assert!(a.leaves() > 100, "{} leaves", a.leaves());
+            assert_eq!(a, b);
+        }
+        // Fractional class weights are not packed.
+        let (balanced, _) = design.row_statistics(true);
+        let (_, pairs) = collapse_repeats(&rows, &balanced, m.rows);
+        assert!(pack_counts(&pairs, Criterion::Gini).is_empty());
+        let (_, pairs) = collapse_repeats(&rows, &stats, m.rows);
+        assert_eq!(pack_counts(&pairs, Criterion::Gini).len(), m.rows);
     }
 
     #[test]
