@@ -913,18 +913,22 @@ fn pack_counts(pairs: &[[f64; 3]], criterion: Criterion) -> Vec<u64> {
     if !matches!(criterion, Criterion::Gini | Criterion::Entropy) {
         return Vec::new();
     }
-    let whole = |v: f64| v >= 0.0 && v.fract() == 0.0;
-    let fits = pairs.iter().map(|p| p[2]).sum::<f64>() < 4_294_967_296.0;
-    let counts = pairs
+    // One pass, no early exit (most rows are whole), checked at the end. Casts saturate, so
+    // a count that does not fit in 32 bits fails the round trip.
+    let (mut whole, mut total) = (true, 0u64);
+    let packed = pairs
         .iter()
-        .all(|&[s0, s1, c]| whole(s0) && whole(s1) && s0 + s1 == c);
-    if !fits || !counts {
-        return Vec::new();
+        .map(|&[s0, s1, c]| {
+            let (k1, k) = (s1 as u32, c as u32);
+            whole &= (f64::from(k1) == s1) & (f64::from(k) == c) & (s0 + s1 == c) & (s0 >= 0.0);
+            total += u64::from(k);
+            (u64::from(k1) << 32) | u64::from(k)
+        })
+        .collect();
+    match whole && total <= u64::from(u32::MAX) {
+        true => packed,
+        false => Vec::new(),
     }
-    pairs
-        .iter()
-        .map(|&[_, s1, c]| ((s1 as u64) << 32) | c as u64)
-        .collect()
 }
 
 /// Puts the rows of `work` whose cell goes left first and the others after, both in their
@@ -1403,7 +1407,8 @@ fn scan_packed<B: Bin>(
     best: &mut Option<Split>,
 ) {
     let unpack = |p: u64| {
-        let (s1, c) = ((p >> 32) as f64, (p as u32) as f64);
+        // Through i64: both halves are below 2³², and a signed conversion is one instruction.
+        let (s1, c) = ((p >> 32) as i64 as f64, (p & 0xFFFF_FFFF) as i64 as f64);
         [c - s1, s1, c]
     };
     let m = B::MISSING.index() & 255;
@@ -1757,13 +1762,27 @@ fn point_gains<'p>(
 
 /// The first of the largest of `gain` and where it is (−∞ when every point is −∞).
 fn first_best(gain: &[f64]) -> (usize, f64) {
-    let (mut at, mut g) = (0, f64::NEG_INFINITY);
-    for (i, &v) in gain.iter().enumerate() {
-        if v > g {
-            (at, g) = (i, v);
-        }
+    // The largest in four running maxima side by side (no chain of dependent comparisons,
+    // so the compiler vectorises it), then the first place holding it: the place and value
+    // of a loop keeping the first larger one (a NaN is never larger, and −0 equals 0).
+    let more = |m: f64, v: f64| if v > m { v } else { m };
+    let mut m = [f64::NEG_INFINITY; 4];
+    let (quads, rest) = gain.as_chunks::<4>();
+    for q in quads {
+        m = [
+            more(m[0], q[0]),
+            more(m[1], q[1]),
+            more(m[2], q[2]),
+            more(m[3], q[3]),
+        ];
     }
-    (at, g)
+    let g = rest
+        .iter()
+        .fold(more(more(m[0], m[1]), more(m[2], m[3])), |m, &v| more(m, v));
+    match gain.iter().position(|&v| v == g) {
+        Some(at) if g > f64::NEG_INFINITY => (at, gain[at]),
+        _ => (0, f64::NEG_INFINITY),
+    }
 }
 
 /// The running sums of `present`'s slots `(s0, s1, rows)` from `start`, bins with no rows
