@@ -454,6 +454,7 @@ fn on_reply(page: &Shared, reply: Reply) {
             checks::forget(page);
             runs_changed(page);
             study::table_read(page);
+            runs::table_in(page, restoring);
         }
         Reply::Fitted { id, result } => runs::fitted(page, id, *result),
         Reply::Predictions { id, result } => threshold::arrived(page, id, *result),
@@ -507,6 +508,7 @@ fn on_reply(page: &Shared, reply: Reply) {
             p.busy = None;
             p.pending_origin = None;
             p.restoring = false;
+            p.fits.after_read = false;
             p.study.read_failed();
             reading_done(&p.doc);
             let tail = if kept_previous && p.report.is_some() {
@@ -703,6 +705,7 @@ fn cancel(page: &Shared, note: &str) {
         p.busy = None;
         p.pending_origin = None;
         p.fits.in_flight = None;
+        p.fits.after_read = false;
         p.fits.forget_models();
         p.threshold.asked = None;
         p.insight.asked.clear();

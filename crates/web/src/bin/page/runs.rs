@@ -121,6 +121,9 @@ pub struct Fits {
     scheme: Option<String>,
     /// Judge the baseline on the same splits (on unless the user unticks it).
     no_baseline: bool,
+    /// Run was pressed while the table was being read again after a cancel: the run starts
+    /// as soon as the table is in ([`table_in`]).
+    pub after_read: bool,
 }
 
 impl Fits {
@@ -877,8 +880,14 @@ fn start(page: &Shared) {
             return;
         }
         if p.busy.is_some() {
-            by_id(&p.doc, "run-hint")
-                .set_text_content(Some("The table is being read; try again in a moment."));
+            // After a cancel the same table is read again, unseen: the click is kept.
+            let restoring = p.restoring;
+            by_id(&p.doc, "run-hint").set_text_content(Some(match restoring {
+                true => "The table is being read again after the cancel; this run starts as soon as it is in.",
+                false => "The table is being read; try again in a moment.",
+            }));
+            drop(p);
+            page.borrow_mut().fits.after_read = restoring;
             return;
         }
         let Some((design, _)) = design_of(&p) else {
@@ -897,6 +906,15 @@ fn start(page: &Shared) {
         }
     };
     start_fit(page, ask);
+}
+
+/// The table is in. After a cancel (`restoring`: the same table read again), a run asked
+/// for while it was being read starts now.
+pub fn table_in(page: &Shared, restoring: bool) {
+    let asked = std::mem::take(&mut page.borrow_mut().fits.after_read);
+    if asked && restoring {
+        start(page);
+    }
 }
 
 /// Sends one fit to the worker, or queues it behind the one in flight.
