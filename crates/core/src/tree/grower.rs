@@ -1718,8 +1718,46 @@ fn scan_dense_numbers(
 /// the arithmetic; forests set no least weight) keep it branch-free, so it vectorises. Costs
 /// by [`Criterion::cost2`], equal to [`Criterion::cost`] to the bit. "Not below" is written
 /// `!(x < least)`, as the plain loop skips a point only when a sum is below its least.
-#[allow(clippy::neg_cmp_op_on_partial_ord)]
+///
+/// On a CPU with AVX2 the same loop is compiled for four numbers at a time instead of two
+/// ([`point_gains_avx2`]): the same IEEE additions, multiplications and divisions on each
+/// lane (Rust never fuses a multiply and an add on its own), so the same gains to the bit.
+/// `grow_bench` fingerprints unchanged; 98.9 -> 90.0 M instructions a forest tree.
 fn point_gains<'p>(
+    gain: &mut [f64],
+    present: impl Iterator<Item = &'p f64>,
+    left: [&[f64]; 3],
+    t: [f64; 3],
+    parent_cost: f64,
+    settings: &GrowSettings,
+) {
+    #[cfg(target_arch = "x86_64")]
+    if std::is_x86_feature_detected!("avx2") {
+        // SAFETY: the CPU has AVX2 (checked just above).
+        unsafe { point_gains_avx2(gain, present, left, t, parent_cost, settings) };
+        return;
+    }
+    point_gains_plain(gain, present, left, t, parent_cost, settings)
+}
+
+/// [`point_gains_plain`] compiled for AVX2 (see [`point_gains`]).
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn point_gains_avx2<'p>(
+    gain: &mut [f64],
+    present: impl Iterator<Item = &'p f64>,
+    left: [&[f64]; 3],
+    t: [f64; 3],
+    parent_cost: f64,
+    settings: &GrowSettings,
+) {
+    point_gains_plain(gain, present, left, t, parent_cost, settings)
+}
+
+/// [`point_gains`]' loop, inlined into each of its builds.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn point_gains_plain<'p>(
     gain: &mut [f64],
     present: impl Iterator<Item = &'p f64>,
     left: [&[f64]; 3],
@@ -1761,7 +1799,26 @@ fn point_gains<'p>(
 }
 
 /// The first of the largest of `gain` and where it is (−∞ when every point is −∞).
+/// Compiled for AVX2 where the CPU has it, like [`point_gains`].
 fn first_best(gain: &[f64]) -> (usize, f64) {
+    #[cfg(target_arch = "x86_64")]
+    if std::is_x86_feature_detected!("avx2") {
+        // SAFETY: the CPU has AVX2 (checked just above).
+        return unsafe { first_best_avx2(gain) };
+    }
+    first_best_plain(gain)
+}
+
+/// [`first_best_plain`] compiled for AVX2.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn first_best_avx2(gain: &[f64]) -> (usize, f64) {
+    first_best_plain(gain)
+}
+
+/// [`first_best`]'s loop, inlined into each of its builds.
+#[inline(always)]
+fn first_best_plain(gain: &[f64]) -> (usize, f64) {
     // The largest in four running maxima side by side (no chain of dependent comparisons,
     // so the compiler vectorises it), then the first place holding it: the place and value
     // of a loop keeping the first larger one (a NaN is never larger, and −0 equals 0).
@@ -2105,6 +2162,68 @@ mod tests {
                 assert!(differ < m.rows / 20, "{differ}");
             }
         }
+    }
+
+    #[test]
+    fn gains_are_the_same_to_the_bit_whichever_build_computes_them() {
+        // The dispatching functions (AVX2 on a CPU that has it) against the plain loops, on
+        // running sums of random whole and fractional statistics, in every criterion, with
+        // and without a least weight (our own consistency rule, no source needed).
+        let mut state = 0x9E37_79B9_7F4A_7C15u64;
+        let mut next = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            (state % 1000) as f64 / 100.0
+        };
+        // Points with a real gain, so the check is not all −∞ = −∞.
+        let mut finite = 0;
+        for n in [1, 3, 4, 7, 64, 255] {
+            let (mut s0, mut s1, mut rows, mut present) = (vec![], vec![], vec![], vec![]);
+            let [mut a, mut b, mut c] = [0.0; 3];
+            for i in 0..n {
+                let empty = i % 5 == 3;
+                let here = if empty {
+                    0.0
+                } else {
+                    1.0 + (next() * 10.0).floor()
+                };
+                a += if empty { 0.0 } else { next() };
+                b += if empty { 0.0 } else { next() - 2.0 };
+                c += here;
+                s0.push(a);
+                s1.push(b);
+                rows.push(c);
+                present.push(here);
+            }
+            let t = [a + next(), b + 1.0, c + 3.0];
+            for criterion in [
+                Criterion::Gini,
+                Criterion::Entropy,
+                Criterion::SquaredError,
+                Criterion::Gradient { l2: 1.0 },
+            ] {
+                for min_weight_leaf in [0.0, 2.5] {
+                    let settings = GrowSettings {
+                        criterion,
+                        min_weight_leaf,
+                        min_rows_leaf: 2,
+                        ..GrowSettings::default()
+                    };
+                    let (mut x, mut y) = (vec![0.0; n], vec![0.0; n]);
+                    let left = [&s0[..], &s1[..], &rows[..]];
+                    point_gains(&mut x, present.iter(), left, t, 7.5, &settings);
+                    point_gains_plain(&mut y, present.iter(), left, t, 7.5, &settings);
+                    let bits = |v: &[f64]| v.iter().map(|g| g.to_bits()).collect::<Vec<_>>();
+                    assert_eq!(bits(&x), bits(&y), "{criterion:?} n {n}");
+                    finite += x.iter().filter(|g| g.is_finite()).count();
+                    let (i, g) = first_best(&x);
+                    let (j, h) = first_best_plain(&x);
+                    assert_eq!((i, g.to_bits()), (j, h.to_bits()));
+                }
+            }
+        }
+        assert!(finite > 1000, "{finite} points with a real gain");
     }
 
     #[test]
