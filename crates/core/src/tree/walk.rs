@@ -75,11 +75,17 @@ impl Walk {
         Some(Walk { steps, sets })
     }
 
-    /// The leaf of each row `row(i)` for `i` in `0..out.len()`, into `out[i]`.
+    /// The leaf of each row `row(i)` for `i` in `0..out.len()`, into `out[i]`. (Kept out of
+    /// line: one call walks many rows, and a profile then shows the walk by name.)
+    #[inline(never)]
     pub fn leaves(&self, rows: Rows<'_>, row: impl Fn(usize) -> usize, out: &mut [u32]) {
         match rows {
             Rows::Binned(b) => match &b.cells {
-                Cells::Narrow(c) => self.walk(out, &row, |j, r| cell(c, b.rows, j, r)),
+                Cells::Narrow(c) => {
+                    // A bin's number by table (missing: NaN), not by a test a step.
+                    let number: [f64; 256] = std::array::from_fn(|v| cell(&[v as u8], 1, 0, 0));
+                    self.walk(out, &row, |j, r| number[usize::from(c[j * b.rows + r])])
+                }
                 Cells::Wide(c) => self.walk(out, &row, |j, r| cell(c, b.rows, j, r)),
             },
             Rows::Records(records) => self.walk(out, &row, |j, r| records.value(j, r)),
@@ -87,7 +93,8 @@ impl Walk {
     }
 
     /// Walks the rows eight at a time, a lane taking the next row as soon as its row reaches
-    /// a leaf; `value(j, r)` is row `r`'s number in predictor `j` (NaN: missing).
+    /// a leaf, every lane busy until the rows run out; then the last rows each to its leaf.
+    /// `value(j, r)` is row `r`'s number in predictor `j` (NaN: missing).
     #[inline(always)]
     fn walk(
         &self,
@@ -96,46 +103,57 @@ impl Walk {
         value: impl Fn(usize, usize) -> f64,
     ) {
         let steps = &self.steps[..];
+        let categories = !self.sets.is_empty();
+        // The node after `s` for a row whose number is `x`.
+        let child = |s: Step, x: f64| -> u32 {
+            let left = if categories && s.feature & CATEGORY != 0 {
+                match x.is_nan() || !(0.0..256.0).contains(&x) {
+                    true => s.feature & MISSING_LEFT != 0 && x.is_nan(),
+                    false => self.sets[s.threshold as usize].contains(x as u8),
+                }
+            } else {
+                (x <= s.threshold) | (x.is_nan() & (s.feature & MISSING_LEFT != 0))
+            };
+            s.left + u32::from(!left)
+        };
         let n = out.len();
-        // Lane k walks row `of[k]` (output `slot[k]`), now at node `at[k]`.
+        let lanes = LANES.min(n);
+        // Lane k walks row `of[k]` (output `slot[k]`; `usize::MAX`: done), now at node `at[k]`.
         let mut at = [0u32; LANES];
         let mut of = [0usize; LANES];
         let mut slot = [usize::MAX; LANES];
-        let mut next = 0;
-        for k in 0..LANES.min(n) {
-            (slot[k], of[k]) = (next, row(next));
-            next += 1;
+        for k in 0..lanes {
+            (slot[k], of[k]) = (k, row(k));
         }
-        let mut walking = LANES.min(n);
-        while walking > 0 {
-            for k in 0..LANES {
-                if slot[k] == usize::MAX {
-                    continue;
-                }
-                let s = steps[at[k] as usize];
-                if s.feature & LEAF != 0 {
-                    out[slot[k]] = at[k];
-                    at[k] = 0;
-                    if next < n {
-                        (slot[k], of[k]) = (next, row(next));
+        let mut next = lanes;
+        if lanes == LANES {
+            'busy: loop {
+                for k in 0..LANES {
+                    let s = steps[at[k] as usize];
+                    if s.feature & LEAF != 0 {
+                        out[slot[k]] = at[k];
+                        if next == n {
+                            slot[k] = usize::MAX;
+                            break 'busy;
+                        }
+                        (at[k], slot[k], of[k]) = (0, next, row(next));
                         next += 1;
-                    } else {
-                        slot[k] = usize::MAX;
-                        walking -= 1;
+                        continue;
                     }
-                    continue;
+                    at[k] = child(s, value((s.feature & FEATURE) as usize, of[k]));
                 }
-                let x = value((s.feature & FEATURE) as usize, of[k]);
-                let left = if s.feature & CATEGORY != 0 {
-                    match x.is_nan() || !(0.0..256.0).contains(&x) {
-                        true => s.feature & MISSING_LEFT != 0 && x.is_nan(),
-                        false => self.sets[s.threshold as usize].contains(x as u8),
-                    }
-                } else {
-                    (x <= s.threshold) | (x.is_nan() & (s.feature & MISSING_LEFT != 0))
-                };
-                at[k] = s.left + u32::from(!left);
             }
+        }
+        for k in (0..lanes).filter(|&k| slot[k] != usize::MAX) {
+            let mut a = at[k];
+            loop {
+                let s = steps[a as usize];
+                if s.feature & LEAF != 0 {
+                    break;
+                }
+                a = child(s, value((s.feature & FEATURE) as usize, of[k]));
+            }
+            out[slot[k]] = a;
         }
     }
 }
@@ -212,6 +230,12 @@ mod tests {
                 let mut out = vec![0; some.len()];
                 walk.leaves(rows, |i| some[i], &mut out);
                 assert!(some.iter().zip(&out).all(|(&r, &l)| each[r] == l));
+                // Fewer rows than lanes, as many, one more (the busy lanes and the last rows).
+                for len in [0, 1, 5, 8, 9] {
+                    let mut out = vec![0; len];
+                    walk.leaves(rows, |i| some[i], &mut out);
+                    assert!(some.iter().zip(&out).all(|(&r, &l)| each[r] == l));
+                }
             }
         }
         assert!(categories > 0, "the check covers category splits");
