@@ -405,7 +405,16 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             Criterion::Gradient { .. } if s[1] > 0.0 => Some(s[0] / s[1]),
             _ => None,
         };
-        if width == 2 {
+        if !self.packed.is_empty() {
+            // Whole counts: summed packed, the same numbers exactly (see `pack_counts`).
+            let sum: u64 = self.work[start..end]
+                .iter()
+                .map(|&r| self.packed[r as usize])
+                .sum();
+            let [t0, t1, tc] = unpack_counts(sum);
+            self.totals.copy_from_slice(&[t0, t1]);
+            n = tc as usize;
+        } else if width == 2 {
             // The same sums in the same order, from the pairs kept beside the rows; the range
             // of values only where purity is judged by it (not for classes).
             let [mut t0, mut t1, mut tc] = [0.0; 3];
@@ -1406,18 +1415,13 @@ fn scan_packed<B: Bin>(
     sums: &mut LeftSums,
     best: &mut Option<Split>,
 ) {
-    let unpack = |p: u64| {
-        // Through i64: both halves are below 2³², and a signed conversion is one instruction.
-        let (s1, c) = ((p >> 32) as i64 as f64, (p & 0xFFFF_FFFF) as i64 as f64);
-        [c - s1, s1, c]
-    };
     let m = B::MISSING.index() & 255;
     if slots[m] != 0 {
         bits[m >> 6] |= 1 << (m & 63);
         for (w, mut word) in bits.into_iter().enumerate() {
             while word != 0 {
                 let b = w * 64 + word.trailing_zeros() as usize;
-                spill[b] = unpack(std::mem::replace(&mut slots[b], 0));
+                spill[b] = unpack_counts(std::mem::replace(&mut slots[b], 0));
                 word &= word - 1;
             }
         }
@@ -1434,13 +1438,21 @@ fn scan_packed<B: Bin>(
         while word != 0 {
             let b = w * 64 + word.trailing_zeros() as usize;
             acc += std::mem::replace(&mut slots[b], 0);
-            let [l0, l1, lc] = unpack(acc);
+            let [l0, l1, lc] = unpack_counts(acc);
             (bins[used], s0[used], s1[used], rows[used]) = (b as u8, l0, l1, lc);
             used += 1;
             word &= word - 1;
         }
     }
     present_best(sums, used, feature, parent_cost, settings, best);
+}
+
+/// Packed counts ([`pack_counts`]) as the statistics they count, `[s0, s1, rows]`.
+#[inline(always)]
+fn unpack_counts(p: u64) -> [f64; 3] {
+    // Through i64: both halves are below 2³², and a signed conversion is one instruction.
+    let (s1, c) = ((p >> 32) as i64 as f64, (p & 0xFFFF_FFFF) as i64 as f64);
+    [c - s1, s1, c]
 }
 
 /// [`scan`] for a number predictor with two statistics per row and small cells, from its
