@@ -1386,9 +1386,7 @@ fn fill_rows_packed<B: Bin, const K: usize>(
             }
         }
         for (slots, bits) in slots.iter().zip(bits.iter_mut()) {
-            for (b, &at) in slots[..256].iter().enumerate() {
-                bits[b >> 6] |= u64::from(at != 0) << (b & 63);
-            }
+            *bits = used_bins(slots[..256].try_into().expect("256 slots"));
         }
     } else {
         for &r in rows {
@@ -1400,6 +1398,36 @@ fn fill_rows_packed<B: Bin, const K: usize>(
             }
         }
     }
+}
+
+/// The bins of `slots` holding rows, as a 256-bit map, compiled for AVX2 where the CPU has
+/// it (four slots compared at once).
+fn used_bins(slots: &[u64; 256]) -> [u64; 4] {
+    #[cfg(target_arch = "x86_64")]
+    if std::is_x86_feature_detected!("avx2") {
+        // SAFETY: the CPU has AVX2 (checked just above).
+        return unsafe { used_bins_avx2(slots) };
+    }
+    used_bins_plain(slots)
+}
+
+/// [`used_bins_plain`] compiled for AVX2.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn used_bins_avx2(slots: &[u64; 256]) -> [u64; 4] {
+    used_bins_plain(slots)
+}
+
+/// [`used_bins`]' loop, inlined into each of its builds.
+#[inline(always)]
+fn used_bins_plain(slots: &[u64; 256]) -> [u64; 4] {
+    let (words, _) = slots.as_chunks::<64>();
+    std::array::from_fn(|w| {
+        words[w]
+            .iter()
+            .enumerate()
+            .fold(0u64, |m, (i, &at)| m | (u64::from(at != 0) << i))
+    })
 }
 
 /// [`scan_filled_pairs`] from packed counts (`slots`, see [`pack_counts`]; all zero again
