@@ -261,8 +261,24 @@ impl OobTally {
 
     /// Adds the next tree (trees must come in index order).
     pub fn add(&mut self, fitted: FittedTree, binned: &BinnedMatrix, outcome: &Outcome) {
+        // The same loops, with the number of outputs a constant where it is one or two (a
+        // number outcome, two classes), so their sums and choices compile without loops.
+        match self.outputs {
+            1 => self.add_with::<1>(fitted, binned, outcome),
+            2 => self.add_with::<2>(fitted, binned, outcome),
+            _ => self.add_with::<0>(fitted, binned, outcome),
+        }
+    }
+
+    /// [`OobTally::add`] for `K` outputs a row (0: as many as `self.outputs`).
+    fn add_with<const K: usize>(
+        &mut self,
+        fitted: FittedTree,
+        binned: &BinnedMatrix,
+        outcome: &Outcome,
+    ) {
         let n = binned.rows;
-        let outputs = self.outputs;
+        let outputs = if K > 0 { K } else { self.outputs };
         let tree = &fitted.tree;
         let (mut wrong, mut squares) = (0.0, 0.0);
         let trees_so_far = (self.trees.len() + 1) as f64;
@@ -284,7 +300,7 @@ impl OobTally {
                 OUT_OF_BAG | IN_BAG => walked.next().expect("a leaf per row walked") as usize,
                 leaf => leaf as usize,
             };
-            let p = tree.node_values(leaf);
+            let p = &tree.node_values(leaf)[..outputs];
             if known == OUT_OF_BAG {
                 self.out_of_bag += 1;
                 self.votes[r] += 1;
