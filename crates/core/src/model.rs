@@ -318,8 +318,22 @@ impl Model {
 
     /// The staged error curve and the final sums of the members' outputs (votes for AdaBoost).
     fn staged_sums(&self, rows: Rows<'_>, outcome: &Outcome) -> Option<(Vec<f64>, Vec<f64>)> {
+        // The same loops, with the number of outputs a constant where it is one or two.
+        match self.outputs() {
+            1 => self.staged_sums_with::<1>(rows, outcome),
+            2 => self.staged_sums_with::<2>(rows, outcome),
+            _ => self.staged_sums_with::<0>(rows, outcome),
+        }
+    }
+
+    /// [`Model::staged_sums`] for `K` outputs a row (0: as many as `self.outputs()`).
+    fn staged_sums_with<const K: usize>(
+        &self,
+        rows: Rows<'_>,
+        outcome: &Outcome,
+    ) -> Option<(Vec<f64>, Vec<f64>)> {
         let n = rows.len();
-        let outputs = self.outputs();
+        let outputs = if K > 0 { K } else { self.outputs() };
         if let Ensemble::Boosting(b) = &self.ensemble {
             return Some((boosting_staged_errors(b, rows, outcome), Vec::new()));
         }
@@ -335,7 +349,7 @@ impl Model {
             let mut err = 0.0;
             walk::leaves(tree, rows, |i| i, &mut at);
             for r in 0..n {
-                let p = tree.node_values(at[r] as usize);
+                let p = &tree.node_values(at[r] as usize)[..outputs];
                 let s = &mut sums[r * outputs..(r + 1) * outputs];
                 if voting {
                     if let Some(v) = s.get_mut(argmax(p)) {
