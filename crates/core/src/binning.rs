@@ -345,6 +345,12 @@ impl Records {
         self.values[j * self.rows + row]
     }
 
+    /// Every value, predictor after predictor (`rows` values each): predictor `j`'s value of
+    /// row `row` is at `j * rows + row`.
+    pub fn values(&self) -> &[f64] {
+        &self.values
+    }
+
     /// Records holding only `rows` (in that order).
     pub fn select_rows(&self, rows: &[usize]) -> Records {
         let columns = self.values.len() / self.rows.max(1);

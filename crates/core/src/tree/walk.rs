@@ -79,16 +79,34 @@ impl Walk {
     /// line: one call walks many rows, and a profile then shows the walk by name.)
     #[inline(never)]
     pub fn leaves(&self, rows: Rows<'_>, row: impl Fn(usize) -> usize, out: &mut [u32]) {
+        // Each way of reading a row's number is a closure owning what it reads (slices and
+        // sizes by value, so they stay in registers rather than being read again at every
+        // step), and trees without category splits take a walk without their test.
+        macro_rules! walk {
+            ($value:expr) => {
+                match self.sets.is_empty() {
+                    true => self.walk::<false>(out, &row, $value),
+                    false => self.walk::<true>(out, &row, $value),
+                }
+            };
+        }
         match rows {
             Rows::Binned(b) => match &b.cells {
                 Cells::Narrow(c) => {
                     // A bin's number by table (missing: NaN), not by a test a step.
                     let number: [f64; 256] = std::array::from_fn(|v| cell(&[v as u8], 1, 0, 0));
-                    self.walk(out, &row, |j, r| number[usize::from(c[j * b.rows + r])])
+                    let (number, cells, n) = (&number, &c[..], b.rows);
+                    walk!(move |j, r| number[usize::from(cells[j * n + r])])
                 }
-                Cells::Wide(c) => self.walk(out, &row, |j, r| cell(c, b.rows, j, r)),
+                Cells::Wide(c) => {
+                    let (cells, n) = (&c[..], b.rows);
+                    walk!(move |j, r| cell(cells, n, j, r))
+                }
             },
-            Rows::Records(records) => self.walk(out, &row, |j, r| records.value(j, r)),
+            Rows::Records(records) => {
+                let (values, n) = (records.values(), records.rows);
+                walk!(move |j, r| values[j * n + r])
+            }
         }
     }
 
@@ -96,17 +114,16 @@ impl Walk {
     /// a leaf, every lane busy until the rows run out; then the last rows each to its leaf.
     /// `value(j, r)` is row `r`'s number in predictor `j` (NaN: missing).
     #[inline(always)]
-    fn walk(
+    fn walk<const CATEGORIES: bool>(
         &self,
         out: &mut [u32],
         row: &impl Fn(usize) -> usize,
         value: impl Fn(usize, usize) -> f64,
     ) {
         let steps = &self.steps[..];
-        let categories = !self.sets.is_empty();
         // The node after `s` for a row whose number is `x`.
         let child = |s: Step, x: f64| -> u32 {
-            let left = if categories && s.feature & CATEGORY != 0 {
+            let left = if CATEGORIES && s.feature & CATEGORY != 0 {
                 match x.is_nan() || !(0.0..256.0).contains(&x) {
                     true => s.feature & MISSING_LEFT != 0 && x.is_nan(),
                     false => self.sets[s.threshold as usize].contains(x as u8),
