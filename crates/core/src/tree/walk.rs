@@ -35,6 +35,10 @@ const LANES: usize = 8;
 pub struct Walk {
     steps: Vec<Step>,
     sets: Vec<BinSet>,
+    /// Binned, without category splits: a step that sends missing values left holds its
+    /// threshold bin plus one, and a row's bin plus one (the missing bin, the largest,
+    /// wrapping round to 0) is compared with it, so one comparison decides every bin.
+    shifted: bool,
 }
 
 impl Walk {
@@ -72,7 +76,20 @@ impl Walk {
                 left: n.left,
             });
         }
-        Some(Walk { steps, sets })
+        let shifted = binned && sets.is_empty();
+        if shifted {
+            for s in steps
+                .iter_mut()
+                .filter(|s| s.feature & (LEAF | MISSING_LEFT) == MISSING_LEFT)
+            {
+                s.threshold += 1.0;
+            }
+        }
+        Some(Walk {
+            steps,
+            sets,
+            shifted,
+        })
     }
 
     /// The leaf of each row `row(i)` for `i` in `0..out.len()`, into `out[i]`. (Kept out of
@@ -90,7 +107,26 @@ impl Walk {
                 }
             };
         }
+        // A shifted step ([`Walk::shifted`]) of bin `b`: left when `(b + 1) mod 2^bits` is at
+        // most its threshold if missing values go left, `b` otherwise.
+        macro_rules! shifted {
+            ($cells:expr, $n:expr, $key:expr) => {{
+                let (cells, n) = ($cells, $n);
+                self.walk_with(out, &row, move |s: Step, r: usize| {
+                    let b = usize::from(cells[(s.feature & FEATURE) as usize * n + r]);
+                    let missing_left = (s.feature >> 31) as usize;
+                    s.left + u32::from(!($key(b + missing_left) <= s.threshold))
+                })
+            }};
+        }
         match rows {
+            Rows::Binned(b) if self.shifted => match &b.cells {
+                Cells::Narrow(c) => {
+                    let key: [f64; 256] = std::array::from_fn(|v| v as f64);
+                    shifted!(&c[..], b.rows, |v: usize| key[v & 255])
+                }
+                Cells::Wide(c) => shifted!(&c[..], b.rows, |v: usize| (v & 0xFFFF) as f64),
+            },
             Rows::Binned(b) => match &b.cells {
                 Cells::Narrow(c) => {
                     // A bin's number by table (missing: NaN), not by a test a step.
@@ -120,9 +156,9 @@ impl Walk {
         row: &impl Fn(usize) -> usize,
         value: impl Fn(usize, usize) -> f64,
     ) {
-        let steps = &self.steps[..];
-        // The node after `s` for a row whose number is `x`.
-        let child = |s: Step, x: f64| -> u32 {
+        // The node after `s` for row `r`.
+        let child = |s: Step, r: usize| -> u32 {
+            let x = value((s.feature & FEATURE) as usize, r);
             let left = if CATEGORIES && s.feature & CATEGORY != 0 {
                 match x.is_nan() || !(0.0..256.0).contains(&x) {
                     true => s.feature & MISSING_LEFT != 0 && x.is_nan(),
@@ -133,6 +169,18 @@ impl Walk {
             };
             s.left + u32::from(!left)
         };
+        self.walk_with(out, row, child)
+    }
+
+    /// The lanes of [`Walk::walk`]; `child(s, r)` is the node after step `s` for row `r`.
+    #[inline(always)]
+    fn walk_with(
+        &self,
+        out: &mut [u32],
+        row: &impl Fn(usize) -> usize,
+        child: impl Fn(Step, usize) -> u32,
+    ) {
+        let steps = &self.steps[..];
         let n = out.len();
         let lanes = LANES.min(n);
         // Lane k walks row `of[k]` (output `slot[k]`; `usize::MAX`: done), now at node `at[k]`.
@@ -157,7 +205,7 @@ impl Walk {
                         next += 1;
                         continue;
                     }
-                    at[k] = child(s, value((s.feature & FEATURE) as usize, of[k]));
+                    at[k] = child(s, of[k]);
                 }
             }
         }
@@ -168,7 +216,7 @@ impl Walk {
                 if s.feature & LEAF != 0 {
                     break;
                 }
-                a = child(s, value((s.feature & FEATURE) as usize, of[k]));
+                a = child(s, of[k]);
             }
             out[slot[k]] = a;
         }
@@ -208,53 +256,65 @@ mod tests {
     #[test]
     fn a_walk_reaches_the_leaves_a_row_by_row_walk_reaches() {
         // Two ways of walking the same tree (our own consistency rule, no source needed), on
-        // numbers, categories and missing values, binned rows and records.
-        let mut text = String::from("y,a,b,c\n");
-        for i in 0..500u64 {
-            let (a, b) = ((i * 37) % 101, (i * 53) % 89);
-            let y = ["p", "q"][((a + b + i % 7) % 2) as usize];
-            let b = if i % 9 == 0 {
-                "NA".to_string()
-            } else {
-                b.to_string()
+        // numbers, categories and missing values, binned rows and records; and on numbers
+        // alone, whose binned walk is shifted (`Walk::shifted`).
+        let (mut categories, mut shifted_left) = (0, 0);
+        for numbers_only in [false, true] {
+            let mut text = String::from("y,a,b,c\n");
+            for i in 0..500u64 {
+                let (a, b) = ((i * 37) % 101, (i * 53) % 89);
+                let y = ["p", "q"][((a + b + i % 7) % 2) as usize];
+                let b = if i % 9 == 0 {
+                    "NA".to_string()
+                } else {
+                    b.to_string()
+                };
+                let c = match numbers_only {
+                    true => (i % 4).to_string(),
+                    false => ["k", "l", "m", "n"][(i % 4) as usize].to_string(),
+                };
+                text += &format!("{y},{a},{b},{c}\n");
+            }
+            let (table, fitted) = forest_from_csv(&text, 20);
+            let (records, _) = fitted.model.records(&table).unwrap();
+            let Ensemble::Forest(forest) = &fitted.model.ensemble else {
+                unreachable!("a forest")
             };
-            text += &format!("{y},{a},{b},{}\n", ["k", "l", "m", "n"][(i % 4) as usize]);
-        }
-        let (table, fitted) = forest_from_csv(&text, 20);
-        let (records, _) = fitted.model.records(&table).unwrap();
-        let Ensemble::Forest(forest) = &fitted.model.ensemble else {
-            unreachable!("a forest")
-        };
-        let mut categories = 0;
-        for tree in &forest.trees {
-            categories += tree
-                .nodes
-                .iter()
-                .filter(|n| !n.is_leaf() && !n.numeric)
-                .count();
-            for (rows, binned) in [
-                (Rows::Binned(&fitted.binned), true),
-                (Rows::Records(&records), false),
-            ] {
-                let walk = Walk::new(tree, binned).expect("children side by side");
-                let n = rows.len();
-                let mut out = vec![0; n];
-                walk.leaves(rows, |i| i, &mut out);
-                let each: Vec<u32> = (0..n).map(|r| tree.leaf(rows, r) as u32).collect();
-                assert_eq!(out, each);
-                // Any list of rows, in any order.
-                let some: Vec<usize> = (0..n).rev().step_by(3).collect();
-                let mut out = vec![0; some.len()];
-                walk.leaves(rows, |i| some[i], &mut out);
-                assert!(some.iter().zip(&out).all(|(&r, &l)| each[r] == l));
-                // Fewer rows than lanes, as many, one more (the busy lanes and the last rows).
-                for len in [0, 1, 5, 8, 9] {
-                    let mut out = vec![0; len];
+            for tree in &forest.trees {
+                let splits = || tree.nodes.iter().filter(|n| !n.is_leaf());
+                categories += splits().filter(|n| !n.numeric).count();
+                if numbers_only {
+                    shifted_left += splits().filter(|n| n.missing_left).count();
+                }
+                for (rows, binned) in [
+                    (Rows::Binned(&fitted.binned), true),
+                    (Rows::Records(&records), false),
+                ] {
+                    let walk = Walk::new(tree, binned).expect("children side by side");
+                    assert_eq!(walk.shifted, binned && numbers_only);
+                    let n = rows.len();
+                    let mut out = vec![0; n];
+                    walk.leaves(rows, |i| i, &mut out);
+                    let each: Vec<u32> = (0..n).map(|r| tree.leaf(rows, r) as u32).collect();
+                    assert_eq!(out, each);
+                    // Any list of rows, in any order.
+                    let some: Vec<usize> = (0..n).rev().step_by(3).collect();
+                    let mut out = vec![0; some.len()];
                     walk.leaves(rows, |i| some[i], &mut out);
                     assert!(some.iter().zip(&out).all(|(&r, &l)| each[r] == l));
+                    // Fewer rows than lanes, as many, one more (the busy lanes and the last rows).
+                    for len in [0, 1, 5, 8, 9] {
+                        let mut out = vec![0; len];
+                        walk.leaves(rows, |i| some[i], &mut out);
+                        assert!(some.iter().zip(&out).all(|(&r, &l)| each[r] == l));
+                    }
                 }
             }
         }
         assert!(categories > 0, "the check covers category splits");
+        assert!(
+            shifted_left > 0,
+            "the check covers shifted steps sending missing values left"
+        );
     }
 }
