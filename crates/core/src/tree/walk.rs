@@ -115,7 +115,8 @@ impl Walk {
                 self.walk_with(out, &row, move |s: Step, r: usize| {
                     let b = usize::from(cells[(s.feature & FEATURE) as usize * n + r]);
                     let missing_left = (s.feature >> 31) as usize;
-                    s.left + u32::from(!($key(b + missing_left) <= s.threshold))
+                    // Neither side is ever NaN: right exactly when above.
+                    s.left + u32::from($key(b + missing_left) > s.threshold)
                 })
             }};
         }
