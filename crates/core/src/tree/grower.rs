@@ -116,6 +116,35 @@ const DENSE_SLOTS: usize = 256;
 /// No bounds on a node's value.
 const FREE: (f64, f64) = (f64::NEG_INFINITY, f64::INFINITY);
 
+/// Defines `$name`, which runs `$plain` (an `#[inline(always)]` function, so each build has
+/// its own copy of the loop) compiled a second time for AVX2 when on an x86-64 CPU that has
+/// it, else as built. The vector loops then take four numbers a step instead of two; each lane
+/// does the same IEEE operations (Rust never fuses a multiply and an add on its own), so the
+/// results are the same to the bit, tested. The crate's only `unsafe`: calling the AVX2 build
+/// after the check.
+macro_rules! twice_for_avx2 {
+    (
+        $(#[$doc:meta])*
+        fn $name:ident $(<$lt:lifetime>)? ($($arg:ident: $ty:ty),* $(,)?) $(-> $ret:ty)? = $plain:ident
+    ) => {
+        $(#[$doc])*
+        fn $name $(<$lt>)? ($($arg: $ty),*) $(-> $ret)? {
+            #[cfg(target_arch = "x86_64")]
+            {
+                #[target_feature(enable = "avx2")]
+                fn avx2 $(<$lt>)? ($($arg: $ty),*) $(-> $ret)? {
+                    $plain($($arg),*)
+                }
+                if std::is_x86_feature_detected!("avx2") {
+                    // SAFETY: the CPU has AVX2 (checked just above).
+                    return unsafe { avx2($($arg),*) };
+                }
+            }
+            $plain($($arg),*)
+        }
+    };
+}
+
 /// Grows a tree on `rows` of `binned`. `stats` holds `width` numbers per row of `binned`.
 pub fn grow<'a>(
     binned: &'a BinnedMatrix,
@@ -1400,22 +1429,10 @@ fn fill_rows_packed<B: Bin, const K: usize>(
     }
 }
 
-/// The bins of `slots` holding rows, as a 256-bit map, compiled for AVX2 where the CPU has
-/// it (four slots compared at once).
-fn used_bins(slots: &[u64; 256]) -> [u64; 4] {
-    #[cfg(target_arch = "x86_64")]
-    if std::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2 (checked just above).
-        return unsafe { used_bins_avx2(slots) };
-    }
-    used_bins_plain(slots)
-}
-
-/// [`used_bins_plain`] compiled for AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn used_bins_avx2(slots: &[u64; 256]) -> [u64; 4] {
-    used_bins_plain(slots)
+twice_for_avx2! {
+    /// The bins of `slots` holding rows, as a 256-bit map (compiled for AVX2 too: four slots
+    /// compared at once).
+    fn used_bins(slots: &[u64; 256]) -> [u64; 4] = used_bins_plain
 }
 
 /// [`used_bins`]' loop, inlined into each of its builds.
@@ -1483,22 +1500,10 @@ fn scan_packed<B: Bin>(
     present_best(sums, used, feature, parent_cost, settings, best);
 }
 
-/// Every packed count of `packed` unpacked ([`unpack_counts`]) into `out` (`s0`, `s1`,
-/// rows), in a loop apart, so it is compiled for four at a time where the CPU has AVX2.
-fn unpack_all(packed: &[u64], out: [&mut [f64]; 3]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2 (checked just above).
-        return unsafe { unpack_all_avx2(packed, out) };
-    }
-    unpack_all_plain(packed, out)
-}
-
-/// [`unpack_all_plain`] compiled for AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn unpack_all_avx2(packed: &[u64], out: [&mut [f64]; 3]) {
-    unpack_all_plain(packed, out)
+twice_for_avx2! {
+    /// Every packed count of `packed` unpacked ([`unpack_counts`]) into `out` (`s0`, `s1`,
+    /// rows), in a loop apart, so it is compiled for four at a time on AVX2.
+    fn unpack_all(packed: &[u64], out: [&mut [f64]; 3]) = unpack_all_plain
 }
 
 /// [`unpack_all`]'s loop, inlined into each of its builds.
@@ -1790,48 +1795,28 @@ fn scan_dense_numbers(
     }
 }
 
-/// Every split point's gain into `gain`, from the left side's sums after each bin
-/// (`left`: `s0`, `s1`, rows) and the node's totals `t`: −∞ (which no real gain equals:
-/// costs are finite) where the bin holds no rows (`present`, one number a bin) or a side has
-/// too few rows or too little weight. `&` rather than `&&`, selects rather than branches,
-/// and one loop per criterion and least-weight rule (each a constant the compiler folds into
-/// the arithmetic; forests set no least weight) keep it branch-free, so it vectorises. Costs
-/// by [`Criterion::cost2`], equal to [`Criterion::cost`] to the bit. "Not below" is written
-/// `!(x < least)`, as the plain loop skips a point only when a sum is below its least.
-///
-/// On a CPU with AVX2 the same loop is compiled for four numbers at a time instead of two
-/// ([`point_gains_avx2`]): the same IEEE additions, multiplications and divisions on each
-/// lane (Rust never fuses a multiply and an add on its own), so the same gains to the bit.
-/// `grow_bench` fingerprints unchanged; 98.9 -> 90.0 M instructions a forest tree.
-fn point_gains<'p>(
-    gain: &mut [f64],
-    present: impl Iterator<Item = &'p f64>,
-    left: [&[f64]; 3],
-    t: [f64; 3],
-    parent_cost: f64,
-    settings: &GrowSettings,
-) {
-    #[cfg(target_arch = "x86_64")]
-    if std::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2 (checked just above).
-        unsafe { point_gains_avx2(gain, present, left, t, parent_cost, settings) };
-        return;
-    }
-    point_gains_plain(gain, present, left, t, parent_cost, settings)
-}
-
-/// [`point_gains_plain`] compiled for AVX2 (see [`point_gains`]).
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn point_gains_avx2<'p>(
-    gain: &mut [f64],
-    present: impl Iterator<Item = &'p f64>,
-    left: [&[f64]; 3],
-    t: [f64; 3],
-    parent_cost: f64,
-    settings: &GrowSettings,
-) {
-    point_gains_plain(gain, present, left, t, parent_cost, settings)
+twice_for_avx2! {
+    /// Every split point's gain into `gain`, from the left side's sums after each bin
+    /// (`left`: `s0`, `s1`, rows) and the node's totals `t`: −∞ (which no real gain equals:
+    /// costs are finite) where the bin holds no rows (`present`, one number a bin) or a side has
+    /// too few rows or too little weight. `&` rather than `&&`, selects rather than branches,
+    /// and one loop per criterion and least-weight rule (each a constant the compiler folds into
+    /// the arithmetic; forests set no least weight) keep it branch-free, so it vectorises. Costs
+    /// by [`Criterion::cost2`], equal to [`Criterion::cost`] to the bit. "Not below" is written
+    /// `!(x < least)`, as the plain loop skips a point only when a sum is below its least.
+    ///
+    /// On a CPU with AVX2 the same loop is compiled for four numbers at a time instead of two
+    /// ([`twice_for_avx2`]): the same IEEE additions, multiplications and divisions on each
+    /// lane (Rust never fuses a multiply and an add on its own), so the same gains to the bit.
+    /// `grow_bench` fingerprints unchanged; 98.9 -> 90.0 M instructions a forest tree.
+    fn point_gains<'p>(
+        gain: &mut [f64],
+        present: impl Iterator<Item = &'p f64>,
+        left: [&[f64]; 3],
+        t: [f64; 3],
+        parent_cost: f64,
+        settings: &GrowSettings,
+    ) = point_gains_plain
 }
 
 /// [`point_gains`]' loop, inlined into each of its builds.
@@ -1878,22 +1863,10 @@ fn point_gains_plain<'p>(
     }
 }
 
-/// The first of the largest of `gain` and where it is (−∞ when every point is −∞).
-/// Compiled for AVX2 where the CPU has it, like [`point_gains`].
-fn first_best(gain: &[f64]) -> (usize, f64) {
-    #[cfg(target_arch = "x86_64")]
-    if std::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2 (checked just above).
-        return unsafe { first_best_avx2(gain) };
-    }
-    first_best_plain(gain)
-}
-
-/// [`first_best_plain`] compiled for AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn first_best_avx2(gain: &[f64]) -> (usize, f64) {
-    first_best_plain(gain)
+twice_for_avx2! {
+    /// The first of the largest of `gain` and where it is (−∞ when every point is −∞)
+    /// (compiled for AVX2 too, like [`point_gains`]).
+    fn first_best(gain: &[f64]) -> (usize, f64) = first_best_plain
 }
 
 /// [`first_best`]'s loop, inlined into each of its builds.
