@@ -114,9 +114,13 @@ impl Walk {
                 let (cells, n) = ($cells, $n);
                 self.walk_with(out, &row, move |s: Step, r: usize| {
                     let b = usize::from(cells[(s.feature & FEATURE) as usize * n + r]);
-                    let missing_left = (s.feature >> 31) as usize;
-                    // Neither side is ever NaN: right exactly when above.
-                    s.left + u32::from($key(b + missing_left) > s.threshold)
+                    // The top bit (a shift, not a test).
+                    let missing_left = (s.feature / MISSING_LEFT) as usize;
+                    // Right when not at most (neither side is ever NaN; written so, it
+                    // compiles to one instruction fewer than "above", measured).
+                    #[allow(clippy::neg_cmp_op_on_partial_ord)]
+                    let right = !($key(b + missing_left) <= s.threshold);
+                    s.left + u32::from(right)
                 })
             }};
         }
