@@ -166,6 +166,12 @@ impl RankedScores {
                 self.events.iter().map(|e| 1.0 - e).sum(),
             ),
         };
+        self.average_precision_of(weights, pos, neg)
+    }
+
+    /// [`Self::average_precision`] given the events' and non-events' weights (summed in
+    /// row order, as `class_weights` sums them).
+    fn average_precision_of(&self, weights: Option<&[f64]>, pos: f64, neg: f64) -> Option<f64> {
         // Both classes needed, as `average_precision` requires.
         if pos <= 0.0 || neg <= 0.0 {
             return None;
@@ -392,6 +398,13 @@ impl CalibrationGroups {
         for (r, &g) in self.group_of.iter().enumerate() {
             w[g as usize] += weight(weights, r);
         }
+        self.fit(&w, pos, neg)
+    }
+
+    /// The calibration figures from each group's weight `w` and the events' and
+    /// non-events' weights (both positive).
+    fn fit(&self, w: &[f64], pos: f64, neg: f64) -> Result<Calibration> {
+        const WHAT: &str = "the calibration slope";
         let expected_sum: f64 = w.iter().zip(&self.probability).map(|(w, p)| w * p).sum();
         if expected_sum <= 0.0 {
             return Err(bad(
@@ -416,10 +429,10 @@ impl CalibrationGroups {
             ));
         }
         let (y, x) = (&self.event[..], &self.logit[..]);
-        let in_the_large = newton_logistic(y, x, &w, true)
+        let in_the_large = newton_logistic(y, x, w, true)
             .map(|(a, _)| a)
             .ok_or_else(|| bad(WHAT, "calibration-in-the-large did not converge"))?;
-        let (slope_intercept, slope) = newton_logistic(y, x, &w, false).ok_or_else(|| {
+        let (slope_intercept, slope) = newton_logistic(y, x, w, false).ok_or_else(|| {
             bad(
                 WHAT,
                 "the logistic recalibration did not settle: the predictions separate events \
@@ -435,6 +448,134 @@ impl CalibrationGroups {
             observed: pos / total,
             expected: expected_sum / total,
         })
+    }
+}
+
+/// The two-class figures a bootstrap resamples (average precision, log loss, Brier score,
+/// calibration, the confusion counts at a threshold) of one set of predictions, for many
+/// row weightings: the predictions are checked, sorted and grouped once, each row's log-loss
+/// and Brier terms computed once, and each weighting then costs one pass over the rows for
+/// every sum plus the average precision's pass in score order. Every sum is the one the
+/// functions of each figure add up, in the same (row) order, so the figures are theirs to
+/// the bit: a row of weight 0 adds `0 · term = +0`, which changes no sum of terms ≥ 0, and
+/// the branch-free cell and class sums add `w · 1` or `w · 0` (tested against them).
+#[derive(Debug, Clone)]
+pub struct WeightedFigures {
+    ranked: Option<RankedScores>,
+    groups: Option<CalibrationGroups>,
+    /// Per row: 1 for an event, 0 otherwise; called positive at the threshold (1 or 0);
+    /// its log-loss term (the logarithm [`log_loss`] takes); its squared error.
+    event: Vec<f64>,
+    called: Option<Vec<f64>>,
+    log_term: Vec<f64>,
+    squared: Vec<f64>,
+}
+
+/// What [`WeightedFigures::of`] gives: each figure, or None where it is undefined (one
+/// class without weight, say) or the predictions could not be judged.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Weighted {
+    pub average_precision: Option<f64>,
+    pub log_loss: Option<f64>,
+    pub brier: Option<Brier>,
+    pub calibration: Option<Calibration>,
+    pub confusion: Option<Confusion>,
+}
+
+impl WeightedFigures {
+    /// None when the outcomes or probabilities cannot be judged (as [`log_loss`] would
+    /// refuse them); the confusion counts are left out when the threshold is not in (0, 1).
+    pub fn new(outcomes: &[u32], probabilities: &[f64], threshold: f64) -> Option<Self> {
+        const WHAT: &str = "the resampled figures";
+        check_lengths(WHAT, outcomes.len(), probabilities.len(), "predictions").ok()?;
+        check_codes01(WHAT, outcomes).ok()?;
+        check_probabilities(WHAT, probabilities).ok()?;
+        let pairs = || outcomes.iter().zip(probabilities);
+        Some(WeightedFigures {
+            ranked: RankedScores::new(outcomes, probabilities).ok(),
+            groups: CalibrationGroups::new(outcomes, probabilities).ok(),
+            event: outcomes.iter().map(|&y| f64::from(y)).collect(),
+            called: check_threshold(WHAT, threshold).ok().map(|_| {
+                probabilities
+                    .iter()
+                    .map(|&p| f64::from(u8::from(p >= threshold)))
+                    .collect()
+            }),
+            log_term: pairs()
+                .map(|(&y, &p)| {
+                    let p = p.clamp(LOG_LOSS_CLIP, 1.0 - LOG_LOSS_CLIP);
+                    if y == 1 {
+                        p.ln()
+                    } else {
+                        (1.0 - p).ln()
+                    }
+                })
+                .collect(),
+            squared: pairs().map(|(&y, &p)| (p - f64::from(y)).powi(2)).collect(),
+        })
+    }
+
+    /// The figures with row weights `w` (one per row, finite, not negative, not all zero:
+    /// a resample's draw counts).
+    pub fn of(&self, w: &[f64]) -> Weighted {
+        assert_eq!(w.len(), self.event.len(), "one weight a row");
+        let (mut loss, mut total, mut squared) = (0.0, 0.0, 0.0);
+        let (mut pos, mut neg) = (0.0, 0.0);
+        for (((&w, &e), &l), &q) in w
+            .iter()
+            .zip(&self.event)
+            .zip(&self.log_term)
+            .zip(&self.squared)
+        {
+            loss -= w * l;
+            total += w;
+            squared += w * q;
+            pos += w * e;
+            neg += w * (1.0 - e);
+        }
+        let both = pos > 0.0 && neg > 0.0;
+        let confusion = self.called.as_ref().map(|called| {
+            let [mut tp, mut fp, mut tn, mut fneg] = [0.0; 4];
+            for ((&w, &e), &c) in w.iter().zip(&self.event).zip(called) {
+                tp += w * (e * c);
+                fp += w * ((1.0 - e) * c);
+                tn += w * ((1.0 - e) * (1.0 - c));
+                fneg += w * (e * (1.0 - c));
+            }
+            Confusion {
+                true_positives: tp,
+                false_positives: fp,
+                true_negatives: tn,
+                false_negatives: fneg,
+            }
+        });
+        let calibration = self.groups.as_ref().filter(|_| both).and_then(|g| {
+            let mut gw = vec![0.0; g.probability.len()];
+            for (&w, &at) in w.iter().zip(&g.group_of) {
+                gw[at as usize] += w;
+            }
+            g.fit(&gw, pos, neg).ok()
+        });
+        let brier = both.then(|| {
+            let score = squared / (pos + neg);
+            let phi = pos / (pos + neg);
+            let reference = phi * (1.0 - phi);
+            Brier {
+                score,
+                reference,
+                scaled: 1.0 - score / reference,
+            }
+        });
+        Weighted {
+            average_precision: self
+                .ranked
+                .as_ref()
+                .and_then(|r| r.average_precision_of(Some(w), pos, neg)),
+            log_loss: Some(loss / total),
+            brier,
+            calibration,
+            confusion,
+        }
     }
 }
 
@@ -893,6 +1034,56 @@ mod tests {
             brier(&y2, &p2, None).unwrap().score,
             1e-12
         ));
+    }
+
+    #[test]
+    fn weighted_figures_are_each_figures_own_to_the_bit() {
+        // The fused pass against the functions it stands in for (our own check: the same
+        // sums in the same order must give the same bits), on predictions with ties, exact
+        // 0 and 1 (clipped logs), rows of weight 0 and repeats, one-class weightings
+        // (undefined figures) and a threshold outside (0, 1).
+        let n = 300;
+        let outcomes: Vec<u32> = (0..n)
+            .map(|i| u32::from((i * 7 + i / 5) % 3 == 0))
+            .collect();
+        let p: Vec<f64> = (0..n)
+            .map(|i| match i % 50 {
+                0 => 0.0,
+                1 => 1.0,
+                k => ((k * 37 + i) % 40) as f64 / 40.0,
+            })
+            .collect();
+        let mut weightings: Vec<Vec<f64>> = vec![vec![1.0; n]];
+        let mut state = 12345u64;
+        for _ in 0..20 {
+            let mut w = vec![0.0; n];
+            for _ in 0..n {
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                w[(state >> 33) as usize % n] += 1.0;
+            }
+            weightings.push(w);
+        }
+        // Events only, then non-events only.
+        weightings.push(outcomes.iter().map(|&y| f64::from(y)).collect());
+        weightings.push(outcomes.iter().map(|&y| f64::from(1 - y)).collect());
+        for threshold in [0.5, 0.3, 1.5] {
+            let fused = WeightedFigures::new(&outcomes, &p, threshold).unwrap();
+            let ranked = RankedScores::new(&outcomes, &p).unwrap();
+            let groups = CalibrationGroups::new(&outcomes, &p).unwrap();
+            for w in &weightings {
+                let f = fused.of(w);
+                let w = Some(&w[..]);
+                assert_eq!(f.average_precision, ranked.average_precision(w));
+                assert_eq!(f.log_loss, log_loss(&outcomes, &p, w).ok());
+                assert_eq!(f.brier, brier(&outcomes, &p, w).ok());
+                assert_eq!(f.calibration, groups.calibration(w).ok());
+                assert_eq!(f.confusion, confusion(&outcomes, &p, threshold, w).ok());
+            }
+        }
+        assert!(WeightedFigures::new(&outcomes, &vec![0.5; n - 1], 0.5).is_none());
+        assert!(WeightedFigures::new(&vec![2; n], &p, 0.5).is_none());
     }
 
     #[test]

@@ -246,10 +246,8 @@ pub fn judge(
             let p = event_probabilities(predictions, 2);
             let t = settings.threshold;
             let (c, p) = (&codes[..], &p[..]);
-            // Sorted once for every resample's average precision.
-            let ranked = binary::RankedScores::new(c, p).ok();
-            // Grouped once for every resample's calibration fits.
-            let groups = binary::CalibrationGroups::new(c, p).ok();
+            // Checked, sorted and grouped once for every resample.
+            let weighted = binary::WeightedFigures::new(c, p, t);
             bootstrapped(
                 &[
                     "average_precision",
@@ -263,19 +261,21 @@ pub fn judge(
                     "f1",
                 ],
                 Box::new(move |w, out| {
-                    let w = Some(w);
-                    out[0] = ranked.as_ref().and_then(|r| r.average_precision(w));
-                    out[1] = binary::log_loss(c, p, w).ok();
-                    if let Ok(b) = binary::brier(c, p, w) {
+                    let Some(f) = weighted.as_ref().map(|f| f.of(w)) else {
+                        return;
+                    };
+                    out[0] = f.average_precision;
+                    out[1] = f.log_loss;
+                    if let Some(b) = f.brier {
                         out[2] = Some(b.score);
                         out[3] = Some(b.scaled);
                     }
-                    if let Some(Ok(k)) = groups.as_ref().map(|g| g.calibration(w)) {
+                    if let Some(k) = f.calibration {
                         out[4] = Some(k.in_the_large);
                         out[5] = Some(k.slope);
                         out[6] = Some(k.observed_expected);
                     }
-                    if let Ok(k) = binary::confusion(c, p, t, w) {
+                    if let Some(k) = f.confusion {
                         out[7] = balanced(&k);
                         out[8] = f1(&k);
                     }
