@@ -291,14 +291,21 @@ pub fn brier(outcomes: &[u32], probabilities: &[f64], weights: Option<&[f64]>) -
     for (i, (&y, &p)) in outcomes.iter().zip(probabilities).enumerate() {
         sum += weight(weights, i) * (p - f64::from(y)).powi(2);
     }
-    let score = sum / (pos + neg);
-    let phi = pos / (pos + neg);
-    let reference = phi * (1.0 - phi);
-    Ok(Brier {
-        score,
-        reference,
-        scaled: 1.0 - score / reference,
-    })
+    Ok(Brier::of_sums(sum, pos, neg))
+}
+
+impl Brier {
+    /// From the weighted sum of squared errors and the events' and non-events' weights.
+    fn of_sums(sum: f64, pos: f64, neg: f64) -> Brier {
+        let score = sum / (pos + neg);
+        let phi = pos / (pos + neg);
+        let reference = phi * (1.0 - phi);
+        Brier {
+            score,
+            reference,
+            scaled: 1.0 - score / reference,
+        }
+    }
 }
 
 /// Probabilities are moved into [c, 1 − c] with this c before their logit is taken for the
@@ -556,16 +563,7 @@ impl WeightedFigures {
             }
             g.fit(&gw, pos, neg).ok()
         });
-        let brier = both.then(|| {
-            let score = squared / (pos + neg);
-            let phi = pos / (pos + neg);
-            let reference = phi * (1.0 - phi);
-            Brier {
-                score,
-                reference,
-                scaled: 1.0 - score / reference,
-            }
-        });
+        let brier = both.then(|| Brier::of_sums(squared, pos, neg));
         Weighted {
             average_precision: self
                 .ranked

@@ -117,6 +117,11 @@ pub fn balanced_accuracy(
     weights: Option<&[f64]>,
 ) -> Result<f64> {
     let m = confusion_matrix(outcomes, probabilities, classes, weights)?;
+    Ok(balanced_of(&m, classes))
+}
+
+/// Balanced accuracy from a confusion matrix ([`confusion_matrix`]).
+fn balanced_of(m: &[f64], classes: usize) -> f64 {
     let (mut sum, mut present) = (0.0, 0);
     for k in 0..classes {
         let row: f64 = m[k * classes..(k + 1) * classes].iter().sum();
@@ -125,7 +130,7 @@ pub fn balanced_accuracy(
             present += 1;
         }
     }
-    Ok(sum / present as f64)
+    sum / present as f64
 }
 
 /// Mean negative log of the probability given to the true class, clipped to
@@ -140,12 +145,70 @@ pub fn log_loss(
     let (mut sum, mut total) = (0.0, 0.0);
     for (i, row) in probabilities.chunks_exact(classes).enumerate() {
         let w = weight(weights, i);
-        sum -= w * row[outcomes[i] as usize]
-            .clamp(LOG_LOSS_CLIP, 1.0 - LOG_LOSS_CLIP)
-            .ln();
+        sum -= w * log_term(row, outcomes[i]);
         total += w;
     }
     Ok(sum / total)
+}
+
+/// The logarithm a row adds to the log loss: of the probability of its class, clipped.
+fn log_term(row: &[f64], outcome: u32) -> f64 {
+    row[outcome as usize]
+        .clamp(LOG_LOSS_CLIP, 1.0 - LOG_LOSS_CLIP)
+        .ln()
+}
+
+/// The figures a bootstrap resamples for several classes (balanced accuracy, one-vs-rest
+/// AUCs, log loss) of one set of predictions, for many row weightings: checked, sorted and
+/// each row's cell and log-loss term found once, then one pass a weighting (plus the AUCs'
+/// passes in score order). The same sums in the same order as [`balanced_accuracy`],
+/// [`RankedClasses::auc`] and [`log_loss`], so the same figures to the bit (tested).
+#[derive(Debug, Clone)]
+pub struct WeightedClasses {
+    classes: usize,
+    /// Per row: its cell of the confusion matrix, and its log-loss term.
+    cell: Vec<usize>,
+    log_term: Vec<f64>,
+    ranked: Option<RankedClasses>,
+}
+
+impl WeightedClasses {
+    /// None when the outcomes or probabilities cannot be judged (as [`log_loss`] would
+    /// refuse them).
+    pub fn new(outcomes: &[u32], probabilities: &[f64], classes: usize) -> Option<Self> {
+        check(
+            "the resampled figures",
+            outcomes,
+            probabilities,
+            classes,
+            None,
+        )
+        .ok()?;
+        let rows = || probabilities.chunks_exact(classes).zip(outcomes);
+        Some(WeightedClasses {
+            classes,
+            cell: rows()
+                .map(|(row, &y)| y as usize * classes + predicted(row))
+                .collect(),
+            log_term: rows().map(|(row, &y)| log_term(row, y)).collect(),
+            ranked: RankedClasses::new(outcomes, probabilities, classes).ok(),
+        })
+    }
+
+    /// Balanced accuracy, the one-vs-rest AUCs and the log loss with row weights `w` (one
+    /// per row, finite, not negative, not all zero: a resample's draw counts).
+    pub fn of(&self, w: &[f64]) -> (f64, Option<OneVsRest>, f64) {
+        assert_eq!(w.len(), self.cell.len(), "one weight a row");
+        let mut m = vec![0.0; self.classes * self.classes];
+        let (mut sum, mut total) = (0.0, 0.0);
+        for ((&w, &cell), &l) in w.iter().zip(&self.cell).zip(&self.log_term) {
+            m[cell] += w;
+            sum -= w * l;
+            total += w;
+        }
+        let auc = self.ranked.as_ref().and_then(|r| r.auc(Some(w)));
+        (balanced_of(&m, self.classes), auc, sum / total)
+    }
 }
 
 /// One-vs-rest AUCs.
@@ -249,6 +312,51 @@ mod tests {
         // Class 0: scores of its rows 0.7, 0.4 against 0.3, 0.1, 0.5, 0.2 → (4 + 3)/8.
         assert_eq!(o.per_class[0], Some(0.875));
         assert_eq!(o.per_class.len(), 3);
+    }
+
+    #[test]
+    fn weighted_classes_are_each_figures_own_to_the_bit() {
+        // The fused pass against the functions it stands in for (our own check: the same
+        // sums in the same order give the same bits), on four classes with ties, a class
+        // weighted out and a probability of exactly 0 (clipped log).
+        let (n, k) = (240, 4);
+        let outcomes: Vec<u32> = (0..n).map(|i| ((i * 5 + i / 7) % k) as u32).collect();
+        let probabilities: Vec<f64> = (0..n)
+            .flat_map(|i| {
+                let raw: Vec<f64> = (0..k).map(|c| ((i * 3 + c * 11) % 9) as f64).collect();
+                let total: f64 = raw.iter().sum();
+                raw.into_iter().map(move |r| r / total)
+            })
+            .collect();
+        let fused = WeightedClasses::new(&outcomes, &probabilities, k).unwrap();
+        let ranked = RankedClasses::new(&outcomes, &probabilities, k).unwrap();
+        let mut state = 99u64;
+        let mut weightings: Vec<Vec<f64>> = vec![vec![1.0; n]];
+        for _ in 0..20 {
+            let mut w = vec![0.0; n];
+            for _ in 0..n {
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                w[(state >> 33) as usize % n] += 1.0;
+            }
+            weightings.push(w);
+        }
+        weightings.push(
+            outcomes
+                .iter()
+                .map(|&y| f64::from(u8::from(y != 2)))
+                .collect(),
+        );
+        for w in &weightings {
+            let (balanced, auc, loss) = fused.of(w);
+            let w = Some(&w[..]);
+            let p = &probabilities;
+            assert_eq!(Some(balanced), balanced_accuracy(&outcomes, p, k, w).ok());
+            assert_eq!(auc, ranked.auc(w));
+            assert_eq!(Some(loss), log_loss(&outcomes, p, k, w).ok());
+        }
+        assert!(WeightedClasses::new(&outcomes, &probabilities[1..], k).is_none());
     }
 
     #[test]

@@ -331,15 +331,16 @@ pub fn judge(
         Outcome::Classes { codes, labels } => {
             let k = labels.len();
             let (c, pr) = (&codes[..], predictions);
-            // Each class sorted once for every resample's one-vs-rest AUCs.
-            let ranked = multiclass::RankedClasses::new(c, pr, k).ok();
+            // Checked, and each class sorted, once for every resample.
+            let weighted = multiclass::WeightedClasses::new(c, pr, k);
             bootstrapped(
                 &["balanced_accuracy", "macro_auc", "log_loss"],
                 Box::new(move |w, out| {
-                    let w = Some(w);
-                    out[0] = multiclass::balanced_accuracy(c, pr, k, w).ok();
-                    out[1] = ranked.as_ref().and_then(|r| r.auc(w)).map(|o| o.macro_mean);
-                    out[2] = multiclass::log_loss(c, pr, k, w).ok();
+                    if let Some((balanced, auc, loss)) = weighted.as_ref().map(|f| f.of(w)) {
+                        out[0] = Some(balanced);
+                        out[1] = auc.map(|o| o.macro_mean);
+                        out[2] = Some(loss);
+                    }
                 }),
                 rows,
                 settings,
