@@ -399,14 +399,35 @@ pub fn fit_logistic(
         let mut prob = vec![0.0; outputs];
         let mut xt = vec![1.0; block];
         let mut outer = vec![0.0; block * block];
-        for i in 0..n {
+        if outputs == 1 {
+            // Two classes: the loop below for one output, with the Hessian's upper triangle
+            // summed alone, a row at a time (it vectorises): each entry gets the same
+            // products, `v · (w·x_a·x_b)`, added in the same order, and the lower triangle,
+            // left 0, is mirrored from it below, so the same numbers to the bit.
+            for i in 0..n {
+                xt[1..].copy_from_slice(&x[i * d..(i + 1) * d]);
+                linear(theta, &xt[1..], &mut eta);
+                let p = sigmoid(eta[0]);
+                let wi = w(i);
+                let r = wi * (p - f64::from(outcomes[i]));
+                for (g, &xa) in g.iter_mut().zip(&xt) {
+                    *g += r * xa;
+                }
+                let v = p * (1.0 - p);
+                for a in 0..block {
+                    let wa = wi * xt[a];
+                    let row = &mut h[a * size + a..a * size + block];
+                    for (h, &xb) in row.iter_mut().zip(&xt[a..]) {
+                        *h += v * (wa * xb);
+                    }
+                }
+            }
+        }
+        // Several classes.
+        for i in (0..n).filter(|_| outputs > 1) {
             xt[1..].copy_from_slice(&x[i * d..(i + 1) * d]);
             linear(theta, &xt[1..], &mut eta);
-            if outputs == 1 {
-                prob[0] = sigmoid(eta[0]);
-            } else {
-                softmax(&eta, &mut prob);
-            }
+            softmax(&eta, &mut prob);
             let wi = w(i);
             for a in 0..block {
                 for b in a..block {
@@ -414,19 +435,13 @@ pub fn fit_logistic(
                 }
             }
             for k in 0..outputs {
-                let target = if outputs == 1 {
-                    f64::from(outcomes[i])
-                } else {
-                    f64::from(outcomes[i] as usize == k)
-                };
+                let target = f64::from(outcomes[i] as usize == k);
                 let r = wi * (prob[k] - target);
                 for a in 0..block {
                     g[k * block + a] += r * xt[a];
                 }
                 for l in k..outputs {
-                    let v = if outputs == 1 {
-                        prob[0] * (1.0 - prob[0])
-                    } else if k == l {
+                    let v = if k == l {
                         prob[k] * (1.0 - prob[k])
                     } else {
                         -prob[k] * prob[l]

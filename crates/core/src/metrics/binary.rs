@@ -435,7 +435,18 @@ impl CalibrationGroups {
                  every row the same probability cannot be judged by calibration slope",
             ));
         }
-        let (y, x) = (&self.event[..], &self.logit[..]);
+        // Groups without weight (a resample's rows not drawn) add exactly nothing to any sum
+        // of the fits (0 times a finite number is ±0), so they are left out: the same sums
+        // in the same order, a third fewer terms in each of a dozen passes.
+        let (mut y, mut x, mut kept) = (Vec::new(), Vec::new(), Vec::new());
+        for ((&e, &l), &w) in self.event.iter().zip(&self.logit).zip(w) {
+            if w > 0.0 {
+                y.push(e);
+                x.push(l);
+                kept.push(w);
+            }
+        }
+        let (y, x, w) = (&y[..], &x[..], &kept[..]);
         let in_the_large = newton_logistic(y, x, w, true)
             .map(|(a, _)| a)
             .ok_or_else(|| bad(WHAT, "calibration-in-the-large did not converge"))?;
@@ -598,11 +609,11 @@ fn logistic_sums(y: &[f64], x: &[f64], w: &[f64], a: f64, b: f64) -> LogisticSum
         let eta = a + b * xi;
         // e^{-|eta|} gives both the sigmoid and ln(1 + e^eta) without overflow.
         let e = (-eta.abs()).exp();
-        let (mu, softplus) = if eta > 0.0 {
-            (1.0 / (1.0 + e), eta + e.ln_1p())
-        } else {
-            (e / (1.0 + e), e.ln_1p())
-        };
+        // Above 0: 1/(1 + e) and eta + ln(1 + e); otherwise e/(1 + e) and 0 + ln(1 + e),
+        // the same numbers chosen without a branch (eta's sign is a coin toss row to row).
+        let up = eta > 0.0;
+        let mu = if up { 1.0 } else { e } / (1.0 + e);
+        let softplus = if up { eta } else { 0.0 } + e.ln_1p();
         s.loglik += wi * (y[i] * eta - softplus);
         let r = wi * (y[i] - mu);
         let v = wi * mu * (1.0 - mu);
