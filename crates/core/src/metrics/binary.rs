@@ -447,10 +447,12 @@ impl CalibrationGroups {
             }
         }
         let (y, x, w) = (&y[..], &x[..], &kept[..]);
-        let in_the_large = newton_logistic(y, x, w, true)
+        // Both fits start from a = 0, b = 1: the sums there taken once.
+        let start = logistic_sums(y, x, w, 0.0, 1.0);
+        let in_the_large = newton_logistic(y, x, w, start, true)
             .map(|(a, _)| a)
             .ok_or_else(|| bad(WHAT, "calibration-in-the-large did not converge"))?;
-        let (slope_intercept, slope) = newton_logistic(y, x, w, false).ok_or_else(|| {
+        let (slope_intercept, slope) = newton_logistic(y, x, w, start, false).ok_or_else(|| {
             bad(
                 WHAT,
                 "the logistic recalibration did not settle: the predictions separate events \
@@ -627,11 +629,18 @@ fn logistic_sums(y: &[f64], x: &[f64], w: &[f64], a: f64, b: f64) -> LogisticSum
 }
 
 /// Fits logit P(y = 1) = a + b·x with weights `w` by Newton's method with step halving; with
-/// `offset_only` b is fixed at 1 and only a is fitted. Returns (a, b), or None if it does not
-/// converge in 100 steps.
-fn newton_logistic(y: &[f64], x: &[f64], w: &[f64], offset_only: bool) -> Option<(f64, f64)> {
+/// `offset_only` b is fixed at 1 and only a is fitted. Starts from a = 0, b = 1, where the
+/// sums are `start` ([`logistic_sums`]). Returns (a, b), or None if it does not converge in
+/// 100 steps.
+fn newton_logistic(
+    y: &[f64],
+    x: &[f64],
+    w: &[f64],
+    start: LogisticSums,
+    offset_only: bool,
+) -> Option<(f64, f64)> {
     let (mut a, mut b) = (0.0, 1.0);
-    let mut at = logistic_sums(y, x, w, a, b);
+    let mut at = start;
     for _ in 0..100 {
         let ([g0, g1], [h00, h01, h11]) = (at.g, at.h);
         let (da, db) = if offset_only {
