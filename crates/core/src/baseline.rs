@@ -398,47 +398,28 @@ pub fn fit_logistic(
         let mut eta = vec![0.0; outputs];
         let mut prob = vec![0.0; outputs];
         let mut xt = vec![1.0; block];
-        let mut outer = vec![0.0; block * block];
-        if outputs == 1 {
-            // Two classes: the loop below for one output, with the Hessian's upper triangle
-            // summed alone, a row at a time (it vectorises): each entry gets the same
-            // products, `v · (w·x_a·x_b)`, added in the same order, and the lower triangle,
-            // left 0, is mirrored from it below, so the same numbers to the bit.
-            for i in 0..n {
-                xt[1..].copy_from_slice(&x[i * d..(i + 1) * d]);
-                linear(theta, &xt[1..], &mut eta);
-                let p = sigmoid(eta[0]);
-                let wi = w(i);
-                let r = wi * (p - f64::from(outcomes[i]));
-                for (g, &xa) in g.iter_mut().zip(&xt) {
-                    *g += r * xa;
-                }
-                let v = p * (1.0 - p);
-                for a in 0..block {
-                    let wa = wi * xt[a];
-                    let row = &mut h[a * size + a..a * size + block];
-                    for (h, &xb) in row.iter_mut().zip(&xt[a..]) {
-                        *h += v * (wa * xb);
-                    }
-                }
-            }
-        }
-        // Several classes.
-        for i in (0..n).filter(|_| outputs > 1) {
+        // Each row adds v_kl · (w·x_a)·x_b to entry (k, a; l, b) for outputs k ≤ l (v_kl
+        // from the row's probabilities). Entry (a, b) and entry (b, a) of one block get the
+        // same products, (w·x_min)·x_max, in the same order, so only b ≥ a is summed here (a
+        // row of the block at a time, which vectorises); the rest is copied from it below.
+        for i in 0..n {
             xt[1..].copy_from_slice(&x[i * d..(i + 1) * d]);
             linear(theta, &xt[1..], &mut eta);
-            softmax(&eta, &mut prob);
-            let wi = w(i);
-            for a in 0..block {
-                for b in a..block {
-                    outer[a * block + b] = wi * xt[a] * xt[b];
-                }
+            if outputs == 1 {
+                prob[0] = sigmoid(eta[0]);
+            } else {
+                softmax(&eta, &mut prob);
             }
+            let wi = w(i);
             for k in 0..outputs {
-                let target = f64::from(outcomes[i] as usize == k);
+                let target = if outputs == 1 {
+                    f64::from(outcomes[i])
+                } else {
+                    f64::from(outcomes[i] as usize == k)
+                };
                 let r = wi * (prob[k] - target);
-                for a in 0..block {
-                    g[k * block + a] += r * xt[a];
+                for (g, &xa) in g[k * block..(k + 1) * block].iter_mut().zip(&xt) {
+                    *g += r * xa;
                 }
                 for l in k..outputs {
                     let v = if k == l {
@@ -447,15 +428,22 @@ pub fn fit_logistic(
                         -prob[k] * prob[l]
                     };
                     for a in 0..block {
-                        let row = (k * block + a) * size + l * block;
-                        for b in 0..block {
-                            let o = if a <= b {
-                                outer[a * block + b]
-                            } else {
-                                outer[b * block + a]
-                            };
-                            h[row + b] += v * o;
+                        let wa = wi * xt[a];
+                        let at = (k * block + a) * size + l * block;
+                        for (h, &xb) in h[at + a..at + block].iter_mut().zip(&xt[a..]) {
+                            *h += v * (wa * xb);
                         }
+                    }
+                }
+            }
+        }
+        // Blocks off the diagonal: entry (a, b) below the block's own diagonal from (b, a).
+        for k in 0..outputs {
+            for l in k + 1..outputs {
+                for a in 0..block {
+                    for b in 0..a {
+                        h[(k * block + a) * size + l * block + b] =
+                            h[(k * block + b) * size + l * block + a];
                     }
                 }
             }
