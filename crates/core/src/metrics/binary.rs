@@ -475,10 +475,11 @@ impl CalibrationGroups {
 /// calibration, the confusion counts at a threshold) of one set of predictions, for many
 /// row weightings: the predictions are checked, sorted and grouped once, each row's log-loss
 /// and Brier terms computed once, and each weighting then costs one pass over the rows for
-/// every sum plus the average precision's pass in score order. Every sum is the one the
-/// functions of each figure add up, in the same (row) order, so the figures are theirs to
-/// the bit: a row of weight 0 adds `0 · term = +0`, which changes no sum of terms ≥ 0, and
-/// the branch-free cell and class sums add `w · 1` or `w · 0` (tested against them).
+/// every sum plus the average precision's pass in score order. Every sum runs over the rows
+/// in the same (row) order as in each figure's own function, so the figures are theirs to
+/// the bit (tested against them): where those add a row's weight to its class or cell
+/// alone, this pass adds `w · 1` there and `w · 0 = +0` to the others, which changes no
+/// sum (weights are not negative).
 #[derive(Debug, Clone)]
 pub struct WeightedFigures {
     ranked: Option<RankedScores>,
