@@ -1072,16 +1072,11 @@ mod tests {
                 k => ((k * 37 + i) % 40) as f64 / 40.0,
             })
             .collect();
+        // Every row once, then 20 of the bootstrap's own resamples.
         let mut weightings: Vec<Vec<f64>> = vec![vec![1.0; n]];
-        let mut state = 12345u64;
-        for _ in 0..20 {
+        for b in 0..20 {
             let mut w = vec![0.0; n];
-            for _ in 0..n {
-                state = state
-                    .wrapping_mul(6364136223846793005)
-                    .wrapping_add(1442695040888963407);
-                w[(state >> 33) as usize % n] += 1.0;
-            }
+            crate::metrics::intervals::draw_resample(7, b, &mut w);
             weightings.push(w);
         }
         // Events only, then non-events only.

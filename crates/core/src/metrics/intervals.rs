@@ -87,7 +87,7 @@ where
 const RESAMPLES_PER_JOB: usize = 25;
 
 /// Fills `counts` with how often each row is drawn in resample `b` (see [`bootstrap`]).
-fn draw_resample(seed: u64, b: usize, counts: &mut [f64]) {
+pub(crate) fn draw_resample(seed: u64, b: usize, counts: &mut [f64]) {
     counts.iter_mut().for_each(|c| *c = 0.0);
     let rows = counts.len();
     let mut rng = Quick::new(seed, Purpose::MetricResample, b as u64);

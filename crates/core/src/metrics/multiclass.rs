@@ -330,16 +330,11 @@ mod tests {
             .collect();
         let fused = WeightedClasses::new(&outcomes, &probabilities, k).unwrap();
         let ranked = RankedClasses::new(&outcomes, &probabilities, k).unwrap();
-        let mut state = 99u64;
+        // Every row once, then 20 of the bootstrap's own resamples.
         let mut weightings: Vec<Vec<f64>> = vec![vec![1.0; n]];
-        for _ in 0..20 {
+        for b in 0..20 {
             let mut w = vec![0.0; n];
-            for _ in 0..n {
-                state = state
-                    .wrapping_mul(6364136223846793005)
-                    .wrapping_add(1442695040888963407);
-                w[(state >> 33) as usize % n] += 1.0;
-            }
+            crate::metrics::intervals::draw_resample(99, b, &mut w);
             weightings.push(w);
         }
         weightings.push(
