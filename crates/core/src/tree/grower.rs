@@ -75,6 +75,9 @@ struct Split {
     missing_left: bool,
     /// The children's values (held within the node's bounds), for monotone bounds.
     values: (f64, f64),
+    /// The left child's packed counts ([`pack_counts`]) when a scan of packed counts found
+    /// the split, so the children's totals need no pass over their rows.
+    left_counts: Option<u64>,
 }
 
 /// Extras of a grow call that most callers leave empty.
@@ -94,6 +97,8 @@ struct Candidate {
     depth: usize,
     split: Split,
     bounds: (f64, f64),
+    /// The node's packed counts ([`pack_counts`]), when it has them.
+    counts: Option<u64>,
     /// The node's dense histograms of every predictor, kept when the node is large enough
     /// that its larger child's histograms are cheaper by subtraction.
     hist: Option<Vec<f64>>,
@@ -323,7 +328,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
     fn run(mut self) -> Grown {
         let mut frontier: Vec<Candidate> = Vec::new();
         let n = self.work.len();
-        if let Some(c) = self.evaluate(0, 0, n, 0, FREE, None) {
+        if let Some(c) = self.evaluate(0, 0, n, 0, FREE, None, None) {
             frontier.push(c);
         }
         let mut leaves = 1usize;
@@ -392,8 +397,13 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     self.pool.push(parent);
                 }
             }
-            let l = self.evaluate(left, c.start, k, c.depth + 1, lb, lh);
-            let r = self.evaluate(right, k, c.end, c.depth + 1, rb, rh);
+            // Packed counts of the children from the scan that chose the split, if it had them.
+            let (lc, rc) = match (c.counts, c.split.left_counts) {
+                (Some(t), Some(l)) => (Some(l), Some(t - l)),
+                _ => (None, None),
+            };
+            let l = self.evaluate(left, c.start, k, c.depth + 1, lb, lh, lc);
+            let r = self.evaluate(right, k, c.end, c.depth + 1, rb, rh, rc);
             // Right pushed first so depth-first growth takes the left subtree first.
             frontier.extend(r);
             frontier.extend(l);
@@ -406,7 +416,9 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
     }
 
     /// Fills node `id`'s values from its rows `work[start..end]` and finds its best split
-    /// (`None`: the node stays a leaf). `bounds` hold the node's value (monotone constraints).
+    /// (`None`: the node stays a leaf). `bounds` hold the node's value (monotone constraints);
+    /// `counts`, its rows' packed counts summed, when the parent's scan knew them.
+    #[allow(clippy::too_many_arguments)]
     fn evaluate(
         &mut self,
         id: usize,
@@ -415,6 +427,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         depth: usize,
         bounds: (f64, f64),
         mut dense: Option<Vec<f64>>,
+        counts: Option<u64>,
     ) -> Option<Candidate> {
         let settings = self.settings;
         let criterion = settings.criterion;
@@ -434,12 +447,17 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             Criterion::Gradient { .. } if s[1] > 0.0 => Some(s[0] / s[1]),
             _ => None,
         };
+        let mut packed_sum = None;
         if !self.packed.is_empty() {
-            // Whole counts: summed packed, the same numbers exactly (see `pack_counts`).
-            let sum: u64 = self.work[start..end]
-                .iter()
-                .map(|&r| self.packed[r as usize])
-                .sum();
+            // Whole counts: summed packed, the same numbers exactly (see `pack_counts`), or
+            // known from the parent's scan (integer sums: the same in any order).
+            let sum: u64 = counts.unwrap_or_else(|| {
+                self.work[start..end]
+                    .iter()
+                    .map(|&r| self.packed[r as usize])
+                    .sum()
+            });
+            packed_sum = Some(sum);
             let [t0, t1, tc] = unpack_counts(sum);
             self.totals.copy_from_slice(&[t0, t1]);
             n = tc as usize;
@@ -576,6 +594,16 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                         .zip(self.packed_hist.chunks_exact_mut(256))
                         .zip(bits)
                     {
+                        if unbeatable(&best, parent_cost, criterion) {
+                            // Nothing can beat it: the slots are only emptied.
+                            for (w, mut word) in bits.into_iter().enumerate() {
+                                while word != 0 {
+                                    slots[w * 64 + word.trailing_zeros() as usize] = 0;
+                                    word &= word - 1;
+                                }
+                            }
+                            continue;
+                        }
                         let sums = &mut self.left_sums;
                         let at = (j, parent_cost);
                         scan_packed::<B>(slots, bits, at, settings, spill, sums, &mut best);
@@ -769,6 +797,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             depth,
             split: keep,
             bounds,
+            counts: packed_sum,
             hist: dense,
         })
     }
@@ -967,6 +996,15 @@ fn pack_counts(pairs: &[[f64; 3]], criterion: Criterion) -> Vec<u64> {
         true => packed,
         false => Vec::new(),
     }
+}
+
+/// Whether `best` splits a node of cost `parent_cost` into two pure children under Gini, so
+/// that no later predictor can beat it: a split is kept only when its gain is strictly larger,
+/// and with whole counts no Gini gain exceeds the node's cost (each side's cost
+/// `w − (a² + b²)/w` rounds to 0 or more: the sum of squares is exact and at most `w²`, and a
+/// rounded quotient never passes a representable bound), while pure children cost exactly 0.
+fn unbeatable(best: &Option<Split>, parent_cost: f64, criterion: Criterion) -> bool {
+    matches!(criterion, Criterion::Gini) && best.as_ref().is_some_and(|b| b.gain == parent_cost)
 }
 
 /// Puts the rows of `work` whose cell goes left first and the others after, both in their
@@ -1497,7 +1535,11 @@ fn scan_packed<B: Bin>(
         &packed[..used],
         [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
     );
-    present_best(sums, used, feature, parent_cost, settings, best);
+    if let Some(at) = present_best(sums, used, feature, parent_cost, settings, best) {
+        if let Some(split) = best {
+            split.left_counts = Some(sums.packed[at]);
+        }
+    }
 }
 
 twice_for_avx2! {
@@ -1593,6 +1635,7 @@ fn scan_filled_pairs<B: Bin>(
             categories: BinSet::default(),
             missing_left,
             values: (0.0, 0.0),
+            left_counts: None,
         });
     }
 }
@@ -1665,7 +1708,8 @@ fn scan_filled_present<B: Bin>(
 
 /// The best split of a number predictor without missing values from its running left sums
 /// after each of the `used` bins in `sums` (the last of them the node's totals), if it beats
-/// `best`: every split point's gain, then the first of the largest.
+/// `best`: every split point's gain, then the first of the largest. Returns where the split
+/// falls among the `used` bins when it beat `best`.
 #[allow(clippy::neg_cmp_op_on_partial_ord)]
 fn present_best(
     sums: &mut LeftSums,
@@ -1674,9 +1718,9 @@ fn present_best(
     parent_cost: f64,
     settings: &GrowSettings,
     best: &mut Option<Split>,
-) {
+) -> Option<usize> {
     if used == 0 {
-        return;
+        return None;
     }
     let LeftSums {
         bins,
@@ -1693,7 +1737,7 @@ fn present_best(
     point_gains(&mut gain[..used], all, left, t, parent_cost, settings);
     let (at, g) = first_best(&gain[..used]);
     if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
-        return;
+        return None;
     }
     *best = Some(Split {
         gain: g,
@@ -1704,7 +1748,9 @@ fn present_best(
         categories: BinSet::default(),
         missing_left: false,
         values: (0.0, 0.0),
+        left_counts: None,
     });
+    Some(at)
 }
 
 /// Scratch of [`scan_dense_numbers`], one entry per bin (flat arrays, so the gain loop
@@ -1791,6 +1837,7 @@ fn scan_dense_numbers(
             categories: BinSet::default(),
             missing_left,
             values: (0.0, 0.0),
+            left_counts: None,
         });
     }
 }
@@ -1948,6 +1995,7 @@ fn split_at<B: Bin>(
         categories,
         missing_left,
         values,
+        left_counts: None,
     }
 }
 
