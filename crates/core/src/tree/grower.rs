@@ -606,7 +606,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                         }
                         let sums = &mut self.left_sums;
                         let at = (j, parent_cost);
-                        scan_packed::<B>(slots, bits, at, settings, spill, sums, &mut best);
+                        scan_packed(slots, bits, at, settings, spill, sums, &mut best);
                     }
                 }
             }
@@ -1485,11 +1485,27 @@ fn used_bins_plain(slots: &[u64; 256]) -> [u64; 4] {
     })
 }
 
-/// [`scan_filled_pairs`] from packed counts (`slots`, see [`pack_counts`]; all zero again
-/// on return): the same running sums, unpacked per bin, so the same split. With missing
-/// values in the node the used slots are unpacked into `spill` (all zero on entry and on
-/// return) for [`scan_filled_pairs`].
-fn scan_packed<B: Bin>(
+twice_for_avx2! {
+    /// [`scan_filled_pairs`] from packed counts (`slots`, see [`pack_counts`]; all zero again
+    /// on return): the same running sums, unpacked per bin, so the same split. With missing
+    /// values in the node the used slots are unpacked into `spill` (all zero on entry and on
+    /// return) for [`scan_filled_pairs`]. Small cells only (missing values in slot 255).
+    /// Compiled for AVX2 too as a whole, with the unpacking, the gains and the first best
+    /// inlined: one choice of build a scan, not three.
+    fn scan_packed(
+        slots: &mut [u64],
+        bits: [u64; 4],
+        at: (usize, f64),
+        settings: &GrowSettings,
+        spill: &mut [[f64; 3]],
+        sums: &mut LeftSums,
+        best: &mut Option<Split>,
+    ) = scan_packed_plain
+}
+
+/// [`scan_packed`]'s body, inlined into each of its builds.
+#[inline(always)]
+fn scan_packed_plain(
     slots: &mut [u64],
     mut bits: [u64; 4],
     (feature, parent_cost): (usize, f64),
@@ -1498,7 +1514,7 @@ fn scan_packed<B: Bin>(
     sums: &mut LeftSums,
     best: &mut Option<Split>,
 ) {
-    let m = B::MISSING.index() & 255;
+    let m = u8::MISSING.index();
     if slots[m] != 0 {
         bits[m >> 6] |= 1 << (m & 63);
         for (w, mut word) in bits.into_iter().enumerate() {
@@ -1508,7 +1524,7 @@ fn scan_packed<B: Bin>(
                 word &= word - 1;
             }
         }
-        scan_filled_pairs::<B>(spill, bits, feature, parent_cost, settings, sums, best);
+        scan_filled_pairs::<u8>(spill, bits, feature, parent_cost, settings, sums, best);
         return;
     }
     bits[m >> 6] &= !(1 << (m & 63));
@@ -1535,22 +1551,19 @@ fn scan_packed<B: Bin>(
         &packed[..used],
         [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
     );
-    if let Some(at) = present_best(sums, used, feature, parent_cost, settings, best) {
+    let at = (feature, parent_cost);
+    if let Some(at) = present_best_with::<true>(sums, used, at, settings, best) {
         if let Some(split) = best {
             split.left_counts = Some(sums.packed[at]);
         }
     }
 }
 
-twice_for_avx2! {
-    /// Every packed count of `packed` unpacked ([`unpack_counts`]) into `out` (`s0`, `s1`,
-    /// rows), in a loop apart, so it is compiled for four at a time on AVX2.
-    fn unpack_all(packed: &[u64], out: [&mut [f64]; 3]) = unpack_all_plain
-}
-
-/// [`unpack_all`]'s loop, inlined into each of its builds.
+/// Every packed count of `packed` unpacked ([`unpack_counts`]) into `out` (`s0`, `s1`,
+/// rows), in a loop apart, so it is compiled for four at a time on AVX2 (inlined into
+/// [`scan_packed`]'s builds).
 #[inline(always)]
-fn unpack_all_plain(packed: &[u64], [s0, s1, rows]: [&mut [f64]; 3]) {
+fn unpack_all(packed: &[u64], [s0, s1, rows]: [&mut [f64]; 3]) {
     for (((&p, l0), l1), lc) in packed.iter().zip(s0).zip(s1).zip(rows) {
         // Both halves are below 2³¹ (see `pack_counts`): converted as i32, which vectorises.
         let (k1, k) = (f64::from((p >> 32) as i32), f64::from(p as u32 as i32));
@@ -1710,12 +1723,26 @@ fn scan_filled_present<B: Bin>(
 /// after each of the `used` bins in `sums` (the last of them the node's totals), if it beats
 /// `best`: every split point's gain, then the first of the largest. Returns where the split
 /// falls among the `used` bins when it beat `best`.
-#[allow(clippy::neg_cmp_op_on_partial_ord)]
 fn present_best(
     sums: &mut LeftSums,
     used: usize,
     feature: usize,
     parent_cost: f64,
+    settings: &GrowSettings,
+    best: &mut Option<Split>,
+) -> Option<usize> {
+    let at = (feature, parent_cost);
+    present_best_with::<false>(sums, used, at, settings, best)
+}
+
+/// [`present_best`] with its two loops inlined (`INLINE`: compiled as part of the caller's
+/// build) or each choosing its build at run time.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn present_best_with<const INLINE: bool>(
+    sums: &mut LeftSums,
+    used: usize,
+    (feature, parent_cost): (usize, f64),
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) -> Option<usize> {
@@ -1734,8 +1761,13 @@ fn present_best(
     let left = [&s0[..used], &s1[..used], &rows[..used]];
     // Every bin used holds rows: each is a split point.
     let all = std::iter::repeat(&1.0);
-    point_gains(&mut gain[..used], all, left, t, parent_cost, settings);
-    let (at, g) = first_best(&gain[..used]);
+    let (at, g) = if INLINE {
+        point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
+        first_best_plain(&gain[..used])
+    } else {
+        point_gains(&mut gain[..used], all, left, t, parent_cost, settings);
+        first_best(&gain[..used])
+    };
     if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
         return None;
     }
@@ -2325,6 +2357,61 @@ mod tests {
             }
         }
         assert!(finite > 1000, "{finite} points with a real gain");
+    }
+
+    #[test]
+    fn a_packed_scan_finds_the_same_split_whichever_build_runs_it() {
+        // `scan_packed` (AVX2 on a CPU that has it) against its plain body, on random whole
+        // counts in random bins, with and without missing values and a least leaf size (our
+        // own consistency rule, no source needed). Both leave every slot empty.
+        let mut state = 0x2545_F491_4F6C_DD1Du64;
+        let mut next = |m: u64| {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state % m
+        };
+        let mut splits = 0;
+        for round in 0..200 {
+            let mut slots = vec![0u64; 256];
+            let mut bits = [0u64; 4];
+            let bins = 1 + next(40) as usize;
+            for _ in 0..bins {
+                let b = match round % 3 == 0 && next(4) == 0 {
+                    true => 255,
+                    false => next(255) as usize,
+                };
+                let rows = 1 + next(6);
+                slots[b] += (next(rows + 1) << 32) | rows;
+                bits[b >> 6] |= 1 << (b & 63);
+            }
+            let settings = GrowSettings {
+                min_rows_leaf: 1 + round % 3,
+                ..GrowSettings::default()
+            };
+            let mut results = Vec::new();
+            for plain in [false, true] {
+                let (mut slots, mut spill) = (slots.clone(), vec![[0.0; 3]; 256]);
+                let (mut sums, mut best) = (LeftSums::new(), None);
+                let (at, sums) = ((3, 40.0), &mut sums);
+                match plain {
+                    false => {
+                        scan_packed(&mut slots, bits, at, &settings, &mut spill, sums, &mut best)
+                    }
+                    true => scan_packed_plain(
+                        &mut slots, bits, at, &settings, &mut spill, sums, &mut best,
+                    ),
+                }
+                assert!(slots.iter().all(|&s| s == 0) && spill.iter().all(|s| *s == [0.0; 3]));
+                results.push(best.map(|b| {
+                    let place = (b.threshold_bin, b.next_bin, b.missing_left);
+                    (b.gain.to_bits(), place, b.left_counts)
+                }));
+            }
+            splits += results[0].is_some() as usize;
+            assert_eq!(results[0], results[1], "round {round}");
+        }
+        assert!(splits > 100, "{splits} rounds found a split");
     }
 
     #[test]
