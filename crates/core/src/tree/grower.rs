@@ -870,7 +870,13 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             self.scratch.resize(len, 0);
         }
         let (work, scratch) = (&mut self.work[c.start..c.end], &mut self.scratch[..len]);
-        let left = if B::MISSING.index() < 256 && split.numeric {
+        let gaps = self.binned.columns[split.feature].missing > 0;
+        let left = if B::MISSING.index() < 256 && split.numeric && !gaps {
+            // Small cells on a number split of a column without missing values: one
+            // comparison.
+            let last = split.threshold_bin;
+            partition(work, scratch, column, |b: B| b.index() <= last)
+        } else if B::MISSING.index() < 256 && split.numeric {
             // Small cells on a number split: the missing bin (255) is above every threshold
             // bin, so one comparison and the missing side, without a branch.
             let (last, missing) = (split.threshold_bin, split.missing_left);
@@ -892,7 +898,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         // Missing values the node's rows never had (here or anywhere in training) follow the
         // side with more rows, as scikit-learn's trees send them (from memory), rather than
         // always the right.
-        let missing_seen = self.binned.columns[split.feature].missing > 0
+        let missing_seen = gaps
             && self.work[c.start..c.end]
                 .iter()
                 .any(|&r| column[r as usize] == B::MISSING);
