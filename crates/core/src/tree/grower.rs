@@ -252,6 +252,10 @@ struct Grower<'a, 'c, B: Bin> {
     /// those of its rows, which stay in row order, and only the row numbers move when a node
     /// is split (empty otherwise).
     pairs: Vec<[f64; 3]>,
+    /// With another number of statistics (several classes): each row's number of draws, by
+    /// row (0: not drawn), by which a node multiplies its statistics (see
+    /// [`collapse_counts`]; empty with two statistics).
+    counts: Vec<f64>,
     /// Two classes whose rows all count whole (class weights of 1): each row's class-1 count
     /// and row count packed as `(s1 << 32) | rows` by row, so one integer addition sums both
     /// ([`pack_counts`]; empty otherwise).
@@ -279,9 +283,15 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         monotone: &'a [i8],
     ) -> Self {
         let outputs = settings.criterion.outputs(width);
-        let (work, pairs) = match width {
-            2 => collapse_repeats(rows, stats, binned.rows),
-            _ => (rows.to_vec(), Vec::new()),
+        let (work, pairs, counts) = match width {
+            2 => {
+                let (work, pairs) = collapse_repeats(rows, stats, binned.rows);
+                (work, pairs, Vec::new())
+            }
+            _ => {
+                let (work, counts) = collapse_counts(rows, binned.rows);
+                (work, Vec::new(), counts)
+            }
         };
         Grower {
             binned,
@@ -312,6 +322,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .collect()
             }),
             packed: pack_counts(&pairs, settings.criterion),
+            counts,
             packed_hist: Vec::new(),
             pairs,
             points: Points::default(),
@@ -440,7 +451,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         self.totals.iter_mut().for_each(|t| *t = 0.0);
         let (mut y_min, mut y_max) = (f64::INFINITY, f64::NEG_INFINITY);
         // Rows in the node, repeats counted.
-        let mut n = end - start;
+        let n;
         // The value a row alone would give a node (mean, or Newton step direction).
         let alone = |s: &[f64]| match criterion {
             Criterion::SquaredError if s[0] > 0.0 => Some(s[1] / s[0]),
@@ -486,16 +497,21 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             self.totals.copy_from_slice(&[t0, t1]);
             n = tc as usize;
         } else {
+            // Each row's statistics times its draws (whole counts: the sums of the repeats).
+            let mut rows = 0.0;
             for &r in &self.work[start..end] {
                 let s = &stats[r as usize * width..(r as usize + 1) * width];
+                let c = self.counts[r as usize];
                 for (t, v) in self.totals.iter_mut().zip(s) {
-                    *t += v;
+                    *t += c * v;
                 }
+                rows += c;
                 if let Some(a) = alone(s) {
                     y_min = y_min.min(a);
                     y_max = y_max.max(a);
                 }
             }
+            n = rows as usize;
         }
         let weight = criterion.weight(&self.totals);
         self.tree.nodes[id].value = self.tree.values.len() as u32;
@@ -711,7 +727,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 column,
                 &self.work[start..end],
                 (width == 2).then_some(&self.pairs[..]),
-                stats,
+                (stats, &self.counts[..]),
                 width,
             );
             self.order.clear();
@@ -841,11 +857,12 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             for &r in rows {
                 let slot = column[r as usize].index();
                 let s = &stats[r as usize * width..(r as usize + 1) * width];
+                let c = self.counts[r as usize];
                 let at = &mut hj[slot * stride..(slot + 1) * stride];
                 for (a, v) in at.iter_mut().zip(s) {
-                    *a += v;
+                    *a += c * v;
                 }
-                at[width] += 1.0;
+                at[width] += c;
             }
         }
         h
@@ -953,27 +970,37 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
 /// weights of 1 say, every sum is exact either way, so the trees are those grown on the
 /// repeats; with fractions, sums may round differently.)
 fn collapse_repeats(rows: &[u32], stats: &[f64], n: usize) -> (Vec<u32>, Vec<[f64; 3]>) {
-    let mut pairs = vec![[0.0; 3]; n];
-    let mut repeats = false;
-    for &r in rows {
-        let c = &mut pairs[r as usize][2];
-        repeats |= *c > 0.0;
-        *c += 1.0;
-    }
-    for (r, p) in pairs.iter_mut().enumerate().filter(|(_, p)| p[2] > 0.0) {
-        let c = p[2];
-        *p = match c {
+    let (kept, counts) = collapse_counts(rows, n);
+    let pairs = counts
+        .iter()
+        .enumerate()
+        .map(|(r, &c)| match c {
+            0.0 => [0.0; 3],
             1.0 => [stats[2 * r], stats[2 * r + 1], 1.0],
             _ => [c * stats[2 * r], c * stats[2 * r + 1], c],
-        };
+        })
+        .collect();
+    (kept, pairs)
+}
+
+/// The rows to grow on, each once, and every row's number of draws by row (0: not drawn):
+/// [`collapse_repeats`]' rule for any number of statistics, whose nodes multiply a row's
+/// statistics by its draws as they sum them (a draw of 1 leaves them exact).
+fn collapse_counts(rows: &[u32], n: usize) -> (Vec<u32>, Vec<f64>) {
+    let mut counts = vec![0.0; n];
+    let mut repeats = false;
+    for &r in rows {
+        let c = &mut counts[r as usize];
+        repeats |= *c > 0.0;
+        *c += 1.0;
     }
     let kept = match repeats {
         false => rows.to_vec(),
         true => (0..n as u32)
-            .filter(|&r| pairs[r as usize][2] > 0.0)
+            .filter(|&r| counts[r as usize] > 0.0)
             .collect(),
     };
-    (kept, pairs)
+    (kept, counts)
 }
 
 /// Each row's class-1 count and row count packed as `(s1 << 32) | rows`, by row, when the
@@ -1081,7 +1108,7 @@ fn fill_histogram<B: Bin>(
     column: &[B],
     rows: &[u32],
     pairs: Option<&[[f64; 3]]>,
-    stats: &[f64],
+    (stats, counts): (&[f64], &[f64]),
     width: usize,
 ) {
     touched.clear();
@@ -1136,6 +1163,7 @@ fn fill_histogram<B: Bin>(
         );
         return;
     }
+    // Each row's statistics times its draws ([`collapse_counts`]).
     for &r in rows {
         let b = column[r as usize];
         let h = &mut hist[b.index() * stride..(b.index() + 1) * stride];
@@ -1143,10 +1171,11 @@ fn fill_histogram<B: Bin>(
             touched.push(b);
         }
         let s = &stats[r as usize * width..(r as usize + 1) * width];
+        let c = counts[r as usize];
         for (a, v) in h.iter_mut().zip(s) {
-            *a += v;
+            *a += c * v;
         }
-        h[width] += 1.0;
+        h[width] += c;
     }
 }
 
@@ -2418,6 +2447,67 @@ mod tests {
             assert_eq!(results[0], results[1], "round {round}");
         }
         assert!(splits > 100, "{splits} rounds found a split");
+    }
+
+    #[test]
+    fn three_classes_counted_once_grow_the_tree_their_repeats_grow() {
+        // Three classes (no pairs, no packing): a bootstrap with repeats, each row kept once
+        // and its statistics multiplied by its draws as nodes sum them, against the same
+        // rows given once with the statistics multiplied beforehand. Counts are whole, so the
+        // trees must be equal to the bit: a forest's (two of three predictors a node) and a
+        // bagged tree's (every predictor, so large nodes sum dense histograms). Our own
+        // consistency rule, no source needed.
+        let text = many_values(3000);
+        let mut lines = text.lines();
+        let mut three = format!("{}\n", lines.next().unwrap());
+        for (i, line) in lines.enumerate() {
+            let (y, rest) = line.split_once(',').unwrap();
+            let y = match (i % 7, y) {
+                (0, _) => "r",
+                (_, "0") => "p",
+                _ => "q",
+            };
+            three += &format!("{y},{rest}\n");
+        }
+        let design = design_from_csv(&three, "y", &["a", "b", "c"]);
+        let (stats, k) = design.row_statistics(false);
+        assert_eq!(k, 3);
+        let m = bin_design(&design, BinSettings::default()).unwrap();
+        let mut state = 0x2545_F491_4F6C_DD1Du64;
+        let mut next = |n: u64| {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state % n
+        };
+        let rows: Vec<u32> = (0..m.rows).map(|_| next(m.rows as u64) as u32).collect();
+        let picks: Vec<u64> = (0..100_000).map(|_| next(3)).collect();
+        let (kept, counts) = collapse_counts(&rows, m.rows);
+        assert!(kept.len() < rows.len() && counts.iter().any(|&c| c > 1.0));
+        let multiplied: Vec<f64> = (0..m.rows * k).map(|i| counts[i / k] * stats[i]).collect();
+        for forest in [true, false] {
+            let grow_one = |rows: &[u32], stats: &[f64]| {
+                let mut at = picks.iter();
+                let mut choose = |c: &mut Vec<usize>| {
+                    c.remove(*at.next().unwrap() as usize);
+                };
+                let choose: Option<PredictorChooser<'_>> = forest.then_some(&mut choose);
+                let settings = GrowSettings::default();
+                grow_rows(
+                    &m,
+                    stats,
+                    k,
+                    rows,
+                    &settings,
+                    choose,
+                    Constraints::default(),
+                )
+            };
+            let (a, b) = (grow_one(&rows, &stats), grow_one(&kept, &multiplied));
+            assert!(a.tree.leaves() > 100, "{} leaves", a.tree.leaves());
+            assert_eq!(a.tree, b.tree, "forest {forest}");
+            assert_eq!((a.rows, a.spans), (b.rows, b.spans));
+        }
     }
 
     #[test]
