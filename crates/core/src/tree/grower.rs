@@ -582,7 +582,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     self.packed_hist.resize(BATCH * 256, 0);
                 }
                 let packed = &self.packed[..];
-                let n = self.binned.rows;
+                let (node_rows, n) = (n, self.binned.rows);
                 let column = |j: usize| &self.cells[j * n..(j + 1) * n];
                 for group in candidates.chunks(BATCH) {
                     let mut parts = self.packed_hist.chunks_exact_mut(256);
@@ -610,7 +610,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                         .zip(self.packed_hist.chunks_exact_mut(256))
                         .zip(bits)
                     {
-                        if unbeatable(&best, parent_cost, criterion) {
+                        if unbeatable(&best, parent_cost, criterion, node_rows) {
                             // Nothing can beat it: the slots are only emptied.
                             for (w, mut word) in bits.into_iter().enumerate() {
                                 while word != 0 {
@@ -1031,13 +1031,17 @@ fn pack_counts(pairs: &[[f64; 3]], criterion: Criterion) -> Vec<u64> {
     }
 }
 
-/// Whether `best` splits a node of cost `parent_cost` into two pure children under Gini, so
-/// that no later predictor can beat it: a split is kept only when its gain is strictly larger,
-/// and with whole counts no Gini gain exceeds the node's cost (each side's cost
-/// `w − (a² + b²)/w` rounds to 0 or more: the sum of squares is exact and at most `w²`, and a
-/// rounded quotient never passes a representable bound), while pure children cost exactly 0.
-fn unbeatable(best: &Option<Split>, parent_cost: f64, criterion: Criterion) -> bool {
-    matches!(criterion, Criterion::Gini) && best.as_ref().is_some_and(|b| b.gain == parent_cost)
+/// Whether `best` already gains all of a node's cost `parent_cost` under Gini (it leaves two
+/// pure children, whose costs are exactly 0), so that no later predictor can beat it: a split
+/// is kept only when its gain is strictly larger, and with whole counts below 2²⁶ (`rows`,
+/// the node's) no Gini gain exceeds the node's cost. Each side's cost `w − (a² + b²)/w`
+/// rounds to 0 or more: the sum of squares is then exact and at most `w²`, and a rounded
+/// quotient never passes a representable bound. (Above 2²⁶ a square may round up; such a
+/// node is scanned in full.)
+fn unbeatable(best: &Option<Split>, parent_cost: f64, criterion: Criterion, rows: usize) -> bool {
+    matches!(criterion, Criterion::Gini)
+        && rows < 1 << 26
+        && best.as_ref().is_some_and(|b| b.gain == parent_cost)
 }
 
 /// Puts the rows of `work` whose cell goes left first and the others after, both in their
