@@ -2109,19 +2109,13 @@ mod tests {
     fn a_fully_grown_tree_fits_distinct_rows_perfectly() {
         // Fact of the trade: with no two identical rows disagreeing, a fully grown tree has
         // zero training error (common practice, no source). Seeded xorshift data.
-        let mut state = 0x2545_F491_4F6C_DD1Du64;
-        let mut next = || {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            state
-        };
+        let mut next = xorshift(0x2545_F491_4F6C_DD1Du64);
         let mut text = String::from("y,x1,x2,x3,c\n");
         for _ in 0..400 {
             let (a, b, c) = (next() % 1000, next() % 1000, next() % 1000);
             let cat = ["p", "q", "r", "s"][(next() % 4) as usize];
             let y = ["u", "v", "w"][(next() % 3) as usize];
-            let x3 = if next() % 10 == 0 {
+            let x3 = if next().is_multiple_of(10) {
                 "NA".to_string()
             } else {
                 c.to_string()
@@ -2218,14 +2212,29 @@ mod tests {
     }
 
     /// Seeded data with many distinct values: y = 1 when a + b > 1 (with 10% flipped).
-    fn many_values(rows: usize) -> String {
-        let mut state = 0x9E37_79B9_7F4A_7C15u64;
-        let mut next = || {
+    /// A seeded xorshift64 stream (Marsaglia 2003) for test data: the same numbers wherever
+    /// a test draws from the same seed.
+    fn xorshift(mut state: u64) -> impl FnMut() -> u64 {
+        move || {
             state ^= state << 13;
             state ^= state >> 7;
             state ^= state << 17;
-            (state % 1_000_000) as f64 / 1_000_000.0
-        };
+            state
+        }
+    }
+
+    /// A seeded bootstrap of `n` rows, and 100,000 picks of one predictor in three for a
+    /// chooser that drops it (two of three tried a node).
+    fn bootstrap_and_picks(n: usize) -> (Vec<u32>, Vec<u64>) {
+        let mut draw = xorshift(0x2545_F491_4F6C_DD1Du64);
+        let rows = (0..n).map(|_| (draw() % n as u64) as u32).collect();
+        let picks = (0..100_000).map(|_| draw() % 3).collect();
+        (rows, picks)
+    }
+
+    fn many_values(rows: usize) -> String {
+        let mut draw = xorshift(0x9E37_79B9_7F4A_7C15u64);
+        let mut next = || (draw() % 1_000_000) as f64 / 1_000_000.0;
         let mut text = String::from("y,a,b,c\n");
         for _ in 0..rows {
             let (a, b, c) = (next(), next(), next());
@@ -2341,13 +2350,8 @@ mod tests {
         // The dispatching functions (AVX2 on a CPU that has it) against the plain loops, on
         // running sums of random whole and fractional statistics, in every criterion, with
         // and without a least weight (our own consistency rule, no source needed).
-        let mut state = 0x9E37_79B9_7F4A_7C15u64;
-        let mut next = || {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            (state % 1000) as f64 / 100.0
-        };
+        let mut draw = xorshift(0x9E37_79B9_7F4A_7C15u64);
+        let mut next = || (draw() % 1000) as f64 / 100.0;
         // Points with a real gain, so the check is not all −∞ = −∞.
         let mut finite = 0;
         for n in [1, 3, 4, 7, 64, 255] {
@@ -2403,13 +2407,8 @@ mod tests {
         // `scan_packed` (AVX2 on a CPU that has it) against its plain body, on random whole
         // counts in random bins, with and without missing values and a least leaf size (our
         // own consistency rule, no source needed). Both leave every slot empty.
-        let mut state = 0x2545_F491_4F6C_DD1Du64;
-        let mut next = |m: u64| {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            state % m
-        };
+        let mut draw = xorshift(0x2545_F491_4F6C_DD1Du64);
+        let mut next = |m: u64| draw() % m;
         let mut splits = 0;
         for round in 0..200 {
             let mut slots = vec![0u64; 256];
@@ -2477,15 +2476,7 @@ mod tests {
         let (stats, k) = design.row_statistics(false);
         assert_eq!(k, 3);
         let m = bin_design(&design, BinSettings::default()).unwrap();
-        let mut state = 0x2545_F491_4F6C_DD1Du64;
-        let mut next = |n: u64| {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            state % n
-        };
-        let rows: Vec<u32> = (0..m.rows).map(|_| next(m.rows as u64) as u32).collect();
-        let picks: Vec<u64> = (0..100_000).map(|_| next(3)).collect();
+        let (rows, picks) = bootstrap_and_picks(m.rows);
         let (kept, counts) = collapse_counts(&rows, m.rows);
         assert!(kept.len() < rows.len() && counts.iter().any(|&c| c > 1.0));
         let multiplied: Vec<f64> = (0..m.rows * k).map(|i| counts[i / k] * stats[i]).collect();
@@ -2522,15 +2513,7 @@ mod tests {
         let design = design_from_csv(&many_values(3000), "y", &["a", "b", "c"]);
         let (stats, k) = design.row_statistics(false);
         let m = bin_design(&design, BinSettings::default()).unwrap();
-        let mut state = 0x2545_F491_4F6C_DD1Du64;
-        let mut next = |n: u64| {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            state % n
-        };
-        let rows: Vec<u32> = (0..m.rows).map(|_| next(m.rows as u64) as u32).collect();
-        let picks: Vec<u64> = (0..100_000).map(|_| next(3)).collect();
+        let (rows, picks) = bootstrap_and_picks(m.rows);
         let Cells::Narrow(cells) = &m.cells else {
             panic!("small cells")
         };
@@ -2578,13 +2561,8 @@ mod tests {
         // use dense histograms and subtraction in nodes of 1024 rows or more; exact (u16)
         // cells never do, and with so few values their bins are the same. Class counts are
         // whole numbers, so the sums are exact either way and the trees must be equal.
-        let mut state = 0x5DEE_CE66_D1CE_4E5Bu64;
-        let mut next = |m: u64| {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            state % m
-        };
+        let mut draw = xorshift(0x5DEE_CE66_D1CE_4E5Bu64);
+        let mut next = |m: u64| draw() % m;
         let mut text = String::from("y,a,b,c,ward\n");
         for _ in 0..6000 {
             let (a, b, c) = (next(200), next(150), next(100));
