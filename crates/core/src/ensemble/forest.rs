@@ -240,6 +240,11 @@ pub struct OobTally {
     training_sums: Vec<f64>,
     training_error: Vec<f64>,
     votes: Vec<u32>,
+    /// Rows out of bag at least once so far, and (classes) whether each such row's summed
+    /// out-of-bag votes misclassify it, with the number that do.
+    judged: usize,
+    wrong: Vec<bool>,
+    oob_wrong: usize,
     out_of_bag: usize,
     trees: Vec<Tree>,
     oob_error: Vec<f64>,
@@ -253,6 +258,9 @@ impl OobTally {
             training_sums: vec![0.0; rows * outputs],
             training_error: Vec::new(),
             votes: vec![0; rows],
+            judged: 0,
+            wrong: vec![false; rows],
+            oob_wrong: 0,
             out_of_bag: 0,
             trees: Vec::new(),
             oob_error: Vec::new(),
@@ -279,38 +287,52 @@ impl OobTally {
     ) {
         let n = binned.rows;
         let outputs = if K > 0 { K } else { self.outputs };
-        let tree = &fitted.tree;
-        let (mut wrong, mut squares) = (0.0, 0.0);
-        let trees_so_far = (self.trees.len() + 1) as f64;
+        let FittedTree { tree, mut leaves } = fitted;
+        // Every node's values side by side by node id (a leaf's are read for every row
+        // reaching it, and a node of the tree itself is much larger).
+        let mut values = Vec::with_capacity(tree.nodes.len() * outputs);
+        for i in 0..tree.nodes.len() {
+            values.extend_from_slice(&tree.node_values(i)[..outputs]);
+        }
+        let value = |leaf: u32| &values[leaf as usize * outputs..][..outputs];
         // The rows whose leaves are not known, walked down the tree together.
         let unknown: Vec<u32> = (0..n as u32)
-            .filter(|&r| matches!(fitted.leaves[r as usize], OUT_OF_BAG | IN_BAG))
+            .filter(|&r| matches!(leaves[r as usize], OUT_OF_BAG | IN_BAG))
             .collect();
         let mut walked = vec![0; unknown.len()];
         walk::leaves(
-            tree,
+            &tree,
             Rows::Binned(binned),
             |i| unknown[i] as usize,
             &mut walked,
         );
-        let mut walked = walked.into_iter();
-        for r in 0..n {
-            let known = fitted.leaves[r];
-            let leaf = match known {
-                OUT_OF_BAG | IN_BAG => walked.next().expect("a leaf per row walked") as usize,
-                leaf => leaf as usize,
-            };
-            let p = &tree.node_values(leaf)[..outputs];
-            if known == OUT_OF_BAG {
+        // The out-of-bag rows' sums, and (classes) whether each is now misclassified: only
+        // these rows' judgements change, so the count of wrong ones is kept, not recounted.
+        for (&r, &leaf) in unknown.iter().zip(&walked) {
+            let r = r as usize;
+            if leaves[r] == OUT_OF_BAG {
                 self.out_of_bag += 1;
+                self.judged += usize::from(self.votes[r] == 0);
                 self.votes[r] += 1;
-                for (s, v) in self.sums[r * outputs..(r + 1) * outputs].iter_mut().zip(p) {
+                let s = &mut self.sums[r * outputs..(r + 1) * outputs];
+                for (s, v) in s.iter_mut().zip(value(leaf)) {
                     *s += v;
                 }
+                if let Outcome::Classes { codes, .. } = outcome {
+                    let wrong = argmax(s) != codes[r] as usize;
+                    self.oob_wrong += usize::from(wrong);
+                    self.oob_wrong -= usize::from(self.wrong[r]);
+                    self.wrong[r] = wrong;
+                }
             }
-            // The training error as `Model::staged_errors` sums it, row by row.
+            leaves[r] = leaf;
+        }
+        // The training error as `Model::staged_errors` sums it, row by row.
+        let (mut wrong, mut squares) = (0.0, 0.0);
+        let trees_so_far = (self.trees.len() + 1) as f64;
+        for (r, &leaf) in leaves.iter().enumerate() {
             let s = &mut self.training_sums[r * outputs..(r + 1) * outputs];
-            for (a, b) in s.iter_mut().zip(p) {
+            for (a, b) in s.iter_mut().zip(value(leaf)) {
                 *a += b;
             }
             match outcome {
@@ -326,21 +348,20 @@ impl OobTally {
                 Outcome::Numbers(_) => squares,
             } / n.max(1) as f64,
         );
-        let (mut err, mut counted) = (0.0, 0usize);
-        for r in (0..n).filter(|&r| self.votes[r] > 0) {
-            counted += 1;
-            let s = &self.sums[r * outputs..(r + 1) * outputs];
-            err += match outcome {
-                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
-                Outcome::Numbers(y) => (s[0] / self.votes[r] as f64 - y[r]).powi(2),
-            };
-        }
-        self.oob_error.push(if counted == 0 {
-            f64::NAN
-        } else {
-            err / counted as f64
+        // Misclassified rows count whole, so their number is the sum a recount would give;
+        // squared errors are summed again in row order.
+        let err = match outcome {
+            Outcome::Classes { .. } => self.oob_wrong as f64,
+            Outcome::Numbers(y) => (0..n)
+                .filter(|&r| self.votes[r] > 0)
+                .map(|r| (self.sums[r * outputs] / self.votes[r] as f64 - y[r]).powi(2))
+                .fold(0.0, |a, e| a + e),
+        };
+        self.oob_error.push(match self.judged {
+            0 => f64::NAN,
+            judged => err / judged as f64,
         });
-        self.trees.push(fitted.tree);
+        self.trees.push(tree);
     }
 
     pub fn trees(&self) -> usize {
