@@ -1991,8 +1991,10 @@ twice_for_avx2! {
 #[inline(always)]
 fn first_best_plain(gain: &[f64]) -> (usize, f64) {
     // The largest in four running maxima side by side (no chain of dependent comparisons,
-    // so the compiler vectorises it), then the first place holding it: the place and value
-    // of a loop keeping the first larger one (a NaN is never larger, and −0 equals 0).
+    // so the compiler vectorises it), then the first place holding it, four places compared
+    // at a time: the place and value of a loop keeping the first larger one (a NaN is never
+    // larger, and −0 equals 0). Finding the place four at a time: 68.9 -> 67.0 M
+    // instructions a forest tree (`grow_bench 40000 4`).
     let more = |m: f64, v: f64| if v > m { v } else { m };
     let mut m = [f64::NEG_INFINITY; 4];
     let (quads, rest) = gain.as_chunks::<4>();
@@ -2007,10 +2009,27 @@ fn first_best_plain(gain: &[f64]) -> (usize, f64) {
     let g = rest
         .iter()
         .fold(more(more(m[0], m[1]), more(m[2], m[3])), |m, &v| more(m, v));
-    match gain.iter().position(|&v| v == g) {
-        Some(at) if g > f64::NEG_INFINITY => (at, gain[at]),
-        _ => (0, f64::NEG_INFINITY),
+    if g == f64::NEG_INFINITY {
+        return (0, f64::NEG_INFINITY);
     }
+    // The first place holding it, four places compared at once (a mask of the four).
+    let hits = |q: &[f64; 4]| {
+        u32::from(q[0] == g)
+            | (u32::from(q[1] == g) << 1)
+            | (u32::from(q[2] == g) << 2)
+            | (u32::from(q[3] == g) << 3)
+    };
+    let at = match quads.iter().position(|q| hits(q) != 0) {
+        Some(k) => 4 * k + hits(&quads[k]).trailing_zeros() as usize,
+        None => {
+            let k = rest
+                .iter()
+                .position(|&v| v == g)
+                .expect("the largest is in place");
+            4 * quads.len() + k
+        }
+    };
+    (at, gain[at])
 }
 
 /// The running sums of `present`'s slots `(s0, s1, rows)` from `start`, bins with no rows
@@ -2400,6 +2419,30 @@ mod tests {
             }
         }
         assert!(finite > 1000, "{finite} points with a real gain");
+    }
+
+    #[test]
+    fn the_first_best_point_is_the_first_of_the_largest_gains() {
+        // Against the plain loop that keeps the first strictly larger gain (our own rule of
+        // ties, no source): many ties, both zeros, NaN and −∞, every length up to 40 (whole
+        // quads and remainders, the largest in either).
+        let mut draw = xorshift(0x9E37_79B9_7F4A_7C15);
+        let pool = [1.5, 2.0, 0.0, -0.0, -1.0, f64::NAN, f64::NEG_INFINITY, 2.0];
+        for n in 0..=40 {
+            for _ in 0..200 {
+                let gain: Vec<f64> = (0..n).map(|_| pool[(draw() % 8) as usize]).collect();
+                let (mut at, mut best) = (0, f64::NEG_INFINITY);
+                for (i, &g) in gain.iter().enumerate() {
+                    if g > best {
+                        (at, best) = (i, g);
+                    }
+                }
+                let want = (at, best.to_bits());
+                for (i, g) in [first_best(&gain), first_best_plain(&gain)] {
+                    assert_eq!((i, g.to_bits()), want, "{gain:?}");
+                }
+            }
+        }
     }
 
     #[test]
