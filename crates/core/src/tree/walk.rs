@@ -150,6 +150,21 @@ impl Walk {
                     route!(move |j, r| cell(cells, n, j, r))
                 }
             },
+            Rows::Records(records) if self.sets.is_empty() => {
+                // Numbers only: a step's column read as a slice, and one comparison a row
+                // (NaN is never above a threshold, nor at most one).
+                let (values, n) = (records.values(), records.rows);
+                self.route(out, &row, |s| {
+                    let j = (s.feature & FEATURE) as usize;
+                    let column = &values[j * n..(j + 1) * n];
+                    let (t, missing_left) = (s.threshold, s.feature & MISSING_LEFT != 0);
+                    #[allow(clippy::neg_cmp_op_on_partial_ord)]
+                    move |r| match missing_left {
+                        true => !(column[r] > t),
+                        false => column[r] <= t,
+                    }
+                })
+            }
             Rows::Records(records) => {
                 let (values, n) = (records.values(), records.rows);
                 route!(move |j, r| values[j * n + r])
