@@ -131,7 +131,7 @@ pub fn summarise_column(column: &Column, rows: usize) -> ColumnSummary {
         Values::Numbers(values) => {
             let mut present: Vec<f64> = values.iter().copied().filter(|x| !x.is_nan()).collect();
             s.missing = rows - present.len();
-            present.sort_unstable_by(f64::total_cmp);
+            crate::binning::sort_numbers(&mut present);
             if let (Some(&lo), Some(&hi)) = (present.first(), present.last()) {
                 s.min = Some(lo);
                 s.max = Some(hi);
