@@ -7,7 +7,7 @@
 //! routes the rows down it node by node, as a grower partitions its rows: each node splits its
 //! rows in one pass over one column, without a branch on the side, and hands each child its
 //! share. (Common practice for tree ensembles, no source.) Same leaves as [`Tree::leaf`],
-//! tested; `grow_bench` times both. Before 4 December a walk took eight rows side by side from
+//! tested; `grow_bench` times both. Until 3 December a walk took eight rows side by side from
 //! the root, each step choosing a child without a branch: routing does 22% fewer instructions
 //! on `grow_bench`'s forest (85 against 110 M for 4 trees × 40,000 rows) and takes about 35
 //! against 60 ns a row and tree.
