@@ -581,8 +581,9 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 if self.packed_hist.len() < BATCH * 256 {
                     self.packed_hist.resize(BATCH * 256, 0);
                 }
-                let packed = &self.packed[..];
                 let (node_rows, n) = (n, self.binned.rows);
+                // As long as each column, so one bound check a row covers both.
+                let packed = &self.packed[..n];
                 let column = |j: usize| &self.cells[j * n..(j + 1) * n];
                 for group in candidates.chunks(BATCH) {
                     let mut parts = self.packed_hist.chunks_exact_mut(256);
@@ -632,6 +633,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 let mut parts = all.chunks_exact_mut(256);
                 let n = self.binned.rows;
                 let column = |j: usize| &self.cells[j * n..(j + 1) * n];
+                // As long as each column, so one bound check a row covers both.
+                let pairs = &pairs[..n];
                 // The group's predictors filled in one pass, however many (up to BATCH).
                 macro_rules! fill {
                     ($k:literal) => {{
