@@ -188,8 +188,9 @@ impl BinnedMatrix {
 /// Sorts `values` in the order of [`f64::total_cmp`], the same numbers in the same places
 /// (values equal under that order have the same bits), by sorting them as integers: the
 /// bits of a number, with the other bits of a negative one flipped, order as that order
-/// does (the mapping `f64::total_cmp` itself compares by). About twice as fast as sorting
-/// with `f64::total_cmp` (measured: binning a fold of 40,000 rows × 30 numbers).
+/// does (the mapping `f64::total_cmp` itself compares by). Binning five folds of 40,000 rows
+/// × 30 numbers took 1.67 -> 1.19 G instructions (callgrind) against sorting with
+/// `f64::total_cmp`.
 pub fn sort_numbers(values: &mut [f64]) {
     // Its own inverse: the sign bit is kept, so the same bits are flipped back.
     let key = |bits: u64| (bits ^ ((((bits as i64) >> 63) as u64) >> 1)) as i64;
