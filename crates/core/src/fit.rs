@@ -273,6 +273,15 @@ pub fn fit_design(
 /// fitted on it, outcome `y`, predictors `a`, `b` and `c`.
 #[cfg(test)]
 pub(crate) fn forest_from_csv(text: &str, trees: usize) -> (crate::data::Table, Fitted) {
+    forest_from_csv_with(text, &[("trees".to_string(), trees.to_string())])
+}
+
+/// [`forest_from_csv`] with the forest's settings `sets` (`NAME`, `VALUE`).
+#[cfg(test)]
+pub(crate) fn forest_from_csv_with(
+    text: &str,
+    sets: &[(String, String)],
+) -> (crate::data::Table, Fitted) {
     use crate::data::{read_table, ReadOptions};
     use crate::design::{build_design, DesignSpec};
     let table = read_table(
@@ -288,8 +297,7 @@ pub(crate) fn forest_from_csv(text: &str, trees: usize) -> (crate::data::Table, 
         ..DesignSpec::default()
     };
     let design = build_design(&table, &spec).unwrap();
-    let sets = [("trees".to_string(), trees.to_string())];
-    let settings = FitSettings::build(Method::Forest, 3, false, "y", &sets).unwrap();
+    let settings = FitSettings::build(Method::Forest, 3, false, "y", sets).unwrap();
     let fitted = fit_design(
         design,
         &settings,

@@ -116,27 +116,8 @@ impl Walk {
         }
         match rows {
             Rows::Binned(b) if self.shifted => match &b.cells {
-                Cells::Narrow(c) => {
-                    let n = b.rows;
-                    self.route(out, &row, |s| {
-                        let j = (s.feature & FEATURE) as usize;
-                        let column = &c[j * n..(j + 1) * n];
-                        // The top bit (a shift, not a test).
-                        let missing_left = (s.feature / MISSING_LEFT) as u8;
-                        let last = s.threshold as u32;
-                        move |r| u32::from(column[r].wrapping_add(missing_left)) <= last
-                    })
-                }
-                Cells::Wide(c) => {
-                    let n = b.rows;
-                    self.route(out, &row, |s| {
-                        let j = (s.feature & FEATURE) as usize;
-                        let column = &c[j * n..(j + 1) * n];
-                        let missing_left = (s.feature / MISSING_LEFT) as u16;
-                        let last = s.threshold as u32;
-                        move |r| u32::from(column[r].wrapping_add(missing_left)) <= last
-                    })
-                }
+                Cells::Narrow(c) => self.route_shifted(out, &row, c, b.rows),
+                Cells::Wide(c) => self.route_shifted(out, &row, c, b.rows),
             },
             Rows::Binned(b) => match &b.cells {
                 Cells::Narrow(c) => {
@@ -170,6 +151,30 @@ impl Walk {
                 route!(move |j, r| values[j * n + r])
             }
         }
+    }
+
+    /// [`Walk::route`] of binned rows (`rows` a column in `cells`) down shifted steps
+    /// ([`Walk::shifted`]): a row goes left when its bin plus one if the step sends missing
+    /// values left (the missing bin, the largest, wrapping round to 0), its bin otherwise, is
+    /// at most the step's threshold: one integer comparison.
+    #[inline(always)]
+    fn route_shifted<B: Bin>(
+        &self,
+        out: &mut [u32],
+        row: &impl Fn(usize) -> usize,
+        cells: &[B],
+        rows: usize,
+    ) {
+        // The missing bin is the largest a cell holds: all ones, a mask for the wrap.
+        let wrap = B::MISSING.index();
+        self.route(out, row, |s| {
+            let j = (s.feature & FEATURE) as usize;
+            let column = &cells[j * rows..(j + 1) * rows];
+            // The top bit (a shift, not a test).
+            let missing_left = (s.feature / MISSING_LEFT) as usize;
+            let last = s.threshold as usize;
+            move |r| (column[r].index() + missing_left) & wrap <= last
+        })
     }
 
     /// Whether step `s` (not a leaf) sends a row whose number is `x` (NaN: missing) left.
@@ -272,16 +277,18 @@ fn cell<B: Bin>(cells: &[B], rows: usize, j: usize, r: usize) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::fit::forest_from_csv;
+    use crate::fit::forest_from_csv_with;
     use crate::model::Ensemble;
 
     #[test]
     fn a_walk_reaches_the_leaves_a_row_by_row_walk_reaches() {
         // Two ways of walking the same tree (our own consistency rule, no source needed), on
         // numbers, categories and missing values, binned rows and records; and on numbers
-        // alone, whose binned walk is shifted (`Walk::shifted`).
-        let (mut categories, mut shifted_left) = (0, 0);
-        for numbers_only in [false, true] {
+        // alone, whose binned walk is shifted (`Walk::shifted`); small cells and, with the
+        // exact split search, wide ones.
+        let (mut categories, mut shifted_left, mut wide_shifted_left) = (0, 0, 0);
+        let kinds = [false, true].map(|n| [false, true].map(move |e| (n, e)));
+        for (numbers_only, exact) in kinds.into_iter().flatten() {
             let mut text = String::from("y,a,b,c\n");
             for i in 0..500u64 {
                 let (a, b) = ((i * 37) % 101, (i * 53) % 89);
@@ -297,7 +304,12 @@ mod tests {
                 };
                 text += &format!("{y},{a},{b},{c}\n");
             }
-            let (table, fitted) = forest_from_csv(&text, 20);
+            let mut sets = vec![("trees".to_string(), "20".to_string())];
+            if exact {
+                sets.push(("split_search".to_string(), "exact".to_string()));
+            }
+            let (table, fitted) = forest_from_csv_with(&text, &sets);
+            assert_eq!(matches!(fitted.binned.cells, Cells::Wide(_)), exact);
             let (records, _) = fitted.model.records(&table).unwrap();
             let Ensemble::Forest(forest) = &fitted.model.ensemble else {
                 unreachable!("a forest")
@@ -306,7 +318,9 @@ mod tests {
                 let splits = || tree.nodes.iter().filter(|n| !n.is_leaf());
                 categories += splits().filter(|n| !n.numeric).count();
                 if numbers_only {
-                    shifted_left += splits().filter(|n| n.missing_left).count();
+                    let left = splits().filter(|n| n.missing_left).count();
+                    shifted_left += left;
+                    wide_shifted_left += if exact { left } else { 0 };
                 }
                 for (rows, binned) in [
                     (Rows::Binned(&fitted.binned), true),
@@ -335,8 +349,8 @@ mod tests {
         }
         assert!(categories > 0, "the check covers category splits");
         assert!(
-            shifted_left > 0,
-            "the check covers shifted steps sending missing values left"
+            shifted_left > wide_shifted_left && wide_shifted_left > 0,
+            "the check covers shifted steps sending missing values left, small and wide cells"
         );
     }
 }
