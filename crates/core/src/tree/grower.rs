@@ -121,95 +121,30 @@ const DENSE_SLOTS: usize = 256;
 /// No bounds on a node's value.
 const FREE: (f64, f64) = (f64::NEG_INFINITY, f64::INFINITY);
 
-/// The builds of the vector loops below ([`vector_builds`]): as compiled for the target, or
-/// again for AVX2 or AVX-512 (x86-64), chosen at run time by what the CPU has.
-#[derive(Clone, Copy, Debug, PartialEq)]
-enum Build {
-    Plain,
-    Avx2,
-    Avx512,
-}
-
-impl Build {
-    /// Whether this CPU runs the build.
-    fn runs_here(self) -> bool {
-        match self {
-            Build::Plain => true,
-            #[cfg(target_arch = "x86_64")]
-            Build::Avx2 => std::is_x86_feature_detected!("avx2"),
-            #[cfg(target_arch = "x86_64")]
-            Build::Avx512 => {
-                std::is_x86_feature_detected!("avx512f")
-                    && std::is_x86_feature_detected!("avx512vl")
-                    && std::is_x86_feature_detected!("avx512dq")
-                    && std::is_x86_feature_detected!("avx512bw")
-            }
-            #[cfg(not(target_arch = "x86_64"))]
-            _ => false,
-        }
-    }
-
-    /// The widest build this CPU runs (the feature checks are cached by the standard
-    /// library: a load and a test each).
-    fn best() -> Build {
-        [Build::Avx512, Build::Avx2]
-            .into_iter()
-            .find(|b| b.runs_here())
-            .unwrap_or(Build::Plain)
-    }
-
-    /// Every build this CPU runs, for tests that hold each to the plain loop.
-    #[cfg(test)]
-    fn all_here() -> Vec<Build> {
-        [Build::Plain, Build::Avx2, Build::Avx512]
-            .into_iter()
-            .filter(|b| b.runs_here())
-            .collect()
-    }
-}
-
 /// Defines `$name`, which runs `$plain` (an `#[inline(always)]` function, so each build has
-/// its own copy of the loop) in the widest [`Build`] the CPU runs, and `$name_in`, which runs
-/// it in a given build (tests). The vector loops then take four (AVX2) or eight (AVX-512)
-/// numbers a step instead of two; each lane does the same IEEE operations (Rust never fuses a
-/// multiply and an add on its own), so the results are the same to the bit, tested. The
-/// crate's only `unsafe`: calling a build after checking that the CPU runs it.
-macro_rules! vector_builds {
+/// its own copy of the loop) compiled a second time for AVX2 when on an x86-64 CPU that has
+/// it, else as built. The vector loops then take four numbers a step instead of two; each lane
+/// does the same IEEE operations (Rust never fuses a multiply and an add on its own), so the
+/// results are the same to the bit, tested. The crate's only `unsafe`: calling the AVX2 build
+/// after the check.
+macro_rules! twice_for_avx2 {
     (
         $(#[$doc:meta])*
-        fn $name:ident / $name_in:ident $(<$lt:lifetime>)? ($($arg:ident: $ty:ty),* $(,)?)
-            $(-> $ret:ty)? = $plain:ident
+        fn $name:ident $(<$lt:lifetime>)? ($($arg:ident: $ty:ty),* $(,)?) $(-> $ret:ty)? = $plain:ident
     ) => {
         $(#[$doc])*
         fn $name $(<$lt>)? ($($arg: $ty),*) $(-> $ret)? {
-            $name_in(Build::best(), $($arg),*)
-        }
-
-        /// The same in `build` (the plain loop when the CPU does not run it).
-        #[allow(clippy::too_many_arguments)]
-        fn $name_in $(<$lt>)? (build: Build, $($arg: $ty),*) $(-> $ret)? {
             #[cfg(target_arch = "x86_64")]
             {
                 #[target_feature(enable = "avx2")]
                 fn avx2 $(<$lt>)? ($($arg: $ty),*) $(-> $ret)? {
                     $plain($($arg),*)
                 }
-                #[target_feature(enable = "avx512f,avx512vl,avx512dq,avx512bw")]
-                fn avx512 $(<$lt>)? ($($arg: $ty),*) $(-> $ret)? {
-                    $plain($($arg),*)
-                }
-                if build != Build::Plain && build.runs_here() {
-                    // SAFETY: the CPU runs the build (checked just above).
-                    return unsafe {
-                        match build {
-                            Build::Avx512 => avx512($($arg),*),
-                            _ => avx2($($arg),*),
-                        }
-                    };
+                if std::is_x86_feature_detected!("avx2") {
+                    // SAFETY: the CPU has AVX2 (checked just above).
+                    return unsafe { avx2($($arg),*) };
                 }
             }
-            #[cfg(not(target_arch = "x86_64"))]
-            let _ = build;
             $plain($($arg),*)
         }
     };
@@ -1574,10 +1509,10 @@ fn fill_rows_packed<B: Bin, const K: usize>(
     }
 }
 
-vector_builds! {
-    /// The bins of `slots` holding rows, as a 256-bit map (compiled for AVX2 and AVX-512 too:
-    /// four or eight slots compared at once).
-    fn used_bins / used_bins_in(slots: &[u64; 256]) -> [u64; 4] = used_bins_plain
+twice_for_avx2! {
+    /// The bins of `slots` holding rows, as a 256-bit map (compiled for AVX2 too: four slots
+    /// compared at once).
+    fn used_bins(slots: &[u64; 256]) -> [u64; 4] = used_bins_plain
 }
 
 /// [`used_bins`]' loop, inlined into each of its builds.
@@ -1592,14 +1527,14 @@ fn used_bins_plain(slots: &[u64; 256]) -> [u64; 4] {
     })
 }
 
-vector_builds! {
+twice_for_avx2! {
     /// [`scan_filled_pairs`] from packed counts (`slots`, see [`pack_counts`]; all zero again
     /// on return): the same running sums, unpacked per bin, so the same split. With missing
     /// values in the node the used slots are unpacked into `spill` (all zero on entry and on
     /// return) for [`scan_filled_pairs`]. Small cells only (missing values in slot 255).
-    /// Compiled for AVX2 and AVX-512 too, each as a whole, with the unpacking, the gains and
-    /// the first best inlined: one choice of build a scan, not three.
-    fn scan_packed / scan_packed_in(
+    /// Compiled for AVX2 too as a whole, with the unpacking, the gains and the first best
+    /// inlined: one choice of build a scan, not three.
+    fn scan_packed(
         slots: &mut [u64],
         bits: [u64; 4],
         at: (usize, f64),
@@ -1667,8 +1602,8 @@ fn scan_packed_plain(
 }
 
 /// Every packed count of `packed` unpacked ([`unpack_counts`]) into `out` (`s0`, `s1`,
-/// rows), in a loop apart, so it is compiled for four or eight at a time on AVX2 or AVX-512
-/// (inlined into [`scan_packed`]'s builds).
+/// rows), in a loop apart, so it is compiled for four at a time on AVX2 (inlined into
+/// [`scan_packed`]'s builds).
 #[inline(always)]
 fn unpack_all(packed: &[u64], [s0, s1, rows]: [&mut [f64]; 3]) {
     for (((&p, l0), l1), lc) in packed.iter().zip(s0).zip(s1).zip(rows) {
@@ -1981,7 +1916,7 @@ fn scan_dense_numbers(
     }
 }
 
-vector_builds! {
+twice_for_avx2! {
     /// Every split point's gain into `gain`, from the left side's sums after each bin
     /// (`left`: `s0`, `s1`, rows) and the node's totals `t`: −∞ (which no real gain equals:
     /// costs are finite) where the bin holds no rows (`present`, one number a bin) or a side has
@@ -1991,12 +1926,11 @@ vector_builds! {
     /// by [`Criterion::cost2`], equal to [`Criterion::cost`] to the bit. "Not below" is written
     /// `!(x < least)`, as the plain loop skips a point only when a sum is below its least.
     ///
-    /// On a CPU with AVX2 or AVX-512 the same loop is compiled for four or eight numbers at a
-    /// time instead of two ([`vector_builds`]): the same IEEE additions, multiplications and
-    /// divisions on each lane (Rust never fuses a multiply and an add on its own), so the same
-    /// gains to the bit. `grow_bench` fingerprints unchanged; AVX2: 98.9 -> 90.0 M
-    /// instructions a forest tree.
-    fn point_gains / point_gains_in<'p>(
+    /// On a CPU with AVX2 the same loop is compiled for four numbers at a time instead of two
+    /// ([`twice_for_avx2`]): the same IEEE additions, multiplications and divisions on each
+    /// lane (Rust never fuses a multiply and an add on its own), so the same gains to the bit.
+    /// `grow_bench` fingerprints unchanged; 98.9 -> 90.0 M instructions a forest tree.
+    fn point_gains<'p>(
         gain: &mut [f64],
         present: impl Iterator<Item = &'p f64>,
         left: [&[f64]; 3],
@@ -2050,10 +1984,10 @@ fn point_gains_plain<'p>(
     }
 }
 
-vector_builds! {
+twice_for_avx2! {
     /// The first of the largest of `gain` and where it is (−∞ when every point is −∞)
-    /// (compiled for AVX2 and AVX-512 too, like [`point_gains`]).
-    fn first_best / first_best_in(gain: &[f64]) -> (usize, f64) = first_best_plain
+    /// (compiled for AVX2 too, like [`point_gains`]).
+    fn first_best(gain: &[f64]) -> (usize, f64) = first_best_plain
 }
 
 /// [`first_best`]'s loop, inlined into each of its builds.
@@ -2435,7 +2369,7 @@ mod tests {
 
     #[test]
     fn gains_are_the_same_to_the_bit_whichever_build_computes_them() {
-        // Every build the CPU runs (plain, AVX2, AVX-512) against the plain loops, on
+        // The dispatching functions (AVX2 on a CPU that has it) against the plain loops, on
         // running sums of random whole and fractional statistics, in every criterion, with
         // and without a least weight (our own consistency rule, no source needed).
         let mut draw = xorshift(0x9E37_79B9_7F4A_7C15u64);
@@ -2476,16 +2410,14 @@ mod tests {
                     };
                     let (mut x, mut y) = (vec![0.0; n], vec![0.0; n]);
                     let left = [&s0[..], &s1[..], &rows[..]];
+                    point_gains(&mut x, present.iter(), left, t, 7.5, &settings);
                     point_gains_plain(&mut y, present.iter(), left, t, 7.5, &settings);
                     let bits = |v: &[f64]| v.iter().map(|g| g.to_bits()).collect::<Vec<_>>();
-                    finite += y.iter().filter(|g| g.is_finite()).count();
-                    let (j, h) = first_best_plain(&y);
-                    for build in Build::all_here() {
-                        point_gains_in(build, &mut x, present.iter(), left, t, 7.5, &settings);
-                        assert_eq!(bits(&x), bits(&y), "{build:?} {criterion:?} n {n}");
-                        let (i, g) = first_best_in(build, &x);
-                        assert_eq!((i, g.to_bits()), (j, h.to_bits()), "{build:?}");
-                    }
+                    assert_eq!(bits(&x), bits(&y), "{criterion:?} n {n}");
+                    finite += x.iter().filter(|g| g.is_finite()).count();
+                    let (i, g) = first_best(&x);
+                    let (j, h) = first_best_plain(&x);
+                    assert_eq!((i, g.to_bits()), (j, h.to_bits()));
                 }
             }
         }
@@ -2509,9 +2441,7 @@ mod tests {
                     }
                 }
                 let want = (at, best.to_bits());
-                let builds = Build::all_here().into_iter();
-                let found = builds.map(|b| first_best_in(b, &gain));
-                for (i, g) in found.chain([first_best_plain(&gain)]) {
+                for (i, g) in [first_best(&gain), first_best_plain(&gain)] {
                     assert_eq!((i, g.to_bits()), want, "{gain:?}");
                 }
             }
@@ -2520,17 +2450,16 @@ mod tests {
 
     #[test]
     fn a_packed_scan_finds_the_same_split_whichever_build_runs_it() {
-        // `scan_packed` and `used_bins` in every build the CPU runs (plain, AVX2, AVX-512)
-        // against their plain bodies, on random whole counts in random bins (a few or nearly
-        // all), with and without missing values and a least leaf size (our own consistency
-        // rule, no source needed). Every scan leaves every slot empty.
+        // `scan_packed` (AVX2 on a CPU that has it) against its plain body, on random whole
+        // counts in random bins, with and without missing values and a least leaf size (our
+        // own consistency rule, no source needed). Both leave every slot empty.
         let mut draw = xorshift(0x2545_F491_4F6C_DD1Du64);
         let mut next = |m: u64| draw() % m;
         let mut splits = 0;
         for round in 0..200 {
             let mut slots = vec![0u64; 256];
             let mut bits = [0u64; 4];
-            let bins = 1 + next(if round % 4 == 1 { 600 } else { 40 }) as usize;
+            let bins = 1 + next(40) as usize;
             for _ in 0..bins {
                 let b = match round % 3 == 0 && next(4) == 0 {
                     true => 255,
@@ -2544,23 +2473,16 @@ mod tests {
                 min_rows_leaf: 1 + round % 3,
                 ..GrowSettings::default()
             };
-            let whole: &[u64; 256] = slots[..].try_into().unwrap();
-            assert_eq!(used_bins_plain(whole), bits);
             let mut results = Vec::new();
-            for build in [None]
-                .into_iter()
-                .chain(Build::all_here().into_iter().map(Some))
-            {
+            for plain in [false, true] {
                 let (mut slots, mut spill) = (slots.clone(), vec![[0.0; 3]; 256]);
                 let (mut sums, mut best) = (LeftSums::new(), None);
                 let (at, sums) = ((3, 40.0), &mut sums);
-                match build {
-                    Some(b) => {
-                        assert_eq!(used_bins_in(b, whole), bits, "{b:?}");
-                        let (slots, spill) = (&mut slots, &mut spill);
-                        scan_packed_in(b, slots, bits, at, &settings, spill, sums, &mut best)
+                match plain {
+                    false => {
+                        scan_packed(&mut slots, bits, at, &settings, &mut spill, sums, &mut best)
                     }
-                    None => scan_packed_plain(
+                    true => scan_packed_plain(
                         &mut slots, bits, at, &settings, &mut spill, sums, &mut best,
                     ),
                 }
@@ -2571,9 +2493,7 @@ mod tests {
                 }));
             }
             splits += results[0].is_some() as usize;
-            for (build, found) in Build::all_here().iter().zip(&results[1..]) {
-                assert_eq!(results[0], *found, "round {round} {build:?}");
-            }
+            assert_eq!(results[0], results[1], "round {round}");
         }
         assert!(splits > 100, "{splits} rounds found a split");
     }
