@@ -973,14 +973,17 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
 /// weights of 1 say, every sum is exact either way, so the trees are those grown on the
 /// repeats; with fractions, sums may round differently.)
 fn collapse_repeats(rows: &[u32], stats: &[f64], n: usize) -> (Vec<u32>, Vec<[f64; 3]>) {
-    let (kept, counts) = collapse_counts(rows, n);
-    let pairs = counts
+    let (kept, draws) = count_draws(rows, n);
+    let pairs = draws
         .iter()
-        .enumerate()
-        .map(|(r, &c)| match c {
-            0.0 => [0.0; 3],
-            1.0 => [stats[2 * r], stats[2 * r + 1], 1.0],
-            _ => [c * stats[2 * r], c * stats[2 * r + 1], c],
+        .zip(stats.chunks_exact(2))
+        .map(|(&c, s)| match c {
+            0 => [0.0; 3],
+            1 => [s[0], s[1], 1.0],
+            _ => {
+                let c = f64::from(c);
+                [c * s[0], c * s[1], c]
+            }
         })
         .collect();
     (kept, pairs)
@@ -990,20 +993,25 @@ fn collapse_repeats(rows: &[u32], stats: &[f64], n: usize) -> (Vec<u32>, Vec<[f6
 /// [`collapse_repeats`]' rule for any number of statistics, whose nodes multiply a row's
 /// statistics by its draws as they sum them (a draw of 1 leaves them exact).
 fn collapse_counts(rows: &[u32], n: usize) -> (Vec<u32>, Vec<f64>) {
-    let mut counts = vec![0.0; n];
+    let (kept, draws) = count_draws(rows, n);
+    (kept, draws.into_iter().map(f64::from).collect())
+}
+
+/// The rows of `rows` (with repeats) each once in row order, and every row's number of
+/// draws by row, of `n`. Rows given without repeats keep their order.
+fn count_draws(rows: &[u32], n: usize) -> (Vec<u32>, Vec<u32>) {
+    let mut draws = vec![0u32; n];
     let mut repeats = false;
     for &r in rows {
-        let c = &mut counts[r as usize];
-        repeats |= *c > 0.0;
-        *c += 1.0;
+        let c = &mut draws[r as usize];
+        repeats |= *c > 0;
+        *c += 1;
     }
     let kept = match repeats {
         false => rows.to_vec(),
-        true => (0..n as u32)
-            .filter(|&r| counts[r as usize] > 0.0)
-            .collect(),
+        true => (0..n as u32).filter(|&r| draws[r as usize] > 0).collect(),
     };
-    (kept, counts)
+    (kept, draws)
 }
 
 /// Each row's class-1 count and row count packed as `(s1 << 32) | rows`, by row, when the
