@@ -974,16 +974,14 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
 /// repeats; with fractions, sums may round differently.)
 fn collapse_repeats(rows: &[u32], stats: &[f64], n: usize) -> (Vec<u32>, Vec<[f64; 3]>) {
     let (kept, draws) = count_draws(rows, n);
+    // Multiplied whatever the count, without a branch on it (random in a bootstrap): a
+    // count of 1 leaves every number as it is, and rows not drawn are never read.
     let pairs = draws
         .iter()
         .zip(stats.chunks_exact(2))
-        .map(|(&c, s)| match c {
-            0 => [0.0; 3],
-            1 => [s[0], s[1], 1.0],
-            _ => {
-                let c = f64::from(c);
-                [c * s[0], c * s[1], c]
-            }
+        .map(|(&c, s)| {
+            let c = f64::from(c);
+            [c * s[0], c * s[1], c]
         })
         .collect();
     (kept, pairs)
@@ -1009,7 +1007,18 @@ fn count_draws(rows: &[u32], n: usize) -> (Vec<u32>, Vec<u32>) {
     }
     let kept = match repeats {
         false => rows.to_vec(),
-        true => (0..n as u32).filter(|&r| draws[r as usize] > 0).collect(),
+        true => {
+            // Every row written, the next place taken only by a drawn one: no branch on
+            // whether it was drawn (random in a bootstrap).
+            let mut kept = vec![0u32; n + 1];
+            let mut k = 0;
+            for (r, &c) in draws.iter().enumerate() {
+                kept[k] = r as u32;
+                k += usize::from(c > 0);
+            }
+            kept.truncate(k);
+            kept
+        }
     };
     (kept, draws)
 }
