@@ -603,8 +603,9 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                         }
                     }
                     bins_in_order(bits, &mut self.order);
-                    let (hist, order) = (&mut self.hist[..], &self.order[..]);
-                    scan_classes::<B, 4>(hist, order, bits, j, parent_cost, settings, &mut best);
+                    let at = (B::MISSING.index(), j, true, parent_cost);
+                    scan_classes::<B, 4>(&self.hist, &self.order, at, settings, &mut best);
+                    clear_slots::<4>(&mut self.hist, bits);
                 }
             }
         }
@@ -729,38 +730,14 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     _ => fill_rows_classes::<B, 5>(&mut self.hist, column, rows, stats, counts),
                 };
                 bins_in_order(bits, &mut self.order);
-                let (hist, order) = (&mut self.hist[..], &self.order[..]);
-                if bounded || limits.monotone != 0 {
-                    let sums = &mut self.sums;
-                    let at = (B::MISSING.index(), j, numeric, parent_cost);
-                    scan(
-                        hist, order, at.0, sums, at.1, at.2, at.3, settings, &limits, &mut best,
-                    );
-                    match width {
-                        3 => clear_slots::<4>(hist, bits),
-                        _ => clear_slots::<5>(hist, bits),
-                    }
-                } else {
-                    match width {
-                        3 => scan_classes::<B, 4>(
-                            hist,
-                            order,
-                            bits,
-                            j,
-                            parent_cost,
-                            settings,
-                            &mut best,
-                        ),
-                        _ => scan_classes::<B, 5>(
-                            hist,
-                            order,
-                            bits,
-                            j,
-                            parent_cost,
-                            settings,
-                            &mut best,
-                        ),
-                    }
+                let (hist, order, sums) = (&mut self.hist[..], &self.order[..], &mut self.sums);
+                let at = (B::MISSING.index(), j, numeric, parent_cost);
+                scan(
+                    hist, order, at.0, sums, at.1, at.2, at.3, settings, &limits, &mut best,
+                );
+                match width {
+                    3 => clear_slots::<4>(hist, bits),
+                    _ => clear_slots::<5>(hist, bits),
                 }
                 continue;
             }
@@ -1408,26 +1385,22 @@ fn clear_slots<const S: usize>(hist: &mut [f64], bits: [u64; 4]) {
     }
 }
 
-/// [`scan`] for a number predictor of several classes (`S − 1` statistics a bin and its
-/// rows) without bounds or a monotone constraint, from the slots [`fill_rows_classes`]
-/// filled (`order`: the bins with rows but the missing one, in order; `bits`: every bin
-/// filled, all emptied on return). The same additions, tests and costs in the same order as
-/// [`scan`]'s general loop, on fixed-width sums the compiler keeps in registers, and the
-/// split written once at the end rather than at every better point, so the same split.
-#[allow(clippy::too_many_arguments)]
+/// [`scan_general`] for several classes (`S − 1` statistics a bin and its rows) without
+/// bounds or a monotone constraint (`at`: the missing values' slot, the predictor, whether
+/// it is a number, the node's cost). The same additions, tests and costs in the same order,
+/// on fixed-width sums the compiler keeps in registers, and the split written once at the
+/// end rather than at every better point, so the same split.
 fn scan_classes<B: Bin, const S: usize>(
-    hist: &mut [f64],
+    hist: &[f64],
     order: &[B],
-    bits: [u64; 4],
-    feature: usize,
-    parent_cost: f64,
+    (missing_slot, feature, numeric, parent_cost): (usize, usize, bool, f64),
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) {
     let width = S - 1;
     let criterion = settings.criterion;
     let (slots, _) = hist.as_chunks::<S>();
-    let missing = slots[B::MISSING.index() & 255];
+    let missing = slots[missing_slot];
     let mut total = missing;
     for &b in order {
         for (t, v) in total.iter_mut().zip(&slots[b.index()]) {
@@ -1477,14 +1450,13 @@ fn scan_classes<B: Bin, const S: usize>(
         *best = Some(split_at(
             gain,
             feature,
-            true,
+            numeric,
             order,
             i,
             missing_left,
             (0.0, 0.0),
         ));
     }
-    clear_slots::<S>(hist, bits);
 }
 
 /// Sorts category bins into the order their splits are scanned: by mean response where it
@@ -1527,8 +1499,46 @@ struct Limits {
 
 /// Scans the split points of one predictor, bins in `order`, updating `best`. With missing
 /// values, one pass sends them left and a second sends them right; without, one pass.
+/// Several classes (three or four statistics) without bounds take [`scan_classes`], the same
+/// loop at a width fixed when compiled.
 #[allow(clippy::too_many_arguments)]
 fn scan<B: Bin>(
+    hist: &[f64],
+    order: &[B],
+    missing_slot: usize,
+    sums: &mut ScanSums,
+    feature: usize,
+    numeric: bool,
+    parent_cost: f64,
+    settings: &GrowSettings,
+    limits: &Limits,
+    best: &mut Option<Split>,
+) {
+    if !limits.bounded && limits.monotone == 0 {
+        let at = (missing_slot, feature, numeric, parent_cost);
+        match sums.total.len() {
+            4 => return scan_classes::<B, 4>(hist, order, at, settings, best),
+            5 => return scan_classes::<B, 5>(hist, order, at, settings, best),
+            _ => {}
+        }
+    }
+    scan_general(
+        hist,
+        order,
+        missing_slot,
+        sums,
+        feature,
+        numeric,
+        parent_cost,
+        settings,
+        limits,
+        best,
+    );
+}
+
+/// [`scan`]'s loop for any width and bounds.
+#[allow(clippy::too_many_arguments)]
+fn scan_general<B: Bin>(
     hist: &[f64],
     order: &[B],
     missing_slot: usize,
@@ -2943,9 +2953,10 @@ mod tests {
 
     #[test]
     fn several_classes_scanned_at_fixed_width_find_the_general_scans_split() {
-        // `fill_rows_classes` and `scan_classes` against `fill_histogram` and `scan` (our own
-        // consistency rule, no source needed): three and four classes, whole and fractional
-        // statistics, rows drawn up to three times, missing values or none, a least leaf
+        // `fill_rows_classes`, and `scan` at fixed width (`scan_classes`), against
+        // `fill_histogram` and the general loop `scan_general` (our own consistency rule, no
+        // source needed): three and four classes, whole and fractional statistics, rows drawn
+        // up to three times, missing values or none, numbers or categories, a least leaf
         // size and a least weight, and a split to beat. The same split to the bit, and every
         // slot emptied.
         let mut draw = xorshift(0x2545_F491_4F6C_DD1Du64);
@@ -3009,10 +3020,14 @@ mod tests {
             fill_histogram(&mut hist, &mut touched, &column, &rows, None, sc, width);
             let mut order: Vec<u8> = touched.iter().copied().filter(|&b| b != 255).collect();
             order.sort_unstable();
+            // Numbers, or every fifth round the bins taken as categories in that order.
+            let numeric = round % 5 != 4;
             let (mut sums, mut want) = (ScanSums::new(width), before.clone());
-            let at = (255, 3, true, parent_cost);
-            scan(
-                &hist, &order, at.0, &mut sums, at.1, at.2, at.3, &settings, &limits, &mut want,
+            let at = (255, 3, numeric, parent_cost);
+            let sums = &mut sums;
+            let (h, o) = (&hist, &order);
+            scan_general(
+                h, o, at.0, sums, at.1, at.2, at.3, &settings, &limits, &mut want,
             );
             // At fixed width.
             let mut fixed = vec![0.0; 256 * stride];
@@ -3022,25 +3037,13 @@ mod tests {
             };
             assert_eq!(fixed, hist, "round {round}: the same sums in every slot");
             let mut got = before.clone();
+            let (f, o) = (&fixed, &order);
+            scan(
+                f, o, at.0, sums, at.1, at.2, at.3, &settings, &limits, &mut got,
+            );
             match width {
-                3 => scan_classes::<u8, 4>(
-                    &mut fixed,
-                    &order,
-                    bits,
-                    3,
-                    parent_cost,
-                    &settings,
-                    &mut got,
-                ),
-                _ => scan_classes::<u8, 5>(
-                    &mut fixed,
-                    &order,
-                    bits,
-                    3,
-                    parent_cost,
-                    &settings,
-                    &mut got,
-                ),
+                3 => clear_slots::<4>(&mut fixed, bits),
+                _ => clear_slots::<5>(&mut fixed, bits),
             }
             assert!(
                 fixed.iter().all(|&h| h == 0.0),
@@ -3049,7 +3052,7 @@ mod tests {
             let key = |s: &Option<Split>| {
                 s.as_ref().map(|s| {
                     let place = (s.feature, s.threshold_bin, s.next_bin, s.missing_left);
-                    (s.gain.to_bits(), place)
+                    (s.gain.to_bits(), place, s.numeric, s.categories)
                 })
             };
             assert_eq!(key(&got), key(&want), "round {round}");
