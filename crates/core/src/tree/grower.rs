@@ -593,6 +593,12 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .zip(self.packed_hist.chunks_exact_mut(256))
                     .zip(bits)
                 {
+                    // Gini without missing values: scanned packed, in flat loops.
+                    if criterion == Criterion::Gini && slots[B::MISSING.index()] == 0 {
+                        let (at, sums) = ((j, parent_cost), &mut self.left_sums);
+                        scan_packed3(slots, bits, at, settings, sums, &mut best);
+                        continue;
+                    }
                     // The used slots unpacked into the general histogram, and emptied.
                     let (general, _) = self.hist.as_chunks_mut::<4>();
                     for (w, mut word) in bits.into_iter().enumerate() {
@@ -1373,6 +1379,129 @@ fn unpack_classes3(p: u64) -> [f64; 4] {
     [(k - k1 - k2) as f64, k1 as f64, k2 as f64, k as f64]
 }
 
+twice_for_avx2! {
+    /// [`scan_classes`] for three classes counted whole ([`pack_classes3`]) under Gini, when
+    /// the node's rows have no missing value in the predictor (slot 255 empty): the running
+    /// sums added packed as the bins are read in order (each slot emptied as it is read),
+    /// unpacked in a loop apart, every split point's gain on its own, then the first of the
+    /// largest, as [`scan_packed`] does for two classes. Every count is a whole number below
+    /// 2²¹, so every sum, square and sum of squares is exact in any order, and each gain is
+    /// [`scan_classes`]' to the bit: the same division and subtractions of the same numbers.
+    /// The right side shrinks to too few rows only once, so the points [`scan_classes`]
+    /// stops before fail the same test here. Compiled for AVX2 too.
+    fn scan_packed3(
+        slots: &mut [u64],
+        bits: [u64; 4],
+        at: (usize, f64),
+        settings: &GrowSettings,
+        sums: &mut LeftSums,
+        best: &mut Option<Split>,
+    ) = scan_packed3_plain
+}
+
+/// [`scan_packed3`]'s body, inlined into each of its builds.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn scan_packed3_plain(
+    slots: &mut [u64],
+    mut bits: [u64; 4],
+    (feature, parent_cost): (usize, f64),
+    settings: &GrowSettings,
+    sums: &mut LeftSums,
+    best: &mut Option<Split>,
+) {
+    let m = u8::MISSING.index();
+    bits[m >> 6] &= !(1 << (m & 63));
+    let LeftSums {
+        bins,
+        s0,
+        s1,
+        s2,
+        rows,
+        packed,
+        gain,
+    } = sums;
+    let mut acc = 0u64;
+    let mut used = 0;
+    for (w, mut word) in bits.into_iter().enumerate() {
+        while word != 0 {
+            let b = w * 64 + word.trailing_zeros() as usize;
+            acc += std::mem::replace(&mut slots[b], 0);
+            (bins[used], packed[used]) = (b as u8, acc);
+            used += 1;
+            word &= word - 1;
+        }
+    }
+    if used == 0 {
+        return;
+    }
+    // Each field is below 2²¹: converted as i32, which vectorises.
+    const FIELD: u64 = (1 << 21) - 1;
+    let lanes = packed[..used]
+        .iter()
+        .zip(&mut s0[..used])
+        .zip(&mut s1[..used])
+        .zip(&mut s2[..used])
+        .zip(&mut rows[..used]);
+    for ((((&p, l0), l1), l2), lc) in lanes {
+        let (k2, k1, k) = (
+            (p >> 42) as i32,
+            ((p >> 21) & FIELD) as i32,
+            (p & FIELD) as i32,
+        );
+        (*l0, *l1, *l2, *lc) = (
+            f64::from(k - k1 - k2),
+            f64::from(k1),
+            f64::from(k2),
+            f64::from(k),
+        );
+    }
+    let last = used - 1;
+    let t = [s0[last], s1[last], s2[last], rows[last]];
+    let min_leaf = settings.min_rows_leaf.max(1) as f64;
+    let min_weight = settings.min_weight_leaf;
+    // `Criterion::cost` of Gini for three classes, computed whatever `w` is and then chosen.
+    let gini = |a: f64, b: f64, c: f64| {
+        let w = a + b + c;
+        let v = w - (a * a + b * b + c * c) / w;
+        if w <= 0.0 {
+            0.0
+        } else {
+            v
+        }
+    };
+    let lanes = gain[..used]
+        .iter_mut()
+        .zip(&s0[..used])
+        .zip(&s1[..used])
+        .zip(&s2[..used])
+        .zip(&rows[..used]);
+    for ((((out, &l0), &l1), &l2), &lc) in lanes {
+        let (r0, r1, r2) = (t[0] - l0, t[1] - l1, t[2] - l2);
+        let ok = !(lc < min_leaf)
+            & !(t[3] - lc < min_leaf)
+            & !(l0 + l1 + l2 < min_weight)
+            & !(r0 + r1 + r2 < min_weight);
+        let v = parent_cost - gini(l0, l1, l2) - gini(r0, r1, r2);
+        *out = if ok { v } else { f64::NEG_INFINITY };
+    }
+    let (at, g) = first_best_plain(&gain[..used]);
+    if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
+        return;
+    }
+    *best = Some(Split {
+        gain: g,
+        feature,
+        numeric: true,
+        threshold_bin: usize::from(bins[at]),
+        next_bin: (at < last).then(|| usize::from(bins[at + 1])),
+        categories: BinSet::default(),
+        missing_left: false,
+        values: (0.0, 0.0),
+        left_counts: None,
+    });
+}
+
 /// Empties the slots of `S` numbers of the bins set in `bits` (fixed-width stores, not a
 /// call to fill a slice of unknown length).
 fn clear_slots<const S: usize>(hist: &mut [f64], bits: [u64; 4]) {
@@ -2012,6 +2141,8 @@ struct LeftSums {
     bins: Box<[u8; 256]>,
     s0: Box<[f64; 256]>,
     s1: Box<[f64; 256]>,
+    /// The third class's running sums ([`scan_packed3`] only).
+    s2: Box<[f64; 256]>,
     rows: Box<[f64; 256]>,
     /// The running sums as packed counts ([`pack_counts`]), before they are unpacked.
     packed: Box<[u64; 256]>,
@@ -2024,6 +2155,7 @@ impl LeftSums {
             bins: Box::new([0; 256]),
             s0: Box::new([0.0; 256]),
             s1: Box::new([0.0; 256]),
+            s2: Box::new([0.0; 256]),
             rows: Box::new([0.0; 256]),
             packed: Box::new([0; 256]),
             gain: Box::new([0.0; 256]),
@@ -3062,6 +3194,99 @@ mod tests {
         assert!(
             found > 200 && missing_sides > 10,
             "{found} splits, {missing_sides} missing left"
+        );
+    }
+
+    #[test]
+    fn three_classes_scanned_packed_find_the_fixed_width_scans_split() {
+        // `scan_packed3` (three whole classes packed, Gini, no missing values) against
+        // `fill_rows_classes` and `scan_classes` (our own consistency rule, no source needed):
+        // rows drawn up to three times, a least leaf size and a least weight, and a split to
+        // beat, or one that ties. The same split to the bit, and every slot emptied.
+        let mut draw = xorshift(0x9E37_79B9_7F4A_7C15u64);
+        let mut next = |m: u64| draw() % m;
+        let (mut found, mut kept_before) = (0, 0);
+        for round in 0..400 {
+            let n = 1 + next(300) as usize;
+            let spread = 1 + next(255);
+            let column: Vec<u8> = (0..n).map(|_| next(spread) as u8).collect();
+            let mut stats = vec![0.0; n * 3];
+            for row in stats.chunks_exact_mut(3) {
+                row[next(3) as usize] = 1.0;
+            }
+            let counts: Vec<f64> = (0..n).map(|_| next(4) as f64).collect();
+            let rows: Vec<u32> = (0..n as u32)
+                .filter(|&r| counts[r as usize] > 0.0)
+                .collect();
+            let settings = GrowSettings {
+                min_rows_leaf: 1 + round % 3,
+                min_weight_leaf: if round % 4 == 3 { 6.5 } else { 0.0 },
+                ..GrowSettings::default()
+            };
+            let parent_cost = 10.0 + next(100) as f64;
+            let mut hist = vec![0.0; 256 * 4];
+            let bits = fill_rows_classes::<u8, 4>(&mut hist, &column, &rows, &stats, &counts);
+            let mut order = Vec::new();
+            bins_in_order(bits, &mut order);
+            let at = (255, 3, true, parent_cost);
+            // Every sixth round a split to beat; every sixth but one, one whose gain ties
+            // this predictor's best (kept: a split must gain strictly more).
+            let mut alone = None;
+            scan_classes::<u8, 4>(&hist, &order, at, &settings, &mut alone);
+            let to_beat = match round % 6 {
+                5 => Some(next(5) as f64 / 4.0),
+                4 => alone.map(|s| s.gain),
+                _ => None,
+            };
+            let before = to_beat.map(|gain| Split {
+                gain,
+                feature: 9,
+                numeric: true,
+                threshold_bin: 0,
+                next_bin: None,
+                categories: BinSet::default(),
+                missing_left: false,
+                values: (0.0, 0.0),
+                left_counts: None,
+            });
+            // At fixed width, from the statistics as numbers.
+            let mut want = before.clone();
+            scan_classes::<u8, 4>(&hist, &order, at, &settings, &mut want);
+            // Packed.
+            let packed = pack_classes3(&rows, &stats, &counts, Criterion::Gini);
+            assert!(!packed.is_empty(), "round {round}: whole counts pack");
+            let mut slots = vec![0u64; 256];
+            for &r in &rows {
+                slots[column[r as usize] as usize] += packed[r as usize];
+            }
+            let mut got = before.clone();
+            let mut sums = LeftSums::new();
+            scan_packed3(
+                &mut slots,
+                bits,
+                (3, parent_cost),
+                &settings,
+                &mut sums,
+                &mut got,
+            );
+            assert!(
+                slots.iter().all(|&s| s == 0),
+                "round {round}: slots emptied"
+            );
+            let key = |s: &Option<Split>| {
+                s.as_ref().map(|s| {
+                    let place = (s.feature, s.threshold_bin, s.next_bin, s.missing_left);
+                    (s.gain.to_bits(), place, s.numeric, s.categories)
+                })
+            };
+            assert_eq!(key(&got), key(&want), "round {round}");
+            found += usize::from(want.as_ref().is_some_and(|s| s.feature == 3));
+            kept_before +=
+                usize::from(before.is_some() && want.as_ref().is_some_and(|s| s.feature == 9));
+        }
+        assert!(
+            found > 200 && kept_before > 50,
+            "{found} splits, {kept_before} kept"
         );
     }
 
