@@ -192,13 +192,20 @@ impl BinnedMatrix {
 /// × 30 numbers took 1.67 -> 1.19 G instructions (callgrind) against sorting with
 /// `f64::total_cmp`.
 pub fn sort_numbers(values: &mut [f64]) {
-    // Its own inverse: the sign bit is kept, so the same bits are flipped back.
-    let key = |bits: u64| (bits ^ ((((bits as i64) >> 63) as u64) >> 1)) as i64;
-    let mut keys: Vec<i64> = values.iter().map(|x| key(x.to_bits())).collect();
+    let mut keys: Vec<i64> = values.iter().map(|&x| order_key(x)).collect();
     keys.sort_unstable();
     for (v, k) in values.iter_mut().zip(keys) {
-        *v = f64::from_bits(key(k as u64) as u64);
+        // Its own inverse: the sign bit is kept, so the same bits are flipped back.
+        *v = f64::from_bits(order_key(f64::from_bits(k as u64)) as u64);
     }
+}
+
+/// An integer that orders as [`f64::total_cmp`] orders `x`: its bits, with the other bits of
+/// a negative number flipped (the mapping `total_cmp` itself compares by).
+#[inline(always)]
+pub fn order_key(x: f64) -> i64 {
+    let bits = x.to_bits();
+    (bits ^ ((((bits as i64) >> 63) as u64) >> 1)) as i64
 }
 
 /// Thresholds for numbers, by the rule in this module's header.
