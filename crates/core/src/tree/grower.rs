@@ -75,8 +75,9 @@ struct Split {
     missing_left: bool,
     /// The children's values (held within the node's bounds), for monotone bounds.
     values: (f64, f64),
-    /// The left child's packed counts ([`pack_counts`]) when a scan of packed counts found
-    /// the split, so the children's totals need no pass over their rows.
+    /// The left child's packed counts ([`pack_counts`], or [`pack_classes3`] for three
+    /// classes) when a scan of packed counts found the split, so the children's totals need
+    /// no pass over their rows.
     left_counts: Option<u64>,
 }
 
@@ -97,7 +98,7 @@ struct Candidate {
     depth: usize,
     split: Split,
     bounds: (f64, f64),
-    /// The node's packed counts ([`pack_counts`]), when it has them.
+    /// The node's packed counts ([`pack_counts`] or [`pack_classes3`]), when it has them.
     counts: Option<u64>,
     /// The node's dense histograms of every predictor, kept when the node is large enough
     /// that its larger child's histograms are cheaper by subtraction.
@@ -479,6 +480,18 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             packed_sum = Some(sum);
             let [t0, t1, tc] = unpack_counts(sum);
             self.totals.copy_from_slice(&[t0, t1]);
+            n = tc as usize;
+        } else if !self.classes3.is_empty() {
+            // Three whole classes: the same, packed as `pack_classes3` packs them.
+            let sum: u64 = counts.unwrap_or_else(|| {
+                self.work[start..end]
+                    .iter()
+                    .map(|&r| self.classes3[r as usize])
+                    .sum()
+            });
+            packed_sum = Some(sum);
+            let [t0, t1, t2, tc] = unpack_classes3(sum);
+            self.totals.copy_from_slice(&[t0, t1, t2]);
             n = tc as usize;
         } else if width == 2 {
             // The same sums in the same order, from the pairs kept beside the rows; the range
@@ -1498,7 +1511,7 @@ fn scan_packed3_plain(
         categories: BinSet::default(),
         missing_left: false,
         values: (0.0, 0.0),
-        left_counts: None,
+        left_counts: Some(packed[at]),
     });
 }
 
