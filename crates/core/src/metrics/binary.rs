@@ -38,9 +38,19 @@ pub fn auc(outcomes: &[u32], scores: &[f64]) -> Result<Auc> {
     check_codes01(WHAT, outcomes)?;
     check_scores(WHAT, scores)?;
     class_weights(WHAT, outcomes, None)?;
+    auc_in_order(outcomes, scores, &order_by(scores))
+}
+
+/// [`auc`] of outcomes whose scores (checked) are already ordered by [`order_by`], for
+/// callers that score several outcomes with the same numbers.
+pub(crate) fn auc_in_order(outcomes: &[u32], scores: &[f64], order: &[usize]) -> Result<Auc> {
+    const WHAT: &str = "the AUC";
+    check_lengths(WHAT, outcomes.len(), scores.len(), "predictions")?;
+    check_lengths(WHAT, outcomes.len(), order.len(), "places in order")?;
+    check_codes01(WHAT, outcomes)?;
+    class_weights(WHAT, outcomes, None)?;
     let m = outcomes.iter().filter(|&&c| c == 1).count();
     let n = outcomes.len() - m;
-    let order = order_by(scores);
     // Placement values: for an event row, the share of non-events it outranks; for a
     // non-event row, the share of events that outrank it (ties one half).
     let mut v10 = Vec::with_capacity(m);

@@ -6,7 +6,8 @@
 
 use crate::data::{summary::looks_like_id_name, Table, MISSING_CODE};
 use crate::design::{Design, Outcome, PredictorValues};
-use crate::metrics::binary::auc;
+use crate::metrics::binary::{auc, auc_in_order};
+use crate::metrics::order_by;
 use crate::metrics::sample_size::{events_per_predictor, rows_for_overall_risk};
 
 use super::Scheme;
@@ -76,10 +77,28 @@ pub fn single_predictor_class_auc(
     codes: &[u32],
     classes: usize,
 ) -> Option<(f64, usize)> {
+    // Numbers score every class alike: the rows with a value, sorted once.
+    let sorted = match values {
+        PredictorValues::Numbers(v) => {
+            let kept: Vec<usize> = (0..v.len()).filter(|&r| v[r].is_finite()).collect();
+            let score: Vec<f64> = kept.iter().map(|&r| v[r]).collect();
+            let order = order_by(&score);
+            Some((kept, score, order))
+        }
+        PredictorValues::Levels { .. } => None,
+    };
     (0..classes)
         .filter_map(|k| {
             let is_k: Vec<u32> = codes.iter().map(|&c| u32::from(c as usize == k)).collect();
-            Some((single_predictor_auc(values, &is_k)?, k))
+            let a = match &sorted {
+                Some((kept, score, order)) => {
+                    let y: Vec<u32> = kept.iter().map(|&r| is_k[r]).collect();
+                    let a = auc_in_order(&y, score, order).ok()?.value;
+                    a.max(1.0 - a)
+                }
+                None => single_predictor_auc(values, &is_k)?,
+            };
+            Some((a, k))
         })
         .fold(None, |best, (a, k)| match best {
             Some((b, _)) if b >= a => best,
@@ -460,6 +479,47 @@ mod tests {
         };
         let (a, k) = single_predictor_class_auc(&d.predictors[0].values, codes, 3).unwrap();
         assert_eq!((a, k), (1.0, 2));
+    }
+
+    #[test]
+    fn several_classes_sorted_once_give_each_class_its_own_auc() {
+        // A number predictor's one-vs-rest AUCs from one sort of its values against each
+        // class's `single_predictor_auc` (our own consistency rule, no source needed): ties,
+        // missing values, four classes, one of them ranked backwards; the same value to the
+        // bit and the same class.
+        let mut text = String::from("kind,x\n");
+        for i in 0..400u32 {
+            let kind = ["a", "b", "c", "d"][((i * 7 + i / 13) % 4) as usize];
+            let x = match i % 17 {
+                0 => "NA".to_string(),
+                // Class b a little higher, class d mostly lower (an AUC folded above 0.5).
+                _ => format!(
+                    "{}",
+                    ((i * 31 + 5 * (kind == "b") as u32) % 23) as i32
+                        - 12 * i32::from(kind == "d" && i % 5 != 0)
+                ),
+            };
+            text += &format!("{kind},{x}\n");
+        }
+        let d = design_of(&text, "kind", &["x"]);
+        let Outcome::Classes { codes, .. } = &d.outcome else {
+            panic!("classes")
+        };
+        let values = &d.predictors[0].values;
+        let each: Vec<f64> = (0..4)
+            .map(|k| {
+                let is_k: Vec<u32> = codes.iter().map(|&c| u32::from(c == k)).collect();
+                single_predictor_auc(values, &is_k).unwrap()
+            })
+            .collect();
+        let (a, k) = single_predictor_class_auc(values, codes, 4).unwrap();
+        let first_best = (0..4).fold(0, |b, i| if each[i] > each[b] { i } else { b });
+        assert_eq!((a.to_bits(), k), (each[first_best].to_bits(), first_best));
+        assert!(each.iter().any(|&e| e != each[0]), "{each:?}");
+        assert_eq!(
+            k, 3,
+            "class d, ranked backwards, is told apart best: {each:?}"
+        );
     }
 
     #[test]
