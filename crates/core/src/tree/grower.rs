@@ -748,6 +748,18 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     3 => fill_rows_classes::<B, 4>(&mut self.hist, column, rows, stats, counts),
                     _ => fill_rows_classes::<B, 5>(&mut self.hist, column, rows, stats, counts),
                 };
+                let m = B::MISSING.index();
+                if criterion == Criterion::Gini && !bounded && self.hist[m * stride + width] == 0.0
+                {
+                    // Gini without missing values: in flat loops.
+                    let (hist, sums, at) =
+                        (&mut self.hist[..], &mut self.left_sums, (j, parent_cost));
+                    match width {
+                        3 => scan_filled_classes3(hist, bits, at, settings, sums, &mut best),
+                        _ => scan_filled_classes4(hist, bits, at, settings, sums, &mut best),
+                    }
+                    continue;
+                }
                 bins_in_order(bits, &mut self.order);
                 let (hist, order, sums) = (&mut self.hist[..], &self.order[..], &mut self.sums);
                 let at = (B::MISSING.index(), j, numeric, parent_cost);
@@ -1433,6 +1445,7 @@ fn scan_packed3_plain(
         rows,
         packed,
         gain,
+        ..
     } = sums;
     let mut acc = 0u64;
     let mut used = 0;
@@ -1512,6 +1525,152 @@ fn scan_packed3_plain(
         missing_left: false,
         values: (0.0, 0.0),
         left_counts: Some(packed[at]),
+    });
+}
+
+twice_for_avx2! {
+    /// [`scan_filled_classes`] for three classes (compiled for AVX2 too).
+    fn scan_filled_classes3(
+        hist: &mut [f64],
+        bits: [u64; 4],
+        at: (usize, f64),
+        settings: &GrowSettings,
+        sums: &mut LeftSums,
+        best: &mut Option<Split>,
+    ) = scan_filled_classes3_plain
+}
+
+twice_for_avx2! {
+    /// [`scan_filled_classes`] for four classes (compiled for AVX2 too).
+    fn scan_filled_classes4(
+        hist: &mut [f64],
+        bits: [u64; 4],
+        at: (usize, f64),
+        settings: &GrowSettings,
+        sums: &mut LeftSums,
+        best: &mut Option<Split>,
+    ) = scan_filled_classes4_plain
+}
+
+#[inline(always)]
+fn scan_filled_classes3_plain(
+    hist: &mut [f64],
+    bits: [u64; 4],
+    at: (usize, f64),
+    settings: &GrowSettings,
+    sums: &mut LeftSums,
+    best: &mut Option<Split>,
+) {
+    scan_filled_classes::<4>(hist, bits, at, settings, sums, best);
+}
+
+#[inline(always)]
+fn scan_filled_classes4_plain(
+    hist: &mut [f64],
+    bits: [u64; 4],
+    at: (usize, f64),
+    settings: &GrowSettings,
+    sums: &mut LeftSums,
+    best: &mut Option<Split>,
+) {
+    scan_filled_classes::<5>(hist, bits, at, settings, sums, best);
+}
+
+/// [`scan_classes`] under Gini for `S − 1` classes (three or four) from the slots
+/// [`fill_rows_classes`] filled (`bits`: the bins used), when the node's rows have no missing
+/// value in the predictor and its value is unbounded: the running sums after each bin in
+/// order (each slot emptied as it is read), every split point's gain on its own, then the
+/// first of the largest, as [`scan_filled_present`] does for two statistics. Any weights:
+/// the left sums are [`scan_classes`]' additions in its order, the total is the last of them
+/// (its total adds the same bins in the same order to the empty missing slot), and each cost
+/// is [`Criterion::cost`]'s sum, sum of squares and division in its order, so the same split
+/// to the bit.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn scan_filled_classes<const S: usize>(
+    hist: &mut [f64],
+    mut bits: [u64; 4],
+    (feature, parent_cost): (usize, f64),
+    settings: &GrowSettings,
+    sums: &mut LeftSums,
+    best: &mut Option<Split>,
+) {
+    let width = S - 1;
+    let m = u8::MISSING.index();
+    bits[m >> 6] &= !(1 << (m & 63));
+    let (slots, _) = hist.as_chunks_mut::<S>();
+    let LeftSums {
+        bins,
+        s0,
+        s1,
+        s2,
+        s3,
+        rows,
+        gain,
+        ..
+    } = sums;
+    // Class k's running sums in `lanes[k]`, the rows' in `lanes[width]`.
+    let (mut classes, mut rows) = ([s0, s1, s2, s3].into_iter(), Some(rows));
+    let lanes: [&mut [f64; 256]; S] = std::array::from_fn(|k| match k == width {
+        true => &mut **rows.take().expect("one lane of rows"),
+        false => &mut **classes.next().expect("a lane a class"),
+    });
+    let mut acc = [0.0; S];
+    let mut used = 0;
+    for (w, mut word) in bits.into_iter().enumerate() {
+        while word != 0 {
+            let b = w * 64 + word.trailing_zeros() as usize;
+            let slot = std::mem::replace(&mut slots[b], [0.0; S]);
+            for k in 0..S {
+                acc[k] += slot[k];
+                lanes[k][used] = acc[k];
+            }
+            bins[used] = b as u8;
+            used += 1;
+            word &= word - 1;
+        }
+    }
+    if used == 0 {
+        return;
+    }
+    let t = acc;
+    let min_leaf = settings.min_rows_leaf.max(1) as f64;
+    let min_weight = settings.min_weight_leaf;
+    // `Criterion::cost` of Gini and `Criterion::weight`: sums from the first class on.
+    let weigh = |c: &[f64; S]| {
+        let (mut w, mut q) = (c[0], c[0] * c[0]);
+        for &v in &c[1..width] {
+            w += v;
+            q += v * v;
+        }
+        let cost = w - q / w;
+        (w, if w <= 0.0 { 0.0 } else { cost })
+    };
+    for (i, out) in gain[..used].iter_mut().enumerate() {
+        let left: [f64; S] = std::array::from_fn(|k| lanes[k][i]);
+        let right: [f64; S] = std::array::from_fn(|k| t[k] - left[k]);
+        let ((wl, cl), (wr, cr)) = (weigh(&left), weigh(&right));
+        let ok = !(left[width] < min_leaf)
+            & !(t[width] - left[width] < min_leaf)
+            & !(wl < min_weight)
+            & !(wr < min_weight);
+        let v = parent_cost - cl - cr;
+        *out = if ok { v } else { f64::NEG_INFINITY };
+    }
+    let (at, g) = first_best_plain(&gain[..used]);
+    if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
+        return;
+    }
+    *best = Some(Split {
+        gain: g,
+        feature,
+        numeric: true,
+        threshold_bin: usize::from(bins[at]),
+        next_bin: (at + 1 < used).then(|| usize::from(bins[at + 1])),
+        categories: BinSet::default(),
+        missing_left: false,
+        values: (0.0, 0.0),
+        left_counts: None,
     });
 }
 
@@ -2154,8 +2313,9 @@ struct LeftSums {
     bins: Box<[u8; 256]>,
     s0: Box<[f64; 256]>,
     s1: Box<[f64; 256]>,
-    /// The third class's running sums ([`scan_packed3`] only).
+    /// The third and fourth classes' running sums ([`scan_packed3`], [`scan_filled_classes`]).
     s2: Box<[f64; 256]>,
+    s3: Box<[f64; 256]>,
     rows: Box<[f64; 256]>,
     /// The running sums as packed counts ([`pack_counts`]), before they are unpacked.
     packed: Box<[u64; 256]>,
@@ -2169,6 +2329,7 @@ impl LeftSums {
             s0: Box::new([0.0; 256]),
             s1: Box::new([0.0; 256]),
             s2: Box::new([0.0; 256]),
+            s3: Box::new([0.0; 256]),
             rows: Box::new([0.0; 256]),
             packed: Box::new([0; 256]),
             gain: Box::new([0.0; 256]),
@@ -3299,6 +3460,98 @@ mod tests {
         }
         assert!(
             found > 200 && kept_before > 50,
+            "{found} splits, {kept_before} kept"
+        );
+    }
+
+    #[test]
+    fn several_classes_scanned_in_flat_loops_find_the_fixed_width_scans_split() {
+        // `scan_filled_classes` (three or four classes, Gini, no missing values, any weights)
+        // against `scan_classes` on the same slots (our own consistency rule, no source
+        // needed): whole and fractional statistics, rows drawn up to three times, a least leaf
+        // size and a least weight, a split to beat or one that ties. The same split to the
+        // bit, and every slot emptied.
+        let mut draw = xorshift(0xD1B5_4A32_D192_ED03u64);
+        let mut next = |m: u64| draw() % m;
+        let (mut found, mut kept_before) = (0, 0);
+        for round in 0..600 {
+            let width = 3 + round % 2;
+            let n = 1 + next(300) as usize;
+            let spread = 1 + next(255);
+            let column: Vec<u8> = (0..n).map(|_| next(spread) as u8).collect();
+            let mut stats = vec![0.0; n * width];
+            for row in stats.chunks_exact_mut(width) {
+                row[next(width as u64) as usize] = match round % 3 == 1 {
+                    true => 0.25 + next(8) as f64 / 3.0,
+                    false => 1.0,
+                };
+            }
+            let counts: Vec<f64> = (0..n).map(|_| next(4) as f64).collect();
+            let rows: Vec<u32> = (0..n as u32)
+                .filter(|&r| counts[r as usize] > 0.0)
+                .collect();
+            let settings = GrowSettings {
+                min_rows_leaf: 1 + round % 3,
+                min_weight_leaf: if round % 4 == 3 { 6.5 } else { 0.0 },
+                ..GrowSettings::default()
+            };
+            let parent_cost = 10.0 + next(100) as f64;
+            let mut hist = vec![0.0; 256 * (width + 1)];
+            let bits = match width {
+                3 => fill_rows_classes::<u8, 4>(&mut hist, &column, &rows, &stats, &counts),
+                _ => fill_rows_classes::<u8, 5>(&mut hist, &column, &rows, &stats, &counts),
+            };
+            let mut order = Vec::new();
+            bins_in_order(bits, &mut order);
+            let at = (255, 3, true, parent_cost);
+            let fixed = |h: &[f64], best: &mut Option<Split>| match width {
+                3 => scan_classes::<u8, 4>(h, &order, at, &settings, best),
+                _ => scan_classes::<u8, 5>(h, &order, at, &settings, best),
+            };
+            let mut alone = None;
+            fixed(&hist, &mut alone);
+            let to_beat = match round % 6 {
+                5 => Some(next(5) as f64 / 4.0),
+                4 => alone.map(|s| s.gain),
+                _ => None,
+            };
+            let before = to_beat.map(|gain| Split {
+                gain,
+                feature: 9,
+                numeric: true,
+                threshold_bin: 0,
+                next_bin: None,
+                categories: BinSet::default(),
+                missing_left: false,
+                values: (0.0, 0.0),
+                left_counts: None,
+            });
+            let mut want = before.clone();
+            fixed(&hist, &mut want);
+            let mut got = before.clone();
+            let mut sums = LeftSums::new();
+            let at = (3, parent_cost);
+            match width {
+                3 => scan_filled_classes3(&mut hist, bits, at, &settings, &mut sums, &mut got),
+                _ => scan_filled_classes4(&mut hist, bits, at, &settings, &mut sums, &mut got),
+            }
+            assert!(
+                hist.iter().all(|&h| h == 0.0),
+                "round {round}: slots emptied"
+            );
+            let key = |s: &Option<Split>| {
+                s.as_ref().map(|s| {
+                    let place = (s.feature, s.threshold_bin, s.next_bin, s.missing_left);
+                    (s.gain.to_bits(), place, s.numeric, s.categories)
+                })
+            };
+            assert_eq!(key(&got), key(&want), "round {round}");
+            found += usize::from(want.as_ref().is_some_and(|s| s.feature == 3));
+            kept_before +=
+                usize::from(before.is_some() && want.as_ref().is_some_and(|s| s.feature == 9));
+        }
+        assert!(
+            found > 300 && kept_before > 80,
             "{found} splits, {kept_before} kept"
         );
     }
