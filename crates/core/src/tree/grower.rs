@@ -116,6 +116,14 @@ const DENSE_MIN_ROWS: usize = 1024;
 /// first-level cache). Measured with `grow_bench`, no source.
 const BATCH: usize = 5;
 
+/// Most classes whose slots are filled and scanned at a width fixed when compiled
+/// ([`fill_rows_classes`], [`scan_classes`], [`scan_filled_classes`]); more take the general
+/// loops.
+const MOST_FIXED_CLASSES: usize = 8;
+
+/// Running sums [`LeftSums`] keeps beyond its four named classes.
+const MORE_CLASSES: usize = MOST_FIXED_CLASSES - 4;
+
 /// Slots per predictor in a dense histogram: one per u8 cell value, missing (255) included.
 const DENSE_SLOTS: usize = 256;
 
@@ -740,24 +748,26 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 scan_filled_pairs::<B>(slots, bits[0], j, parent_cost, settings, sums, &mut best);
                 continue;
             }
-            if numeric && (3..=4).contains(&width) && B::MISSING.index() < 256 {
-                // Several classes (three or four statistics a row) on a number predictor: a
+            if numeric && (3..=MOST_FIXED_CLASSES).contains(&width) && B::MISSING.index() < 256 {
+                // Several classes (three to eight statistics a row) on a number predictor: a
                 // fixed-width loop marking the bins it fills in a map, read back in order.
                 let (rows, counts) = (&self.work[start..end], &self.counts[..]);
+                let hist = &mut self.hist;
                 let bits = match width {
-                    3 => fill_rows_classes::<B, 4>(&mut self.hist, column, rows, stats, counts),
-                    _ => fill_rows_classes::<B, 5>(&mut self.hist, column, rows, stats, counts),
+                    3 => fill_rows_classes::<B, 4>(hist, column, rows, stats, counts),
+                    4 => fill_rows_classes::<B, 5>(hist, column, rows, stats, counts),
+                    5 => fill_rows_classes::<B, 6>(hist, column, rows, stats, counts),
+                    6 => fill_rows_classes::<B, 7>(hist, column, rows, stats, counts),
+                    7 => fill_rows_classes::<B, 8>(hist, column, rows, stats, counts),
+                    _ => fill_rows_classes::<B, 9>(hist, column, rows, stats, counts),
                 };
                 let m = B::MISSING.index();
                 if criterion == Criterion::Gini && !bounded && self.hist[m * stride + width] == 0.0
                 {
                     // Gini without missing values: in flat loops.
-                    let (hist, sums, at) =
-                        (&mut self.hist[..], &mut self.left_sums, (j, parent_cost));
-                    match width {
-                        3 => scan_filled_classes3(hist, bits, at, settings, sums, &mut best),
-                        _ => scan_filled_classes4(hist, bits, at, settings, sums, &mut best),
-                    }
+                    let (hist, sums) = (&mut self.hist[..], &mut self.left_sums);
+                    let at = (width, j, parent_cost);
+                    scan_filled_classes_of(hist, bits, at, settings, sums, &mut best);
                     continue;
                 }
                 bins_in_order(bits, &mut self.order);
@@ -766,10 +776,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 scan(
                     hist, order, at.0, sums, at.1, at.2, at.3, settings, &limits, &mut best,
                 );
-                match width {
-                    3 => clear_slots::<4>(hist, bits),
-                    _ => clear_slots::<5>(hist, bits),
-                }
+                clear_class_slots(hist, width, bits);
                 continue;
             }
             fill_histogram(
@@ -1529,54 +1536,40 @@ fn scan_packed3_plain(
 }
 
 twice_for_avx2! {
-    /// [`scan_filled_classes`] for three classes (compiled for AVX2 too).
-    fn scan_filled_classes3(
+    /// [`scan_filled_classes`] for `width` classes (three to [`MOST_FIXED_CLASSES`]; at:
+    /// `(width, feature, parent_cost)`), compiled for AVX2 too.
+    fn scan_filled_classes_of(
         hist: &mut [f64],
         bits: [u64; 4],
-        at: (usize, f64),
+        at: (usize, usize, f64),
         settings: &GrowSettings,
         sums: &mut LeftSums,
         best: &mut Option<Split>,
-    ) = scan_filled_classes3_plain
+    ) = scan_filled_classes_of_plain
 }
 
-twice_for_avx2! {
-    /// [`scan_filled_classes`] for four classes (compiled for AVX2 too).
-    fn scan_filled_classes4(
-        hist: &mut [f64],
-        bits: [u64; 4],
-        at: (usize, f64),
-        settings: &GrowSettings,
-        sums: &mut LeftSums,
-        best: &mut Option<Split>,
-    ) = scan_filled_classes4_plain
-}
-
+/// [`scan_filled_classes_of`]'s body, inlined into each of its builds.
 #[inline(always)]
-fn scan_filled_classes3_plain(
+fn scan_filled_classes_of_plain(
     hist: &mut [f64],
     bits: [u64; 4],
-    at: (usize, f64),
+    (width, feature, parent_cost): (usize, usize, f64),
     settings: &GrowSettings,
     sums: &mut LeftSums,
     best: &mut Option<Split>,
 ) {
-    scan_filled_classes::<4>(hist, bits, at, settings, sums, best);
+    let at = (feature, parent_cost);
+    match width {
+        3 => scan_filled_classes::<4>(hist, bits, at, settings, sums, best),
+        4 => scan_filled_classes::<5>(hist, bits, at, settings, sums, best),
+        5 => scan_filled_classes::<6>(hist, bits, at, settings, sums, best),
+        6 => scan_filled_classes::<7>(hist, bits, at, settings, sums, best),
+        7 => scan_filled_classes::<8>(hist, bits, at, settings, sums, best),
+        _ => scan_filled_classes::<9>(hist, bits, at, settings, sums, best),
+    }
 }
 
-#[inline(always)]
-fn scan_filled_classes4_plain(
-    hist: &mut [f64],
-    bits: [u64; 4],
-    at: (usize, f64),
-    settings: &GrowSettings,
-    sums: &mut LeftSums,
-    best: &mut Option<Split>,
-) {
-    scan_filled_classes::<5>(hist, bits, at, settings, sums, best);
-}
-
-/// [`scan_classes`] under Gini for `S − 1` classes (three or four) from the slots
+/// [`scan_classes`] under Gini for `S − 1` classes (three to eight) from the slots
 /// [`fill_rows_classes`] filled (`bits`: the bins used), when the node's rows have no missing
 /// value in the predictor and its value is unbounded: the running sums after each bin in
 /// order (each slot emptied as it is read), every split point's gain on its own, then the
@@ -1605,15 +1598,18 @@ fn scan_filled_classes<const S: usize>(
         s1,
         s2,
         s3,
+        more,
         rows,
         gain,
         ..
     } = sums;
     // Class k's running sums in `lanes[k]`, the rows' in `lanes[width]`.
-    let (mut classes, mut rows) = ([s0, s1, s2, s3].into_iter(), Some(rows));
+    let named = [s0, s1, s2, s3].into_iter().map(|l| &mut **l);
+    let mut classes = named.chain(more.iter_mut());
+    let mut rows = Some(rows);
     let lanes: [&mut [f64; 256]; S] = std::array::from_fn(|k| match k == width {
         true => &mut **rows.take().expect("one lane of rows"),
-        false => &mut **classes.next().expect("a lane a class"),
+        false => classes.next().expect("a lane a class"),
     });
     let mut acc = [0.0; S];
     let mut used = 0;
@@ -1683,6 +1679,19 @@ fn clear_slots<const S: usize>(hist: &mut [f64], bits: [u64; 4]) {
             slots[w * 64 + word.trailing_zeros() as usize] = [0.0; S];
             word &= word - 1;
         }
+    }
+}
+
+/// [`clear_slots`] for `width` classes' slots (`width + 1` numbers each; three to
+/// [`MOST_FIXED_CLASSES`] classes).
+fn clear_class_slots(hist: &mut [f64], width: usize, bits: [u64; 4]) {
+    match width {
+        3 => clear_slots::<4>(hist, bits),
+        4 => clear_slots::<5>(hist, bits),
+        5 => clear_slots::<6>(hist, bits),
+        6 => clear_slots::<7>(hist, bits),
+        7 => clear_slots::<8>(hist, bits),
+        _ => clear_slots::<9>(hist, bits),
     }
 }
 
@@ -1800,7 +1809,7 @@ struct Limits {
 
 /// Scans the split points of one predictor, bins in `order`, updating `best`. With missing
 /// values, one pass sends them left and a second sends them right; without, one pass.
-/// Several classes (three or four statistics) without bounds take [`scan_classes`], the same
+/// Several classes (three to eight) without bounds take [`scan_classes`], the same
 /// loop at a width fixed when compiled.
 #[allow(clippy::too_many_arguments)]
 fn scan<B: Bin>(
@@ -1820,6 +1829,10 @@ fn scan<B: Bin>(
         match sums.total.len() {
             4 => return scan_classes::<B, 4>(hist, order, at, settings, best),
             5 => return scan_classes::<B, 5>(hist, order, at, settings, best),
+            6 => return scan_classes::<B, 6>(hist, order, at, settings, best),
+            7 => return scan_classes::<B, 7>(hist, order, at, settings, best),
+            8 => return scan_classes::<B, 8>(hist, order, at, settings, best),
+            9 => return scan_classes::<B, 9>(hist, order, at, settings, best),
             _ => {}
         }
     }
@@ -2316,6 +2329,8 @@ struct LeftSums {
     /// The third and fourth classes' running sums ([`scan_packed3`], [`scan_filled_classes`]).
     s2: Box<[f64; 256]>,
     s3: Box<[f64; 256]>,
+    /// The fifth to eighth classes' ([`scan_filled_classes`]).
+    more: Box<[[f64; 256]; MORE_CLASSES]>,
     rows: Box<[f64; 256]>,
     /// The running sums as packed counts ([`pack_counts`]), before they are unpacked.
     packed: Box<[u64; 256]>,
@@ -2330,6 +2345,7 @@ impl LeftSums {
             s1: Box::new([0.0; 256]),
             s2: Box::new([0.0; 256]),
             s3: Box::new([0.0; 256]),
+            more: Box::new([[0.0; 256]; MORE_CLASSES]),
             rows: Box::new([0.0; 256]),
             packed: Box::new([0; 256]),
             gain: Box::new([0.0; 256]),
@@ -2864,6 +2880,25 @@ mod tests {
 
     /// A seeded bootstrap of `n` rows, and 100,000 picks of one predictor in three for a
     /// chooser that drops it (two of three tried a node).
+    /// `fill_rows_classes` for `width` classes (three to eight).
+    fn fill_classes(
+        hist: &mut [f64],
+        column: &[u8],
+        rows: &[u32],
+        stats: &[f64],
+        counts: &[f64],
+        width: usize,
+    ) -> [u64; 4] {
+        match width {
+            3 => fill_rows_classes::<u8, 4>(hist, column, rows, stats, counts),
+            4 => fill_rows_classes::<u8, 5>(hist, column, rows, stats, counts),
+            5 => fill_rows_classes::<u8, 6>(hist, column, rows, stats, counts),
+            6 => fill_rows_classes::<u8, 7>(hist, column, rows, stats, counts),
+            7 => fill_rows_classes::<u8, 8>(hist, column, rows, stats, counts),
+            _ => fill_rows_classes::<u8, 9>(hist, column, rows, stats, counts),
+        }
+    }
+
     fn bootstrap_and_picks(n: usize) -> (Vec<u32>, Vec<u64>) {
         let mut draw = xorshift(0x2545_F491_4F6C_DD1Du64);
         let rows = (0..n).map(|_| (draw() % n as u64) as u32).collect();
@@ -3261,7 +3296,7 @@ mod tests {
     fn several_classes_scanned_at_fixed_width_find_the_general_scans_split() {
         // `fill_rows_classes`, and `scan` at fixed width (`scan_classes`), against
         // `fill_histogram` and the general loop `scan_general` (our own consistency rule, no
-        // source needed): three and four classes, whole and fractional statistics, rows drawn
+        // source needed): three to eight classes, whole and fractional statistics, rows drawn
         // up to three times, missing values or none, numbers or categories, a least leaf
         // size and a least weight, and a split to beat. The same split to the bit, and every
         // slot emptied.
@@ -3269,7 +3304,7 @@ mod tests {
         let mut next = |m: u64| draw() % m;
         let (mut found, mut missing_sides) = (0, 0);
         for round in 0..400 {
-            let width = 3 + round % 2;
+            let width = 3 + round % 6;
             let n = 1 + next(300) as usize;
             let spread = 1 + next(254);
             let column: Vec<u8> = (0..n)
@@ -3337,20 +3372,14 @@ mod tests {
             );
             // At fixed width.
             let mut fixed = vec![0.0; 256 * stride];
-            let bits = match width {
-                3 => fill_rows_classes::<u8, 4>(&mut fixed, &column, &rows, &stats, &counts),
-                _ => fill_rows_classes::<u8, 5>(&mut fixed, &column, &rows, &stats, &counts),
-            };
+            let bits = fill_classes(&mut fixed, &column, &rows, &stats, &counts, width);
             assert_eq!(fixed, hist, "round {round}: the same sums in every slot");
             let mut got = before.clone();
             let (f, o) = (&fixed, &order);
             scan(
                 f, o, at.0, sums, at.1, at.2, at.3, &settings, &limits, &mut got,
             );
-            match width {
-                3 => clear_slots::<4>(&mut fixed, bits),
-                _ => clear_slots::<5>(&mut fixed, bits),
-            }
+            clear_class_slots(&mut fixed, width, bits);
             assert!(
                 fixed.iter().all(|&h| h == 0.0),
                 "round {round}: slots emptied"
@@ -3466,7 +3495,7 @@ mod tests {
 
     #[test]
     fn several_classes_scanned_in_flat_loops_find_the_fixed_width_scans_split() {
-        // `scan_filled_classes` (three or four classes, Gini, no missing values, any weights)
+        // `scan_filled_classes` (three to eight classes, Gini, no missing values, any weights)
         // against `scan_classes` on the same slots (our own consistency rule, no source
         // needed): whole and fractional statistics, rows drawn up to three times, a least leaf
         // size and a least weight, a split to beat or one that ties. The same split to the
@@ -3475,7 +3504,7 @@ mod tests {
         let mut next = |m: u64| draw() % m;
         let (mut found, mut kept_before) = (0, 0);
         for round in 0..600 {
-            let width = 3 + round % 2;
+            let width = 3 + round % 6;
             let n = 1 + next(300) as usize;
             let spread = 1 + next(255);
             let column: Vec<u8> = (0..n).map(|_| next(spread) as u8).collect();
@@ -3497,16 +3526,17 @@ mod tests {
             };
             let parent_cost = 10.0 + next(100) as f64;
             let mut hist = vec![0.0; 256 * (width + 1)];
-            let bits = match width {
-                3 => fill_rows_classes::<u8, 4>(&mut hist, &column, &rows, &stats, &counts),
-                _ => fill_rows_classes::<u8, 5>(&mut hist, &column, &rows, &stats, &counts),
-            };
+            let bits = fill_classes(&mut hist, &column, &rows, &stats, &counts, width);
             let mut order = Vec::new();
             bins_in_order(bits, &mut order);
             let at = (255, 3, true, parent_cost);
             let fixed = |h: &[f64], best: &mut Option<Split>| match width {
                 3 => scan_classes::<u8, 4>(h, &order, at, &settings, best),
-                _ => scan_classes::<u8, 5>(h, &order, at, &settings, best),
+                4 => scan_classes::<u8, 5>(h, &order, at, &settings, best),
+                5 => scan_classes::<u8, 6>(h, &order, at, &settings, best),
+                6 => scan_classes::<u8, 7>(h, &order, at, &settings, best),
+                7 => scan_classes::<u8, 8>(h, &order, at, &settings, best),
+                _ => scan_classes::<u8, 9>(h, &order, at, &settings, best),
             };
             let mut alone = None;
             fixed(&hist, &mut alone);
@@ -3530,11 +3560,8 @@ mod tests {
             fixed(&hist, &mut want);
             let mut got = before.clone();
             let mut sums = LeftSums::new();
-            let at = (3, parent_cost);
-            match width {
-                3 => scan_filled_classes3(&mut hist, bits, at, &settings, &mut sums, &mut got),
-                _ => scan_filled_classes4(&mut hist, bits, at, &settings, &mut sums, &mut got),
-            }
+            let at = (width, 3, parent_cost);
+            scan_filled_classes_of(&mut hist, bits, at, &settings, &mut sums, &mut got);
             assert!(
                 hist.iter().all(|&h| h == 0.0),
                 "round {round}: slots emptied"
