@@ -651,7 +651,6 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 for group in candidates.chunks(BATCH) {
                     let (hist, cells) = (&mut self.packed_hist[..], self.cells);
                     let bits = fill_group(hist, group, cells, rows, &self.packed);
-                    let (spill, _) = self.hist.as_chunks_mut::<3>();
                     for ((&j, slots), bits) in group
                         .iter()
                         .zip(self.packed_hist.chunks_exact_mut(256))
@@ -669,7 +668,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                         }
                         let sums = &mut self.left_sums;
                         let at = (j, parent_cost);
-                        scan_packed(slots, bits, at, settings, spill, sums, &mut best);
+                        scan_packed(slots, bits, at, settings, sums, &mut best);
                     }
                 }
             }
@@ -2154,9 +2153,9 @@ fn used_bins_plain(slots: &[u64; 256]) -> [u64; 4] {
 
 twice_for_avx2! {
     /// [`scan_filled_pairs`] from packed counts (`slots`, see [`pack_counts`]; all zero again
-    /// on return): the same running sums, unpacked per bin, so the same split. With missing
-    /// values in the node the used slots are unpacked into `spill` (all zero on entry and on
-    /// return) for [`scan_filled_pairs`]. Small cells only (missing values in slot 255).
+    /// on return): the same running sums, unpacked per bin, so the same split; with missing
+    /// values in the node, [`PairScan`]'s two passes (missing rows left, then right) in the
+    /// same flat loops. Small cells only (missing values in slot 255).
     /// Compiled for AVX2 too as a whole, with the unpacking, the gains and the first best
     /// inlined: one choice of build a scan, not three.
     fn scan_packed(
@@ -2164,7 +2163,6 @@ twice_for_avx2! {
         bits: [u64; 4],
         at: (usize, f64),
         settings: &GrowSettings,
-        spill: &mut [[f64; 3]],
         sums: &mut LeftSums,
         best: &mut Option<Split>,
     ) = scan_packed_plain
@@ -2177,23 +2175,11 @@ fn scan_packed_plain(
     mut bits: [u64; 4],
     (feature, parent_cost): (usize, f64),
     settings: &GrowSettings,
-    spill: &mut [[f64; 3]],
     sums: &mut LeftSums,
     best: &mut Option<Split>,
 ) {
     let m = u8::MISSING.index();
-    if slots[m] != 0 {
-        bits[m >> 6] |= 1 << (m & 63);
-        for (w, mut word) in bits.into_iter().enumerate() {
-            while word != 0 {
-                let b = w * 64 + word.trailing_zeros() as usize;
-                spill[b] = unpack_counts(std::mem::replace(&mut slots[b], 0));
-                word &= word - 1;
-            }
-        }
-        scan_filled_pairs::<u8>(spill, bits, feature, parent_cost, settings, sums, best);
-        return;
-    }
+    let missing = std::mem::replace(&mut slots[m], 0);
     bits[m >> 6] &= !(1 << (m & 63));
     let LeftSums {
         bins,
@@ -2214,14 +2200,42 @@ fn scan_packed_plain(
             word &= word - 1;
         }
     }
-    unpack_all(
-        &packed[..used],
-        [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
-    );
     let at = (feature, parent_cost);
-    if let Some(at) = present_best_with::<true>(sums, used, at, settings, best) {
-        if let Some(split) = best {
-            split.left_counts = Some(sums.packed[at]);
+    if missing == 0 {
+        unpack_all(
+            &packed[..used],
+            [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
+        );
+        if let Some(at) = present_best_with::<true>(sums, used, at, settings, best) {
+            if let Some(split) = best {
+                split.left_counts = Some(sums.packed[at]);
+            }
+        }
+        return;
+    }
+    // Missing values: [`PairScan`]'s two passes, the missing rows on the left and then on the
+    // right, each over every bin used; a later point must gain strictly more, as there.
+    // Whole counts, so the sums are its numbers whatever their order.
+    let total = used
+        .checked_sub(1)
+        .map_or(missing, |last| packed[last] + missing);
+    let t = unpack_counts(total);
+    for (missing_left, add) in [(true, missing), (false, 0)] {
+        let LeftSums {
+            s0,
+            s1,
+            rows,
+            packed,
+            ..
+        } = &mut *sums;
+        unpack_all_plus(
+            &packed[..used],
+            add,
+            [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
+        );
+        let found = points_best_with::<true>(sums, used, t, at, missing_left, settings, best);
+        if let (Some(i), Some(split)) = (found, best.as_mut()) {
+            split.left_counts = Some(sums.packed[i] + add);
         }
     }
 }
@@ -2233,6 +2247,16 @@ fn scan_packed_plain(
 fn unpack_all(packed: &[u64], [s0, s1, rows]: [&mut [f64]; 3]) {
     for (((&p, l0), l1), lc) in packed.iter().zip(s0).zip(s1).zip(rows) {
         // Both halves are below 2³¹ (see `pack_counts`): converted as i32, which vectorises.
+        let (k1, k) = (f64::from((p >> 32) as i32), f64::from(p as u32 as i32));
+        (*l0, *l1, *lc) = (k - k1, k1, k);
+    }
+}
+
+/// [`unpack_all`] of each packed count plus `add` (the missing rows' packed counts, or 0).
+#[inline(always)]
+fn unpack_all_plus(packed: &[u64], add: u64, [s0, s1, rows]: [&mut [f64]; 3]) {
+    for (((&p, l0), l1), lc) in packed.iter().zip(s0).zip(s1).zip(rows) {
+        let p = p + add;
         let (k1, k) = (f64::from((p >> 32) as i32), f64::from(p as u32 as i32));
         (*l0, *l1, *lc) = (k - k1, k1, k);
     }
@@ -2417,7 +2441,26 @@ fn present_best(
 fn present_best_with<const INLINE: bool>(
     sums: &mut LeftSums,
     used: usize,
+    at: (usize, f64),
+    settings: &GrowSettings,
+    best: &mut Option<Split>,
+) -> Option<usize> {
+    let t = used
+        .checked_sub(1)
+        .map(|last| [sums.s0[last], sums.s1[last], sums.rows[last]])?;
+    points_best_with::<INLINE>(sums, used, t, at, false, settings, best)
+}
+
+/// [`present_best_with`] with the node's totals `t` given and the missing values' side
+/// (the left sums include them when `missing_left`).
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn points_best_with<const INLINE: bool>(
+    sums: &mut LeftSums,
+    used: usize,
+    t: [f64; 3],
     (feature, parent_cost): (usize, f64),
+    missing_left: bool,
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) -> Option<usize> {
@@ -2432,7 +2475,6 @@ fn present_best_with<const INLINE: bool>(
         gain,
         ..
     } = sums;
-    let t = [s0[used - 1], s1[used - 1], rows[used - 1]];
     let left = [&s0[..used], &s1[..used], &rows[..used]];
     // Every bin used holds rows: each is a split point.
     let all = std::iter::repeat(&1.0);
@@ -2453,7 +2495,7 @@ fn present_best_with<const INLINE: bool>(
         threshold_bin: usize::from(bins[at]),
         next_bin: (at + 1 < used).then(|| usize::from(bins[at + 1])),
         categories: BinSet::default(),
-        missing_left: false,
+        missing_left,
         values: (0.0, 0.0),
         left_counts: None,
     });
@@ -3102,16 +3144,30 @@ mod tests {
 
     #[test]
     fn a_packed_scan_finds_the_same_split_whichever_build_runs_it() {
-        // `scan_packed` (AVX2 on a CPU that has it) against its plain body, on random whole
-        // counts in random bins, with and without missing values and a least leaf size (our
-        // own consistency rule, no source needed). Both leave every slot empty.
+        // `scan_packed` (AVX2 on a CPU that has it) and its plain body against
+        // `scan_filled_pairs` on the same counts unpacked, on random whole counts in random
+        // bins, with and without missing values, a least leaf size and a split to beat or one
+        // that ties (our own consistency rule, no source needed). All leave every slot empty.
         let mut draw = xorshift(0x2545_F491_4F6C_DD1Du64);
         let mut next = |m: u64| draw() % m;
-        let mut splits = 0;
-        for round in 0..200 {
+        let (mut splits, mut missing_sides) = (0, [0; 2]);
+        for round in 0..400 {
             let mut slots = vec![0u64; 256];
             let mut bits = [0u64; 4];
-            let bins = 1 + next(40) as usize;
+            // First, two bins alike and one missing row (a least leaf of two rows, so it cannot
+            // stand alone): sending it left after the first bin and sending it right there
+            // gain the same, and the left side, tried first, wins.
+            let bins = if round == 0 { 0 } else { 1 + next(40) as usize };
+            if round == 0 {
+                for (b, p) in [
+                    (10, (1 << 32) | 3),
+                    (20, (1 << 32) | 3),
+                    (255, (1 << 32) | 1),
+                ] {
+                    slots[b] = p;
+                    bits[b >> 6] |= 1 << (b & 63);
+                }
+            }
             for _ in 0..bins {
                 let b = match round % 3 == 0 && next(4) == 0 {
                     true => 255,
@@ -3122,32 +3178,81 @@ mod tests {
                 bits[b >> 6] |= 1 << (b & 63);
             }
             let settings = GrowSettings {
-                min_rows_leaf: 1 + round % 3,
+                min_rows_leaf: if round == 0 { 2 } else { 1 + round % 3 },
                 ..GrowSettings::default()
             };
-            let mut results = Vec::new();
-            for plain in [false, true] {
-                let (mut slots, mut spill) = (slots.clone(), vec![[0.0; 3]; 256]);
-                let (mut sums, mut best) = (LeftSums::new(), None);
-                let (at, sums) = ((3, 40.0), &mut sums);
-                match plain {
-                    false => {
-                        scan_packed(&mut slots, bits, at, &settings, &mut spill, sums, &mut best)
-                    }
-                    true => scan_packed_plain(
-                        &mut slots, bits, at, &settings, &mut spill, sums, &mut best,
-                    ),
+            let at = (3, 40.0);
+            let reference = |best: &mut Option<Split>| {
+                let mut spill = vec![[0.0; 3]; 256];
+                for (b, &p) in slots.iter().enumerate() {
+                    spill[b] = unpack_counts(p);
                 }
-                assert!(slots.iter().all(|&s| s == 0) && spill.iter().all(|s| *s == [0.0; 3]));
-                results.push(best.map(|b| {
-                    let place = (b.threshold_bin, b.next_bin, b.missing_left);
-                    (b.gain.to_bits(), place, b.left_counts)
-                }));
+                let sums = &mut LeftSums::new();
+                scan_filled_pairs::<u8>(&mut spill, bits, at.0, at.1, &settings, sums, best);
+                assert!(spill.iter().all(|s| *s == [0.0; 3]));
+            };
+            let mut alone = None;
+            reference(&mut alone);
+            let before = match round % 5 {
+                3 => Some(next(30) as f64),
+                4 => alone.as_ref().map(|s| s.gain),
+                _ => None,
             }
-            splits += results[0].is_some() as usize;
-            assert_eq!(results[0], results[1], "round {round}");
+            .map(|gain| Split {
+                gain,
+                feature: 9,
+                numeric: true,
+                threshold_bin: 0,
+                next_bin: None,
+                categories: BinSet::default(),
+                missing_left: false,
+                values: (0.0, 0.0),
+                left_counts: None,
+            });
+            let key = |b: &Option<Split>| {
+                b.as_ref().map(|b| {
+                    let place = (b.feature, b.threshold_bin, b.next_bin, b.missing_left);
+                    (b.gain.to_bits(), place)
+                })
+            };
+            let mut want = before.clone();
+            reference(&mut want);
+            if round == 0 {
+                let w = want.as_ref().expect("a split");
+                assert!(w.missing_left && w.threshold_bin == 10, "{w:?}");
+            }
+            for plain in [false, true] {
+                let mut slots = slots.clone();
+                let (mut sums, mut best) = (LeftSums::new(), before.clone());
+                let sums = &mut sums;
+                match plain {
+                    false => scan_packed(&mut slots, bits, at, &settings, sums, &mut best),
+                    true => scan_packed_plain(&mut slots, bits, at, &settings, sums, &mut best),
+                }
+                assert!(
+                    slots.iter().all(|&s| s == 0),
+                    "round {round}: slots emptied"
+                );
+                assert_eq!(key(&best), key(&want), "round {round}");
+            }
+            // The left side's packed counts, which hand the children their totals.
+            let mut slots_again = slots.clone();
+            let (mut sums, mut best) = (LeftSums::new(), before.clone());
+            scan_packed(&mut slots_again, bits, at, &settings, &mut sums, &mut best);
+            if let Some(b) = best.as_ref().filter(|b| b.feature == 3) {
+                let present: u64 = slots[..=b.threshold_bin].iter().sum();
+                let left = present + if b.missing_left { slots[255] } else { 0 };
+                assert_eq!(b.left_counts, Some(left), "round {round}");
+            }
+            splits += usize::from(want.as_ref().is_some_and(|s| s.feature == 3));
+            if let Some(s) = want.as_ref().filter(|s| s.feature == 3) {
+                missing_sides[usize::from(s.missing_left)] += 1;
+            }
         }
-        assert!(splits > 100, "{splits} rounds found a split");
+        assert!(
+            splits > 150 && missing_sides[0] > 10 && missing_sides[1] > 10,
+            "{splits} rounds found a split, {missing_sides:?} missing right and left"
+        );
     }
 
     /// [`many_values`] with three classes: p, q, and r for every seventh row.
