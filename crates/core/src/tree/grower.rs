@@ -2204,6 +2204,7 @@ fn scan_packed_plain(
     if missing == 0 {
         unpack_all(
             &packed[..used],
+            0,
             [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
         );
         if let Some(at) = present_best_with::<true>(sums, used, at, settings, best) {
@@ -2228,7 +2229,7 @@ fn scan_packed_plain(
             packed,
             ..
         } = &mut *sums;
-        unpack_all_plus(
+        unpack_all(
             &packed[..used],
             add,
             [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
@@ -2240,22 +2241,13 @@ fn scan_packed_plain(
     }
 }
 
-/// Every packed count of `packed` unpacked ([`unpack_counts`]) into `out` (`s0`, `s1`,
-/// rows), in a loop apart, so it is compiled for four at a time on AVX2 (inlined into
-/// [`scan_packed`]'s builds).
+/// Every packed count of `packed` plus `add` (the missing rows' packed counts, or 0)
+/// unpacked ([`unpack_counts`]) into `out` (`s0`, `s1`, rows), in a loop apart, so it is
+/// compiled for four at a time on AVX2 (inlined into [`scan_packed`]'s builds).
 #[inline(always)]
-fn unpack_all(packed: &[u64], [s0, s1, rows]: [&mut [f64]; 3]) {
+fn unpack_all(packed: &[u64], add: u64, [s0, s1, rows]: [&mut [f64]; 3]) {
     for (((&p, l0), l1), lc) in packed.iter().zip(s0).zip(s1).zip(rows) {
         // Both halves are below 2³¹ (see `pack_counts`): converted as i32, which vectorises.
-        let (k1, k) = (f64::from((p >> 32) as i32), f64::from(p as u32 as i32));
-        (*l0, *l1, *lc) = (k - k1, k1, k);
-    }
-}
-
-/// [`unpack_all`] of each packed count plus `add` (the missing rows' packed counts, or 0).
-#[inline(always)]
-fn unpack_all_plus(packed: &[u64], add: u64, [s0, s1, rows]: [&mut [f64]; 3]) {
-    for (((&p, l0), l1), lc) in packed.iter().zip(s0).zip(s1).zip(rows) {
         let p = p + add;
         let (k1, k) = (f64::from((p >> 32) as i32), f64::from(p as u32 as i32));
         (*l0, *l1, *lc) = (k - k1, k1, k);
