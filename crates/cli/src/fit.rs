@@ -131,7 +131,7 @@ fn tree_json(tree: &Tree, binned: &BinnedMatrix) -> serde_json::Value {
             let left_bins: Vec<u8> = if n.numeric {
                 (0..=n.threshold_bin.min(254) as u8).collect()
             } else {
-                (0..=254u8).filter(|&b| n.categories.contains(b)).collect()
+                (0..=254u8).filter(|&b| n.left_bins().contains(b)).collect()
             };
             let threshold = n.numeric.then_some(n.threshold);
             serde_json::json!({

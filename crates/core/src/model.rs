@@ -666,7 +666,7 @@ impl Model {
             }
             if let Reading::Category { pooled_bin, .. } = &p.reading {
                 if let Some(b) =
-                    (*pooled_bin as usize + 1..256).find(|&b| node.categories.contains(b as u8))
+                    (*pooled_bin as usize + 1..256).find(|&b| node.left_bins().contains(b as u8))
                 {
                     return Err(format!(
                         "node {i} sends bin {b} of '{}' left, beyond its {} bins",

@@ -199,7 +199,7 @@ pub fn write_model(model: &Model) -> Result<String> {
             threshold_bin: nodes.iter().map(|n| n.threshold_bin).collect(),
             categories_left: nodes
                 .iter()
-                .map(|n| (0..=255u8).filter(|&b| n.categories.contains(b)).collect())
+                .map(|n| (0..=255u8).filter(|&b| n.left_bins().contains(b)).collect())
                 .collect(),
             missing_left: nodes.iter().map(|n| n.missing_left).collect(),
             left: nodes.iter().map(|n| n.left).collect(),
@@ -688,7 +688,7 @@ fn tree_from_file(t: TreeV1) -> std::result::Result<Tree, String> {
                 numeric: t.numeric[i],
                 threshold_bin: t.threshold_bin[i],
                 threshold: t.threshold[i].unwrap_or(f64::INFINITY),
-                categories,
+                categories: Node::boxed_bins(categories),
                 missing_left: t.missing_left[i],
                 left: t.left[i],
                 right: t.right[i],

@@ -247,11 +247,11 @@ impl Ensemble5 {
                 } = &model.predictors[n.feature as usize].reading
                 {
                     for (level, &bin) in bin_of_level.iter().enumerate() {
-                        if n.categories.contains(bin) {
+                        if n.left_bins().contains(bin) {
                             self.members.push(level as f64);
                         }
                     }
-                    if n.categories.contains(*pooled_bin) {
+                    if n.left_bins().contains(*pooled_bin) {
                         self.members.push(-1.0);
                     }
                 }

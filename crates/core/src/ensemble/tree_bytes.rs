@@ -35,7 +35,7 @@ pub fn encode_trees(trees: &[FittedTree]) -> Vec<u8> {
             out.push(n.numeric as u8);
             out.extend_from_slice(&n.threshold_bin.to_le_bytes());
             out.extend_from_slice(&n.threshold.to_le_bytes());
-            for w in n.categories.0 {
+            for w in n.left_bins().0 {
                 out.extend_from_slice(&w.to_le_bytes());
             }
             out.push(n.missing_left as u8);
@@ -182,7 +182,7 @@ fn read_block(
                 numeric,
                 threshold_bin,
                 threshold,
-                categories,
+                categories: Node::boxed_bins(categories),
                 missing_left,
                 left,
                 right,

@@ -985,7 +985,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         node.numeric = split.numeric;
         node.missing_left = missing_left;
         node.gain = split.gain;
-        node.categories = split.categories;
+        node.categories = Node::boxed_bins(split.categories);
         if split.numeric {
             let BinRule::Numbers { low, high, .. } = &self.binned.columns[split.feature].rule
             else {
@@ -2883,7 +2883,7 @@ mod tests {
         let tree = grow(&m, &stats, k, &rows, &settings, None);
         assert_eq!(tree.leaves(), 2);
         let root = &tree.nodes[0];
-        let left: Vec<u8> = (0..4).filter(|&b| root.categories.contains(b)).collect();
+        let left: Vec<u8> = (0..4).filter(|&b| root.left_bins().contains(b)).collect();
         assert!(left == [1, 3] || left == [0, 2], "left bins {left:?}");
         assert!(
             (root.gain - 20.0).abs() < 1e-9,

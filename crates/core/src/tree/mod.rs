@@ -50,8 +50,10 @@ pub struct Node {
     /// scikit-learn's sort-based splitter, so exact-mode trees agree to the last digit).
     /// 0 (unused) for category splits and leaves.
     pub threshold: f64,
-    /// Category splits: the bins sent left.
-    pub categories: BinSet,
+    /// Category splits: the bins sent left ([`Node::left_bins`]), boxed and `None` when
+    /// empty, so the number splits and leaves that make up most trees do not each carry 32
+    /// bytes (a node: 80 -> 56 bytes; a 300-tree forest on 50,000 rows holds millions).
+    pub categories: Option<Box<BinSet>>,
     /// Where missing values go: chosen in training by gain when the node's rows had some,
     /// otherwise the side that got more rows. Also taken by category values the training
     /// rows of this node never had.
@@ -77,7 +79,7 @@ impl Node {
         match bin {
             None => self.missing_left,
             Some(b) if self.numeric => b <= self.threshold_bin as usize,
-            Some(b) => b < 256 && self.categories.contains(b as u8),
+            Some(b) => b < 256 && self.left_bins().contains(b as u8),
         }
     }
 
@@ -90,8 +92,19 @@ impl Node {
         } else if self.numeric {
             x <= self.threshold
         } else {
-            (0.0..256.0).contains(&x) && self.categories.contains(x as u8)
+            (0.0..256.0).contains(&x) && self.left_bins().contains(x as u8)
         }
+    }
+
+    /// The category bins sent left (empty for number splits and leaves).
+    pub fn left_bins(&self) -> &BinSet {
+        const EMPTY: &BinSet = &BinSet([0; 4]);
+        self.categories.as_deref().unwrap_or(EMPTY)
+    }
+
+    /// [`Node::categories`] holding `bins`: `None` when empty, so equal sets compare equal.
+    pub fn boxed_bins(bins: BinSet) -> Option<Box<BinSet>> {
+        (bins != BinSet::default()).then(|| Box::new(bins))
     }
 
     /// A leaf (children and split fields unset).
@@ -101,7 +114,7 @@ impl Node {
             numeric: false,
             threshold_bin: 0,
             threshold: 0.0,
-            categories: BinSet::default(),
+            categories: None,
             missing_left: false,
             left: 0,
             right: 0,

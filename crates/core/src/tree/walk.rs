@@ -63,7 +63,7 @@ impl Walk {
             let mut feature = n.feature | if n.missing_left { MISSING_LEFT } else { 0 };
             let threshold = if !n.numeric {
                 feature |= CATEGORY;
-                sets.push(n.categories);
+                sets.push(*n.left_bins());
                 (sets.len() - 1) as f64
             } else if binned {
                 f64::from(n.threshold_bin)

@@ -398,7 +398,7 @@ fn tree_view(model: &Model, tree: &Tree, which: String) -> InsightTree {
                 _ if n.numeric => format!("≤ {}", label_of(model, j, n.threshold)),
                 _ => {
                     let mut levels: Vec<String> = (0..=255u8)
-                        .filter(|&b| n.categories.contains(b))
+                        .filter(|&b| n.left_bins().contains(b))
                         .map(|b| label_of(model, j, b as f64))
                         .filter(|l| !l.starts_with('('))
                         .collect();
