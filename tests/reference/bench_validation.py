@@ -2,12 +2,14 @@
 """Benchmark (figures printed, nothing asserted): `spinney evaluate` with 5-fold
 cross-validation of a 300-tree random forest on generated data (ROWS x 30 numbers, a
 two-class outcome from a logistic model of 6 of them), on one thread and on every core,
-without and with bootstrap intervals of the metrics. Target (tracker issue 5): under 10 s on
-one core for 50,000 rows. Usage: bench_validation.py [ROWS] [RUNS]: each setting is run RUNS
-times (default 1), alternating, and the best and the median are printed, since one run on a
-shared machine can be 20% off either way."""
+without and with bootstrap intervals of the metrics, and the largest run's peak resident
+memory. Target (tracker issue 5): under 10 s on one core for 50,000 rows. Usage:
+bench_validation.py [ROWS] [RUNS]: each setting is run RUNS times (default 1), alternating,
+and the best and the median are printed, since one run on a shared machine can be 20% off
+either way."""
 import json
 import os
+import resource
 import statistics
 import subprocess
 import sys
@@ -54,6 +56,9 @@ def main():
             spread = "" if runs == 1 else " (best of %d; median %.2f s)" % (runs, statistics.median(s))
             print("  threads %d, interval resamples %4d: validation %.2f s%s, wall with reading %.2f s; AUC %.4f"
                   % (threads, resamples, min(s), spread, min(w), auc[(threads, resamples)]))
+        # ru_maxrss of children: the largest peak of any run so far, in KB on Linux.
+        peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
+        print("  peak resident memory of the largest run: %.0f MB" % peak)
 
 
 if __name__ == "__main__":
