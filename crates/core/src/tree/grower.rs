@@ -139,14 +139,15 @@ const FREE: (f64, f64) = (f64::NEG_INFINITY, f64::INFINITY);
 macro_rules! twice_for_avx2 {
     (
         $(#[$doc:meta])*
-        fn $name:ident $(<$lt:lifetime>)? ($($arg:ident: $ty:ty),* $(,)?) $(-> $ret:ty)? = $plain:ident
+        fn $name:ident $(<$lt:lifetime>)? $(<const $c:ident: $ct:ty>)?
+            ($($arg:ident: $ty:ty),* $(,)?) $(-> $ret:ty)? = $plain:ident
     ) => {
         $(#[$doc])*
-        fn $name $(<$lt>)? ($($arg: $ty),*) $(-> $ret)? {
+        fn $name $(<$lt>)? $(<const $c: $ct>)? ($($arg: $ty),*) $(-> $ret)? {
             #[cfg(target_arch = "x86_64")]
             {
                 #[target_feature(enable = "avx2")]
-                fn avx2 $(<$lt>)? ($($arg: $ty),*) $(-> $ret)? {
+                fn avx2 $(<$lt>)? $(<const $c: $ct>)? ($($arg: $ty),*) $(-> $ret)? {
                     $plain($($arg),*)
                 }
                 if std::is_x86_feature_detected!("avx2") {
@@ -269,6 +270,11 @@ struct Grower<'a, 'c, B: Bin> {
     /// and row count packed as `(s1 << 32) | rows` by row, so one integer addition sums both
     /// ([`pack_counts`]; empty otherwise).
     packed: Vec<u64>,
+    /// Two statistics whose first is each row's count (number outcomes without row weights:
+    /// `s0` = rows): each row's `[s1, rows]` by row, so a fill adds two numbers a row and
+    /// predictor, not three, and the scan takes `s0` from the rows, the very sums
+    /// ([`units_of`]; empty otherwise, and whenever `packed` is not).
+    units: Vec<[f64; 2]>,
     /// Three classes whose rows all count whole: each row's counts packed in one u64
     /// ([`pack_classes3`]; empty otherwise).
     classes3: Vec<u64>,
@@ -338,6 +344,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .collect()
             }),
             packed: pack_counts(&pairs, settings.criterion),
+            units: match pack_counts(&pairs, settings.criterion).is_empty() {
+                true => units_of(&pairs),
+                false => Vec::new(),
+            },
             classes3,
             counts,
             packed_hist: Vec::new(),
@@ -672,7 +682,33 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     }
                 }
             }
-            for group in candidates.chunks(BATCH).filter(|_| self.packed.is_empty()) {
+            for group in candidates.chunks(BATCH).filter(|_| !self.units.is_empty()) {
+                let (all, _) = self.batch_hist.as_chunks_mut::<2>();
+                let bits = fill_group(all, group, self.cells, rows, &self.units);
+                let (all, _) = self.batch_hist.as_chunks_mut::<2>();
+                for ((&j, slots), bits) in group.iter().zip(all.chunks_exact_mut(256)).zip(bits) {
+                    let (sums, m) = (&mut self.left_sums, B::MISSING.index() & 255);
+                    if slots[m][1] == 0.0 {
+                        let at = (m, j, parent_cost);
+                        scan_filled_sums(slots, bits, at, settings, sums, &mut best);
+                        continue;
+                    }
+                    // Missing values: the slots used spelt out as `(s0, s1, rows)`, emptied,
+                    // for the scan that tries them on both sides.
+                    let (spelt, _) = self.hist.as_chunks_mut::<3>();
+                    for (w, mut word) in bits.into_iter().enumerate() {
+                        while word != 0 {
+                            let b = w * 64 + word.trailing_zeros() as usize;
+                            let [h1, hc] = std::mem::replace(&mut slots[b], [0.0; 2]);
+                            spelt[b] = [hc, h1, hc];
+                            word &= word - 1;
+                        }
+                    }
+                    scan_filled_pairs::<B>(spelt, bits, j, parent_cost, settings, sums, &mut best);
+                }
+            }
+            let plain = self.packed.is_empty() && self.units.is_empty();
+            for group in candidates.chunks(BATCH).filter(|_| plain) {
                 let (all, _) = self.batch_hist.as_chunks_mut::<3>();
                 let bits = fill_group(all, group, self.cells, rows, pairs);
                 let (all, _) = self.batch_hist.as_chunks_mut::<3>();
@@ -1323,13 +1359,13 @@ impl Slot for u64 {
     }
 }
 
-impl Slot for [f64; 3] {
+impl<const N: usize> Slot for [f64; N] {
     fn fill<B: Bin, const K: usize>(
-        slots: [&mut [[f64; 3]]; K],
+        slots: [&mut [[f64; N]]; K],
         bits: &mut [[u64; 4]; K],
         columns: [&[B]; K],
         rows: &[u32],
-        by_row: &[[f64; 3]],
+        by_row: &[[f64; N]],
     ) {
         fill_rows_pairs(slots, bits, columns, rows, by_row);
     }
@@ -1572,7 +1608,7 @@ fn scan_filled_classes_of_plain(
 /// [`fill_rows_classes`] filled (`bits`: the bins used), when the node's rows have no missing
 /// value in the predictor and its value is unbounded: the running sums after each bin in
 /// order (each slot emptied as it is read), every split point's gain on its own, then the
-/// first of the largest, as [`scan_filled_present`] does for two statistics. Any weights:
+/// first of the largest, as [`scan_filled_sums`] does for two statistics. Any weights:
 /// the left sums are [`scan_classes`]' additions in its order, the total is the last of them
 /// (its total adds the same bins in the same order to the empty missing slot), and each cost
 /// is [`Criterion::cost`]'s sum, sum of squares and division in its order, so the same split
@@ -2060,45 +2096,64 @@ impl<B: Bin> PairScan<'_, B> {
     }
 }
 
-/// Sums each bin's `(s0, s1, rows)` of `K` predictors (two statistics per row, small cells;
-/// row `r`'s at `pairs[r]`) over the node's rows into `slots[k]` (all zero on entry), reading
-/// each row and its statistics once for all `K`, and marks the bins used in `bits[k]`: per row when the rows
-/// are few, otherwise read off the counts afterwards. Each bin sums its rows in row order.
-fn fill_rows_pairs<B: Bin, const K: usize>(
-    mut slots: [&mut [[f64; 3]]; K],
+/// Sums each bin's statistics of `K` predictors (two statistics per row, small cells; row
+/// `r`'s at `pairs[r]`: `(s0, s1, rows)`, or `(s1, rows)` for [`Grower::units`]) over the
+/// node's rows into `slots[k]` (all zero on entry), reading each row and its statistics once
+/// for all `K`, and marks the bins used in `bits[k]`: per row when the rows are few,
+/// otherwise read off the counts (the last number) afterwards. Each bin sums its rows in row
+/// order.
+fn fill_rows_pairs<B: Bin, const K: usize, const N: usize>(
+    mut slots: [&mut [[f64; N]]; K],
     bits: &mut [[u64; 4]; K],
     columns: [&[B]; K],
     rows: &[u32],
-    pairs: &[[f64; 3]],
+    pairs: &[[f64; N]],
 ) {
     *bits = [[0; 4]; K];
     if rows.len() >= 256 {
         for &r in rows {
-            let [g, h, c] = pairs[r as usize];
+            let p = pairs[r as usize];
             for (slots, column) in slots.iter_mut().zip(columns) {
                 let at = &mut slots[column[r as usize].index() & 255];
-                at[0] += g;
-                at[1] += h;
-                at[2] += c;
+                for (a, v) in at.iter_mut().zip(p) {
+                    *a += v;
+                }
             }
         }
         for (slots, bits) in slots.iter().zip(bits.iter_mut()) {
             for (b, at) in slots[..256].iter().enumerate() {
-                bits[b >> 6] |= u64::from(at[2] > 0.0) << (b & 63);
+                bits[b >> 6] |= u64::from(at[N - 1] > 0.0) << (b & 63);
             }
         }
     } else {
         for &r in rows {
-            let [g, h, c] = pairs[r as usize];
+            let p = pairs[r as usize];
             for ((slots, bits), column) in slots.iter_mut().zip(bits.iter_mut()).zip(columns) {
                 let b = column[r as usize].index() & 255;
                 bits[b >> 6] |= 1 << (b & 63);
-                let at = &mut slots[b];
-                at[0] += g;
-                at[1] += h;
-                at[2] += c;
+                for (a, v) in slots[b].iter_mut().zip(p) {
+                    *a += v;
+                }
             }
         }
+    }
+}
+
+/// Each row's `[s1, rows]` of `pairs` when every row's `s0` equals its row count (number
+/// outcomes without row weights, see [`Grower::units`]); empty otherwise.
+fn units_of(pairs: &[[f64; 3]]) -> Vec<[f64; 2]> {
+    // One pass, no early exit, checked at the end (as `pack_counts`).
+    let mut equal = true;
+    let units = pairs
+        .iter()
+        .map(|&[s0, s1, c]| {
+            equal &= s0 == c;
+            [s1, c]
+        })
+        .collect();
+    match equal && !pairs.is_empty() {
+        true => units,
+        false => Vec::new(),
     }
 }
 
@@ -2208,7 +2263,7 @@ fn scan_packed_plain(
             0,
             [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
         );
-        if let Some(at) = present_best_with::<true>(sums, used, at, settings, best) {
+        if let Some(at) = present_best(sums, used, at, settings, best) {
             if let Some(split) = best {
                 split.left_counts = Some(sums.packed[at]);
             }
@@ -2235,7 +2290,7 @@ fn scan_packed_plain(
             add,
             [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
         );
-        let found = points_best_with::<true>(sums, used, t, at, missing_left, settings, best);
+        let found = points_best(sums, used, t, at, missing_left, settings, best);
         if let (Some(i), Some(split)) = (found, best.as_mut()) {
             split.left_counts = Some(sums.packed[i] + add);
         }
@@ -2281,7 +2336,7 @@ fn scan_filled_pairs<B: Bin>(
     let m = B::MISSING.index() & 255;
     bits[m >> 6] &= !(1 << (m & 63));
     if slots[m][2] == 0.0 {
-        scan_filled_present::<B>(slots, bits, feature, parent_cost, settings, sums, best);
+        scan_filled_sums(slots, bits, (m, feature, parent_cost), settings, sums, best);
         return;
     }
     let mut order = [0u8; 256];
@@ -2337,7 +2392,7 @@ fn scan_filled_pairs<B: Bin>(
     }
 }
 
-/// The running sums of [`scan_filled_present`], one entry per bin used (flat arrays, so its
+/// The running sums of [`scan_filled_sums`], one entry per bin used (flat arrays, so its
 /// gain loop vectorises), with the bins and the gains; allocated once per tree.
 struct LeftSums {
     bins: Box<[u8; 256]>,
@@ -2370,21 +2425,36 @@ impl LeftSums {
     }
 }
 
-/// [`scan_filled_pairs`] when the node's rows have no missing value in the predictor (so one
-/// side to try), in three flat loops: the left sums after each bin used (in bin order,
-/// clearing each slot as it is read); every split point's gain on its own (independent
-/// divisions the compiler can vectorise; too few rows on a side: −∞, which no real gain
-/// equals); the first of the largest. The running left sums are those [`PairScan`] adds, the
-/// total is the last of them (as [`scan`] sums it: from the empty missing slot, then the bins
-/// in order), and the right side shrinks to too few rows only once, so the split is
-/// [`PairScan`]'s to the bit ("not below" written `!(x < least)`, as the plain loop skips a
-/// point only when a sum is below its least).
-#[allow(clippy::neg_cmp_op_on_partial_ord)]
-fn scan_filled_present<B: Bin>(
-    slots: &mut [[f64; 3]],
+twice_for_avx2! {
+    /// [`scan_filled_pairs`] when the node's rows have no missing value in the predictor (so
+    /// one side to try), in three flat loops: the left sums after each bin used (in bin
+    /// order, clearing each slot as it is read); every split point's gain on its own
+    /// (independent divisions the compiler can vectorise; too few rows on a side: −∞, which
+    /// no real gain equals); the first of the largest. The running left sums are those
+    /// [`PairScan`] adds, the total is the last of them (as [`scan`] sums it: from the empty
+    /// missing slot, then the bins in order), and the right side shrinks to too few rows only
+    /// once, so the split is [`PairScan`]'s to the bit ("not below" written `!(x < least)`, as
+    /// the plain loop skips a point only when a sum is below its least). Slots of `N`
+    /// numbers: `(s0, s1, rows)`, or `(s1, rows)` whose `s0` is the rows ([`Grower::units`]:
+    /// the same sums, so the same split). `at`: the missing slot (emptied too), the predictor
+    /// and the node's cost. Compiled for AVX2 too as a whole, its loops inlined, as
+    /// [`scan_packed`] is (the scan of number outcomes and of weighted classes).
+    fn scan_filled_sums<const N: usize>(
+        slots: &mut [[f64; N]],
+        bits: [u64; 4],
+        at: (usize, usize, f64),
+        settings: &GrowSettings,
+        sums: &mut LeftSums,
+        best: &mut Option<Split>,
+    ) = scan_present_sums
+}
+
+/// [`scan_filled_sums`]' body, inlined into each of its builds.
+#[inline(always)]
+fn scan_present_sums<const N: usize>(
+    slots: &mut [[f64; N]],
     bits: [u64; 4],
-    feature: usize,
-    parent_cost: f64,
+    (missing, feature, parent_cost): (usize, usize, f64),
     settings: &GrowSettings,
     sums: &mut LeftSums,
     best: &mut Option<Split>,
@@ -2397,7 +2467,11 @@ fn scan_filled_present<B: Bin>(
     for (w, mut word) in bits.into_iter().enumerate() {
         while word != 0 {
             let b = w * 64 + word.trailing_zeros() as usize;
-            let [h0, h1, hc] = std::mem::replace(&mut slots[b], [0.0; 3]);
+            let h = std::mem::replace(&mut slots[b], [0.0; N]);
+            let (h0, h1, hc) = match N {
+                3 => (h[0], h[N - 2], h[N - 1]),
+                _ => (h[N - 1], h[N - 2], h[N - 1]),
+            };
             t0 += h0;
             t1 += h1;
             tc += hc;
@@ -2406,32 +2480,18 @@ fn scan_filled_present<B: Bin>(
             word &= word - 1;
         }
     }
-    let m = B::MISSING.index() & 255;
-    slots[m] = [0.0; 3];
-    present_best(sums, used, feature, parent_cost, settings, best);
+    slots[missing] = [0.0; N];
+    present_best(sums, used, (feature, parent_cost), settings, best);
 }
 
 /// The best split of a number predictor without missing values from its running left sums
 /// after each of the `used` bins in `sums` (the last of them the node's totals), if it beats
-/// `best`: every split point's gain, then the first of the largest. Returns where the split
+/// `best`: every split point's gain, then the first of the largest. Its loops are inlined
+/// into the caller's build (the callers are compiled for AVX2 too). Returns where the split
 /// falls among the `used` bins when it beat `best`.
-fn present_best(
-    sums: &mut LeftSums,
-    used: usize,
-    feature: usize,
-    parent_cost: f64,
-    settings: &GrowSettings,
-    best: &mut Option<Split>,
-) -> Option<usize> {
-    let at = (feature, parent_cost);
-    present_best_with::<false>(sums, used, at, settings, best)
-}
-
-/// [`present_best`] with its two loops inlined (`INLINE`: compiled as part of the caller's
-/// build) or each choosing its build at run time.
 #[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
-fn present_best_with<const INLINE: bool>(
+fn present_best(
     sums: &mut LeftSums,
     used: usize,
     at: (usize, f64),
@@ -2441,14 +2501,14 @@ fn present_best_with<const INLINE: bool>(
     let t = used
         .checked_sub(1)
         .map(|last| [sums.s0[last], sums.s1[last], sums.rows[last]])?;
-    points_best_with::<INLINE>(sums, used, t, at, false, settings, best)
+    points_best(sums, used, t, at, false, settings, best)
 }
 
-/// [`present_best_with`] with the node's totals `t` given and the missing values' side
+/// [`present_best`] with the node's totals `t` given and the missing values' side
 /// (the left sums include them when `missing_left`).
 #[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
-fn points_best_with<const INLINE: bool>(
+fn points_best(
     sums: &mut LeftSums,
     used: usize,
     t: [f64; 3],
@@ -2471,13 +2531,8 @@ fn points_best_with<const INLINE: bool>(
     let left = [&s0[..used], &s1[..used], &rows[..used]];
     // Every bin used holds rows: each is a split point.
     let all = std::iter::repeat(&1.0);
-    let (at, g) = if INLINE {
-        point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
-        first_best_plain(&gain[..used])
-    } else {
-        point_gains(&mut gain[..used], all, left, t, parent_cost, settings);
-        first_best(&gain[..used])
-    };
+    point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
+    let (at, g) = first_best_plain(&gain[..used]);
     if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
         return None;
     }
@@ -3399,6 +3454,64 @@ mod tests {
         assert!(pack_counts(&pairs, Criterion::Gini).is_empty());
         let (_, pairs) = collapse_repeats(&rows, &stats, m.rows);
         assert_eq!(pack_counts(&pairs, Criterion::Gini).len(), m.rows);
+    }
+
+    #[test]
+    fn number_outcomes_summed_as_two_numbers_grow_the_tree_three_grow() {
+        // A forest's regression tree (a bootstrap with repeats, two of three predictors a
+        // node, missing values in c) with each row's weight read off its count
+        // (`Grower::units`), and again from all three numbers: the sums are the same, so the
+        // trees must be equal to the bit (our own consistency rule, no source needed).
+        let mut draw = xorshift(0x5DEE_CE66_D1CE_4E5Du64);
+        let mut next = || (draw() % 1_000_000) as f64 / 1_000_000.0;
+        let mut text = String::from("y,a,b,c\n");
+        for _ in 0..3000 {
+            let (a, b, c) = (next(), next(), next());
+            let y = a + 2.0 * b + next();
+            let c = match c < 0.05 {
+                true => "NA".to_string(),
+                false => c.to_string(),
+            };
+            text += &format!("{y},{a},{b},{c}\n");
+        }
+        let design = design_from_csv(&text, "y", &["a", "b", "c"]);
+        let (stats, k) = design.row_statistics(false);
+        let m = bin_design(&design, BinSettings::default()).unwrap();
+        let (rows, picks) = bootstrap_and_picks(m.rows);
+        let Cells::Narrow(cells) = &m.cells else {
+            panic!("small cells")
+        };
+        let settings = GrowSettings {
+            criterion: Criterion::SquaredError,
+            ..GrowSettings::default()
+        };
+        let grow_one = |units: bool| {
+            let mut at = picks.iter();
+            let mut choose = |c: &mut Vec<usize>| {
+                c.remove(*at.next().unwrap() as usize);
+            };
+            let chooser: PredictorChooser<'_> = &mut choose;
+            let mut g = Grower::new(&m, cells, &stats, k, &rows, &settings, Some(chooser), &[]);
+            assert!(!g.units.is_empty(), "rows without weights are summed as two numbers");
+            if !units {
+                g.units.clear();
+            }
+            g.run().tree
+        };
+        let (a, b) = (grow_one(true), grow_one(false));
+        assert!(a.leaves() > 1000, "{} leaves", a.leaves());
+        assert_eq!(a, b);
+        // Row weights other than 1 keep all three numbers.
+        let weighted: Vec<f64> = stats
+            .chunks_exact(2)
+            .enumerate()
+            .flat_map(|(i, s)| {
+                let w = 1.0 + (i % 3) as f64;
+                [w * s[0], w * s[1]]
+            })
+            .collect();
+        let (_, pairs) = collapse_repeats(&rows, &weighted, m.rows);
+        assert!(units_of(&pairs).is_empty());
     }
 
     #[test]
