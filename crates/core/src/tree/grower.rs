@@ -315,6 +315,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             3 => pack_classes3(&work, stats, &counts, settings.criterion),
             _ => Vec::new(),
         };
+        let packed = pack_counts(&pairs, settings.criterion);
         Grower {
             binned,
             cells,
@@ -343,11 +344,11 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .map(|j| j * DENSE_SLOTS * (width + 1))
                     .collect()
             }),
-            packed: pack_counts(&pairs, settings.criterion),
-            units: match pack_counts(&pairs, settings.criterion).is_empty() {
+            units: match packed.is_empty() {
                 true => units_of(&pairs),
                 false => Vec::new(),
             },
+            packed,
             classes3,
             counts,
             packed_hist: Vec::new(),
@@ -3492,7 +3493,10 @@ mod tests {
             };
             let chooser: PredictorChooser<'_> = &mut choose;
             let mut g = Grower::new(&m, cells, &stats, k, &rows, &settings, Some(chooser), &[]);
-            assert!(!g.units.is_empty(), "rows without weights are summed as two numbers");
+            assert!(
+                !g.units.is_empty(),
+                "rows without weights are summed as two numbers"
+            );
             if !units {
                 g.units.clear();
             }
