@@ -2143,19 +2143,12 @@ fn fill_rows_pairs<B: Bin, const K: usize, const N: usize>(
 /// Each row's `[s1, rows]` of `pairs` when every row's `s0` equals its row count (number
 /// outcomes without row weights, see [`Grower::units`]); empty otherwise.
 fn units_of(pairs: &[[f64; 3]]) -> Vec<[f64; 2]> {
-    // One pass, no early exit, checked at the end (as `pack_counts`).
-    let mut equal = true;
-    let units = pairs
-        .iter()
-        .map(|&[s0, s1, c]| {
-            equal &= s0 == c;
-            [s1, c]
-        })
-        .collect();
-    match equal && !pairs.is_empty() {
-        true => units,
-        false => Vec::new(),
+    // Checked before anything is built: gradients (a boosting round) and weighted classes
+    // differ at the first row or so, and then cost neither a pass nor an allocation.
+    if pairs.is_empty() || pairs.iter().any(|&[s0, _, c]| s0 != c) {
+        return Vec::new();
     }
+    pairs.iter().map(|&[_, s1, c]| [s1, c]).collect()
 }
 
 /// [`fill_rows_pairs`] for packed counts ([`pack_counts`]): one addition a row and
