@@ -702,10 +702,12 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 for ((&j, slots), bits) in group.iter().zip(all.chunks_exact_mut(256)).zip(bits) {
                     let (sums, m) = (&mut self.left_sums, B::MISSING.index() & 255);
                     if slots[m][1] == 0.0 {
-                        let at = (m, j, parent_cost);
-                        scan_filled_sums(slots, bits, at, settings, sums, &mut best);
+                        // No missing values: gathered, and scanned with the group's others.
+                        self.group.gather_units(slots, bits, j);
                         continue;
                     }
+                    // The points gathered so far come first (ties go to the earlier one).
+                    scan_group_units(&mut self.group, parent_cost, settings, &mut best);
                     // Missing values: the slots used spelt out as `(s0, s1, rows)`, emptied,
                     // for the scan that tries them on both sides.
                     let (spelt, _) = self.hist.as_chunks_mut::<3>();
@@ -719,6 +721,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     }
                     scan_filled_pairs::<B>(spelt, bits, j, parent_cost, settings, sums, &mut best);
                 }
+                scan_group_units(&mut self.group, parent_cost, settings, &mut best);
             }
             let plain = self.packed.is_empty() && self.units.is_empty();
             for group in candidates.chunks(BATCH).filter(|_| plain) {
@@ -2411,6 +2414,9 @@ struct GroupPoints {
     s0: Box<[f64; BATCH * 256]>,
     s1: Box<[f64; BATCH * 256]>,
     rows: Box<[f64; BATCH * 256]>,
+    /// Number outcomes ([`GroupPoints::gather_units`]): each point's predictor's total of
+    /// `s1`, as it summed it.
+    total1: Box<[f64; BATCH * 256]>,
     gain: Box<[f64; BATCH * 256]>,
     /// Points gathered.
     used: usize,
@@ -2427,6 +2433,7 @@ impl GroupPoints {
             s0: Box::new([0.0; BATCH * 256]),
             s1: Box::new([0.0; BATCH * 256]),
             rows: Box::new([0.0; BATCH * 256]),
+            total1: Box::new([0.0; BATCH * 256]),
             gain: Box::new([0.0; BATCH * 256]),
             used: 0,
             parts: [(0, 0); BATCH],
@@ -2449,6 +2456,29 @@ impl GroupPoints {
                 word &= word - 1;
             }
         }
+        self.parts[self.gathered] = (feature, used);
+        self.gathered += 1;
+        self.used = used;
+    }
+
+    /// [`GroupPoints::gather`] for the `(s1, rows)` slots of rows whose weight is their count
+    /// ([`Grower::units`]; no missing values): the running sums [`scan_filled_sums`] adds, in
+    /// bin order, `s0` being the rows (the same additions), each slot emptied as it is read.
+    fn gather_units(&mut self, slots: &mut [[f64; 2]], bits: [u64; 4], feature: usize) {
+        let (mut t1, mut tc) = (0.0, 0.0);
+        let (start, mut used) = (self.used, self.used);
+        for (w, mut word) in bits.into_iter().enumerate() {
+            while word != 0 {
+                let b = w * 64 + word.trailing_zeros() as usize;
+                let [h1, hc] = std::mem::replace(&mut slots[b], [0.0; 2]);
+                t1 += h1;
+                tc += hc;
+                (self.bins[used], self.s1[used], self.rows[used]) = (b as u8, t1, tc);
+                used += 1;
+                word &= word - 1;
+            }
+        }
+        self.total1[start..used].fill(t1);
         self.parts[self.gathered] = (feature, used);
         self.gathered += 1;
         self.used = used;
@@ -2521,6 +2551,67 @@ fn scan_group_plain(
         missing_left: false,
         values: (0.0, 0.0),
         left_counts: Some(packed[at]),
+    });
+}
+
+twice_for_avx2! {
+    /// [`scan_group`] for points gathered by [`GroupPoints::gather_units`]: each predictor's
+    /// split as [`scan_filled_sums`] finds it, to the bit. Their totals of rows are whole
+    /// numbers, the same whatever the order they were summed in; their totals of `s1` may
+    /// differ in the last place, so each point's gain takes its own predictor's.
+    fn scan_group_units(
+        points: &mut GroupPoints,
+        parent_cost: f64,
+        settings: &GrowSettings,
+        best: &mut Option<Split>,
+    ) = scan_group_units_plain
+}
+
+/// [`scan_group_units`]' body, inlined into each of its builds.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn scan_group_units_plain(
+    points: &mut GroupPoints,
+    parent_cost: f64,
+    settings: &GrowSettings,
+    best: &mut Option<Split>,
+) {
+    let (used, gathered) = (points.used, points.gathered);
+    (points.used, points.gathered) = (0, 0);
+    if used == 0 {
+        return;
+    }
+    let GroupPoints {
+        bins,
+        s1,
+        rows,
+        total1,
+        gain,
+        parts,
+        ..
+    } = points;
+    let tc = rows[parts[0].1 - 1];
+    let left = [&rows[..used], &s1[..used], &rows[..used]];
+    let (all, totals) = (std::iter::repeat(&1.0), (tc, total1[..used].iter(), tc));
+    point_gains_each(&mut gain[..used], all, left, totals, parent_cost, settings);
+    let (at, g) = first_best_plain(&gain[..used]);
+    if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
+        return;
+    }
+    let &(feature, end) = parts[..gathered]
+        .iter()
+        .find(|&&(_, end)| at < end)
+        .expect("every point is some predictor's");
+    *best = Some(Split {
+        gain: g,
+        feature,
+        numeric: true,
+        threshold_bin: usize::from(bins[at]),
+        next_bin: (at + 1 < end).then(|| usize::from(bins[at + 1])),
+        categories: BinSet::default(),
+        missing_left: false,
+        values: (0.0, 0.0),
+        left_counts: None,
     });
 }
 
@@ -2796,13 +2887,28 @@ twice_for_avx2! {
 }
 
 /// [`point_gains`]' loop, inlined into each of its builds.
-#[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
 fn point_gains_plain<'p>(
     gain: &mut [f64],
     present: impl Iterator<Item = &'p f64>,
     left: [&[f64]; 3],
     t: [f64; 3],
+    parent_cost: f64,
+    settings: &GrowSettings,
+) {
+    let totals = (t[0], std::iter::repeat(&t[1]), t[2]);
+    point_gains_each(gain, present, left, totals, parent_cost, settings);
+}
+
+/// [`point_gains_plain`] with the node's second total given point by point (`t.1`), as
+/// summed by each point's predictor in its own order ([`scan_group_units`]).
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn point_gains_each<'p, 't>(
+    gain: &mut [f64],
+    present: impl Iterator<Item = &'p f64>,
+    left: [&[f64]; 3],
+    (t0, t1, tc): (f64, impl Iterator<Item = &'t f64>, f64),
     parent_cost: f64,
     settings: &GrowSettings,
 ) {
@@ -2813,11 +2919,13 @@ fn point_gains_plain<'p>(
         .zip(present)
         .zip(left[0])
         .zip(left[1])
-        .zip(left[2]);
+        .zip(left[2])
+        .zip(t1);
+    let t = [t0, 0.0, tc];
     macro_rules! gains {
         ($c:expr, $weigh:expr) => {
-            for ((((out, &n), &l0), &l1), &lc) in lanes {
-                let (r0, r1) = (t[0] - l0, t[1] - l1);
+            for (((((out, &n), &l0), &l1), &lc), &t1) in lanes {
+                let (r0, r1) = (t[0] - l0, t1 - l1);
                 let ok = (n > 0.0)
                     & !(lc < min_leaf)
                     & !(t[2] - lc < min_leaf)
@@ -3539,6 +3647,104 @@ mod tests {
             "{splits} splits, {later} by a later predictor"
         );
         assert_eq!(copies_won, 0, "a tie went to the later copy");
+    }
+
+    #[test]
+    fn a_group_scan_of_number_outcomes_finds_what_scanning_one_by_one_finds() {
+        // `scan_group_units` (AVX2 on a CPU that has it) and its plain body against
+        // `scan_filled_sums` on each predictor in turn, on random nodes of a number outcome
+        // (rows drawn one to three times, values with many decimals, so each predictor's total
+        // may differ from another's in the last place), some predictors copies of an earlier
+        // one, a least leaf size, a split to beat or one that ties (our own consistency rule,
+        // no source needed).
+        let mut draw = xorshift(0xD1B5_4A32_D192_ED03u64);
+        let mut next = |m: u64| draw() % m;
+        let (mut splits, mut later, mut totals_differ) = (0, 0, 0);
+        for round in 0..600 {
+            let rows: Vec<[f64; 2]> = (0..2 + next(30))
+                .map(|_| {
+                    let c = (1 + next(3)) as f64;
+                    [c * (next(1_000_000) as f64 / 7919.0 - 60.0), c]
+                })
+                .collect();
+            let spread = 2 + next(60);
+            let predictors = 1 + next(BATCH as u64) as usize;
+            let mut places: Vec<Vec<usize>> = Vec::new();
+            for k in 0..predictors {
+                let copy = k > 0 && next(3) == 0;
+                places.push(match copy {
+                    true => places[next(k as u64) as usize].clone(),
+                    false => rows.iter().map(|_| next(spread) as usize).collect(),
+                });
+            }
+            let filled = |k: usize| {
+                let (mut slots, mut bits) = (vec![[0.0; 2]; 256], [0u64; 4]);
+                for (&[s1, c], &b) in rows.iter().zip(&places[k]) {
+                    slots[b][0] += s1;
+                    slots[b][1] += c;
+                    bits[b >> 6] |= 1 << (b & 63);
+                }
+                (slots, bits)
+            };
+            let settings = GrowSettings {
+                criterion: Criterion::SquaredError,
+                min_rows_leaf: 1 + round % 3,
+                ..GrowSettings::default()
+            };
+            let (t1, tc) = rows
+                .iter()
+                .fold((0.0, 0.0), |(a, b), r| (a + r[0], b + r[1]));
+            let parent_cost = Criterion::SquaredError.cost(&[tc, t1]);
+            let by_one = |best: &mut Option<Split>| {
+                let mut sums = Vec::new();
+                for k in 0..predictors {
+                    let (mut slots, bits) = filled(k);
+                    let at = (255, 20 + k, parent_cost);
+                    let left = &mut LeftSums::new();
+                    scan_filled_sums(&mut slots, bits, at, &settings, left, best);
+                    let used = bits.iter().map(|w| w.count_ones() as usize).sum::<usize>();
+                    sums.push(left.s1[used - 1].to_bits());
+                }
+                sums
+            };
+            let mut alone = None;
+            let sums = by_one(&mut alone);
+            totals_differ += usize::from(sums.iter().any(|&t| t != sums[0]));
+            let before = match round % 5 {
+                3 => Some(parent_cost * next(4) as f64 / 4.0),
+                4 => alone.as_ref().map(|s| s.gain),
+                _ => None,
+            }
+            .map(split_to_beat);
+            let mut want = before.clone();
+            by_one(&mut want);
+            for plain in [false, true] {
+                let mut group = GroupPoints::new();
+                let mut best = before.clone();
+                for k in 0..predictors {
+                    let (mut slots, bits) = filled(k);
+                    group.gather_units(&mut slots, bits, 20 + k);
+                    assert!(
+                        slots.iter().all(|s| *s == [0.0; 2]),
+                        "round {round}: emptied"
+                    );
+                }
+                match plain {
+                    false => scan_group_units(&mut group, parent_cost, &settings, &mut best),
+                    true => scan_group_units_plain(&mut group, parent_cost, &settings, &mut best),
+                }
+                assert_eq!(split_key(&best), split_key(&want), "round {round}");
+            }
+            if let Some(w) = want.as_ref().filter(|w| w.feature >= 20) {
+                splits += 1;
+                later += usize::from(w.feature > 20);
+            }
+        }
+        assert!(
+            splits > 300 && later > 50 && totals_differ > 50,
+            "{splits} splits, {later} by a later predictor, {totals_differ} rounds whose \
+             predictors' totals differ"
+        );
     }
 
     /// [`many_values`] with three classes: p, q, and r for every seventh row.
