@@ -729,9 +729,17 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 let bits = fill_group(all, group, self.cells, rows, pairs);
                 let (all, _) = self.batch_hist.as_chunks_mut::<3>();
                 for ((&j, slots), bits) in group.iter().zip(all.chunks_exact_mut(256)).zip(bits) {
+                    if slots[B::MISSING.index() & 255][2] == 0.0 {
+                        // No missing values: gathered, and scanned with the group's others.
+                        self.group.gather_sums(slots, bits, j);
+                        continue;
+                    }
+                    // The points gathered so far come first (ties go to the earlier one).
+                    scan_group_sums(&mut self.group, parent_cost, settings, &mut best);
                     let sums = &mut self.left_sums;
                     scan_filled_pairs::<B>(slots, bits, j, parent_cost, settings, sums, &mut best);
                 }
+                scan_group_sums(&mut self.group, parent_cost, settings, &mut best);
             }
         }
         for &j in candidates.iter().filter(|_| !batched && !three_packed) {
@@ -2414,8 +2422,9 @@ struct GroupPoints {
     s0: Box<[f64; BATCH * 256]>,
     s1: Box<[f64; BATCH * 256]>,
     rows: Box<[f64; BATCH * 256]>,
-    /// Number outcomes ([`GroupPoints::gather_units`]): each point's predictor's total of
-    /// `s1`, as it summed it.
+    /// Each point's predictor's totals of `s0` ([`GroupPoints::gather_sums`]) and `s1`
+    /// ([`GroupPoints::gather_units`] too), as it summed them.
+    total0: Box<[f64; BATCH * 256]>,
     total1: Box<[f64; BATCH * 256]>,
     gain: Box<[f64; BATCH * 256]>,
     /// Points gathered.
@@ -2433,6 +2442,7 @@ impl GroupPoints {
             s0: Box::new([0.0; BATCH * 256]),
             s1: Box::new([0.0; BATCH * 256]),
             rows: Box::new([0.0; BATCH * 256]),
+            total0: Box::new([0.0; BATCH * 256]),
             total1: Box::new([0.0; BATCH * 256]),
             gain: Box::new([0.0; BATCH * 256]),
             used: 0,
@@ -2483,6 +2493,32 @@ impl GroupPoints {
         self.gathered += 1;
         self.used = used;
     }
+
+    /// [`GroupPoints::gather`] for `(s0, s1, rows)` slots (weighted classes, weighted
+    /// numbers; no missing values): the running sums [`scan_filled_sums`] adds, in bin order,
+    /// each slot emptied as it is read.
+    fn gather_sums(&mut self, slots: &mut [[f64; 3]], bits: [u64; 4], feature: usize) {
+        let [mut t0, mut t1, mut tc] = [0.0; 3];
+        let (start, mut used) = (self.used, self.used);
+        for (w, mut word) in bits.into_iter().enumerate() {
+            while word != 0 {
+                let b = w * 64 + word.trailing_zeros() as usize;
+                let [h0, h1, hc] = std::mem::replace(&mut slots[b], [0.0; 3]);
+                t0 += h0;
+                t1 += h1;
+                tc += hc;
+                self.bins[used] = b as u8;
+                (self.s0[used], self.s1[used], self.rows[used]) = (t0, t1, tc);
+                used += 1;
+                word &= word - 1;
+            }
+        }
+        self.total0[start..used].fill(t0);
+        self.total1[start..used].fill(t1);
+        self.parts[self.gathered] = (feature, used);
+        self.gathered += 1;
+        self.used = used;
+    }
 }
 
 twice_for_avx2! {
@@ -2515,7 +2551,6 @@ fn scan_group_plain(
         return;
     }
     let GroupPoints {
-        bins,
         packed,
         s0,
         s1,
@@ -2533,14 +2568,30 @@ fn scan_group_plain(
     let left = [&s0[..used], &s1[..used], &rows[..used]];
     let all = std::iter::repeat(&1.0);
     point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
-    let (at, g) = first_best_plain(&gain[..used]);
+    pick_group_best(points, used, gathered, true, best);
+}
+
+/// The first best of a group's `used` point gains (`points.gain`, from `gathered`
+/// predictors), kept in `best` if it gains strictly more: the split after its bin, on its
+/// predictor; with the left side's packed counts when `packed` ([`scan_group`]).
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn pick_group_best(
+    points: &GroupPoints,
+    used: usize,
+    gathered: usize,
+    packed: bool,
+    best: &mut Option<Split>,
+) {
+    let (at, g) = first_best_plain(&points.gain[..used]);
     if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
         return;
     }
-    let &(feature, end) = parts[..gathered]
+    let &(feature, end) = points.parts[..gathered]
         .iter()
         .find(|&&(_, end)| at < end)
         .expect("every point is some predictor's");
+    let bins = &points.bins;
     *best = Some(Split {
         gain: g,
         feature,
@@ -2550,7 +2601,7 @@ fn scan_group_plain(
         categories: BinSet::default(),
         missing_left: false,
         values: (0.0, 0.0),
-        left_counts: Some(packed[at]),
+        left_counts: packed.then(|| points.packed[at]),
     });
 }
 
@@ -2582,7 +2633,6 @@ fn scan_group_units_plain(
         return;
     }
     let GroupPoints {
-        bins,
         s1,
         rows,
         total1,
@@ -2592,27 +2642,54 @@ fn scan_group_units_plain(
     } = points;
     let tc = rows[parts[0].1 - 1];
     let left = [&rows[..used], &s1[..used], &rows[..used]];
-    let (all, totals) = (std::iter::repeat(&1.0), (tc, total1[..used].iter(), tc));
+    let totals = (std::iter::repeat(&tc), total1[..used].iter(), tc);
+    let all = std::iter::repeat(&1.0);
     point_gains_each(&mut gain[..used], all, left, totals, parent_cost, settings);
-    let (at, g) = first_best_plain(&gain[..used]);
-    if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
+    pick_group_best(points, used, gathered, false, best);
+}
+
+twice_for_avx2! {
+    /// [`scan_group`] for points gathered by [`GroupPoints::gather_sums`]: each predictor's
+    /// split as [`scan_filled_sums`] finds it, to the bit, each point's gain taking its own
+    /// predictor's totals of `s0` and `s1`.
+    fn scan_group_sums(
+        points: &mut GroupPoints,
+        parent_cost: f64,
+        settings: &GrowSettings,
+        best: &mut Option<Split>,
+    ) = scan_group_sums_plain
+}
+
+/// [`scan_group_sums`]' body, inlined into each of its builds.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn scan_group_sums_plain(
+    points: &mut GroupPoints,
+    parent_cost: f64,
+    settings: &GrowSettings,
+    best: &mut Option<Split>,
+) {
+    let (used, gathered) = (points.used, points.gathered);
+    (points.used, points.gathered) = (0, 0);
+    if used == 0 {
         return;
     }
-    let &(feature, end) = parts[..gathered]
-        .iter()
-        .find(|&&(_, end)| at < end)
-        .expect("every point is some predictor's");
-    *best = Some(Split {
-        gain: g,
-        feature,
-        numeric: true,
-        threshold_bin: usize::from(bins[at]),
-        next_bin: (at + 1 < end).then(|| usize::from(bins[at + 1])),
-        categories: BinSet::default(),
-        missing_left: false,
-        values: (0.0, 0.0),
-        left_counts: None,
-    });
+    let GroupPoints {
+        s0,
+        s1,
+        rows,
+        total0,
+        total1,
+        gain,
+        parts,
+        ..
+    } = points;
+    let tc = rows[parts[0].1 - 1];
+    let left = [&s0[..used], &s1[..used], &rows[..used]];
+    let totals = (total0[..used].iter(), total1[..used].iter(), tc);
+    let all = std::iter::repeat(&1.0);
+    point_gains_each(&mut gain[..used], all, left, totals, parent_cost, settings);
+    pick_group_best(points, used, gathered, false, best);
 }
 
 /// The running sums of [`scan_filled_sums`], one entry per bin used (flat arrays, so its
@@ -2896,19 +2973,24 @@ fn point_gains_plain<'p>(
     parent_cost: f64,
     settings: &GrowSettings,
 ) {
-    let totals = (t[0], std::iter::repeat(&t[1]), t[2]);
+    let totals = (std::iter::repeat(&t[0]), std::iter::repeat(&t[1]), t[2]);
     point_gains_each(gain, present, left, totals, parent_cost, settings);
 }
 
-/// [`point_gains_plain`] with the node's second total given point by point (`t.1`), as
-/// summed by each point's predictor in its own order ([`scan_group_units`]).
+/// [`point_gains_plain`] with the node's totals of `s0` and `s1` given point by point, as
+/// summed by each point's predictor in its own order ([`scan_group_units`],
+/// [`scan_group_sums`]); the rows' total is a whole number, the same whatever the order.
 #[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
 fn point_gains_each<'p, 't>(
     gain: &mut [f64],
     present: impl Iterator<Item = &'p f64>,
     left: [&[f64]; 3],
-    (t0, t1, tc): (f64, impl Iterator<Item = &'t f64>, f64),
+    (t0, t1, tc): (
+        impl Iterator<Item = &'t f64>,
+        impl Iterator<Item = &'t f64>,
+        f64,
+    ),
     parent_cost: f64,
     settings: &GrowSettings,
 ) {
@@ -2920,12 +3002,12 @@ fn point_gains_each<'p, 't>(
         .zip(left[0])
         .zip(left[1])
         .zip(left[2])
-        .zip(t1);
-    let t = [t0, 0.0, tc];
+        .zip(t0.zip(t1));
+    let t = [0.0, 0.0, tc];
     macro_rules! gains {
         ($c:expr, $weigh:expr) => {
-            for (((((out, &n), &l0), &l1), &lc), &t1) in lanes {
-                let (r0, r1) = (t[0] - l0, t1 - l1);
+            for (((((out, &n), &l0), &l1), &lc), (&t0, &t1)) in lanes {
+                let (r0, r1) = (t0 - l0, t1 - l1);
                 let ok = (n > 0.0)
                     & !(lc < min_leaf)
                     & !(t[2] - lc < min_leaf)
@@ -3732,6 +3814,107 @@ mod tests {
                 match plain {
                     false => scan_group_units(&mut group, parent_cost, &settings, &mut best),
                     true => scan_group_units_plain(&mut group, parent_cost, &settings, &mut best),
+                }
+                assert_eq!(split_key(&best), split_key(&want), "round {round}");
+            }
+            if let Some(w) = want.as_ref().filter(|w| w.feature >= 20) {
+                splits += 1;
+                later += usize::from(w.feature > 20);
+            }
+        }
+        assert!(
+            splits > 300 && later > 50 && totals_differ > 50,
+            "{splits} splits, {later} by a later predictor, {totals_differ} rounds whose \
+             predictors' totals differ"
+        );
+    }
+
+    #[test]
+    fn a_group_scan_of_weighted_sums_finds_what_scanning_one_by_one_finds() {
+        // `scan_group_sums` (AVX2 on a CPU that has it) and its plain body against
+        // `scan_filled_sums` on each predictor in turn, on random nodes of two classes with
+        // fractional class weights (each row's (s0, s1, rows): its weight on its class, times
+        // its draws), so each predictor's totals may differ from another's in the last place;
+        // some predictors copies of an earlier one, a least leaf size, a split to beat or one
+        // that ties (our own consistency rule, no source needed).
+        let mut draw = xorshift(0x3C6E_F372_FE94_F82Bu64);
+        let mut next = |m: u64| draw() % m;
+        let (mut splits, mut later, mut totals_differ) = (0, 0, 0);
+        let weights = [0.618_033_988_7, 2.3];
+        for round in 0..600 {
+            let rows: Vec<[f64; 3]> = (0..2 + next(30))
+                .map(|_| {
+                    let (c, class) = ((1 + next(3)) as f64, next(2) as usize);
+                    let mut row = [0.0, 0.0, c];
+                    row[class] = c * weights[class];
+                    row
+                })
+                .collect();
+            let spread = 2 + next(60);
+            let predictors = 1 + next(BATCH as u64) as usize;
+            let mut places: Vec<Vec<usize>> = Vec::new();
+            for k in 0..predictors {
+                let copy = k > 0 && next(3) == 0;
+                places.push(match copy {
+                    true => places[next(k as u64) as usize].clone(),
+                    false => rows.iter().map(|_| next(spread) as usize).collect(),
+                });
+            }
+            let filled = |k: usize| {
+                let (mut slots, mut bits) = (vec![[0.0; 3]; 256], [0u64; 4]);
+                for (row, &b) in rows.iter().zip(&places[k]) {
+                    for (a, v) in slots[b].iter_mut().zip(row) {
+                        *a += v;
+                    }
+                    bits[b >> 6] |= 1 << (b & 63);
+                }
+                (slots, bits)
+            };
+            let settings = GrowSettings {
+                min_rows_leaf: 1 + round % 3,
+                ..GrowSettings::default()
+            };
+            let t = rows
+                .iter()
+                .fold([0.0; 2], |t, r| [t[0] + r[0], t[1] + r[1]]);
+            let parent_cost = Criterion::Gini.cost(&t);
+            let by_one = |best: &mut Option<Split>| {
+                let mut sums = Vec::new();
+                for k in 0..predictors {
+                    let (mut slots, bits) = filled(k);
+                    let at = (255, 20 + k, parent_cost);
+                    let left = &mut LeftSums::new();
+                    scan_filled_sums(&mut slots, bits, at, &settings, left, best);
+                    let used = bits.iter().map(|w| w.count_ones() as usize).sum::<usize>();
+                    sums.push((left.s0[used - 1].to_bits(), left.s1[used - 1].to_bits()));
+                }
+                sums
+            };
+            let mut alone = None;
+            let sums = by_one(&mut alone);
+            totals_differ += usize::from(sums.iter().any(|&t| t != sums[0]));
+            let before = match round % 5 {
+                3 => Some(parent_cost * next(4) as f64 / 4.0),
+                4 => alone.as_ref().map(|s| s.gain),
+                _ => None,
+            }
+            .map(split_to_beat);
+            let mut want = before.clone();
+            by_one(&mut want);
+            for plain in [false, true] {
+                let mut group = GroupPoints::new();
+                let mut best = before.clone();
+                for k in 0..predictors {
+                    let (mut slots, bits) = filled(k);
+                    group.gather_sums(&mut slots, bits, 20 + k);
+                    assert!(
+                        slots.iter().all(|s| *s == [0.0; 3]),
+                        "round {round}: emptied"
+                    );
+                }
+                match plain {
+                    false => scan_group_sums(&mut group, parent_cost, &settings, &mut best),
+                    true => scan_group_sums_plain(&mut group, parent_cost, &settings, &mut best),
                 }
                 assert_eq!(split_key(&best), split_key(&want), "round {round}");
             }
