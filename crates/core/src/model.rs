@@ -17,7 +17,8 @@ use crate::ensemble::adaboost::{AdaBoost, Stop};
 use crate::ensemble::boosting::Boosting;
 use crate::ensemble::forest::{argmax, Forest};
 use crate::error::{Error, ErrorKind, Result};
-use crate::tree::{walk, Rows, Tree};
+use crate::tree::walk::{self, Walk};
+use crate::tree::{Rows, Tree};
 
 /// How the model was fitted.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -375,13 +376,48 @@ impl Model {
     /// go a tree at a time over the rows, so the tree stays in the cache while every row
     /// walks it (row by row, each of hundreds of deep trees is fetched from memory again).
     pub fn predict_rows(&self, rows: Rows<'_>, range: std::ops::Range<usize>, out: &mut [f64]) {
+        self.predict_rows_by(&self.walks(rows), rows, range, out);
+    }
+
+    /// Every tree's [`Walk`] for rows of the kind of `rows` (binned or records), for
+    /// [`Model::predict_rows_by`]; bagging and forests only (other models walk row by row).
+    pub fn walks(&self, rows: Rows<'_>) -> Walks {
+        let binned = matches!(rows, Rows::Binned(_));
+        let each = match &self.ensemble {
+            Ensemble::Forest(f) => f.trees.iter().map(|t| Walk::new(t, binned)).collect(),
+            _ => Vec::new(),
+        };
+        Walks { binned, each }
+    }
+
+    /// [`Model::predict_rows`] with the trees' walks built beforehand ([`Model::walks`]), so
+    /// that predicting block after block of rows builds them once, not once a block (a walk
+    /// is the tree laid out anew: for the training rows of a 60-tree forest on 50,000 rows in
+    /// blocks of 4,096, 9% of `spinney fit`'s time). Walks of the other kind of rows, or
+    /// missing, are built here.
+    pub fn predict_rows_by(
+        &self,
+        walks: &Walks,
+        rows: Rows<'_>,
+        range: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) {
         let k = self.outputs();
         match &self.ensemble {
             Ensemble::Forest(f) => {
                 out.iter_mut().for_each(|o| *o = 0.0);
                 let mut at = vec![0; range.len()];
-                for t in &f.trees {
-                    walk::leaves(t, rows, |i| range.start + i, &mut at);
+                let kind = walks.binned == matches!(rows, Rows::Binned(_));
+                for (i, t) in f.trees.iter().enumerate() {
+                    let built;
+                    let walk = match walks.each.get(i).filter(|_| kind) {
+                        Some(w) => w.as_ref(),
+                        None => {
+                            built = Walk::new(t, matches!(rows, Rows::Binned(_)));
+                            built.as_ref()
+                        }
+                    };
+                    walk::leaves_by(walk, t, rows, |i| range.start + i, &mut at);
                     for (&leaf, o) in at.iter().zip(out.chunks_exact_mut(k)) {
                         for (a, v) in o.iter_mut().zip(t.node_values(leaf as usize)) {
                             *a += v;
@@ -421,10 +457,11 @@ impl Model {
         let n = rows.len();
         let mut p = vec![0.0; BLOCK * k];
         let (mut right, mut sse) = (0usize, 0.0);
+        let walks = self.walks(rows);
         for start in (0..n).step_by(BLOCK) {
             let end = (start + BLOCK).min(n);
             let p = &mut p[..(end - start) * k];
-            self.predict_rows(rows, start..end, p);
+            self.predict_rows_by(&walks, rows, start..end, p);
             for (r, p) in (start..end).zip(p.chunks_exact(k)) {
                 match outcome {
                     Outcome::Classes { codes, .. } => {
@@ -918,6 +955,12 @@ fn boosting_staged_errors(b: &Boosting, rows: Rows<'_>, outcome: &Outcome) -> Ve
     curve
 }
 
+/// The trees' walks of a model for rows of one kind ([`Model::walks`]).
+pub struct Walks {
+    binned: bool,
+    each: Vec<Option<Walk>>,
+}
+
 #[cfg(test)]
 mod tests {
     use crate::fit::forest_from_csv;
@@ -943,5 +986,42 @@ mod tests {
         assert_eq!(bits(&predictions.unwrap()), bits(&direct));
         assert_eq!(curve, model.staged_errors(rows, outcome));
         assert_eq!(curve.map(|c| c.len()), Some(25));
+    }
+
+    #[test]
+    fn walks_built_once_predict_blocks_as_fresh_walks_do() {
+        // Predictions of blocks of rows by walks built beforehand, of the same kind of rows
+        // or of the other kind (binned; so built again), against `predict`, row by row (our
+        // own consistency rule, no source needed).
+        let mut text = String::from("y,a,b,c\n");
+        for i in 0..300u64 {
+            let (a, b) = ((i * 37) % 101, (i * 53) % 89);
+            let y = ["p", "q"][((a + 2 * b + i % 5) % 2) as usize];
+            let c = match i % 9 {
+                0 => String::new(),
+                _ => ["k", "l", "m"][(i % 3) as usize].to_string(),
+            };
+            // Values unlike their bins' numbers, so walks of the other kind would go astray.
+            let (a, b) = (a as f64 / 8.0 + 3.0, 1000.0 - 2.5 * b as f64);
+            text += &format!("{y},{a},{b},{c}\n");
+        }
+        let (table, fitted) = forest_from_csv(&text, 15);
+        let model = &fitted.model;
+        let (records, _) = model.records(&table).unwrap();
+        let rows = Rows::Records(&records);
+        let k = model.outputs();
+        let mut want = vec![0.0; records.rows * k];
+        for (r, o) in want.chunks_exact_mut(k).enumerate() {
+            model.predict(rows, r, o);
+        }
+        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        for walks in [model.walks(rows), model.walks(Rows::Binned(&fitted.binned))] {
+            let mut got = vec![0.0; records.rows * k];
+            for start in (0..records.rows).step_by(64) {
+                let end = (start + 64).min(records.rows);
+                model.predict_rows_by(&walks, rows, start..end, &mut got[start * k..end * k]);
+            }
+            assert_eq!(bits(&got), bits(&want));
+        }
     }
 }

@@ -9,7 +9,7 @@
 use crate::binning::Records;
 use crate::data::{Column, Table};
 use crate::ensemble::forest::argmax;
-use crate::model::{Model, Unseen};
+use crate::model::{Model, Unseen, Walks};
 use crate::tree::Rows;
 
 /// One CSV field, quoted when it holds a comma, quote or line break (RFC 4180).
@@ -35,6 +35,8 @@ pub struct PredictionRows<'a> {
     /// ([`Model::predict_rows`]) as the rows are asked for.
     block: Vec<f64>,
     block_start: usize,
+    /// The model's trees' walks, built at the first block ([`Model::walks`]).
+    walks: Option<Walks>,
 }
 
 /// Rows predicted together when scoring: their predictions and one tree fit in the cache.
@@ -59,6 +61,7 @@ impl<'a> PredictionRows<'a> {
             outputs: model.outputs(),
             block: Vec::new(),
             block_start: 0,
+            walks: None,
         }
     }
 
@@ -81,6 +84,7 @@ impl<'a> PredictionRows<'a> {
             outputs,
             block: Vec::new(),
             block_start: 0,
+            walks: None,
         }
     }
 
@@ -112,7 +116,9 @@ impl<'a> PredictionRows<'a> {
                 if row < self.block_start || row >= self.block_start + held {
                     let end = (row + SCORING_BLOCK).min(records.rows);
                     self.block.resize((end - row) * k, 0.0);
-                    model.predict_rows(Rows::Records(records), row..end, &mut self.block);
+                    let rows = Rows::Records(records);
+                    let walks = self.walks.get_or_insert_with(|| model.walks(rows));
+                    model.predict_rows_by(walks, rows, row..end, &mut self.block);
                     self.block_start = row;
                 }
                 let at = (row - self.block_start) * k;

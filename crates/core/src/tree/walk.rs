@@ -253,7 +253,21 @@ impl Walk {
 /// The leaf of each row `row(i)` of `tree` into `out[i]`: by a [`Walk`] where the tree allows
 /// one, else row by row ([`Tree::leaf`]).
 pub fn leaves(tree: &Tree, rows: Rows<'_>, row: impl Fn(usize) -> usize, out: &mut [u32]) {
-    match Walk::new(tree, matches!(rows, Rows::Binned(_))) {
+    let walk = Walk::new(tree, matches!(rows, Rows::Binned(_)));
+    leaves_by(walk.as_ref(), tree, rows, row, out);
+}
+
+/// [`leaves`] by `walk`, the tree's [`Walk`] for rows of the kind of `rows` built beforehand
+/// (so callers predicting many blocks of rows build each tree's walk once), or row by row
+/// when the tree has none.
+pub fn leaves_by(
+    walk: Option<&Walk>,
+    tree: &Tree,
+    rows: Rows<'_>,
+    row: impl Fn(usize) -> usize,
+    out: &mut [u32],
+) {
+    match walk {
         Some(walk) => walk.leaves(rows, row, out),
         None => {
             for (i, o) in out.iter_mut().enumerate() {
