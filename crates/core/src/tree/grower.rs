@@ -628,12 +628,14 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     .zip(self.packed_hist.chunks_exact_mut(256))
                     .zip(bits)
                 {
-                    // Gini without missing values: scanned packed, in flat loops.
+                    // Gini without missing values: gathered, and scanned packed with the
+                    // group's others in flat loops.
                     if criterion == Criterion::Gini && slots[B::MISSING.index()] == 0 {
-                        let (at, sums) = ((j, parent_cost), &mut self.left_sums);
-                        scan_packed3(slots, bits, at, settings, sums, &mut best);
+                        self.group.gather(slots, bits, j);
                         continue;
                     }
+                    // The points gathered so far come first (ties go to the earlier one).
+                    scan_group3(&mut self.group, parent_cost, settings, &mut best);
                     // The used slots unpacked into the general histogram, and emptied.
                     let (general, _) = self.hist.as_chunks_mut::<4>();
                     for (w, mut word) in bits.into_iter().enumerate() {
@@ -648,6 +650,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     scan_classes::<B, 4>(&self.hist, &self.order, at, settings, &mut best);
                     clear_slots::<4>(&mut self.hist, bits);
                 }
+                scan_group3(&mut self.group, parent_cost, settings, &mut best);
             }
         }
         if batched {
@@ -1471,62 +1474,48 @@ fn unpack_classes3(p: u64) -> [f64; 4] {
 }
 
 twice_for_avx2! {
-    /// [`scan_classes`] for three classes counted whole ([`pack_classes3`]) under Gini, when
-    /// the node's rows have no missing value in the predictor (slot 255 empty): the running
-    /// sums added packed as the bins are read in order (each slot emptied as it is read),
-    /// unpacked in a loop apart, every split point's gain on its own, then the first of the
-    /// largest, as [`scan_packed`] does for two classes. Every count is a whole number below
-    /// 2²¹, so every sum, square and sum of squares is exact in any order, and each gain is
+    /// [`scan_classes`] for three classes counted whole ([`pack_classes3`]) under Gini, for
+    /// the predictors gathered in `points` ([`GroupPoints::gather`]: the node's rows have no
+    /// missing value in them, and each predictor's running sums were added packed as its bins
+    /// were read in order), then emptied: unpacked in a loop apart, every split point's gain
+    /// on its own, then the first of the largest, as [`scan_group`] does for two classes.
+    /// Every count is a whole number below 2²¹, so every sum, square and sum of squares is
+    /// exact in any order, every predictor's totals are the node's, and each gain is
     /// [`scan_classes`]' to the bit: the same division and subtractions of the same numbers.
     /// The right side shrinks to too few rows only once, so the points [`scan_classes`]
     /// stops before fail the same test here. Compiled for AVX2 too.
-    fn scan_packed3(
-        slots: &mut [u64],
-        bits: [u64; 4],
-        at: (usize, f64),
+    fn scan_group3(
+        points: &mut GroupPoints,
+        parent_cost: f64,
         settings: &GrowSettings,
-        sums: &mut LeftSums,
         best: &mut Option<Split>,
-    ) = scan_packed3_plain
+    ) = scan_group3_plain
 }
 
-/// [`scan_packed3`]'s body, inlined into each of its builds.
+/// [`scan_group3`]'s body, inlined into each of its builds.
 #[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
-fn scan_packed3_plain(
-    slots: &mut [u64],
-    mut bits: [u64; 4],
-    (feature, parent_cost): (usize, f64),
+fn scan_group3_plain(
+    points: &mut GroupPoints,
+    parent_cost: f64,
     settings: &GrowSettings,
-    sums: &mut LeftSums,
     best: &mut Option<Split>,
 ) {
-    let m = u8::MISSING.index();
-    bits[m >> 6] &= !(1 << (m & 63));
-    let LeftSums {
-        bins,
+    let (used, gathered) = (points.used, points.gathered);
+    (points.used, points.gathered) = (0, 0);
+    if used == 0 {
+        return;
+    }
+    let GroupPoints {
         s0,
         s1,
         s2,
         rows,
         packed,
         gain,
+        parts,
         ..
-    } = sums;
-    let mut acc = 0u64;
-    let mut used = 0;
-    for (w, mut word) in bits.into_iter().enumerate() {
-        while word != 0 {
-            let b = w * 64 + word.trailing_zeros() as usize;
-            acc += std::mem::replace(&mut slots[b], 0);
-            (bins[used], packed[used]) = (b as u8, acc);
-            used += 1;
-            word &= word - 1;
-        }
-    }
-    if used == 0 {
-        return;
-    }
+    } = points;
     // Each field is below 2²¹: converted as i32, which vectorises.
     const FIELD: u64 = (1 << 21) - 1;
     let lanes = packed[..used]
@@ -1548,7 +1537,7 @@ fn scan_packed3_plain(
             f64::from(k),
         );
     }
-    let last = used - 1;
+    let last = parts[0].1 - 1;
     let t = [s0[last], s1[last], s2[last], rows[last]];
     let min_leaf = settings.min_rows_leaf.max(1) as f64;
     let min_weight = settings.min_weight_leaf;
@@ -1577,21 +1566,7 @@ fn scan_packed3_plain(
         let v = parent_cost - gini(l0, l1, l2) - gini(r0, r1, r2);
         *out = if ok { v } else { f64::NEG_INFINITY };
     }
-    let (at, g) = first_best_plain(&gain[..used]);
-    if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
-        return;
-    }
-    *best = Some(Split {
-        gain: g,
-        feature,
-        numeric: true,
-        threshold_bin: usize::from(bins[at]),
-        next_bin: (at < last).then(|| usize::from(bins[at + 1])),
-        categories: BinSet::default(),
-        missing_left: false,
-        values: (0.0, 0.0),
-        left_counts: Some(packed[at]),
-    });
+    pick_group_best(points, used, gathered, true, best);
 }
 
 twice_for_avx2! {
@@ -2409,18 +2384,25 @@ fn scan_filled_pairs<B: Bin>(
     }
 }
 
-/// The split points of up to [`BATCH`] predictors of one node with two classes counted
-/// whole and no missing values in the node ([`pack_counts`]), side by side in flat arrays:
-/// each predictor's running sums after each bin it uses, in bin order, one predictor after
-/// another. Their gains are then computed in one loop and the first best found in one pass
-/// ([`scan_group`]), instead of three short loops a predictor: deep in a forest's trees a
-/// node's predictor uses a few dozen bins, and each loop's start, finish and exit branch
-/// cost as much as its points. Allocated once per tree.
+/// The split points of up to [`BATCH`] number predictors of one node without missing
+/// values in it, side by side in flat arrays: each predictor's running sums after each bin
+/// it uses, in bin order, one predictor after another (packed counts of two or three whole
+/// classes, [`GroupPoints::gather`]; `(s1, rows)` of unweighted number outcomes,
+/// [`GroupPoints::gather_units`]; `(s0, s1, rows)` otherwise, [`GroupPoints::gather_sums`]).
+/// Their gains are then computed in one loop and the first best found in one pass
+/// ([`scan_group`], [`scan_group3`], [`scan_group_units`], [`scan_group_sums`]), instead of
+/// three short loops a predictor: deep in a forest's trees a node's predictor uses a few
+/// dozen bins (a number outcome's about ten), and each loop's start, finish and exit branch
+/// cost as much as its points. A predictor with missing values is scanned on its own after
+/// the points gathered before it are, so ties still go to the earlier predictor. Allocated
+/// once per tree.
 struct GroupPoints {
     bins: Box<[u8; BATCH * 256]>,
     packed: Box<[u64; BATCH * 256]>,
     s0: Box<[f64; BATCH * 256]>,
     s1: Box<[f64; BATCH * 256]>,
+    /// Three classes' third running sum ([`scan_group3`]).
+    s2: Box<[f64; BATCH * 256]>,
     rows: Box<[f64; BATCH * 256]>,
     /// Each point's predictor's totals of `s0` ([`GroupPoints::gather_sums`]) and `s1`
     /// ([`GroupPoints::gather_units`] too), as it summed them.
@@ -2441,6 +2423,7 @@ impl GroupPoints {
             packed: Box::new([0; BATCH * 256]),
             s0: Box::new([0.0; BATCH * 256]),
             s1: Box::new([0.0; BATCH * 256]),
+            s2: Box::new([0.0; BATCH * 256]),
             rows: Box::new([0.0; BATCH * 256]),
             total0: Box::new([0.0; BATCH * 256]),
             total1: Box::new([0.0; BATCH * 256]),
@@ -2698,7 +2681,7 @@ struct LeftSums {
     bins: Box<[u8; 256]>,
     s0: Box<[f64; 256]>,
     s1: Box<[f64; 256]>,
-    /// The third and fourth classes' running sums ([`scan_packed3`], [`scan_filled_classes`]).
+    /// The third and fourth classes' running sums ([`scan_filled_classes`]).
     s2: Box<[f64; 256]>,
     s3: Box<[f64; 256]>,
     /// The fifth to eighth classes' ([`scan_filled_classes`]).
@@ -4228,7 +4211,7 @@ mod tests {
     #[test]
     fn several_classes_scanned_in_flat_loops_find_the_fixed_width_scans_split() {
         // `scan_filled_classes` (three to eight classes, Gini, no missing values, any weights)
-        // and, for three whole classes, `scan_packed3` (packed counts) against `scan_classes`
+        // and, for three whole classes, `scan_group3` (packed counts) against `scan_classes`
         // on the same slots (our own consistency rule, no source needed): whole and
         // fractional statistics, rows drawn up to three times, a least leaf size and a least
         // weight, a split to beat or one that ties. The same split to the bit, and every slot
@@ -4299,9 +4282,9 @@ mod tests {
                 for &r in &rows {
                     slots[column[r as usize] as usize] += packed[r as usize];
                 }
-                let (mut sums, mut packed_best) = (LeftSums::new(), before.clone());
-                let at = (3, parent_cost);
-                scan_packed3(&mut slots, bits, at, &settings, &mut sums, &mut packed_best);
+                let (mut group, mut packed_best) = (GroupPoints::new(), before.clone());
+                group.gather(&mut slots, bits, 3);
+                scan_group3(&mut group, parent_cost, &settings, &mut packed_best);
                 assert!(
                     slots.iter().all(|&s| s == 0),
                     "round {round}: packed emptied"
