@@ -408,9 +408,9 @@ impl Model {
                 out.iter_mut().for_each(|o| *o = 0.0);
                 let mut at = vec![0; range.len()];
                 let kind = walks.binned == matches!(rows, Rows::Binned(_));
-                for (i, t) in f.trees.iter().enumerate() {
+                for (at_tree, t) in f.trees.iter().enumerate() {
                     let built;
-                    let walk = match walks.each.get(i).filter(|_| kind) {
+                    let walk = match walks.each.get(at_tree).filter(|_| kind) {
                         Some(w) => w.as_ref(),
                         None => {
                             built = Walk::new(t, matches!(rows, Rows::Binned(_)));

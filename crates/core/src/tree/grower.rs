@@ -247,7 +247,7 @@ struct Grower<'a, 'c, B: Bin> {
     /// zeroed between uses like `hist`).
     batch_hist: Vec<f64>,
     left_sums: LeftSums,
-    /// The split points of a [`BATCH`] of predictors' packed counts, scanned together.
+    /// The split points of up to [`BATCH`] predictors of a node, scanned together.
     group: GroupPoints,
     touched: Vec<B>,
     /// The bins in scan order, and the scan's running sums.
