@@ -376,11 +376,19 @@ impl Model {
     /// go a tree at a time over the rows, so the tree stays in the cache while every row
     /// walks it (row by row, each of hundreds of deep trees is fetched from memory again).
     pub fn predict_rows(&self, rows: Rows<'_>, range: std::ops::Range<usize>, out: &mut [f64]) {
-        self.predict_rows_by(&self.walks(rows), rows, range, out);
+        // No walks built beforehand: each tree's is built as it is walked and dropped, so one
+        // call never holds more than one (callers of many blocks keep them: `walks`).
+        let none = Walks {
+            binned: matches!(rows, Rows::Binned(_)),
+            each: Vec::new(),
+        };
+        self.predict_rows_by(&none, rows, range, out);
     }
 
     /// Every tree's [`Walk`] for rows of the kind of `rows` (binned or records), for
     /// [`Model::predict_rows_by`]; bagging and forests only (other models walk row by row).
+    /// They take 16 bytes a node, about a fifth of the trees' own size, for as long as they
+    /// are kept.
     pub fn walks(&self, rows: Rows<'_>) -> Walks {
         let binned = matches!(rows, Rows::Binned(_));
         let each = match &self.ensemble {
