@@ -3636,16 +3636,8 @@ mod tests {
                     (next(c + 1) << 32) | c
                 })
                 .collect();
-            let spread = 2 + next(60);
-            let predictors = 1 + next(BATCH as u64) as usize;
-            let mut places: Vec<Vec<usize>> = Vec::new();
-            for k in 0..predictors {
-                let copy = k > 0 && next(3) == 0;
-                places.push(match copy {
-                    true => places[next(k as u64) as usize].clone(),
-                    false => rows.iter().map(|_| next(spread) as usize).collect(),
-                });
-            }
+            let places = group_places(rows.len(), &mut next);
+            let predictors = places.len();
             let filled = |k: usize| {
                 let (mut slots, mut bits) = (vec![0u64; 256], [0u64; 4]);
                 for (&p, &b) in rows.iter().zip(&places[k]) {
@@ -3714,137 +3706,49 @@ mod tests {
         assert_eq!(copies_won, 0, "a tie went to the later copy");
     }
 
-    #[test]
-    fn a_group_scan_of_number_outcomes_finds_what_scanning_one_by_one_finds() {
-        // `scan_group_units` (AVX2 on a CPU that has it) and its plain body against
-        // `scan_filled_sums` on each predictor in turn, on random nodes of a number outcome
-        // (rows drawn one to three times, values with many decimals, so each predictor's total
-        // may differ from another's in the last place), some predictors copies of an earlier
-        // one, a least leaf size, a split to beat or one that ties (our own consistency rule,
-        // no source needed).
-        let mut draw = xorshift(0xD1B5_4A32_D192_ED03u64);
-        let mut next = |m: u64| draw() % m;
-        let (mut splits, mut later, mut totals_differ) = (0, 0, 0);
-        for round in 0..600 {
-            let rows: Vec<[f64; 2]> = (0..2 + next(30))
-                .map(|_| {
-                    let c = (1 + next(3)) as f64;
-                    [c * (next(1_000_000) as f64 / 7919.0 - 60.0), c]
-                })
-                .collect();
-            let spread = 2 + next(60);
-            let predictors = 1 + next(BATCH as u64) as usize;
-            let mut places: Vec<Vec<usize>> = Vec::new();
-            for k in 0..predictors {
-                let copy = k > 0 && next(3) == 0;
-                places.push(match copy {
-                    true => places[next(k as u64) as usize].clone(),
-                    false => rows.iter().map(|_| next(spread) as usize).collect(),
-                });
-            }
-            let filled = |k: usize| {
-                let (mut slots, mut bits) = (vec![[0.0; 2]; 256], [0u64; 4]);
-                for (&[s1, c], &b) in rows.iter().zip(&places[k]) {
-                    slots[b][0] += s1;
-                    slots[b][1] += c;
-                    bits[b >> 6] |= 1 << (b & 63);
-                }
-                (slots, bits)
-            };
-            let settings = GrowSettings {
-                criterion: Criterion::SquaredError,
-                min_rows_leaf: 1 + round % 3,
-                ..GrowSettings::default()
-            };
-            let (t1, tc) = rows
-                .iter()
-                .fold((0.0, 0.0), |(a, b), r| (a + r[0], b + r[1]));
-            let parent_cost = Criterion::SquaredError.cost(&[tc, t1]);
-            let by_one = |best: &mut Option<Split>| {
-                let mut sums = Vec::new();
-                for k in 0..predictors {
-                    let (mut slots, bits) = filled(k);
-                    let at = (255, 20 + k, parent_cost);
-                    let left = &mut LeftSums::new();
-                    scan_filled_sums(&mut slots, bits, at, &settings, left, best);
-                    let used = bits.iter().map(|w| w.count_ones() as usize).sum::<usize>();
-                    sums.push(left.s1[used - 1].to_bits());
-                }
-                sums
-            };
-            let mut alone = None;
-            let sums = by_one(&mut alone);
-            totals_differ += usize::from(sums.iter().any(|&t| t != sums[0]));
-            let before = match round % 5 {
-                3 => Some(parent_cost * next(4) as f64 / 4.0),
-                4 => alone.as_ref().map(|s| s.gain),
-                _ => None,
-            }
-            .map(split_to_beat);
-            let mut want = before.clone();
-            by_one(&mut want);
-            for plain in [false, true] {
-                let mut group = GroupPoints::new();
-                let mut best = before.clone();
-                for k in 0..predictors {
-                    let (mut slots, bits) = filled(k);
-                    group.gather_units(&mut slots, bits, 20 + k);
-                    assert!(
-                        slots.iter().all(|s| *s == [0.0; 2]),
-                        "round {round}: emptied"
-                    );
-                }
-                match plain {
-                    false => scan_group_units(&mut group, parent_cost, &settings, &mut best),
-                    true => scan_group_units_plain(&mut group, parent_cost, &settings, &mut best),
-                }
-                assert_eq!(split_key(&best), split_key(&want), "round {round}");
-            }
-            if let Some(w) = want.as_ref().filter(|w| w.feature >= 20) {
-                splits += 1;
-                later += usize::from(w.feature > 20);
-            }
+    /// The bins of a node's `rows` rows in one to [`BATCH`] predictors of a group, drawn by
+    /// `next`: each predictor's at random among a few dozen, or (one time in three after the
+    /// first) a copy of an earlier predictor's, so that their gains tie.
+    fn group_places(rows: usize, next: &mut impl FnMut(u64) -> u64) -> Vec<Vec<usize>> {
+        let spread = 2 + next(60);
+        let predictors = 1 + next(BATCH as u64) as usize;
+        let mut places: Vec<Vec<usize>> = Vec::new();
+        for k in 0..predictors {
+            let copy = k > 0 && next(3) == 0;
+            places.push(match copy {
+                true => places[next(k as u64) as usize].clone(),
+                false => (0..rows).map(|_| next(spread) as usize).collect(),
+            });
         }
-        assert!(
-            splits > 300 && later > 50 && totals_differ > 50,
-            "{splits} splits, {later} by a later predictor, {totals_differ} rounds whose \
-             predictors' totals differ"
-        );
+        places
     }
 
-    #[test]
-    fn a_group_scan_of_weighted_sums_finds_what_scanning_one_by_one_finds() {
-        // `scan_group_sums` (AVX2 on a CPU that has it) and its plain body against
-        // `scan_filled_sums` on each predictor in turn, on random nodes of two classes with
-        // fractional class weights (each row's (s0, s1, rows): its weight on its class, times
-        // its draws), so each predictor's totals may differ from another's in the last place;
-        // some predictors copies of an earlier one, a least leaf size, a split to beat or one
-        // that ties (our own consistency rule, no source needed).
-        let mut draw = xorshift(0x3C6E_F372_FE94_F82Bu64);
+    /// A group scan's signature ([`scan_group`] and the others, and their plain bodies).
+    type GroupScan = fn(&mut GroupPoints, f64, &GrowSettings, &mut Option<Split>);
+
+    /// A group scan of float slots (`gather`, then `scans`: the AVX2-or-plain build and the
+    /// plain body) against `scan_filled_sums` on each predictor in turn, on 600 random nodes
+    /// of rows drawn by `row` (one to three draws, values whose sums round, so each
+    /// predictor's totals may differ from another's in the last place; the node's cost from
+    /// `cost_of` its rows), with copied predictors, a least leaf size, a split to beat or one
+    /// that ties (our own consistency rule, no source needed).
+    fn check_group_of_sums<const N: usize>(
+        seed: u64,
+        criterion: Criterion,
+        row: impl Fn(&mut dyn FnMut(u64) -> u64) -> [f64; N],
+        cost_of: impl Fn(&[[f64; N]]) -> f64,
+        gather: fn(&mut GroupPoints, &mut [[f64; N]], [u64; 4], usize),
+        scans: [GroupScan; 2],
+    ) {
+        let mut draw = xorshift(seed);
         let mut next = |m: u64| draw() % m;
         let (mut splits, mut later, mut totals_differ) = (0, 0, 0);
-        let weights = [0.618_033_988_7, 2.3];
         for round in 0..600 {
-            let rows: Vec<[f64; 3]> = (0..2 + next(30))
-                .map(|_| {
-                    let (c, class) = ((1 + next(3)) as f64, next(2) as usize);
-                    let mut row = [0.0, 0.0, c];
-                    row[class] = c * weights[class];
-                    row
-                })
-                .collect();
-            let spread = 2 + next(60);
-            let predictors = 1 + next(BATCH as u64) as usize;
-            let mut places: Vec<Vec<usize>> = Vec::new();
-            for k in 0..predictors {
-                let copy = k > 0 && next(3) == 0;
-                places.push(match copy {
-                    true => places[next(k as u64) as usize].clone(),
-                    false => rows.iter().map(|_| next(spread) as usize).collect(),
-                });
-            }
+            let rows: Vec<[f64; N]> = (0..2 + next(30)).map(|_| row(&mut next)).collect();
+            let places = group_places(rows.len(), &mut next);
+            let predictors = places.len();
             let filled = |k: usize| {
-                let (mut slots, mut bits) = (vec![[0.0; 3]; 256], [0u64; 4]);
+                let (mut slots, mut bits) = (vec![[0.0; N]; 256], [0u64; 4]);
                 for (row, &b) in rows.iter().zip(&places[k]) {
                     for (a, v) in slots[b].iter_mut().zip(row) {
                         *a += v;
@@ -3854,13 +3758,11 @@ mod tests {
                 (slots, bits)
             };
             let settings = GrowSettings {
+                criterion,
                 min_rows_leaf: 1 + round % 3,
                 ..GrowSettings::default()
             };
-            let t = rows
-                .iter()
-                .fold([0.0; 2], |t, r| [t[0] + r[0], t[1] + r[1]]);
-            let parent_cost = Criterion::Gini.cost(&t);
+            let parent_cost = cost_of(&rows);
             let by_one = |best: &mut Option<Split>| {
                 let mut sums = Vec::new();
                 for k in 0..predictors {
@@ -3884,21 +3786,18 @@ mod tests {
             .map(split_to_beat);
             let mut want = before.clone();
             by_one(&mut want);
-            for plain in [false, true] {
+            for scan in scans {
                 let mut group = GroupPoints::new();
                 let mut best = before.clone();
                 for k in 0..predictors {
                     let (mut slots, bits) = filled(k);
-                    group.gather_sums(&mut slots, bits, 20 + k);
+                    gather(&mut group, &mut slots, bits, 20 + k);
                     assert!(
-                        slots.iter().all(|s| *s == [0.0; 3]),
+                        slots.iter().all(|s| *s == [0.0; N]),
                         "round {round}: emptied"
                     );
                 }
-                match plain {
-                    false => scan_group_sums(&mut group, parent_cost, &settings, &mut best),
-                    true => scan_group_sums_plain(&mut group, parent_cost, &settings, &mut best),
-                }
+                scan(&mut group, parent_cost, &settings, &mut best);
                 assert_eq!(split_key(&best), split_key(&want), "round {round}");
             }
             if let Some(w) = want.as_ref().filter(|w| w.feature >= 20) {
@@ -3910,6 +3809,54 @@ mod tests {
             splits > 300 && later > 50 && totals_differ > 50,
             "{splits} splits, {later} by a later predictor, {totals_differ} rounds whose \
              predictors' totals differ"
+        );
+    }
+
+    #[test]
+    fn a_group_scan_of_number_outcomes_finds_what_scanning_one_by_one_finds() {
+        // `scan_group_units`: a number outcome's `(s1, rows)` slots, values with many
+        // decimals (see `check_group_of_sums`).
+        check_group_of_sums(
+            0xD1B5_4A32_D192_ED03,
+            Criterion::SquaredError,
+            |next| {
+                let c = (1 + next(3)) as f64;
+                [c * (next(1_000_000) as f64 / 7919.0 - 60.0), c]
+            },
+            |rows| {
+                let (t1, tc) = rows
+                    .iter()
+                    .fold((0.0, 0.0), |(a, b), r| (a + r[0], b + r[1]));
+                Criterion::SquaredError.cost(&[tc, t1])
+            },
+            GroupPoints::gather_units,
+            [scan_group_units, scan_group_units_plain],
+        );
+    }
+
+    #[test]
+    fn a_group_scan_of_weighted_sums_finds_what_scanning_one_by_one_finds() {
+        // `scan_group_sums`: two classes with fractional class weights, each row's
+        // `(s0, s1, rows)` its weight on its class times its draws (see
+        // `check_group_of_sums`).
+        let weights = [0.618_033_988_7, 2.3];
+        check_group_of_sums(
+            0x3C6E_F372_FE94_F82B,
+            Criterion::Gini,
+            |next| {
+                let (c, class) = ((1 + next(3)) as f64, next(2) as usize);
+                let mut row = [0.0, 0.0, c];
+                row[class] = c * weights[class];
+                row
+            },
+            |rows| {
+                let t = rows
+                    .iter()
+                    .fold([0.0; 2], |t, r| [t[0] + r[0], t[1] + r[1]]);
+                Criterion::Gini.cost(&t)
+            },
+            GroupPoints::gather_sums,
+            [scan_group_sums, scan_group_sums_plain],
         );
     }
 
