@@ -2282,7 +2282,7 @@ fn scan_packed_plain(
             add,
             [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
         );
-        let found = points_best(sums, used, t, at, missing_left, settings, best);
+        let found = points_best(sums, used, t, at, (missing_left, true), settings, best);
         if let (Some(i), Some(split)) = (found, best.as_mut()) {
             split.left_counts = Some(sums.packed[i] + add);
         }
@@ -2549,10 +2549,7 @@ fn scan_group_plain(
         [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
     );
     let left = [&s0[..used], &s1[..used], &rows[..used]];
-    if settings.criterion == Criterion::Gini
-        && settings.min_weight_leaf <= 0.0
-        && t[2] < (1 << 26) as f64
-    {
+    if gini_screens(settings, t[2]) {
         // The forest's case: each point's gain screened with one division, and the first
         // best found among the few near the largest (see `screened_gini_best`).
         gini_screen(&mut gain[..used], left, t, parent_cost, settings);
@@ -2563,6 +2560,14 @@ fn scan_group_plain(
     let all = std::iter::repeat(&1.0);
     point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
     pick_group_best(points, used, gathered, true, best);
+}
+
+/// Whether a scan of whole counts (two classes, packed) finds its split through
+/// [`gini_screen`]: Gini without a least leaf weight, a node of fewer than 2²⁶ rows (`rows`).
+fn gini_screens(settings: &GrowSettings, rows: f64) -> bool {
+    settings.criterion == Criterion::Gini
+        && settings.min_weight_leaf <= 0.0
+        && rows < (1 << 26) as f64
 }
 
 /// Each point's Gini gain `parent − cost(left) − cost(right)` with the two costs' divisions
@@ -2894,11 +2899,12 @@ fn present_best(
     let t = used
         .checked_sub(1)
         .map(|last| [sums.s0[last], sums.s1[last], sums.rows[last]])?;
-    points_best(sums, used, t, at, false, settings, best)
+    points_best(sums, used, t, at, (false, false), settings, best)
 }
 
 /// [`present_best`] with the node's totals `t` given and the missing values' side
-/// (the left sums include them when `missing_left`).
+/// (the left sums include them when `missing_left`); `whole`: the sums are whole counts
+/// ([`scan_packed`]), which [`gini_screens`] may screen.
 #[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
 fn points_best(
@@ -2906,7 +2912,7 @@ fn points_best(
     used: usize,
     t: [f64; 3],
     (feature, parent_cost): (usize, f64),
-    missing_left: bool,
+    (missing_left, whole): (bool, bool),
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) -> Option<usize> {
@@ -2923,9 +2929,14 @@ fn points_best(
     } = sums;
     let left = [&s0[..used], &s1[..used], &rows[..used]];
     // Every bin used holds rows: each is a split point.
-    let all = std::iter::repeat(&1.0);
-    point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
-    let (at, g) = first_best_plain(&gain[..used]);
+    let (at, g) = if whole && gini_screens(settings, t[2]) {
+        gini_screen(&mut gain[..used], left, t, parent_cost, settings);
+        screened_gini_best(&gain[..used], left, t, parent_cost)
+    } else {
+        let all = std::iter::repeat(&1.0);
+        point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
+        first_best_plain(&gain[..used])
+    };
     if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
         return None;
     }
