@@ -2576,7 +2576,9 @@ fn gini_screens(settings: &GrowSettings, rows: f64) -> bool {
 /// no least weight). Not the same numbers in the last places: a screen for
 /// [`screened_gini_best`], never a gain kept. Whole counts of a node below 2²⁶ rows, so
 /// every sum and square is exact. The vector loop's two divisions a point were its bound:
-/// `grow_bench 40000 60` 0.93 of the time with one.
+/// `grow_bench 40000 60` 0.93 of the time with one. ("Not below" written `!(x < least)`,
+/// as in [`point_gains`].)
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
 fn gini_screen(
     gain: &mut [f64],
@@ -2600,13 +2602,14 @@ fn gini_screen(
 /// The first of the largest Gini gains, as [`point_gains`] and [`first_best`] find it, from
 /// the screened gains `screen` ([`gini_screen`]): only points screened within `2⁻⁴⁶·W` of
 /// the largest (`W` the node's weight, `t[2]`) have their gain computed as [`point_gains`]
-/// computes it. Every input is exact (whole counts below 2²⁶, squares below 2⁵³) and every
-/// number rounded is at most `1.5·W` in magnitude (the parent's cost, the same number in
-/// both, is at most `W/2`; a side's cost and `(l0² + l1²)/L` at most `L`): the gain as
-/// computed is within `5·2⁻⁵³·W` of its exact value (four roundings), the screen within
-/// `7·2⁻⁵³·W` (three in the quotient, three after), so a point screened more than `24·2⁻⁵³·W`
-/// below the largest cannot have the largest gain, nor tie with it. Returns the place and
-/// gain (−∞: no point).
+/// computes it. Every input is exact (whole counts below 2²⁶, so squares, their sums and
+/// `L·R` below 2⁵³), and the parent's cost, the same number in both, is at most `W/2`. The
+/// gain as computed is within `4·2⁻⁵³·W` of its exact value: `(l0² + l1²)/L` and the side's
+/// cost are at most `L` (two roundings a side), the two subtractions at most `W`. The screen
+/// is within `7·2⁻⁵³·W`: its quotient, at most `W`, takes four relative roundings (two
+/// products, their sum, the division), and each of the three additions after is at most
+/// `W`. So a point screened more than `22·2⁻⁵³·W` below the largest cannot have the largest
+/// gain, nor tie with it. Returns the place and gain (−∞: no point).
 #[inline(always)]
 fn screened_gini_best(screen: &[f64], left: [&[f64]; 3], t: [f64; 3], parent: f64) -> (usize, f64) {
     let more = |m: f64, v: f64| if v > m { v } else { m };
