@@ -2543,20 +2543,22 @@ fn scan_group_plain(
         ..
     } = points;
     let t = unpack_counts(packed[parts[0].1 - 1]);
+    if gini_screens(settings, t[2]) {
+        // The forest's case: each point's gain screened with one division straight from
+        // the packed counts, and the first best found among the few near the largest (see
+        // `screened_gini_best`).
+        gini_screen_packed(&mut gain[..used], &packed[..used], t, parent_cost, settings);
+        let left = |i: usize| unpack_counts(packed[i]);
+        let (at, g) = screened_gini_best(&gain[..used], left, t, parent_cost);
+        keep_group_best(points, at, g, gathered, true, best);
+        return;
+    }
     unpack_all(
         &packed[..used],
         0,
         [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
     );
     let left = [&s0[..used], &s1[..used], &rows[..used]];
-    if gini_screens(settings, t[2]) {
-        // The forest's case: each point's gain screened with one division, and the first
-        // best found among the few near the largest (see `screened_gini_best`).
-        gini_screen(&mut gain[..used], left, t, parent_cost, settings);
-        let (at, g) = screened_gini_best(&gain[..used], left, t, parent_cost);
-        keep_group_best(points, at, g, gathered, true, best);
-        return;
-    }
     let all = std::iter::repeat(&1.0);
     point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
     pick_group_best(points, used, gathered, true, best);
@@ -2599,6 +2601,29 @@ fn gini_screen(
     }
 }
 
+/// [`gini_screen`] of packed counts ([`pack_counts`]), unpacked as [`unpack_all`] unpacks
+/// them, in the same loop.
+#[allow(clippy::neg_cmp_op_on_partial_ord)]
+#[inline(always)]
+fn gini_screen_packed(
+    gain: &mut [f64],
+    packed: &[u64],
+    t: [f64; 3],
+    parent: f64,
+    settings: &GrowSettings,
+) {
+    let min_leaf = settings.min_rows_leaf.max(1) as f64;
+    for (out, &p) in gain.iter_mut().zip(packed) {
+        let (l1, lc) = (f64::from((p >> 32) as i32), f64::from(p as u32 as i32));
+        let (wr, r1) = (t[2] - lc, t[1] - l1);
+        let (l0, r0) = (lc - l1, wr - r1);
+        let ok = !(lc < min_leaf) & !(wr < min_leaf);
+        let squares = (l0 * l0 + l1 * l1) * wr + (r0 * r0 + r1 * r1) * lc;
+        let v = parent - t[2] + squares / (lc * wr);
+        *out = if ok { v } else { f64::NEG_INFINITY };
+    }
+}
+
 /// The first of the largest Gini gains, as [`point_gains`] and [`first_best`] find it, from
 /// the screened gains `screen` ([`gini_screen`]): only points screened within `2⁻⁴⁶·W` of
 /// the largest (`W` the node's weight, `t[2]`) have their gain computed as [`point_gains`]
@@ -2611,7 +2636,12 @@ fn gini_screen(
 /// `W`. So a point screened more than `22·2⁻⁵³·W` below the largest cannot have the largest
 /// gain, nor tie with it. Returns the place and gain (−∞: no point).
 #[inline(always)]
-fn screened_gini_best(screen: &[f64], left: [&[f64]; 3], t: [f64; 3], parent: f64) -> (usize, f64) {
+fn screened_gini_best(
+    screen: &[f64],
+    left: impl Fn(usize) -> [f64; 3],
+    t: [f64; 3],
+    parent: f64,
+) -> (usize, f64) {
     let more = |m: f64, v: f64| if v > m { v } else { m };
     let mut m = [f64::NEG_INFINITY; 4];
     let (quads, rest) = screen.as_chunks::<4>();
@@ -2632,7 +2662,7 @@ fn screened_gini_best(screen: &[f64], left: [&[f64]; 3], t: [f64; 3], parent: f6
     let near = top - t[2] * f64::powi(2.0, -46);
     let (mut at, mut g) = (0, f64::NEG_INFINITY);
     let mut exact = |i: usize| {
-        let (l0, l1) = (left[0][i], left[1][i]);
+        let [l0, l1, _] = left(i);
         let (r0, r1) = (t[0] - l0, t[1] - l1);
         let v = parent - Criterion::Gini.cost2(l0, l1) - Criterion::Gini.cost2(r0, r1);
         if v > g {
@@ -2934,6 +2964,7 @@ fn points_best(
     // Every bin used holds rows: each is a split point.
     let (at, g) = if whole && gini_screens(settings, t[2]) {
         gini_screen(&mut gain[..used], left, t, parent_cost, settings);
+        let left = |i: usize| [left[0][i], left[1][i], left[2][i]];
         screened_gini_best(&gain[..used], left, t, parent_cost)
     } else {
         let all = std::iter::repeat(&1.0);
