@@ -2269,6 +2269,7 @@ fn scan_packed_plain(
         .checked_sub(1)
         .map_or(missing, |last| packed[last] + missing);
     let t = unpack_counts(total);
+    let screens = gini_screens(settings, t[2]);
     for (missing_left, add) in [(true, missing), (false, 0)] {
         let LeftSums {
             s0,
@@ -2277,12 +2278,15 @@ fn scan_packed_plain(
             packed,
             ..
         } = &mut *sums;
-        unpack_all(
-            &packed[..used],
-            add,
-            [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
-        );
-        let found = points_best(sums, used, t, at, (missing_left, true), settings, best);
+        if !screens {
+            unpack_all(
+                &packed[..used],
+                add,
+                [&mut s0[..used], &mut s1[..used], &mut rows[..used]],
+            );
+        }
+        let screened = screens.then_some(add);
+        let found = points_best(sums, used, t, at, (missing_left, screened), settings, best);
         if let (Some(i), Some(split)) = (found, best.as_mut()) {
             split.left_counts = Some(sums.packed[i] + add);
         }
@@ -2547,7 +2551,14 @@ fn scan_group_plain(
         // The forest's case: each point's gain screened with one division straight from
         // the packed counts, and the first best found among the few near the largest (see
         // `screened_gini_best`).
-        gini_screen_packed(&mut gain[..used], &packed[..used], t, parent_cost, settings);
+        gini_screen_packed(
+            &mut gain[..used],
+            &packed[..used],
+            0,
+            t,
+            parent_cost,
+            settings,
+        );
         let left = |i: usize| unpack_counts(packed[i]);
         let (at, g) = screened_gini_best(&gain[..used], left, t, parent_cost);
         keep_group_best(points, at, g, gathered, true, best);
@@ -2565,7 +2576,7 @@ fn scan_group_plain(
 }
 
 /// Whether a scan of whole counts (two classes, packed) finds its split through
-/// [`gini_screen`]: Gini without a least leaf weight, a node of fewer than 2²⁶ rows (`rows`).
+/// [`gini_screen_packed`]: Gini without a least leaf weight, a node of fewer than 2²⁶ rows (`rows`).
 fn gini_screens(settings: &GrowSettings, rows: f64) -> bool {
     settings.criterion == Criterion::Gini
         && settings.min_weight_leaf <= 0.0
@@ -2573,47 +2584,28 @@ fn gini_screens(settings: &GrowSettings, rows: f64) -> bool {
 }
 
 /// Each point's Gini gain `parent − cost(left) − cost(right)` with the two costs' divisions
-/// made one, `parent − L − R + ((l0² + l1²)·R + (r0² + r1²)·L) / (L·R)` (`L`, `R` the
-/// sides' weights), into `gain`; −∞ where [`point_gains`] gives −∞ (the same row limits;
-/// no least weight). Not the same numbers in the last places: a screen for
-/// [`screened_gini_best`], never a gain kept. Whole counts of a node below 2²⁶ rows, so
-/// every sum and square is exact. The vector loop's two divisions a point were its bound:
-/// `grow_bench 40000 60` 0.93 of the time with one. ("Not below" written `!(x < least)`,
-/// as in [`point_gains`].)
-#[allow(clippy::neg_cmp_op_on_partial_ord)]
-#[inline(always)]
-fn gini_screen(
-    gain: &mut [f64],
-    left: [&[f64]; 3],
-    t: [f64; 3],
-    parent: f64,
-    settings: &GrowSettings,
-) {
-    let min_leaf = settings.min_rows_leaf.max(1) as f64;
-    let lanes = gain.iter_mut().zip(left[0]).zip(left[1]).zip(left[2]);
-    for (((out, &l0), &l1), &lc) in lanes {
-        let (r0, r1) = (t[0] - l0, t[1] - l1);
-        let ok = !(lc < min_leaf) & !(t[2] - lc < min_leaf);
-        let (wl, wr) = (l0 + l1, r0 + r1);
-        let squares = (l0 * l0 + l1 * l1) * wr + (r0 * r0 + r1 * r1) * wl;
-        let v = parent - wl - wr + squares / (wl * wr);
-        *out = if ok { v } else { f64::NEG_INFINITY };
-    }
-}
-
-/// [`gini_screen`] of packed counts ([`pack_counts`]), unpacked as [`unpack_all`] unpacks
-/// them, in the same loop.
+/// made one, `parent − W + ((l0² + l1²)·R + (r0² + r1²)·L) / (L·R)` (`L`, `R` the sides'
+/// rows, whole counts, `W = t[2]` the node's), into `gain`; −∞ where [`point_gains`] gives
+/// −∞ (the same row limits; no least weight). Not the same numbers in the last places: a
+/// screen for [`screened_gini_best`], never a gain kept. Straight from the points' packed
+/// counts ([`pack_counts`]) plus `add` (the missing rows' when they go left), unpacked as
+/// [`unpack_all`] unpacks them, in the same loop. The vector loop's two divisions a point
+/// were its bound (`grow_bench 40000 60` 0.93 of the time with one), and no unpacked
+/// arrays are written and read back (241.9 -> 232.5 M grower instructions for
+/// `grow_bench 40000 4`). ("Not below" written `!(x < least)`, as in [`point_gains`].)
 #[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
 fn gini_screen_packed(
     gain: &mut [f64],
     packed: &[u64],
+    add: u64,
     t: [f64; 3],
     parent: f64,
     settings: &GrowSettings,
 ) {
     let min_leaf = settings.min_rows_leaf.max(1) as f64;
     for (out, &p) in gain.iter_mut().zip(packed) {
+        let p = p + add;
         let (l1, lc) = (f64::from((p >> 32) as i32), f64::from(p as u32 as i32));
         let (wr, r1) = (t[2] - lc, t[1] - l1);
         let (l0, r0) = (lc - l1, wr - r1);
@@ -2625,16 +2617,16 @@ fn gini_screen_packed(
 }
 
 /// The first of the largest Gini gains, as [`point_gains`] and [`first_best`] find it, from
-/// the screened gains `screen` ([`gini_screen`]): only points screened within `2⁻⁴⁶·W` of
+/// the screened gains `screen` ([`gini_screen_packed`]): only points screened within `2⁻⁴⁶·W` of
 /// the largest (`W` the node's weight, `t[2]`) have their gain computed as [`point_gains`]
 /// computes it. Every input is exact (whole counts below 2²⁶, so squares, their sums and
 /// `L·R` below 2⁵³), and the parent's cost, the same number in both, is at most `W/2`. The
 /// gain as computed is within `4·2⁻⁵³·W` of its exact value: `(l0² + l1²)/L` and the side's
 /// cost are at most `L` (two roundings a side), the two subtractions at most `W`. The screen
-/// is within `7·2⁻⁵³·W`: its quotient, at most `W`, takes four relative roundings (two
-/// products, their sum, the division), and each of the three additions after is at most
-/// `W`. So a point screened more than `22·2⁻⁵³·W` below the largest cannot have the largest
-/// gain, nor tie with it. Returns the place and gain (−∞: no point).
+/// is within `6·2⁻⁵³·W`: its quotient, at most `W`, takes four relative roundings (two
+/// products, their sum, the division), and each of the two additions after is at most `W`.
+/// So a point screened more than `20·2⁻⁵³·W` below the largest cannot have the largest gain,
+/// nor tie with it. Returns the place and gain (−∞: no point).
 #[inline(always)]
 fn screened_gini_best(
     screen: &[f64],
@@ -2932,12 +2924,13 @@ fn present_best(
     let t = used
         .checked_sub(1)
         .map(|last| [sums.s0[last], sums.s1[last], sums.rows[last]])?;
-    points_best(sums, used, t, at, (false, false), settings, best)
+    points_best(sums, used, t, at, (false, None), settings, best)
 }
 
 /// [`present_best`] with the node's totals `t` given and the missing values' side
-/// (the left sums include them when `missing_left`); `whole`: the sums are whole counts
-/// ([`scan_packed`]), which [`gini_screens`] may screen.
+/// (the left sums include them when `missing_left`). `screened`: the gains are screened
+/// ([`gini_screen_packed`]) from the packed counts `sums.packed` plus the number given
+/// ([`scan_packed`], when [`gini_screens`]), and the unpacked sums are not read.
 #[allow(clippy::neg_cmp_op_on_partial_ord)]
 #[inline(always)]
 fn points_best(
@@ -2945,7 +2938,7 @@ fn points_best(
     used: usize,
     t: [f64; 3],
     (feature, parent_cost): (usize, f64),
-    (missing_left, whole): (bool, bool),
+    (missing_left, screened): (bool, Option<u64>),
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) -> Option<usize> {
@@ -2957,19 +2950,24 @@ fn points_best(
         s0,
         s1,
         rows,
+        packed,
         gain,
         ..
     } = sums;
-    let left = [&s0[..used], &s1[..used], &rows[..used]];
     // Every bin used holds rows: each is a split point.
-    let (at, g) = if whole && gini_screens(settings, t[2]) {
-        gini_screen(&mut gain[..used], left, t, parent_cost, settings);
-        let left = |i: usize| [left[0][i], left[1][i], left[2][i]];
-        screened_gini_best(&gain[..used], left, t, parent_cost)
-    } else {
-        let all = std::iter::repeat(&1.0);
-        point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
-        first_best_plain(&gain[..used])
+    let (at, g) = match screened {
+        Some(add) => {
+            let packed = &packed[..used];
+            gini_screen_packed(&mut gain[..used], packed, add, t, parent_cost, settings);
+            let left = |i: usize| unpack_counts(packed[i] + add);
+            screened_gini_best(&gain[..used], left, t, parent_cost)
+        }
+        None => {
+            let left = [&s0[..used], &s1[..used], &rows[..used]];
+            let all = std::iter::repeat(&1.0);
+            point_gains_plain(&mut gain[..used], all, left, t, parent_cost, settings);
+            first_best_plain(&gain[..used])
+        }
     };
     if g == f64::NEG_INFINITY || best.as_ref().is_some_and(|b| !(g > b.gain)) {
         return None;
