@@ -2576,7 +2576,8 @@ fn scan_group_plain(
 }
 
 /// Whether a scan of whole counts (two classes, packed) finds its split through
-/// [`gini_screen_packed`]: Gini without a least leaf weight, a node of fewer than 2²⁶ rows (`rows`).
+/// [`gini_screen_packed`]: Gini without a least leaf weight, a node of fewer than 2²⁶ rows
+/// (`rows`).
 fn gini_screens(settings: &GrowSettings, rows: f64) -> bool {
     settings.criterion == Criterion::Gini
         && settings.min_weight_leaf <= 0.0
@@ -2617,9 +2618,9 @@ fn gini_screen_packed(
 }
 
 /// The first of the largest Gini gains, as [`point_gains`] and [`first_best`] find it, from
-/// the screened gains `screen` ([`gini_screen_packed`]): only points screened within `2⁻⁴⁶·W` of
-/// the largest (`W` the node's weight, `t[2]`) have their gain computed as [`point_gains`]
-/// computes it. Every input is exact (whole counts below 2²⁶, so squares, their sums and
+/// the screened gains `screen` ([`gini_screen_packed`]; `left(i)` point `i`'s left sums):
+/// only points screened within `2⁻⁴⁶·W` of the largest (`W` the node's weight, `t[2]`) have
+/// their gain computed as [`point_gains`] computes it. Every input is exact (whole counts below 2²⁶, so squares, their sums and
 /// `L·R` below 2⁵³), and the parent's cost, the same number in both, is at most `W/2`. The
 /// gain as computed is within `4·2⁻⁵³·W` of its exact value: `(l0² + l1²)/L` and the side's
 /// cost are at most `L` (two roundings a side), the two subtractions at most `W`. The screen
