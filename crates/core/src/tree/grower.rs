@@ -2620,14 +2620,15 @@ fn gini_screen_packed(
 /// The first of the largest Gini gains, as [`point_gains`] and [`first_best`] find it, from
 /// the screened gains `screen` ([`gini_screen_packed`]; `left(i)` point `i`'s left sums):
 /// only points screened within `2⁻⁴⁶·W` of the largest (`W` the node's weight, `t[2]`) have
-/// their gain computed as [`point_gains`] computes it. Every input is exact (whole counts below 2²⁶, so squares, their sums and
-/// `L·R` below 2⁵³), and the parent's cost, the same number in both, is at most `W/2`. The
-/// gain as computed is within `4·2⁻⁵³·W` of its exact value: `(l0² + l1²)/L` and the side's
-/// cost are at most `L` (two roundings a side), the two subtractions at most `W`. The screen
-/// is within `6·2⁻⁵³·W`: its quotient, at most `W`, takes four relative roundings (two
-/// products, their sum, the division), and each of the two additions after is at most `W`.
-/// So a point screened more than `20·2⁻⁵³·W` below the largest cannot have the largest gain,
-/// nor tie with it. Returns the place and gain (−∞: no point).
+/// their gain computed as [`point_gains`] computes it. Every input is exact (whole counts
+/// below 2²⁶, so squares, their sums and `L·R` below 2⁵³), and the parent's cost, the same
+/// number in both, is at most `W/2`. The gain as computed is within `4·2⁻⁵³·W` of its exact
+/// value: `(l0² + l1²)/L` and the side's cost are at most `L` (two roundings a side), the
+/// two subtractions at most `W`. The screen is within `6·2⁻⁵³·W`: its quotient, at most `W`,
+/// takes four relative roundings (two products, their sum, the division), and each of the
+/// two additions after is at most `W`. So a point screened more than `20·2⁻⁵³·W` below the
+/// largest cannot have the largest gain, nor tie with it. Returns the place and gain (−∞:
+/// no point).
 #[inline(always)]
 fn screened_gini_best(
     screen: &[f64],
