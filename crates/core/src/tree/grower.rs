@@ -1501,11 +1501,9 @@ fn scan_group3_plain(
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) {
-    let (used, gathered) = (points.used, points.gathered);
-    (points.used, points.gathered) = (0, 0);
-    if used == 0 {
+    let Some((used, gathered)) = points.take() else {
         return;
-    }
+    };
     let GroupPoints {
         s0,
         s1,
@@ -2438,6 +2436,14 @@ impl GroupPoints {
         }
     }
 
+    /// The number of points gathered and of predictors they came from, the group emptied for
+    /// the next (`None`: no points).
+    fn take(&mut self) -> Option<(usize, usize)> {
+        let taken = (self.used, self.gathered);
+        (self.used, self.gathered) = (0, 0);
+        (taken.0 > 0).then_some(taken)
+    }
+
     /// Adds predictor `feature`'s points: the running packed counts after each bin of `bits`
     /// (read in bin order, each slot emptied as it is read; no missing values, so slot 255
     /// is empty). At most [`BATCH`] predictors between scans.
@@ -2532,11 +2538,9 @@ fn scan_group_plain(
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) {
-    let (used, gathered) = (points.used, points.gathered);
-    (points.used, points.gathered) = (0, 0);
-    if used == 0 {
+    let Some((used, gathered)) = points.take() else {
         return;
-    }
+    };
     let GroupPoints {
         packed,
         s0,
@@ -2752,11 +2756,9 @@ fn scan_group_units_plain(
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) {
-    let (used, gathered) = (points.used, points.gathered);
-    (points.used, points.gathered) = (0, 0);
-    if used == 0 {
+    let Some((used, gathered)) = points.take() else {
         return;
-    }
+    };
     let GroupPoints {
         s1,
         rows,
@@ -2794,11 +2796,9 @@ fn scan_group_sums_plain(
     settings: &GrowSettings,
     best: &mut Option<Split>,
 ) {
-    let (used, gathered) = (points.used, points.gathered);
-    (points.used, points.gathered) = (0, 0);
-    if used == 0 {
+    let Some((used, gathered)) = points.take() else {
         return;
-    }
+    };
     let GroupPoints {
         s0,
         s1,
