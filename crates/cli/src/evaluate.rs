@@ -213,7 +213,13 @@ pub fn scheme_and_group(
     validate: &str,
     group: Option<&str>,
 ) -> anyhow::Result<(Scheme, Option<String>)> {
-    let scheme = Scheme::parse(validate).map_err(|e| anyhow::anyhow!("--validate {e}"))?;
+    // Named by the option typed, not again as a setting.
+    let scheme = Scheme::parse(validate).map_err(|e| match e.kind() {
+        spinney_core::ErrorKind::BadSetting { reason, .. } => {
+            anyhow::anyhow!("--validate: {reason}")
+        }
+        _ => anyhow::anyhow!("--validate: {e}"),
+    })?;
     let group = match (&scheme, group) {
         (Scheme::Groups { column, .. }, Some(g)) if g != column => anyhow::bail!(
             "--group {g} and --validate {validate} name different group columns; give one"

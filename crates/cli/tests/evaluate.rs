@@ -196,6 +196,10 @@ fn bad_validation_requests_are_refused_clearly() {
         &["oob", "folds:10"],
     );
     fails_with(&with(&["--validate", "jackknife"]), &["not a scheme"]);
+    fails_with(
+        &with(&["--validate", "groups:5"]),
+        &["--validate: ", "no group column", "groups:K:COLUMN"],
+    );
 }
 
 #[test]

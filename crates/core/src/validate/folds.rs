@@ -89,6 +89,12 @@ impl Scheme {
             ["bootstrap", b] => Scheme::Bootstrap {
                 resamples: whole(b, "number of resamples")?,
             },
+            ["groups", ..] => {
+                return Err(bad(format!(
+                    "'{text}' names no group column; write groups:K:COLUMN, e.g. \
+                     groups:5:patient_id (all of one patient's records in one fold)"
+                )))
+            }
             _ => {
                 return Err(bad(format!(
                     "'{text}' is not a scheme; use oob, holdout:FRACTION, folds:K[:REPEATS], \
@@ -473,6 +479,8 @@ mod tests {
         assert!(err("folds:1").contains("at least 2"));
         assert!(err("folds:x").contains("not a whole number"));
         assert!(err("leave-one-out").contains("not a scheme"));
+        assert!(err("groups:5").contains("names no group column"));
+        assert!(err("groups:5: ").contains("groups:K:COLUMN"));
         let few = classes(3, 50, false);
         let e = splits(&few, &Scheme::Folds { k: 5, repeats: 1 }, 1).unwrap_err();
         assert!(e.to_string().contains("class 'yes' has 3 row(s)"), "{e}");
