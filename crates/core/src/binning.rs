@@ -359,6 +359,8 @@ fn bin_columns<B: Bin>(
 pub struct Records {
     pub rows: usize,
     values: Vec<f64>,
+    /// Each value rounded to single precision, or empty ([`Records::with_narrow_copy`]).
+    narrow: Vec<f32>,
 }
 
 impl Records {
@@ -374,22 +376,44 @@ impl Records {
         &self.values
     }
 
-    /// Records holding only `rows` (in that order).
+    /// The values rounded to single precision, laid out as [`Records::values`], when kept
+    /// ([`Records::with_narrow_copy`]).
+    pub fn narrow(&self) -> Option<&[f32]> {
+        (self.narrow.len() == self.values.len() && !self.values.is_empty()).then_some(&self.narrow)
+    }
+
+    /// The same records with a single-precision copy of every value (each rounded to the
+    /// nearest), for walking many trees: a walk decides most rows from the copy, half the
+    /// bytes to fetch, and reads the full value only for a row within a rounding of the
+    /// threshold (see [`crate::tree::walk`]). Held-out rows of 30 predictors: 2.4 MB of
+    /// numbers for 10,000 rows, beyond a core's 2 MB second-level cache; 1.2 MB copied.
+    pub fn with_narrow_copy(mut self) -> Records {
+        self.narrow = self.values.iter().map(|&v| v as f32).collect();
+        self
+    }
+
+    /// Records holding only `rows` (in that order), with a single-precision copy if these
+    /// have one.
     pub fn select_rows(&self, rows: &[usize]) -> Records {
         let columns = self.values.len() / self.rows.max(1);
         let mut values = Vec::with_capacity(rows.len() * columns);
         for j in 0..columns {
             values.extend(rows.iter().map(|&r| self.value(j, r)));
         }
-        Records {
-            rows: rows.len(),
-            values,
+        let selected = Records::from_columns(rows.len(), values);
+        match self.narrow() {
+            Some(_) => selected.with_narrow_copy(),
+            None => selected,
         }
     }
 
     /// Records from column-major values (`rows` per predictor), for tests and tools.
     pub fn from_columns(rows: usize, values: Vec<f64>) -> Records {
-        Records { rows, values }
+        Records {
+            rows,
+            values,
+            narrow: Vec::new(),
+        }
     }
 }
 
