@@ -10,7 +10,7 @@ use spinney_core::binning::BinnedMatrix;
 use spinney_core::data::{read_table, Loaded, ReadOptions};
 use spinney_core::design::{build_design, DesignSpec, Outcome};
 use spinney_core::ensemble::boosting::Stopping;
-use spinney_core::ensemble::forest::{fit_forest, Forest, ForestSettings};
+use spinney_core::ensemble::forest::{fit_forest_judging, Forest, ForestSettings, HeldOut};
 use spinney_core::fit::{fit_design, FitOptions, Fitted};
 use spinney_core::model::{Ensemble, Method, Model};
 use spinney_core::progress::{Progress, Silent};
@@ -233,6 +233,7 @@ pub fn prepare(choice: &Choice<'_>) -> anyhow::Result<Prepared> {
 }
 
 /// A forest fitter for [`fit_design`] spreading the trees over `threads` threads.
+#[allow(clippy::type_complexity)] // the signature of `spinney_core::fit::ForestFitter`
 pub fn threaded_forests(
     threads: Option<usize>,
 ) -> impl Fn(
@@ -241,9 +242,11 @@ pub fn threaded_forests(
     usize,
     &Outcome,
     &ForestSettings,
+    Option<HeldOut<'_>>,
     &mut dyn Progress,
 ) -> spinney_core::error::Result<Forest> {
-    move |binned, stats, width, outcome, forest, progress| {
+    move |binned, stats, width, outcome, forest, held, progress| {
+        let threads = (threads, held);
         fit_forest_on_threads(binned, stats, width, outcome, forest, threads, progress)
     }
 }
@@ -290,6 +293,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             // for the JSON output, its one reader.
             pruning_path: args.json && method == Method::Tree,
             spread: None,
+            held_out: None,
         },
         &mut Bar::new(),
     )?;
@@ -501,13 +505,13 @@ fn fit_forest_on_threads(
     width: usize,
     outcome: &Outcome,
     settings: &ForestSettings,
-    threads: Option<usize>,
+    (threads, held): (Option<usize>, Option<HeldOut<'_>>),
     progress: &mut dyn Progress,
 ) -> spinney_core::error::Result<Forest> {
     let threads = threads.unwrap_or_else(rayon::current_num_threads).max(1);
     if threads == 1 {
-        return Ok(fit_forest(
-            binned, stats, width, outcome, settings, progress,
+        return Ok(fit_forest_judging(
+            binned, stats, width, outcome, settings, held, progress,
         ));
     }
     let pool = rayon::ThreadPoolBuilder::new()
@@ -525,7 +529,7 @@ fn fit_forest_on_threads(
         width,
         outcome,
         settings,
-        threads,
+        (threads, held),
         Some(&pool),
         progress,
     ))
@@ -535,17 +539,19 @@ fn fit_forest_on_threads(
 /// side): the trees go to that same pool in batches, so a thread with no fold of its own
 /// left helps with another fold's trees. The forest is the same bit for bit.
 #[cfg(feature = "parallel")]
+#[allow(clippy::type_complexity)] // the signature of `spinney_core::fit::ForestFitter`
 pub fn forests_on_current_pool() -> impl Fn(
     &BinnedMatrix,
     &[f64],
     usize,
     &Outcome,
     &ForestSettings,
+    Option<HeldOut<'_>>,
     &mut dyn Progress,
 ) -> spinney_core::error::Result<Forest>
        + Sync {
-    |binned, stats, width, outcome, forest, progress| {
-        let threads = rayon::current_num_threads().max(1);
+    |binned, stats, width, outcome, forest, held, progress| {
+        let threads = (rayon::current_num_threads().max(1), held);
         Ok(fit_forest_batches(
             binned, stats, width, outcome, forest, threads, None, progress,
         ))
@@ -553,7 +559,7 @@ pub fn forests_on_current_pool() -> impl Fn(
 }
 
 /// The trees of a forest in batches of `threads · 4` on `pool` (None: the pool the caller
-/// runs on), tallied in tree order.
+/// runs on), tallied in tree order (judging `held` rows as they are, if given).
 #[cfg(feature = "parallel")]
 #[allow(clippy::too_many_arguments)]
 fn fit_forest_batches(
@@ -562,7 +568,7 @@ fn fit_forest_batches(
     width: usize,
     outcome: &Outcome,
     settings: &ForestSettings,
-    threads: usize,
+    (threads, held): (usize, Option<HeldOut<'_>>),
     pool: Option<&rayon::ThreadPool>,
     progress: &mut dyn Progress,
 ) -> Forest {
@@ -586,7 +592,7 @@ fn fit_forest_batches(
             None => batch(),
         };
         for f in fitted {
-            tally.add(f, binned, outcome);
+            tally.add_judging(f, binned, outcome, held);
         }
         let flow = progress.step("trees", end as u64, settings.trees as u64);
         start = end;
@@ -604,11 +610,11 @@ fn fit_forest_on_threads(
     width: usize,
     outcome: &Outcome,
     settings: &ForestSettings,
-    _threads: Option<usize>,
+    (_, held): (Option<usize>, Option<HeldOut<'_>>),
     progress: &mut dyn Progress,
 ) -> spinney_core::error::Result<Forest> {
-    Ok(fit_forest(
-        binned, stats, width, outcome, settings, progress,
+    Ok(fit_forest_judging(
+        binned, stats, width, outcome, settings, held, progress,
     ))
 }
 

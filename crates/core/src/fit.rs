@@ -13,23 +13,29 @@ use crate::binning::{bin_design, BinnedMatrix};
 use crate::design::{Design, Outcome};
 use crate::ensemble::adaboost::fit_adaboost;
 use crate::ensemble::boosting::fit_boosting;
-use crate::ensemble::forest::{fit_forest, fit_trees, FittedTree, Forest, ForestSettings};
+use crate::ensemble::forest::{
+    fit_forest_judging, fit_trees, FittedTree, Forest, ForestSettings, HeldOut,
+};
 use crate::error::{Error, ErrorKind, Result};
 use crate::model::{is_partial, predictors_of, Ensemble, Method, Model, Predictor};
 use crate::progress::Progress;
 use crate::settings::FitSettings;
 use crate::tree::grower::grow;
 use crate::tree::prune::{prune, pruning_path, PruneStep};
+use crate::tree::Rows;
 
 /// Fits a forest's trees: `(binned, row statistics, statistics per row, outcome, settings,
-/// progress)`. [`fit_forest`] fits them one after another; the command line passes one that
-/// uses threads.
+/// held-out rows, progress)`. [`fit_forest_judging`] fits them one after another; the
+/// command line passes one that uses threads. With held-out rows (validation), a fitter
+/// should tally its trees with [`crate::ensemble::forest::OobTally::add_judging`]; one that
+/// ignores them keeps its trees, and the rows are judged from those afterwards.
 pub type ForestFitter<'a> = &'a dyn Fn(
     &BinnedMatrix,
     &[f64],
     usize,
     &Outcome,
     &ForestSettings,
+    Option<HeldOut<'_>>,
     &mut dyn Progress,
 ) -> Result<Forest>;
 
@@ -43,6 +49,9 @@ pub struct FitOptions<'a> {
     /// Runs independent jobs on the caller's threads (validation's bootstrap resamples of
     /// the metrics); default: one after another.
     pub spread: Option<crate::spread::Spread<'a>>,
+    /// Rows held out of this fit (a validation split's test rows): bagging and forests judge
+    /// them tree by tree and keep no trees ([`Forest::judged`]); other methods ignore them.
+    pub held_out: Option<&'a Design>,
 }
 
 /// A fitted model with what it was fitted on.
@@ -177,24 +186,25 @@ pub fn fit_design(
             progress.step("tree", 1, 1);
             Ensemble::Tree(prune(full, settings.pruning))
         }
-        Method::Bagging | Method::Forest => Ensemble::Forest(match options.forest_fitter {
-            Some(fitter) => fitter(
-                &binned,
-                &stats,
-                width,
-                &design.outcome,
-                &settings.forest,
-                progress,
-            )?,
-            None => fit_forest(
-                &binned,
-                &stats,
-                width,
-                &design.outcome,
-                &settings.forest,
-                progress,
-            ),
-        }),
+        Method::Bagging | Method::Forest => {
+            // Held-out rows read by this fit's bins, with a single-precision copy for the
+            // walks (`Records::with_narrow_copy`).
+            let records = options.held_out.map(|d| {
+                (
+                    crate::validate::records_of(d, &binned.columns).with_narrow_copy(),
+                    d,
+                )
+            });
+            let held = records.as_ref().map(|(r, d)| HeldOut {
+                rows: Rows::Records(r),
+                outcome: &d.outcome,
+            });
+            let (outcome, forest) = (&design.outcome, &settings.forest);
+            Ensemble::Forest(match options.forest_fitter {
+                Some(fitter) => fitter(&binned, &stats, width, outcome, forest, held, progress)?,
+                None => fit_forest_judging(&binned, &stats, width, outcome, forest, held, progress),
+            })
+        }
         Method::AdaBoost => {
             let Outcome::Classes { codes, labels } = &design.outcome else {
                 return Err(bad(
@@ -362,8 +372,9 @@ mod tests {
                      width: usize,
                      outcome: &Outcome,
                      forest: &ForestSettings,
+                     held: Option<HeldOut<'_>>,
                      _: &mut dyn Progress| {
-            tally_trees(&bytes, binned, width, outcome, forest)
+            tally_trees(&bytes, binned, width, outcome, forest, held)
         };
         let options = FitOptions {
             forest_fitter: Some(&tally),

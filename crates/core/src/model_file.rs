@@ -571,6 +571,7 @@ fn from_file(file: FileV1) -> Result<Model> {
                 oob_share: f.out_of_bag_share,
                 training_error: Vec::new(),
                 partial: file.partial,
+                judged: None,
             })
         }
         Method::AdaBoost => {

@@ -208,6 +208,38 @@ pub struct Forest {
     pub training_error: Vec<f64>,
     /// Stopped before all trees were fitted (cancelled).
     pub partial: bool,
+    /// Held-out rows judged tree by tree as the trees were tallied ([`HeldOut`]); the trees
+    /// themselves were then not kept (`trees` is empty).
+    pub judged: Option<Judged>,
+}
+
+/// Rows held out of a forest's fit (validation's test rows, read by the fit's bins) and
+/// their outcome, judged tree by tree as each tree is tallied ([`OobTally::add_judging`]),
+/// so validation need not keep a fold's trees (a 300-tree forest on 40,000 rows holds about
+/// 170 MB) nor walk them again from memory afterwards.
+#[derive(Clone, Copy)]
+pub struct HeldOut<'a> {
+    pub rows: Rows<'a>,
+    pub outcome: &'a Outcome,
+}
+
+/// What judging held-out rows tree by tree gives: the numbers
+/// [`crate::model::Model::staged_errors_and_predictions`] gives for the whole forest, to the
+/// last digit (the same walks, additions and order).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Judged {
+    /// Error after 1, 2, ... trees: misclassified share, or mean squared error.
+    pub curve: Vec<f64>,
+    /// Each row's summed tree outputs (`outputs` a row).
+    pub sums: Vec<f64>,
+}
+
+impl Judged {
+    /// Each row's prediction: its sums over the number of trees.
+    pub fn predictions(&self) -> Vec<f64> {
+        let trees = self.curve.len().max(1) as f64;
+        self.sums.iter().map(|s| s / trees).collect()
+    }
 }
 
 impl Forest {
@@ -248,6 +280,8 @@ pub struct OobTally {
     out_of_bag: usize,
     trees: Vec<Tree>,
     oob_error: Vec<f64>,
+    /// Held-out rows judged so far ([`OobTally::add_judging`]), whose trees are not kept.
+    held_out: Option<Judged>,
 }
 
 impl OobTally {
@@ -264,17 +298,31 @@ impl OobTally {
             out_of_bag: 0,
             trees: Vec::new(),
             oob_error: Vec::new(),
+            held_out: None,
         }
     }
 
     /// Adds the next tree (trees must come in index order).
     pub fn add(&mut self, fitted: FittedTree, binned: &BinnedMatrix, outcome: &Outcome) {
+        self.add_judging(fitted, binned, outcome, None);
+    }
+
+    /// [`OobTally::add`], and with `held` (the same rows and outcome for every tree) the
+    /// held-out rows judged by the tree, which is then not kept: the forest finished carries
+    /// their [`Judged`] figures and no trees.
+    pub fn add_judging(
+        &mut self,
+        fitted: FittedTree,
+        binned: &BinnedMatrix,
+        outcome: &Outcome,
+        held: Option<HeldOut<'_>>,
+    ) {
         // The same loops, with the number of outputs a constant where it is one or two (a
         // number outcome, two classes), so their sums and choices compile without loops.
         match self.outputs {
-            1 => self.add_with::<1>(fitted, binned, outcome),
-            2 => self.add_with::<2>(fitted, binned, outcome),
-            _ => self.add_with::<0>(fitted, binned, outcome),
+            1 => self.add_with::<1>(fitted, binned, outcome, held),
+            2 => self.add_with::<2>(fitted, binned, outcome, held),
+            _ => self.add_with::<0>(fitted, binned, outcome, held),
         }
     }
 
@@ -284,6 +332,7 @@ impl OobTally {
         fitted: FittedTree,
         binned: &BinnedMatrix,
         outcome: &Outcome,
+        held: Option<HeldOut<'_>>,
     ) {
         let n = binned.rows;
         let outputs = if K > 0 { K } else { self.outputs };
@@ -329,7 +378,7 @@ impl OobTally {
         }
         // The training error as `Model::staged_errors` sums it, row by row.
         let (mut wrong, mut squares) = (0.0, 0.0);
-        let trees_so_far = (self.trees.len() + 1) as f64;
+        let trees_so_far = (self.oob_error.len() + 1) as f64;
         for (r, &leaf) in leaves.iter().enumerate() {
             let s = &mut self.training_sums[r * outputs..(r + 1) * outputs];
             for (a, b) in s.iter_mut().zip(value(leaf)) {
@@ -361,11 +410,43 @@ impl OobTally {
             0 => f64::NAN,
             judged => err / judged as f64,
         });
-        self.trees.push(tree);
+        match held {
+            Some(held) => self.judge::<K>(&tree, &values, held),
+            None => self.trees.push(tree),
+        }
     }
 
+    /// The held-out rows' sums and error after this tree (the `t`-th, from 0), as
+    /// [`crate::model::Model::staged_errors_and_predictions`] makes them: each row's leaf
+    /// values (`values`, by node) added to its sums, the error summed in row order.
+    fn judge<const K: usize>(&mut self, tree: &Tree, values: &[f64], held: HeldOut<'_>) {
+        let outputs = if K > 0 { K } else { self.outputs };
+        let n = held.rows.len();
+        let t = self.oob_error.len() - 1;
+        let judged = self.held_out.get_or_insert_with(|| Judged {
+            curve: Vec::new(),
+            sums: vec![0.0; n * outputs],
+        });
+        let mut at = vec![0; n];
+        walk::leaves(tree, held.rows, |i| i, &mut at);
+        let mut err = 0.0;
+        for (r, &leaf) in at.iter().enumerate() {
+            let p = &values[leaf as usize * outputs..][..outputs];
+            let s = &mut judged.sums[r * outputs..(r + 1) * outputs];
+            for (a, b) in s.iter_mut().zip(p) {
+                *a += b;
+            }
+            err += match held.outcome {
+                Outcome::Classes { codes, .. } => (argmax(s) != codes[r] as usize) as u8 as f64,
+                Outcome::Numbers(y) => (s[0] / (t + 1) as f64 - y[r]).powi(2),
+            };
+        }
+        judged.curve.push(err / n.max(1) as f64);
+    }
+
+    /// Trees added so far.
     pub fn trees(&self) -> usize {
-        self.trees.len()
+        self.oob_error.len()
     }
 
     /// The forest of the trees added, `partial` when fewer than asked for were fitted.
@@ -382,7 +463,8 @@ impl OobTally {
                 }
             })
             .collect();
-        let oob_share = self.out_of_bag as f64 / (self.trees.len().max(1) * rows.max(1)) as f64;
+        let added = self.oob_error.len();
+        let oob_share = self.out_of_bag as f64 / (added.max(1) * rows.max(1)) as f64;
         Forest {
             trees: self.trees,
             outputs,
@@ -391,6 +473,7 @@ impl OobTally {
             oob_share,
             training_error: self.training_error,
             partial,
+            judged: self.held_out,
         }
     }
 }
@@ -412,10 +495,24 @@ pub fn fit_forest(
     settings: &ForestSettings,
     progress: &mut dyn Progress,
 ) -> Forest {
+    fit_forest_judging(binned, stats, width, outcome, settings, None, progress)
+}
+
+/// [`fit_forest`], judging `held` rows tree by tree instead of keeping the trees (see
+/// [`HeldOut`]) when given.
+pub fn fit_forest_judging(
+    binned: &BinnedMatrix,
+    stats: &[f64],
+    width: usize,
+    outcome: &Outcome,
+    settings: &ForestSettings,
+    held: Option<HeldOut<'_>>,
+    progress: &mut dyn Progress,
+) -> Forest {
     let mut tally = OobTally::new(binned.rows, tree_outputs(settings, width));
     for i in 0..settings.trees {
         for fitted in fit_trees(binned, stats, width, settings, i..i + 1, &mut Silent) {
-            tally.add(fitted, binned, outcome);
+            tally.add_judging(fitted, binned, outcome, held);
         }
         if progress.step("trees", i as u64 + 1, settings.trees as u64) == Flow::Stop {
             break;
@@ -469,6 +566,86 @@ mod tests {
         // 10% of labels are flipped, so about 0.10 is the best possible; chance is 0.5.
         assert!(last < 0.2, "oob error {last}");
         assert!(!forest.partial);
+    }
+
+    #[test]
+    fn held_out_rows_judged_tree_by_tree_get_the_kept_forests_staged_figures() {
+        // Judging held-out rows as each tree is tallied, keeping no trees, against the
+        // forest kept whole and judged afterwards (our own consistency rule, no source
+        // needed): the same error by size and predictions to the bit, the same out-of-bag
+        // and training records; two classes and a number outcome, records with a
+        // single-precision copy and without.
+        use crate::binning::Records;
+        use crate::model::{Ensemble, Method, Model};
+        let (m, y, stats) = noisy_problem();
+        let numbers = Outcome::Numbers(
+            (0..m.rows)
+                .map(|r| stats[2 * r + 1] * 3.0 + (r % 7) as f64)
+                .collect(),
+        );
+        let unit = vec![1.0; 2 * m.rows];
+        let number_stats: Vec<f64> = match &numbers {
+            Outcome::Numbers(v) => (0..m.rows).flat_map(|r| [unit[2 * r], v[r]]).collect(),
+            Outcome::Classes { .. } => unreachable!(),
+        };
+        // Held-out rows: the training rows' bins read back as numbers, a few missing.
+        let values: Vec<f64> = (0..m.columns.len())
+            .flat_map(|j| (0..m.rows).map(move |r| (j, r)))
+            .map(|(j, r)| match (r % 13, m.bin(j, r)) {
+                (0, _) | (_, None) => f64::NAN,
+                (_, Some(b)) => b as f64 + 0.25,
+            })
+            .collect();
+        let records = Records::from_columns(m.rows, values);
+        let narrow = records.clone().with_narrow_copy();
+        let cases = [(false, &y, &stats[..]), (true, &numbers, &number_stats[..])];
+        for (regression, outcome, stats) in cases {
+            let width = 2;
+            let mut s = ForestSettings::random_forest(4, regression, 5);
+            if regression {
+                s.grow.criterion = Criterion::SquaredError;
+            }
+            s.trees = 12;
+            let kept = fit_forest(&m, stats, width, outcome, &s, &mut Silent);
+            assert!(kept.judged.is_none() && kept.trees.len() == 12);
+            for rows in [&records, &narrow] {
+                let held = HeldOut {
+                    rows: Rows::Records(rows),
+                    outcome,
+                };
+                let judging =
+                    fit_forest_judging(&m, stats, width, outcome, &s, Some(held), &mut Silent);
+                assert!(judging.trees.is_empty(), "no tree kept");
+                assert!(!judging.partial);
+                // Bits, so that NaN (rows every tree saw) compare equal.
+                let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                assert_eq!(bits(&judging.oob_error), bits(&kept.oob_error));
+                assert!(bits(&judging.oob_prediction) == bits(&kept.oob_prediction));
+                assert_eq!(bits(&judging.training_error), bits(&kept.training_error));
+                let model = Model {
+                    method: Method::Forest,
+                    outcome: "y".into(),
+                    classes: (!regression).then(|| vec!["no".into(), "yes".into()]),
+                    predictors: Vec::new(),
+                    ensemble: Ensemble::Forest(kept.clone()),
+                    settings: Default::default(),
+                    seed: 5,
+                    training_fingerprint: None,
+                    training_rows: m.rows,
+                    partial: false,
+                };
+                let (curve, predictions) =
+                    model.staged_errors_and_predictions(Rows::Records(rows), outcome);
+                let judged = judging.judged.expect("judged rows");
+                assert_eq!(judged.curve.len(), 12);
+                assert_eq!(Some(bits(&judged.curve)), curve.map(|c| bits(&c)));
+                let want = predictions.map(|p| bits(&p));
+                assert!(
+                    Some(bits(&judged.predictions())) == want,
+                    "regression {regression}"
+                );
+            }
+        }
     }
 
     #[test]

@@ -9,7 +9,7 @@
 //! in the tree's sample (the out-of-bag tally needs no more than that).
 
 use super::forest::{
-    tree_outputs, FittedTree, Forest, ForestSettings, OobTally, IN_BAG, OUT_OF_BAG,
+    tree_outputs, FittedTree, Forest, ForestSettings, HeldOut, OobTally, IN_BAG, OUT_OF_BAG,
 };
 use crate::binning::BinnedMatrix;
 use crate::design::Outcome;
@@ -61,14 +61,16 @@ pub fn encode_trees(trees: &[FittedTree]) -> Vec<u8> {
 
 /// The forest of trees fitted elsewhere (`bytes`: every share in tree order, joined),
 /// tallied here into the same forest, out-of-bag record and all, that one fit would give;
-/// partial when fewer trees came than `settings` asks for. It has the shape of a
-/// [`crate::fit::ForestFitter`] once `bytes` is bound.
+/// partial when fewer trees came than `settings` asks for; `held` rows judged tree by tree
+/// as [`OobTally::add_judging`] does. It has the shape of a [`crate::fit::ForestFitter`]
+/// once `bytes` is bound.
 pub fn tally_trees(
     bytes: &[u8],
     binned: &BinnedMatrix,
     width: usize,
     outcome: &Outcome,
     settings: &ForestSettings,
+    held: Option<HeldOut<'_>>,
 ) -> Result<Forest> {
     let trees = decode_trees(bytes, binned.rows, binned.columns.len()).map_err(|e| {
         Error::new(ErrorKind::BadDesign {
@@ -78,7 +80,7 @@ pub fn tally_trees(
     let mut tally = OobTally::new(binned.rows, tree_outputs(settings, width));
     let partial = trees.len() < settings.trees;
     for f in trees {
-        tally.add(f, binned, outcome);
+        tally.add_judging(f, binned, outcome, held);
     }
     Ok(tally.finish(partial))
 }

@@ -403,14 +403,28 @@ pub fn run_split(
     } else {
         (None, None)
     };
+    // Every test row out of sample (not a bootstrap resample, whose apparent figures need
+    // the trees): a forest judges them tree by tree as it is fitted and keeps no trees.
+    let all_out = split.out_of_sample.iter().all(|&o| o);
+    let options = FitOptions {
+        held_out: (all_out && !bootstrap).then_some(&test),
+        ..options
+    };
     let (fitted, records) = fit_training_part(train, &test, settings, options, progress)?;
     // Walked by every tree: most rows decided from half the bytes (`Records::narrow`).
     let records = records.with_narrow_copy();
     let model = &fitted.model;
+    let judged = match &model.ensemble {
+        Ensemble::Forest(f) => f.judged.as_ref(),
+        _ => None,
+    };
     // The out-of-sample test rows (all but a bootstrap resample's own rows); when they are
     // every test row, a forest's predictions come from the same walk as its error by size.
     let mut predictions = None;
-    let error_by_size = if split.out_of_sample.iter().all(|&o| o) {
+    let error_by_size = if let Some(j) = judged {
+        predictions = Some(j.predictions());
+        Some(j.curve.clone())
+    } else if all_out {
         let (curve, staged) =
             model.staged_errors_and_predictions(Rows::Records(&records), &test.outcome);
         predictions = staged;
@@ -423,7 +437,11 @@ pub fn run_split(
         model.staged_errors(Rows::Records(&records.select_rows(&keep)), &held.outcome)
     };
     let predictions = predictions.unwrap_or_else(|| predict_all(model, Rows::Records(&records)));
-    let training_error_by_size = model.training_errors(&fitted.binned, &fitted.design.outcome);
+    let training_error_by_size = match (&model.ensemble, judged) {
+        // No trees kept: the error tallied as they were added.
+        (Ensemble::Forest(f), Some(_)) => Some(f.training_error.clone()),
+        _ => model.training_errors(&fitted.binned, &fitted.design.outcome),
+    };
     let apparent = bootstrap.then(|| {
         let p = predict_all(model, Rows::Binned(&fitted.binned));
         figures(&fitted.design.outcome, &p, plan.threshold)
@@ -442,7 +460,7 @@ pub fn run_split(
         baseline,
         error_by_size,
         training_error_by_size,
-        members: model.members(),
+        members: judged.map_or_else(|| model.members(), |j| j.curve.len()),
     })
 }
 

@@ -11,7 +11,7 @@ use spinney_core::binning::BinnedMatrix;
 use spinney_core::data::{self, read_table, Kind, Loaded, ReadOptions};
 use spinney_core::design::Design;
 use spinney_core::design::{build_design, DesignSpec, Outcome};
-use spinney_core::ensemble::forest::ForestSettings;
+use spinney_core::ensemble::forest::{ForestSettings, HeldOut};
 use spinney_core::ensemble::tree_bytes::{encode_trees, tally_trees};
 use spinney_core::explain::shap::contributions;
 use spinney_core::fit::{fit_design, fit_forest_part, FitOptions, Fitted, ForestFitter};
@@ -559,6 +559,7 @@ fn fit(
                  width: usize,
                  outcome: &Outcome,
                  forest: &ForestSettings,
+                 held: Option<HeldOut<'_>>,
                  _: &mut dyn Progress| {
         tally_trees(
             parts.as_deref().unwrap_or_default(),
@@ -566,6 +567,7 @@ fn fit(
             width,
             outcome,
             forest,
+            held,
         )
     };
     let options = FitOptions {
