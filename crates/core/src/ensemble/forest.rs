@@ -583,17 +583,19 @@ mod tests {
                 .map(|r| stats[2 * r + 1] * 3.0 + (r % 7) as f64)
                 .collect(),
         );
-        let unit = vec![1.0; 2 * m.rows];
+        // A number outcome's statistics: a unit weight and the value.
         let number_stats: Vec<f64> = match &numbers {
-            Outcome::Numbers(v) => (0..m.rows).flat_map(|r| [unit[2 * r], v[r]]).collect(),
+            Outcome::Numbers(v) => v.iter().flat_map(|&y| [1.0, y]).collect(),
             Outcome::Classes { .. } => unreachable!(),
         };
-        // Held-out rows: the training rows' bins read back as numbers, a few missing.
+        // Held-out rows: each training row's bins read back as numbers across the training
+        // values' range (0 to 1), shifted so that they fall between the training values, a
+        // few missing.
         let values: Vec<f64> = (0..m.columns.len())
             .flat_map(|j| (0..m.rows).map(move |r| (j, r)))
             .map(|(j, r)| match (r % 13, m.bin(j, r)) {
                 (0, _) | (_, None) => f64::NAN,
-                (_, Some(b)) => b as f64 + 0.25,
+                (_, Some(b)) => (b as f64 + 0.37) / 256.0,
             })
             .collect();
         let records = Records::from_columns(m.rows, values);
@@ -638,6 +640,12 @@ mod tests {
                     model.staged_errors_and_predictions(Rows::Records(rows), outcome);
                 let judged = judging.judged.expect("judged rows");
                 assert_eq!(judged.curve.len(), 12);
+                // The rows reach many leaves, not one side of every split (two classes: at
+                // most 13 shares of 12 trees).
+                let p = judged.predictions();
+                let distinct: std::collections::BTreeSet<u64> =
+                    p.iter().map(|x| x.to_bits()).collect();
+                assert!(distinct.len() > 8, "{} distinct", distinct.len());
                 assert_eq!(Some(bits(&judged.curve)), curve.map(|c| bits(&c)));
                 let want = predictions.map(|p| bits(&p));
                 assert!(

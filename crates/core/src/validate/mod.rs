@@ -411,12 +411,16 @@ pub fn run_split(
         ..options
     };
     let (fitted, records) = fit_training_part(train, &test, settings, options, progress)?;
-    // Walked by every tree: most rows decided from half the bytes (`Records::narrow`).
-    let records = records.with_narrow_copy();
     let model = &fitted.model;
     let judged = match &model.ensemble {
         Ensemble::Forest(f) => f.judged.as_ref(),
         _ => None,
+    };
+    // Otherwise walked by every member: most rows decided from half the bytes
+    // (`Records::narrow`).
+    let records = match judged {
+        Some(_) => records,
+        None => records.with_narrow_copy(),
     };
     // The out-of-sample test rows (all but a bootstrap resample's own rows); when they are
     // every test row, a forest's predictions come from the same walk as its error by size.
