@@ -246,8 +246,8 @@ pub fn threaded_forests(
     &mut dyn Progress,
 ) -> spinney_core::error::Result<Forest> {
     move |binned, stats, width, outcome, forest, held, progress| {
-        let threads = (threads, held);
-        fit_forest_on_threads(binned, stats, width, outcome, forest, threads, progress)
+        let on = (threads, held);
+        fit_forest_on_threads(binned, stats, width, outcome, forest, on, progress)
     }
 }
 
@@ -497,7 +497,8 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
 /// Fits a forest's trees on `threads` threads (all cores by default), a batch at a time,
 /// and tallies them in tree order: each tree draws only from its own seeded streams, so the
 /// forest is the same bit for bit whatever the number of threads. Cancelling (through
-/// `progress`) keeps the trees of the batches done.
+/// `progress`) keeps the trees of the batches done. `held` rows (validation's test rows) are
+/// judged as the trees are tallied, which are then not kept.
 #[cfg(feature = "parallel")]
 fn fit_forest_on_threads(
     binned: &BinnedMatrix,
@@ -551,9 +552,9 @@ pub fn forests_on_current_pool() -> impl Fn(
 ) -> spinney_core::error::Result<Forest>
        + Sync {
     |binned, stats, width, outcome, forest, held, progress| {
-        let threads = (rayon::current_num_threads().max(1), held);
+        let on = (rayon::current_num_threads().max(1), held);
         Ok(fit_forest_batches(
-            binned, stats, width, outcome, forest, threads, None, progress,
+            binned, stats, width, outcome, forest, on, None, progress,
         ))
     }
 }
