@@ -2640,20 +2640,8 @@ fn screened_gini_best(
     t: [f64; 3],
     parent: f64,
 ) -> (usize, f64) {
-    let more = |m: f64, v: f64| if v > m { v } else { m };
-    let mut m = [f64::NEG_INFINITY; 4];
+    let top = largest(screen);
     let (quads, rest) = screen.as_chunks::<4>();
-    for q in quads {
-        m = [
-            more(m[0], q[0]),
-            more(m[1], q[1]),
-            more(m[2], q[2]),
-            more(m[3], q[3]),
-        ];
-    }
-    let top = rest
-        .iter()
-        .fold(more(more(m[0], m[1]), more(m[2], m[3])), |m, &v| more(m, v));
     if top == f64::NEG_INFINITY {
         return (0, f64::NEG_INFINITY);
     }
@@ -3167,6 +3155,25 @@ fn point_gains_each<'p, 't>(
     }
 }
 
+/// The largest of `values` (−∞ when empty or every value is −∞ or NaN), in four running
+/// maxima side by side: no chain of dependent comparisons, so the compiler vectorises it.
+#[inline(always)]
+fn largest(values: &[f64]) -> f64 {
+    let more = |m: f64, v: f64| if v > m { v } else { m };
+    let mut m = [f64::NEG_INFINITY; 4];
+    let (quads, rest) = values.as_chunks::<4>();
+    for q in quads {
+        m = [
+            more(m[0], q[0]),
+            more(m[1], q[1]),
+            more(m[2], q[2]),
+            more(m[3], q[3]),
+        ];
+    }
+    rest.iter()
+        .fold(more(more(m[0], m[1]), more(m[2], m[3])), |m, &v| more(m, v))
+}
+
 twice_for_avx2! {
     /// The first of the largest of `gain` and where it is (−∞ when every point is −∞)
     /// (compiled for AVX2 too, like [`point_gains`]).
@@ -3176,25 +3183,12 @@ twice_for_avx2! {
 /// [`first_best`]'s loop, inlined into each of its builds.
 #[inline(always)]
 fn first_best_plain(gain: &[f64]) -> (usize, f64) {
-    // The largest in four running maxima side by side (no chain of dependent comparisons,
-    // so the compiler vectorises it), then the first place holding it, four places compared
-    // at a time: the place and value of a loop keeping the first larger one (a NaN is never
+    // The largest ([`largest`]), then the first place holding it, four places compared at
+    // a time: the place and value of a loop keeping the first larger one (a NaN is never
     // larger, and −0 equals 0). Finding the place four at a time: 68.9 -> 67.0 M
     // instructions a forest tree (`grow_bench 40000 4`).
-    let more = |m: f64, v: f64| if v > m { v } else { m };
-    let mut m = [f64::NEG_INFINITY; 4];
+    let g = largest(gain);
     let (quads, rest) = gain.as_chunks::<4>();
-    for q in quads {
-        m = [
-            more(m[0], q[0]),
-            more(m[1], q[1]),
-            more(m[2], q[2]),
-            more(m[3], q[3]),
-        ];
-    }
-    let g = rest
-        .iter()
-        .fold(more(more(m[0], m[1]), more(m[2], m[3])), |m, &v| more(m, v));
     if g == f64::NEG_INFINITY {
         return (0, f64::NEG_INFINITY);
     }
