@@ -11,7 +11,9 @@ use spinney_core::design::Outcome;
 use spinney_core::fit::FitOptions;
 use spinney_core::progress::Progress;
 use spinney_core::validate::{
-    self, warnings::warnings, FoldJob, FoldRun, Plan, Scheme, Validation,
+    self,
+    warnings::{judged_warnings, warnings},
+    FoldJob, FoldRun, Plan, Scheme, Validation,
 };
 
 use crate::fit::{prepare, threaded_forests, Bar, Choice, Prepared};
@@ -257,9 +259,10 @@ fn run_evaluation(args: &EvaluateArgs) -> anyhow::Result<Evaluated> {
         resamples: args.resamples,
         baseline: args.baseline,
     };
-    let warnings = warnings(&prepared.design, &plan.scheme, Some(&prepared.table));
+    let mut warnings = warnings(&prepared.design, &plan.scheme, Some(&prepared.table));
     let start = std::time::Instant::now();
     let validation = evaluate_prepared(&prepared, &plan, args.threads)?;
+    warnings.extend(judged_warnings(&validation));
     Ok(Evaluated {
         prepared,
         validation,
@@ -325,7 +328,7 @@ pub fn report_json(args: &EvaluateArgs, e: &Evaluated) -> serde_json::Value {
         "residuals": v.model.residuals,
         "curves": curves,
         "apparent": v.apparent.as_ref().map(|a| serde_json::json!({
-            "figures": a, "optimism": v.optimism,
+            "figures": a, "optimism": v.optimism, "left_out": v.left_out,
             "note": "apparent: a fit on all rows judged on those same rows; not a validation",
         })),
         "baseline": v.baseline.as_ref().map(|b| serde_json::json!({
@@ -473,6 +476,17 @@ fn print_report(args: &EvaluateArgs, e: &Evaluated) {
             .collect();
         println!(
             "  apparent (training rows, not a validation): {}",
+            shown.join(", ")
+        );
+    }
+    if let Some(l) = &v.left_out {
+        let shown: Vec<String> = l
+            .iter()
+            .filter(|(n, _)| matches!(n.as_str(), "auc" | "brier" | "rmse" | "accuracy"))
+            .map(|(n, x)| format!("{n} {:.3}", x.value))
+            .collect();
+        println!(
+            "  rows each refit left out, before the correction: {}",
             shown.join(", ")
         );
     }

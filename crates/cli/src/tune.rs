@@ -7,7 +7,7 @@ use spinney_core::progress::Progress;
 use spinney_core::validate::tune::{
     default_metric, grid, random_candidates, tune, Axis, Runners, Space,
 };
-use spinney_core::validate::{FoldJob, Plan};
+use spinney_core::validate::{warnings::Warning, FoldJob, Plan};
 
 use crate::evaluate::{available_threads, run_fits, scheme_and_group, spread_jobs, CAUTION};
 use crate::fit::{prepare, Bar, Choice};
@@ -196,10 +196,25 @@ pub fn tune_command(args: TuneArgs) -> anyhow::Result<()> {
             .map(|(n, v)| format!("{n}={v}"))
             .collect();
         println!(
-            "  {} {:.4}  {}",
+            "  {}{} {:.4}  {}",
             if i == tuned.best { "*" } else { " " },
+            if row.warnings.is_empty() { " " } else { "!" },
             row.score,
             s.join(" ")
+        );
+    }
+    let doubted: Vec<&Warning> = tuned.table.iter().flat_map(|r| &r.warnings).collect();
+    if let Some(first) = doubted.first() {
+        println!(
+            "  (! {} of {} candidates' scores in doubt, ranking models that overfit first; \
+             the first: {})",
+            tuned
+                .table
+                .iter()
+                .filter(|r| !r.warnings.is_empty())
+                .count(),
+            tuned.table.len(),
+            first.message
         );
     }
     println!(

@@ -80,6 +80,10 @@ pub struct Scored {
     pub score: f64,
     /// Every point figure of the pooled predictions.
     pub figures: Figures,
+    /// What the validation's results call into doubt ([`super::warnings::judged_warnings`]:
+    /// a bootstrap-corrected score far above the left-out rows', which would rank models
+    /// that overfit first).
+    pub warnings: Vec<super::warnings::Warning>,
 }
 
 /// One outer fold of nested cross-validation.
@@ -191,6 +195,7 @@ fn search(
             settings: c.clone(),
             score: figures.get(metric).copied().unwrap_or(f64::NAN),
             figures,
+            warnings: super::warnings::judged_warnings(&v),
         })
     };
     let table = match runners.spread {

@@ -26,6 +26,12 @@ pub const LOW_EVENTS_PER_PREDICTOR: f64 = 10.0;
 /// Share of the smallest class below which accuracy misleads (common practice, no source).
 pub const IMBALANCE_SHARE: f64 = 0.2;
 
+/// How much more favourable than the left-out rows' own figure a bootstrap optimism-corrected
+/// headline figure (AUC, R², accuracy: 0–1 scales) may be before the correction is called
+/// into doubt, when it also lies outside that figure's 95% interval (two points; common
+/// practice, no source).
+pub const OPTIMISM_GAP: f64 = 0.02;
+
 /// One warning: a short machine name and the sentence a user reads.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
 pub struct Warning {
@@ -214,6 +220,56 @@ fn parameters(design: &Design) -> usize {
             }
         })
         .sum()
+}
+
+/// Warnings that only the validation's results can give: a bootstrap optimism correction
+/// whose headline figure (AUC for two classes, the macro AUC for several, R² for numbers)
+/// is more than [`OPTIMISM_GAP`] above, and outside the 95% interval of, the figure of the
+/// rows each refit left out. A model that fits its training rows almost perfectly (a random
+/// forest, bagging, a fully grown tree, long boosting) scores almost as well on the 63% of
+/// the original rows each refit was trained on, so the mean optimism comes out small and the
+/// corrected figure too good (Efron & Tibshirani 1997 built the .632+ bootstrap for such
+/// rules, from memory).
+pub fn judged_warnings(v: &super::Validation) -> Vec<Warning> {
+    let Some(left_out) = &v.left_out else {
+        return Vec::new();
+    };
+    let headline = [
+        ("auc", "AUC"),
+        ("macro_auc", "macro AUC"),
+        ("r_squared", "R²"),
+    ]
+    .into_iter()
+    .find_map(|(name, words)| Some((words, v.model.metrics.get(name)?, left_out.get(name)?, name)));
+    let Some((words, corrected, rows, name)) = headline else {
+        return Vec::new();
+    };
+    let outside = rows.high.is_none_or(|high| corrected.value > high);
+    if !(corrected.value - rows.value > OPTIMISM_GAP && outside) {
+        return Vec::new();
+    }
+    let interval = match (rows.low, rows.high) {
+        (Some(low), Some(high)) => format!(" (95% interval {low:.3} to {high:.3})"),
+        _ => String::new(),
+    };
+    let apparent = v
+        .apparent
+        .as_ref()
+        .and_then(|a| a.get(name))
+        .map(|a| format!(" ({a:.3} on them)"))
+        .unwrap_or_default();
+    vec![warn(
+        "optimism_understated",
+        format!(
+            "the bootstrap optimism correction gives {words} {:.3}, but the rows each refit \
+             left out score {:.3}{interval}: the model fits the rows it is trained on so \
+             closely{apparent} that the correction understates its optimism, as it does for \
+             random forests, bagging, fully grown trees and long boosting; the truth likely \
+             lies between the two. Judge this model by cross-validation (folds:K) or \
+             out-of-bag rows instead",
+            corrected.value, rows.value
+        ),
+    )]
 }
 
 /// Every warning for validating `design` by `scheme`. `table` (the file the design came

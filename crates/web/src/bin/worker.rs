@@ -851,7 +851,13 @@ fn scheme_words(scheme: &Scheme) -> String {
 const JUDGING_RESAMPLES: usize = 500;
 
 /// The page's view of a validation.
-fn run_validation(v: &Validation, scheme: &Scheme, warnings: Vec<String>) -> RunValidation {
+/// `warnings`, those about the data, are followed by those only the results can give.
+fn run_validation(v: &Validation, scheme: &Scheme, mut warnings: Vec<String>) -> RunValidation {
+    warnings.extend(
+        validate::warnings::judged_warnings(v)
+            .into_iter()
+            .map(|w| w.message),
+    );
     let figures = |j: &Judged| -> Vec<Figure> {
         j.metrics
             .iter()
