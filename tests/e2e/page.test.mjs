@@ -343,6 +343,21 @@ try {
     await page.screenshot({ path: join(out, 'runs-stale.png'), fullPage: true });
   });
 
+  await check('a forest judged by the bootstrap optimism correction is called into doubt beside its left-out records', async () => {
+    // Harrell's correction understates a forest's optimism (it fits its training records
+    // almost perfectly); the comparison step's warnings say so, with both figures.
+    await page.check('input[name=method][value=forest]');
+    await page.fill('#set-trees', '10');
+    await page.selectOption('#judging', 'bootstrap:100');
+    await page.click('#run-start');
+    await page.waitForSelector('#step-runs[data-runs="7"]', { timeout: 120000 });
+    await page.waitForFunction(() => /optimism correction gives AUC/.test(document.querySelector('#compare-warnings')?.textContent ?? ''), null, { timeout: 120000 });
+    const said = await page.textContent('#compare-warnings');
+    const m = said.match(/gives AUC (0\.\d+), but the rows each refit left out score (0\.\d+)/);
+    expect(m && Number(m[1]) > Number(m[2]) + 0.02, said);
+    expect(/cross-validation/.test(said), said);
+  });
+
   await check('a 50 MB file is read with progress while the page stays responsive', async () => {
     const header = 'a,b,c,d,e,f,g,h,group\n';
     const lines = [header];
