@@ -27,7 +27,7 @@ pub const LOW_EVENTS_PER_PREDICTOR: f64 = 10.0;
 pub const IMBALANCE_SHARE: f64 = 0.2;
 
 /// How much more favourable than the left-out rows' own figure a bootstrap optimism-corrected
-/// headline figure (AUC, R², accuracy: 0–1 scales) may be before the correction is called
+/// headline figure (AUC, macro AUC, R²) may be before the correction is called
 /// into doubt, when it also lies outside that figure's 95% interval (two points; common
 /// practice, no source).
 pub const OPTIMISM_GAP: f64 = 0.02;
