@@ -56,7 +56,7 @@ enum Command {
         #[arg(long)]
         cells: bool,
     },
-    /// Fit a model (tree, bagging, forest, AdaBoost) on every row of a file and report it.
+    /// Fit a model (tree, bagging, forest, AdaBoost, gradient boosting) on every row of a file and report it.
     Fit(fit::FitArgs),
     /// Validate a model honestly (out-of-bag, holdout, k-fold, grouped folds, bootstrap) and
     /// report its metrics with intervals beside a baseline.
