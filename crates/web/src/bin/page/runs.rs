@@ -602,7 +602,7 @@ fn judging_controls(p: &Page, method: Grown) -> String {
         })
         .collect();
     let scheme = format!(
-        "<label class=\"field\"><span class=\"name\">Judge it on</span><select id=\"judging\" aria-describedby=\"help-judging\">{list}</select><span class=\"help\" id=\"help-judging\">Records the model did not learn from give honest figures; step 4 compares the runs on them.</span></label>"
+        "<label class=\"field\"><span class=\"name\">Judge it on</span><select id=\"judging\" aria-describedby=\"help-judging\">{list}</select><span class=\"help\" id=\"help-judging\">Records the model did not learn from give honest figures; step 4 compares the runs on them. The bootstrap correction understates the optimism of a model that fits its training records closely (a forest, bagging, a fully grown tree): judge those by cross-validation or out-of-bag records; step 4 warns when the figures show it.</span></label>"
     );
     if method == Grown::Baseline {
         return scheme;
