@@ -40,7 +40,9 @@ pub struct EvaluateArgs {
     /// A setting NAME=VALUE (repeatable), as for `spinney fit`.
     #[arg(long = "set", value_name = "NAME=VALUE")]
     pub sets: Vec<String>,
-    /// oob, holdout:FRACTION, folds:K[:REPEATS], groups:K:COLUMN or bootstrap:B.
+    /// oob, holdout:FRACTION, folds:K[:REPEATS], groups:K:COLUMN or bootstrap:B (Harrell's
+    /// optimism correction; it understates the optimism of forests, bagging and fully grown
+    /// trees, and a warning says so when the figures show it).
     #[arg(long, default_value = "folds:10")]
     pub validate: String,
     /// Also fit the baseline (L2 logistic or ridge regression) on the same folds.

@@ -36,7 +36,9 @@ pub struct TuneArgs {
     /// Try only this many combinations, drawn at random (seeded).
     #[arg(long, value_name = "N")]
     pub random: Option<usize>,
-    /// oob, holdout:FRACTION, folds:K[:REPEATS], groups:K:COLUMN or bootstrap:B.
+    /// oob, holdout:FRACTION, folds:K[:REPEATS], groups:K:COLUMN or bootstrap:B (Harrell's
+    /// optimism correction; it understates the optimism of forests, bagging and fully grown
+    /// trees, and a warning says so when the figures show it).
     #[arg(long, default_value = "folds:5")]
     pub validate: String,
     /// Also estimate the tuned model honestly by nested cross-validation with K outer folds.
