@@ -470,26 +470,27 @@ fn print_report(args: &EvaluateArgs, e: &Evaluated) {
             y.j, y.threshold, args.threshold
         );
     }
-    if let Some(a) = &v.apparent {
-        let shown: Vec<String> = a
-            .iter()
+    // A few headline figures of a bootstrap's side results, on one line.
+    let headline = |figures: Vec<(&String, f64)>| -> String {
+        let shown: Vec<String> = figures
+            .into_iter()
             .filter(|(n, _)| matches!(n.as_str(), "auc" | "brier" | "rmse" | "accuracy"))
             .map(|(n, x)| format!("{n} {x:.3}"))
             .collect();
+        shown.join(", ")
+    };
+    if let Some(a) = &v.apparent {
+        let figures = a.iter().map(|(n, &x)| (n, x)).collect();
         println!(
             "  apparent (training rows, not a validation): {}",
-            shown.join(", ")
+            headline(figures)
         );
     }
     if let Some(l) = &v.left_out {
-        let shown: Vec<String> = l
-            .iter()
-            .filter(|(n, _)| matches!(n.as_str(), "auc" | "brier" | "rmse" | "accuracy"))
-            .map(|(n, x)| format!("{n} {:.3}", x.value))
-            .collect();
+        let figures = l.iter().map(|(n, e)| (n, e.value)).collect();
         println!(
             "  rows each refit left out, before the correction: {}",
-            shown.join(", ")
+            headline(figures)
         );
     }
     if let (Some(o), Some(t)) = (&v.error_by_size, &v.training_error_by_size) {

@@ -5,9 +5,9 @@
 
 use spinney_core::progress::Progress;
 use spinney_core::validate::tune::{
-    default_metric, grid, random_candidates, tune, Axis, Runners, Space,
+    default_metric, grid, random_candidates, tune, Axis, Runners, Scored, Space,
 };
-use spinney_core::validate::{warnings::Warning, FoldJob, Plan};
+use spinney_core::validate::{FoldJob, Plan};
 
 use crate::evaluate::{available_threads, run_fits, scheme_and_group, spread_jobs, CAUTION};
 use crate::fit::{prepare, Bar, Choice};
@@ -205,18 +205,18 @@ pub fn tune_command(args: TuneArgs) -> anyhow::Result<()> {
             s.join(" ")
         );
     }
-    let doubted: Vec<&Warning> = tuned.table.iter().flat_map(|r| &r.warnings).collect();
+    let doubted: Vec<&Scored> = tuned
+        .table
+        .iter()
+        .filter(|r| !r.warnings.is_empty())
+        .collect();
     if let Some(first) = doubted.first() {
         println!(
             "  (! {} of {} candidates' scores in doubt, ranking models that overfit first; \
              the first: {})",
-            tuned
-                .table
-                .iter()
-                .filter(|r| !r.warnings.is_empty())
-                .count(),
+            doubted.len(),
             tuned.table.len(),
-            first.message
+            first.warnings[0].message
         );
     }
     println!(

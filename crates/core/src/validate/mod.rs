@@ -374,8 +374,8 @@ fn predict_all(model: &Model, rows: Rows<'_>) -> Vec<f64> {
 
 /// Fits a split's training rows `train` as judging does (bins learnt from them alone) and
 /// reads its test rows `test` by that fit's bins; a cancelled (partial) fit is an error.
-/// [`run_split`] and held-out permutation importance
-/// ([`crate::explain::held_out`]) both refit through here, so they fit the same models.
+/// [`run_split`] (through [`fit_part`]) and held-out permutation importance
+/// ([`crate::explain::held_out`]) both refit this way, so they fit the same models.
 pub fn fit_training_part(
     train: Design,
     test: &Design,
@@ -383,12 +383,24 @@ pub fn fit_training_part(
     options: FitOptions<'_>,
     progress: &mut dyn Progress,
 ) -> Result<(Fitted, Records)> {
+    let fitted = fit_part(train, settings, options, progress)?;
+    let records = records_of(test, &fitted.binned.columns);
+    Ok((fitted, records))
+}
+
+/// [`fit_training_part`]'s fit alone, for a caller that reads the test rows only when it
+/// needs them ([`run_split`]: not when a forest judged them as it was fitted).
+fn fit_part(
+    train: Design,
+    settings: &FitSettings,
+    options: FitOptions<'_>,
+    progress: &mut dyn Progress,
+) -> Result<Fitted> {
     let fitted = fit_design(train, settings, None, options, progress)?;
     if fitted.model.partial {
         return Err(cancelled());
     }
-    let records = records_of(test, &fitted.binned.columns);
-    Ok((fitted, records))
+    Ok(fitted)
 }
 
 /// Fits `split`'s training rows and predicts its test rows.
@@ -416,37 +428,35 @@ pub fn run_split(
         held_out: (all_out && !bootstrap).then_some(&test),
         ..options
     };
-    let (fitted, records) = fit_training_part(train, &test, settings, options, progress)?;
+    let fitted = fit_part(train, settings, options, progress)?;
     let model = &fitted.model;
     let judged = match &model.ensemble {
         Ensemble::Forest(f) => f.judged.as_ref(),
         _ => None,
     };
-    // Otherwise walked by every member: most rows decided from half the bytes
-    // (`Records::narrow`).
-    let records = match judged {
-        Some(_) => records,
-        None => records.with_narrow_copy(),
-    };
     // The out-of-sample test rows (all but a bootstrap resample's own rows); when they are
     // every test row, a forest's predictions come from the same walk as its error by size.
-    let mut predictions = None;
-    let error_by_size = if let Some(j) = judged {
-        predictions = Some(j.predictions());
-        Some(j.curve.clone())
-    } else if all_out {
-        let (curve, staged) =
-            model.staged_errors_and_predictions(Rows::Records(&records), &test.outcome);
-        predictions = staged;
-        curve
-    } else {
-        let keep: Vec<usize> = (0..split.test.len())
-            .filter(|&i| split.out_of_sample[i])
-            .collect();
-        let held = test.select_rows(&keep);
-        model.staged_errors(Rows::Records(&records.select_rows(&keep)), &held.outcome)
+    let (error_by_size, predictions) = match judged {
+        // Judged as the trees were tallied (the fit read the test rows itself).
+        Some(j) => (Some(j.curve.clone()), j.predictions()),
+        None => {
+            // Walked by every member: most rows decided from half the bytes
+            // (`Records::narrow`).
+            let records = records_of(&test, &fitted.binned.columns).with_narrow_copy();
+            let (curve, staged) = if all_out {
+                model.staged_errors_and_predictions(Rows::Records(&records), &test.outcome)
+            } else {
+                let keep: Vec<usize> = (0..split.test.len())
+                    .filter(|&i| split.out_of_sample[i])
+                    .collect();
+                let held = test.select_rows(&keep);
+                let rows = Rows::Records(&records.select_rows(&keep));
+                (model.staged_errors(rows, &held.outcome), None)
+            };
+            let all = staged.unwrap_or_else(|| predict_all(model, Rows::Records(&records)));
+            (curve, all)
+        }
     };
-    let predictions = predictions.unwrap_or_else(|| predict_all(model, Rows::Records(&records)));
     let training_error_by_size = match (&model.ensemble, judged) {
         // No trees kept: the error tallied as they were added.
         (Ensemble::Forest(f), Some(_)) => Some(f.training_error.clone()),
