@@ -84,7 +84,8 @@ impl Default for BinSettings {
 pub enum BinRule {
     /// Bin = the number of thresholds below the value. `low[b]` and `high[b]` are the
     /// smallest and largest training values in bin `b` (a tree's threshold between two bins
-    /// is placed midway between the values on either side, as sort-based CART does).
+    /// is placed midway between the node's values on either side, as sort-based CART does,
+    /// or in the nearest gap between bins' values when that point lies inside one).
     Numbers {
         thresholds: Vec<f64>,
         low: Vec<f64>,

@@ -1056,17 +1056,35 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             };
             // The threshold on values, and the highest bin whose training values all lie at
             // or below it (bins the node's rows left empty count too), so training rows
-            // outside the node (out-of-bag rows) take the side their values say.
+            // outside the node (out-of-bag rows, walked by their bins) take the side their
+            // values say. The threshold is midway between the node's two values around the
+            // split, as sort-based CART places it; when that falls inside the range of a bin
+            // the node's rows left empty (its smallest training value at or below, its
+            // largest above), it moves to the nearer gap between that bin's values and its
+            // neighbours', where no training value lies on the other side of it than its bin.
             let (threshold, last) = match split.next_bin {
                 Some(r) => {
-                    let (a, b) = (high[split.threshold_bin], low[r]);
-                    let t = a / 2.0 + b / 2.0;
-                    let t = if t == b || t.is_infinite() { a } else { t };
-                    let mut last = split.threshold_bin;
-                    while last + 1 < r && high[last + 1] <= t {
-                        last += 1;
+                    let (tb, next) = (split.threshold_bin, r);
+                    let highest_left = |t: f64| {
+                        let mut last = tb;
+                        while last + 1 < next && high[last + 1] <= t {
+                            last += 1;
+                        }
+                        last
+                    };
+                    let t = midway(high[tb], low[next]);
+                    let last = highest_left(t);
+                    let m = last + 1;
+                    if m < next && low[m] <= t {
+                        // Bins are in order of value, and empty ones hold (∞, −∞).
+                        let below = high[tb..m].iter().fold(high[tb], |a, &h| a.max(h));
+                        let above = (m + 1..=next).map(|k| low[k]).fold(low[next], f64::min);
+                        let (down, up) = (midway(below, low[m]), midway(high[m], above));
+                        let t = if t - down <= up - t { down } else { up };
+                        (t, highest_left(t))
+                    } else {
+                        (t, last)
                     }
-                    (t, last)
                 }
                 // No present value on the right (only missing values go there): every
                 // number goes left.
@@ -1079,6 +1097,17 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             node.threshold_bin = last as u16;
         }
         k
+    }
+}
+
+/// A threshold between two values `a < b` taken as numbers: their midpoint, or `a` where the
+/// midpoint rounds to `b` or overflows, so `a` goes left and `b` right.
+fn midway(a: f64, b: f64) -> f64 {
+    let t = a / 2.0 + b / 2.0;
+    if t == b || t.is_infinite() {
+        a
+    } else {
+        t
     }
 }
 
