@@ -187,17 +187,18 @@ pub fn fit_design(
             Ensemble::Tree(prune(full, settings.pruning))
         }
         Method::Bagging | Method::Forest => {
-            // Held-out rows read by this fit's bins, with a single-precision copy for the
-            // walks (`Records::with_narrow_copy`).
+            // Held-out rows read by this fit's bins, walked by their bins where that is
+            // exact, else by value (`binning::bin_records`).
+            let wide = matches!(binned.cells, crate::binning::Cells::Wide(_));
             let records = options.held_out.map(|d| {
-                (
-                    crate::validate::records_of(d, &binned.columns).with_narrow_copy(),
-                    d,
-                )
+                let r = crate::validate::records_of(d, &binned.columns);
+                let b = crate::binning::bin_records(&r, &binned.columns, wide);
+                (r, b, d)
             });
-            let held = records.as_ref().map(|(r, d)| HeldOut {
+            let held = records.as_ref().map(|(r, b, d)| HeldOut {
                 rows: Rows::Records(r),
                 outcome: &d.outcome,
+                bins: Some(b),
             });
             let (outcome, forest) = (&design.outcome, &settings.forest);
             Ensemble::Forest(match options.forest_fitter {

@@ -6,7 +6,7 @@
 
 use std::ops::Range;
 
-use crate::binning::BinnedMatrix;
+use crate::binning::{BinnedMatrix, BinnedRows};
 use crate::design::Outcome;
 use crate::progress::{Flow, Progress, Silent};
 use crate::random::{below, stream, Purpose};
@@ -221,6 +221,10 @@ pub struct Forest {
 pub struct HeldOut<'a> {
     pub rows: Rows<'a>,
     pub outcome: &'a Outcome,
+    /// The same rows read by the fit's bins ([`crate::binning::bin_records`]), when made:
+    /// those within their bins' training values walked by their bins (a byte a value, and
+    /// the walk the out-of-bag rows take), the others by value; the same leaves as `rows`.
+    pub bins: Option<&'a BinnedRows>,
 }
 
 /// What judging held-out rows tree by tree gives: the numbers
@@ -349,7 +353,10 @@ impl OobTally {
             .filter(|&r| matches!(leaves[r as usize], OUT_OF_BAG | IN_BAG))
             .collect();
         let mut walked = vec![0; unknown.len()];
-        walk::leaves(
+        // Built once for the out-of-bag rows and held-out rows walked by their bins.
+        let by_bins = walk::Walk::new(&tree, true);
+        walk::leaves_by(
+            by_bins.as_ref(),
             &tree,
             Rows::Binned(binned),
             |i| unknown[i] as usize,
@@ -411,7 +418,7 @@ impl OobTally {
             judged => err / judged as f64,
         });
         match held {
-            Some(held) => self.judge::<K>(&tree, &values, held),
+            Some(held) => self.judge::<K>(&tree, by_bins.as_ref(), &values, held),
             None => self.trees.push(tree),
         }
     }
@@ -419,7 +426,13 @@ impl OobTally {
     /// The held-out rows' sums and error after this tree (the `t`-th, from 0), as
     /// [`crate::model::Model::staged_errors_and_predictions`] makes them: each row's leaf
     /// values (`values`, by node) added to its sums, the error summed in row order.
-    fn judge<const K: usize>(&mut self, tree: &Tree, values: &[f64], held: HeldOut<'_>) {
+    fn judge<const K: usize>(
+        &mut self,
+        tree: &Tree,
+        by_bins: Option<&walk::Walk>,
+        values: &[f64],
+        held: HeldOut<'_>,
+    ) {
         let outputs = if K > 0 { K } else { self.outputs };
         let n = held.rows.len();
         let t = self.oob_error.len() - 1;
@@ -428,7 +441,22 @@ impl OobTally {
             sums: vec![0.0; n * outputs],
         });
         let mut at = vec![0; n];
-        walk::leaves(tree, held.rows, |i| i, &mut at);
+        match held.bins {
+            Some(bins) => {
+                let mut part = vec![0; bins.within_rows.len().max(bins.beyond_rows.len())];
+                let within = &mut part[..bins.within_rows.len()];
+                walk::leaves_by(by_bins, tree, Rows::Binned(&bins.within), |i| i, within);
+                for (&r, &leaf) in bins.within_rows.iter().zip(&*within) {
+                    at[r as usize] = leaf;
+                }
+                let beyond = &mut part[..bins.beyond_rows.len()];
+                walk::leaves(tree, Rows::Records(&bins.beyond), |i| i, beyond);
+                for (&r, &leaf) in bins.beyond_rows.iter().zip(&*beyond) {
+                    at[r as usize] = leaf;
+                }
+            }
+            None => walk::leaves(tree, held.rows, |i| i, &mut at),
+        }
         let mut err = 0.0;
         for (r, &leaf) in at.iter().enumerate() {
             let p = &values[leaf as usize * outputs..][..outputs];
@@ -574,7 +602,8 @@ mod tests {
         // forest kept whole and judged afterwards (our own consistency rule, no source
         // needed): the same error by size and predictions to the bit, the same out-of-bag
         // and training records; two classes and a number outcome, records with a
-        // single-precision copy and without.
+        // single-precision copy and without, and walked by their bins where they lie
+        // within a bin's training values.
         use crate::binning::Records;
         use crate::model::{Ensemble, Method, Model};
         let (m, y, stats) = noisy_problem();
@@ -600,6 +629,9 @@ mod tests {
             .collect();
         let records = Records::from_columns(m.rows, values);
         let narrow = records.clone().with_narrow_copy();
+        let bins = crate::binning::bin_records(&narrow, &m.columns, false);
+        // Both kinds of rows are there: within their bins' training values, and not.
+        assert!(bins.within_rows.len() > 100 && bins.beyond_rows.len() > 100);
         let cases = [(false, &y, &stats[..]), (true, &numbers, &number_stats[..])];
         for (regression, outcome, stats) in cases {
             let width = 2;
@@ -610,10 +642,11 @@ mod tests {
             s.trees = 12;
             let kept = fit_forest(&m, stats, width, outcome, &s, &mut Silent);
             assert!(kept.judged.is_none() && kept.trees.len() == 12);
-            for rows in [&records, &narrow] {
+            for (rows, bins) in [(&records, None), (&narrow, None), (&narrow, Some(&bins))] {
                 let held = HeldOut {
                     rows: Rows::Records(rows),
                     outcome,
+                    bins,
                 };
                 let judging =
                     fit_forest_judging(&m, stats, width, outcome, &s, Some(held), &mut Silent);

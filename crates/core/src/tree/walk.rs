@@ -12,14 +12,15 @@
 //! on `grow_bench`'s forest (85 against 110 M for 4 trees × 40,000 rows) and takes about 35
 //! against 60 ns a row and tree.
 //!
-//! Records with a single-precision copy ([`crate::binning::Records::with_narrow_copy`]:
-//! validation's held-out rows, walked by every tree of every fold) are routed from the copy,
-//! half the bytes: a copy below the threshold's own rounding is of a number below the
-//! threshold, one above it of a number above (rounding keeps order), and only a row whose copy
-//! equals it is read in full. The same leaves to the bit, tested on numbers at and around
-//! every threshold. Held-out records of 10,000 rows × 30 are 2.4 MB, beyond a core's 2 MB
-//! second-level cache, their copy 1.2 MB: the held-out walk's share of a 100-tree 5-fold CV
-//! fell from 6.9% to 6.3% (`perf`).
+//! Records with a single-precision copy ([`crate::binning::Records::with_narrow_copy`]) are
+//! routed from the copy, half the bytes: a copy below the threshold's own rounding is of a
+//! number below the threshold, one above it of a number above (rounding keeps order), and
+//! only a row whose copy equals it is read in full. The same leaves to the bit, tested on
+//! numbers at and around every threshold. Validation's held-out rows, walked by every tree of
+//! every fold, go further ([`crate::binning::bin_records`]): the rows whose every number lies
+//! within its bin's training values are walked by their bins (a byte a value; 10,000 rows ×
+//! 30 numbers are 2.4 MB, beyond a core's 2 MB second-level cache), the others (about one in
+//! six) from such a copy, each part laid out on its own.
 
 use super::{BinSet, Rows, Tree};
 use crate::binning::{Bin, Cells};
