@@ -379,43 +379,54 @@ pub struct BinnedRows {
 /// rows a new value falls between two bins' values about one time in 160, so about one row
 /// in six of 30 predictors is walked by value.
 pub fn bin_records(records: &Records, columns: &[BinnedColumn], wide: bool) -> BinnedRows {
-    let n = records.rows;
-    let column = |j: usize| &records.values[j * n..(j + 1) * n];
-    let mut within = vec![true; n];
-    for (j, c) in columns.iter().enumerate() {
-        if let BinRule::Numbers { low, high, .. } = &c.rule {
-            for (w, &x) in within.iter_mut().zip(column(j)) {
-                if let Some(b) = c.rule.bin_of_number(x) {
-                    *w &= low[b] <= x && x <= high[b];
+    fn split<B: Bin>(records: &Records, columns: &[BinnedColumn]) -> (Vec<B>, Vec<u32>, Vec<u32>) {
+        let n = records.rows;
+        // Every row's bins (column after column), and whether each number lies within its
+        // bin's training values, in one pass.
+        let mut cells = Vec::with_capacity(n * columns.len());
+        let mut within = vec![true; n];
+        for (j, c) in columns.iter().enumerate() {
+            let values = &records.values[j * n..(j + 1) * n];
+            match &c.rule {
+                BinRule::Numbers { low, high, .. } => {
+                    for (w, &x) in within.iter_mut().zip(values) {
+                        let b = c.rule.bin_of_number(x);
+                        if let Some(b) = b {
+                            *w &= low[b] <= x && x <= high[b];
+                        }
+                        cells.push(B::from_bin(b));
+                    }
                 }
+                BinRule::Levels { .. } => cells.extend(
+                    values
+                        .iter()
+                        .map(|&v| B::from_bin((!v.is_nan()).then_some(v as usize))),
+                ),
             }
         }
-    }
-    let (mut within_rows, mut beyond_rows) = (Vec::new(), Vec::new());
-    for (r, &w) in within.iter().enumerate() {
-        match w {
-            true => within_rows.push(r as u32),
-            false => beyond_rows.push(r as u32),
+        let (mut inside, mut beyond) = (Vec::new(), Vec::new());
+        for (r, &w) in within.iter().enumerate() {
+            match w {
+                true => inside.push(r as u32),
+                false => beyond.push(r as u32),
+            }
         }
+        // The rows within, each column's cells of them side by side.
+        let (cells, inside_rows) = (&cells, &inside);
+        let kept = (0..columns.len())
+            .flat_map(|j| inside_rows.iter().map(move |&r| cells[j * n + r as usize]))
+            .collect();
+        (kept, inside, beyond)
     }
-    fn fill<B: Bin>(column: impl Fn(usize) -> Vec<f64>, columns: &[BinnedColumn]) -> Vec<B> {
-        let mut cells = Vec::new();
-        for (j, c) in columns.iter().enumerate() {
-            let bin = |x: f64| match &c.rule {
-                BinRule::Numbers { .. } => c.rule.bin_of_number(x),
-                BinRule::Levels { .. } => (!x.is_nan()).then_some(x as usize),
-            };
-            cells.extend(column(j).into_iter().map(|x| B::from_bin(bin(x))));
+    let (cells, within_rows, beyond_rows) = match wide {
+        true => {
+            let (c, w, b) = split::<u16>(records, columns);
+            (Cells::Wide(c), w, b)
         }
-        cells
-    }
-    let picked = |j: usize| -> Vec<f64> {
-        let values = column(j);
-        within_rows.iter().map(|&r| values[r as usize]).collect()
-    };
-    let cells = match wide {
-        true => Cells::Wide(fill(picked, columns)),
-        false => Cells::Narrow(fill(picked, columns)),
+        false => {
+            let (c, w, b) = split::<u8>(records, columns);
+            (Cells::Narrow(c), w, b)
+        }
     };
     let beyond: Vec<usize> = beyond_rows.iter().map(|&r| r as usize).collect();
     BinnedRows {

@@ -1050,7 +1050,11 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
         node.gain = split.gain;
         node.categories = Node::boxed_bins(split.categories);
         if split.numeric {
-            let BinRule::Numbers { low, high, .. } = &self.binned.columns[split.feature].rule
+            let BinRule::Numbers {
+                thresholds,
+                low,
+                high,
+            } = &self.binned.columns[split.feature].rule
             else {
                 unreachable!("a number split is on a number column")
             };
@@ -1062,11 +1066,16 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             // the node's rows left empty (its smallest training value at or below, its
             // largest above), it moves to the nearer gap between that bin's values and its
             // neighbours', where no training value lies on the other side of it than its bin.
+            // Bins hold values in order, and empty ones hold (∞, −∞).
             let (threshold, last) = match split.next_bin {
                 Some(r) => {
                     let (tb, next) = (split.threshold_bin, r);
                     let highest_left = |t: f64| {
-                        let mut last = tb;
+                        // Every bin below `t`'s own (by the thresholds, which put it from `tb`
+                        // to `next`) lies below `t`; from there, bins while their values do
+                        // (`t`'s own, empty ones after it).
+                        let own = tb + thresholds[tb..next].partition_point(|&x| x < t);
+                        let mut last = own.saturating_sub(1).clamp(tb, next - 1);
                         while last + 1 < next && high[last + 1] <= t {
                             last += 1;
                         }
@@ -1076,9 +1085,11 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                     let last = highest_left(t);
                     let m = last + 1;
                     if m < next && low[m] <= t {
-                        // Bins are in order of value, and empty ones hold (∞, −∞).
-                        let below = high[tb..m].iter().fold(high[tb], |a, &h| a.max(h));
-                        let above = (m + 1..=next).map(|k| low[k]).fold(low[next], f64::min);
+                        // The largest value below bin `m`, the smallest above it.
+                        let below = (tb..m).rev().map(|k| high[k]).find(|h| h.is_finite());
+                        let above = (m + 1..=next).map(|k| low[k]).find(|l| l.is_finite());
+                        let (below, above) =
+                            (below.unwrap_or(high[tb]), above.unwrap_or(low[next]));
                         let (down, up) = (midway(below, low[m]), midway(high[m], above));
                         let t = if t - down <= up - t { down } else { up };
                         (t, highest_left(t))
