@@ -293,6 +293,16 @@ pub(crate) fn forest_from_csv_with(
     text: &str,
     sets: &[(String, String)],
 ) -> (crate::data::Table, Fitted) {
+    model_from_csv(text, Method::Forest, sets)
+}
+
+/// [`forest_from_csv_with`] for any method.
+#[cfg(test)]
+pub(crate) fn model_from_csv(
+    text: &str,
+    method: Method,
+    sets: &[(String, String)],
+) -> (crate::data::Table, Fitted) {
     use crate::data::{read_table, ReadOptions};
     use crate::design::{build_design, DesignSpec};
     let table = read_table(
@@ -308,7 +318,8 @@ pub(crate) fn forest_from_csv_with(
         ..DesignSpec::default()
     };
     let design = build_design(&table, &spec).unwrap();
-    let settings = FitSettings::build(Method::Forest, 3, false, "y", sets).unwrap();
+    let regression = !matches!(design.outcome, crate::design::Outcome::Classes { .. });
+    let settings = FitSettings::build(method, 3, regression, "y", sets).unwrap();
     let fitted = fit_design(
         design,
         &settings,

@@ -295,15 +295,20 @@ impl Model {
         self.staged_sums(rows, outcome).map(|(curve, _)| curve)
     }
 
-    /// [`Model::staged_errors`] and, for bagging and forests, the predictions
-    /// [`Model::predict_rows`] gives (the staged sums divided by the number of trees: the same
-    /// additions in the same order, so the same numbers to the last digit), from one walk of
-    /// every row down every tree instead of two.
+    /// [`Model::staged_errors`] and, for bagging, forests and gradient boosting, the
+    /// predictions [`Model::predict_rows`] gives (a forest's staged sums divided by the number
+    /// of trees, boosting's last staged predictions: the same additions in the same order, so
+    /// the same numbers to the last digit), from one walk of every row down every tree
+    /// instead of two.
     pub fn staged_errors_and_predictions(
         &self,
         rows: Rows<'_>,
         outcome: &Outcome,
     ) -> (Option<Vec<f64>>, Option<Vec<f64>>) {
+        if let Ensemble::Boosting(b) = &self.ensemble {
+            let (curve, predictions) = boosting_staged(b, rows, outcome, self.outputs());
+            return (Some(curve), Some(predictions));
+        }
         let Ensemble::Forest(f) = &self.ensemble else {
             return (self.staged_errors(rows, outcome), None);
         };
@@ -336,7 +341,7 @@ impl Model {
         let n = rows.len();
         let outputs = if K > 0 { K } else { self.outputs() };
         if let Ensemble::Boosting(b) = &self.ensemble {
-            return Some((boosting_staged_errors(b, rows, outcome), Vec::new()));
+            return Some((boosting_staged(b, rows, outcome, outputs).0, Vec::new()));
         }
         let (members, voting): (Vec<(&Tree, f64)>, bool) = match &self.ensemble {
             Ensemble::Tree(_) | Ensemble::Boosting(_) => return None,
@@ -434,6 +439,21 @@ impl Model {
                 }
                 let trees = f.trees.len().max(1) as f64;
                 out.iter_mut().for_each(|o| *o /= trees);
+            }
+            Ensemble::Boosting(b) => {
+                // Every row's scores, a round at a time (each tree's rows routed together),
+                // then each row's prediction as `predict` makes it.
+                let scores = b.scores_of(rows, range, b.rounds());
+                let mut p = Vec::with_capacity(k);
+                for (s, o) in scores
+                    .chunks_exact(b.outputs.max(1))
+                    .zip(out.chunks_exact_mut(k))
+                {
+                    b.predict(s, &mut p);
+                    for (o, v) in o.iter_mut().zip(&p) {
+                        *o = *v;
+                    }
+                }
             }
             _ => {
                 for (r, o) in range.zip(out.chunks_exact_mut(k)) {
@@ -942,12 +962,20 @@ fn boosting_scores(b: &Boosting, rows: Rows<'_>, row: usize, rounds: usize) -> V
 }
 
 /// Gradient boosting's error after each round (error rate, or mean squared error of the
-/// predicted number), one pass over the rounds.
-fn boosting_staged_errors(b: &Boosting, rows: Rows<'_>, outcome: &Outcome) -> Vec<f64> {
+/// predicted number), one pass over the rounds, and the predictions after the last round
+/// (`outputs` a row, as [`Model::predict`] gives them).
+fn boosting_staged(
+    b: &Boosting,
+    rows: Rows<'_>,
+    outcome: &Outcome,
+    outputs: usize,
+) -> (Vec<f64>, Vec<f64>) {
     let n = rows.len();
     let mut scores = b.scores(rows, 0);
     let mut p = Vec::new();
     let mut curve = Vec::with_capacity(b.rounds());
+    let mut predictions = vec![0.0; n * outputs];
+    let last = b.rounds().checked_sub(1);
     for round in 0..b.rounds() {
         b.add_round(rows, round, &mut scores);
         let mut err = 0.0;
@@ -957,10 +985,30 @@ fn boosting_staged_errors(b: &Boosting, rows: Rows<'_>, outcome: &Outcome) -> Ve
                 Outcome::Classes { codes, .. } => (argmax(&p) != codes[r] as usize) as u8 as f64,
                 Outcome::Numbers(y) => (p[0] - y[r]).powi(2),
             };
+            if Some(round) == last {
+                for (o, v) in predictions[r * outputs..(r + 1) * outputs]
+                    .iter_mut()
+                    .zip(&p)
+                {
+                    *o = *v;
+                }
+            }
         }
         curve.push(err / n as f64);
     }
-    curve
+    if last.is_none() {
+        // No rounds: the initial scores' predictions.
+        for (r, s) in scores.chunks_exact(b.outputs.max(1)).enumerate() {
+            b.predict(s, &mut p);
+            for (o, v) in predictions[r * outputs..(r + 1) * outputs]
+                .iter_mut()
+                .zip(&p)
+            {
+                *o = *v;
+            }
+        }
+    }
+    (curve, predictions)
 }
 
 /// The trees' walks of a model for rows of one kind ([`Model::walks`]).
@@ -994,6 +1042,78 @@ mod tests {
         assert_eq!(bits(&predictions.unwrap()), bits(&direct));
         assert_eq!(curve, model.staged_errors(rows, outcome));
         assert_eq!(curve.map(|c| c.len()), Some(25));
+    }
+
+    #[test]
+    fn boosting_predicts_blocks_and_staged_rows_as_a_row_alone_does() {
+        // Gradient boosting's rows routed down each round's trees together, against a row
+        // alone walking them (our own consistency rule, no source needed): predictions of
+        // blocks, the last staged predictions and the staged errors, to the bit, for two
+        // and three classes and a number, on records and on the training bins.
+        use crate::design::Outcome;
+        use crate::fit::model_from_csv;
+        use crate::model::Method;
+        for outcome in ["two", "three", "number"] {
+            let mut text = String::from("y,a,b,c\n");
+            for i in 0..300u64 {
+                let (a, b) = ((i * 37) % 101, (i * 53) % 89);
+                let y = match outcome {
+                    "two" => ["p", "q"][((a + 2 * b + i % 5) % 2) as usize].to_string(),
+                    "three" => ["p", "q", "r"][((a + b + i % 7) % 3) as usize].to_string(),
+                    _ => format!("{}", a as f64 * 0.3 - b as f64 / 7.0 + (i % 5) as f64),
+                };
+                let c = match i % 9 {
+                    0 => String::new(),
+                    _ => ["k", "l", "m"][(i % 3) as usize].to_string(),
+                };
+                let (a, b) = (a as f64 / 8.0 + 3.0, 1000.0 - 2.5 * b as f64);
+                text += &format!("{y},{a},{b},{c}\n");
+            }
+            let sets = [("rounds".to_string(), "12".to_string())];
+            let (table, fitted) = model_from_csv(&text, Method::Boosting, &sets);
+            let model = &fitted.model;
+            let (records, _) = model.records(&table).unwrap();
+            let k = model.outputs();
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            for rows in [Rows::Records(&records), Rows::Binned(&fitted.binned)] {
+                let n = rows.len();
+                let mut want = vec![0.0; n * k];
+                for (r, o) in want.chunks_exact_mut(k).enumerate() {
+                    model.predict(rows, r, o);
+                }
+                let mut got = vec![0.0; n * k];
+                for start in (0..n).step_by(64) {
+                    let end = (start + 64).min(n);
+                    model.predict_rows(rows, start..end, &mut got[start * k..end * k]);
+                }
+                assert_eq!(bits(&got), bits(&want), "{outcome}");
+                let y = &fitted.design.outcome;
+                let (curve, staged) = model.staged_errors_and_predictions(rows, y);
+                assert_eq!(staged.map(|p| bits(&p)), Some(bits(&want)), "{outcome}");
+                // The curve from each row's staged predictions, one by one.
+                let rounds = 12;
+                let mut err = vec![0.0; rounds];
+                for r in 0..n {
+                    let p = model.staged_predict(rows, r);
+                    for (t, e) in err.iter_mut().enumerate() {
+                        let p = &p[t * k..(t + 1) * k];
+                        *e += match y {
+                            Outcome::Classes { codes, .. } => {
+                                (crate::ensemble::forest::argmax(p) != codes[r] as usize) as u8
+                                    as f64
+                            }
+                            Outcome::Numbers(v) => (p[0] - v[r]).powi(2),
+                        };
+                    }
+                }
+                let want_curve: Vec<f64> = err.iter().map(|e| e / n as f64).collect();
+                assert_eq!(
+                    curve.map(|c| bits(&c)),
+                    Some(bits(&want_curve)),
+                    "{outcome}"
+                );
+            }
+        }
     }
 
     #[test]

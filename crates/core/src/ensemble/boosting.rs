@@ -14,6 +14,8 @@
 //! `random::stream(seed, purpose, index)`; the progress observer sees one step per round and
 //! may cancel, which leaves the rounds fitted so far, marked partial.
 
+use std::ops::Range;
+
 use crate::binning::{BinRule, BinnedMatrix};
 use crate::design::{Design, Outcome};
 use crate::ensemble::loss::Loss;
@@ -22,7 +24,7 @@ use crate::progress::{Flow, Progress};
 use crate::random::{below, stream, Purpose};
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::{grow_rows, Constraints, GrowSettings, Grown};
-use crate::tree::{Rows, Tree};
+use crate::tree::{walk, Rows, Tree};
 
 /// Settings of gradient boosting. `grow.criterion` is set to [`Criterion::Gradient`] with
 /// `l2` by [`fit_boosting`].
@@ -131,22 +133,47 @@ impl Boosting {
 
     /// Adds round `round`'s trees to `scores` (`outputs` per row of `rows`).
     pub fn add_round(&self, rows: Rows<'_>, round: usize, scores: &mut [f64]) {
+        let mut at = vec![0; rows.len()];
+        self.add_round_of(rows, |i| i, round, scores, &mut at);
+    }
+
+    /// [`Boosting::add_round`] for rows `row(i)`, `i` in `0..at.len()` (`scores`: `outputs`
+    /// per row, in that order; `at`, room for their leaves). The rows are routed down each
+    /// tree together ([`walk::leaves`]: the leaves [`Tree::leaf`] finds row by row), each
+    /// row's scores added to in the order a row alone adds them.
+    fn add_round_of(
+        &self,
+        rows: Rows<'_>,
+        row: impl Fn(usize) -> usize + Copy,
+        round: usize,
+        scores: &mut [f64],
+        at: &mut [u32],
+    ) {
         let m = self.outputs;
         for k in 0..m {
             let tree = &self.trees[round * m + k];
-            for (r, s) in scores.chunks_exact_mut(m).enumerate() {
-                s[k] += tree.predict(rows, r)[0];
+            walk::leaves(tree, rows, row, at);
+            for (s, &leaf) in scores.chunks_exact_mut(m).zip(&*at) {
+                s[k] += tree.node_values(leaf as usize)[0];
             }
         }
     }
 
     /// Scores of every row of `rows` after `rounds` rounds (staged scores).
     pub fn scores(&self, rows: Rows<'_>, rounds: usize) -> Vec<f64> {
-        let mut s: Vec<f64> = (0..rows.len())
+        self.scores_of(rows, 0..rows.len(), rounds)
+    }
+
+    /// Scores of rows `range` of `rows` after `rounds` rounds, row after row: the numbers a
+    /// row alone gets, to the last digit.
+    pub fn scores_of(&self, rows: Rows<'_>, range: Range<usize>, rounds: usize) -> Vec<f64> {
+        let mut s: Vec<f64> = range
+            .clone()
             .flat_map(|_| self.initial.iter().copied())
             .collect();
+        let mut at = vec![0; range.len()];
         for round in 0..rounds.min(self.rounds()) {
-            self.add_round(rows, round, &mut s);
+            self.add_round_of(rows, |i| range.start + i, round, &mut s, &mut at);
         }
         s
     }
