@@ -295,19 +295,35 @@ impl Model {
         self.staged_sums(rows, outcome).map(|(curve, _)| curve)
     }
 
-    /// [`Model::staged_errors`] and, for bagging, forests and gradient boosting, the
-    /// predictions [`Model::predict_rows`] gives (a forest's staged sums divided by the number
-    /// of trees, boosting's last staged predictions: the same additions in the same order, so
-    /// the same numbers to the last digit), from one walk of every row down every tree
-    /// instead of two.
+    /// [`Model::staged_errors`] and, for bagging, forests, AdaBoost and gradient boosting,
+    /// the predictions [`Model::predict_rows`] gives (a forest's staged sums divided by the
+    /// number of trees, AdaBoost's last staged votes as probabilities, boosting's last staged
+    /// predictions: the same additions in the same order, so the same numbers to the last
+    /// digit), from one walk of every row down every tree instead of two.
     pub fn staged_errors_and_predictions(
         &self,
         rows: Rows<'_>,
         outcome: &Outcome,
     ) -> (Option<Vec<f64>>, Option<Vec<f64>>) {
-        if let Ensemble::Boosting(b) = &self.ensemble {
-            let (curve, predictions) = boosting_staged(b, rows, outcome, self.outputs());
-            return (Some(curve), Some(predictions));
+        match &self.ensemble {
+            Ensemble::Boosting(b) => {
+                let (curve, predictions) = boosting_staged(b, rows, outcome, self.outputs());
+                return (Some(curve), Some(predictions));
+            }
+            Ensemble::AdaBoost(a) => {
+                // The staged votes after the last tree are the votes `predict` sums, in the
+                // same order; its SAMME probabilities from them.
+                let Some((curve, votes)) = self.staged_sums(rows, outcome) else {
+                    return (None, None);
+                };
+                let (k, total) = (self.outputs(), a.alphas.iter().sum());
+                let mut out = vec![0.0; votes.len()];
+                for (v, o) in votes.chunks_exact(k).zip(out.chunks_exact_mut(k)) {
+                    samme_probabilities(v, total, o);
+                }
+                return (Some(curve), Some(out));
+            }
+            _ => {}
         }
         let Ensemble::Forest(f) = &self.ensemble else {
             return (self.staged_errors(rows, outcome), None);
@@ -1113,6 +1129,35 @@ mod tests {
                     "{outcome}"
                 );
             }
+        }
+    }
+
+    #[test]
+    fn adaboost_staged_votes_give_the_predictions_a_row_alone_gets() {
+        // (Our own consistency rule, no source needed.) Two and three classes.
+        use crate::fit::model_from_csv;
+        use crate::model::Method;
+        for labels in [&["p", "q"][..], &["p", "q", "r"][..]] {
+            let mut text = String::from("y,a,b,c\n");
+            for i in 0..300u64 {
+                let (a, b) = ((i * 37) % 101, (i * 53) % 89);
+                let y = labels[((a + 2 * b + i % 5) % labels.len() as u64) as usize];
+                text += &format!("{y},{a},{b},{}\n", ["k", "l", "m"][(i % 3) as usize]);
+            }
+            let sets = [("trees".to_string(), "15".to_string())];
+            let (table, fitted) = model_from_csv(&text, Method::AdaBoost, &sets);
+            let model = &fitted.model;
+            let (records, _) = model.records(&table).unwrap();
+            let rows = Rows::Records(&records);
+            let k = model.outputs();
+            let mut want = vec![0.0; records.rows * k];
+            for (r, o) in want.chunks_exact_mut(k).enumerate() {
+                model.predict(rows, r, o);
+            }
+            let (curve, staged) = model.staged_errors_and_predictions(rows, &fitted.design.outcome);
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(staged.map(|p| bits(&p)), Some(bits(&want)));
+            assert_eq!(curve, model.staged_errors(rows, &fitted.design.outcome));
         }
     }
 
