@@ -456,6 +456,24 @@ impl Model {
                 let trees = f.trees.len().max(1) as f64;
                 out.iter_mut().for_each(|o| *o /= trees);
             }
+            Ensemble::AdaBoost(a) => {
+                // Every row's votes, a tree at a time (its rows routed together), in the
+                // order `predict` adds them, then each row's SAMME probabilities.
+                let mut votes = vec![0.0; range.len() * k];
+                let mut at = vec![0; range.len()];
+                for (t, alpha) in a.trees.iter().zip(&a.alphas) {
+                    walk::leaves(t, rows, |i| range.start + i, &mut at);
+                    for (&leaf, v) in at.iter().zip(votes.chunks_exact_mut(k)) {
+                        if let Some(v) = v.get_mut(argmax(t.node_values(leaf as usize))) {
+                            *v += alpha;
+                        }
+                    }
+                }
+                let total = a.alphas.iter().sum();
+                for (v, o) in votes.chunks_exact(k).zip(out.chunks_exact_mut(k)) {
+                    samme_probabilities(v, total, o);
+                }
+            }
             Ensemble::Boosting(b) => {
                 // Every row's scores, a round at a time (each tree's rows routed together),
                 // then each row's prediction as `predict` makes it.
@@ -1133,7 +1151,7 @@ mod tests {
     }
 
     #[test]
-    fn adaboost_staged_votes_give_the_predictions_a_row_alone_gets() {
+    fn adaboost_staged_votes_and_blocks_give_the_predictions_a_row_alone_gets() {
         // (Our own consistency rule, no source needed.) Two and three classes.
         use crate::fit::model_from_csv;
         use crate::model::Method;
@@ -1158,6 +1176,12 @@ mod tests {
             let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
             assert_eq!(staged.map(|p| bits(&p)), Some(bits(&want)));
             assert_eq!(curve, model.staged_errors(rows, &fitted.design.outcome));
+            let mut blocks = vec![0.0; records.rows * k];
+            for start in (0..records.rows).step_by(64) {
+                let end = (start + 64).min(records.rows);
+                model.predict_rows(rows, start..end, &mut blocks[start * k..end * k]);
+            }
+            assert_eq!(bits(&blocks), bits(&want));
         }
     }
 
