@@ -392,7 +392,11 @@ pub fn bin_records(records: &Records, columns: &[BinnedColumn], wide: bool) -> B
                     for (w, &x) in within.iter_mut().zip(values) {
                         let b = c.rule.bin_of_number(x);
                         if let Some(b) = b {
-                            *w &= low[b] <= x && x <= high[b];
+                            // (A rule without its bins' values, as a model file holds it:
+                            // every row by value.)
+                            let inside = matches!((low.get(b), high.get(b)),
+                                (Some(&l), Some(&h)) if l <= x && x <= h);
+                            *w &= inside;
                         }
                         cells.push(B::from_bin(b));
                     }

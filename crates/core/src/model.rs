@@ -1008,38 +1008,29 @@ fn boosting_staged(
     let mut scores = b.scores(rows, 0);
     let mut p = Vec::new();
     let mut curve = Vec::with_capacity(b.rounds());
-    let mut predictions = vec![0.0; n * outputs];
-    let last = b.rounds().checked_sub(1);
+    let m = b.outputs.max(1);
     for round in 0..b.rounds() {
         b.add_round(rows, round, &mut scores);
         let mut err = 0.0;
-        for (r, s) in scores.chunks_exact(b.outputs.max(1)).enumerate() {
+        for (r, s) in scores.chunks_exact(m).enumerate() {
             b.predict(s, &mut p);
             err += match outcome {
                 Outcome::Classes { codes, .. } => (argmax(&p) != codes[r] as usize) as u8 as f64,
                 Outcome::Numbers(y) => (p[0] - y[r]).powi(2),
             };
-            if Some(round) == last {
-                for (o, v) in predictions[r * outputs..(r + 1) * outputs]
-                    .iter_mut()
-                    .zip(&p)
-                {
-                    *o = *v;
-                }
-            }
         }
         curve.push(err / n as f64);
     }
-    if last.is_none() {
-        // No rounds: the initial scores' predictions.
-        for (r, s) in scores.chunks_exact(b.outputs.max(1)).enumerate() {
-            b.predict(s, &mut p);
-            for (o, v) in predictions[r * outputs..(r + 1) * outputs]
-                .iter_mut()
-                .zip(&p)
-            {
-                *o = *v;
-            }
+    // The last scores' predictions, as `Model::predict` makes them.
+    let outputs = outputs.max(1);
+    let mut predictions = vec![0.0; n * outputs];
+    for (s, o) in scores
+        .chunks_exact(m)
+        .zip(predictions.chunks_exact_mut(outputs))
+    {
+        b.predict(s, &mut p);
+        for (o, v) in o.iter_mut().zip(&p) {
+            *o = *v;
         }
     }
     (curve, predictions)
