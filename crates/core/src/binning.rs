@@ -213,8 +213,16 @@ pub fn order_key(x: f64) -> i64 {
 pub fn number_thresholds(values: &[f64], max_bins: usize) -> Vec<f64> {
     let mut sorted: Vec<f64> = values.iter().copied().filter(|x| !x.is_nan()).collect();
     sort_numbers(&mut sorted);
-    let mut distinct = sorted.clone();
-    distinct.dedup();
+    // The distinct values (as `==` tells them), while there are few enough to be bins.
+    let mut distinct: Vec<f64> = Vec::with_capacity(max_bins + 1);
+    for &x in &sorted {
+        if distinct.last() != Some(&x) {
+            distinct.push(x);
+            if distinct.len() > max_bins {
+                break;
+            }
+        }
+    }
     if distinct.len() <= max_bins {
         return distinct
             .windows(2)
@@ -596,7 +604,7 @@ mod tests {
             -1.5,
         ];
         let mut state = 0x2545_F491_4F6C_DD1Du64;
-        for n in [0, 1, 2, 7, 100, 5000] {
+        for n in [0, 1, 2, 7, 100, 1023, 1024, 5000, 50_000] {
             let values: Vec<f64> = (0..n)
                 .map(|_| {
                     state ^= state << 13;
