@@ -10,7 +10,7 @@ use crate::ensemble::forest::argmax;
 use crate::progress::{Flow, Progress};
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::{grow, GrowSettings};
-use crate::tree::{Rows, Tree};
+use crate::tree::{walk, Rows, Tree};
 
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct BoostSettings {
@@ -97,6 +97,7 @@ pub fn fit_adaboost(
     let total: f64 = w.iter().sum();
     w.iter_mut().for_each(|x| *x /= total);
     let rows: Vec<u32> = (0..n as u32).collect();
+    let mut at = vec![0; n];
     let mut model = AdaBoost {
         trees: Vec::new(),
         alphas: Vec::new(),
@@ -112,8 +113,13 @@ pub fn fit_adaboost(
             stats[r * classes + codes[r] as usize] = w[r];
         }
         let tree = grow(binned, &stats, classes, &rows, &settings.grow, None);
-        let wrong: Vec<bool> = (0..n)
-            .map(|r| argmax(tree.predict_row(binned, r)) != codes[r] as usize)
+        // Every row's leaf, the rows routed down the tree together (the leaves `Tree::leaf`
+        // finds row by row).
+        walk::leaves(&tree, Rows::Binned(binned), |i| i, &mut at);
+        let wrong: Vec<bool> = at
+            .iter()
+            .zip(codes)
+            .map(|(&leaf, &c)| argmax(tree.node_values(leaf as usize)) != c as usize)
             .collect();
         let sum_w: f64 = w.iter().sum();
         let error: f64 = (0..n).filter(|&r| wrong[r]).map(|r| w[r]).sum::<f64>() / sum_w;

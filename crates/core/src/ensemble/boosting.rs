@@ -508,8 +508,17 @@ pub fn fit_boosting(
                 for &r in &sample {
                     in_sample[r as usize] = true;
                 }
-                for r in (0..n).filter(|&r| !in_sample[r]) {
-                    scores[r * m + k] += tree.predict(Rows::Binned(binned), r)[0];
+                // Routed down the tree together (the leaves `Tree::leaf` finds row by row).
+                let outside: Vec<u32> = (0..n as u32).filter(|&r| !in_sample[r as usize]).collect();
+                let mut at = vec![0; outside.len()];
+                walk::leaves(
+                    &tree,
+                    Rows::Binned(binned),
+                    |i| outside[i] as usize,
+                    &mut at,
+                );
+                for (&r, &leaf) in outside.iter().zip(&at) {
+                    scores[r as usize * m + k] += tree.node_values(leaf as usize)[0];
                 }
             }
             model.trees.push(tree);
