@@ -316,11 +316,8 @@ impl Model {
                 let Some((curve, votes)) = self.staged_sums(rows, outcome) else {
                     return (None, None);
                 };
-                let (k, total) = (self.outputs(), a.alphas.iter().sum());
                 let mut out = vec![0.0; votes.len()];
-                for (v, o) in votes.chunks_exact(k).zip(out.chunks_exact_mut(k)) {
-                    samme_probabilities(v, total, o);
-                }
+                samme_rows(a, &votes, self.outputs(), &mut out);
                 return (Some(curve), Some(out));
             }
             _ => {}
@@ -469,25 +466,12 @@ impl Model {
                         }
                     }
                 }
-                let total = a.alphas.iter().sum();
-                for (v, o) in votes.chunks_exact(k).zip(out.chunks_exact_mut(k)) {
-                    samme_probabilities(v, total, o);
-                }
+                samme_rows(a, &votes, k, out);
             }
             Ensemble::Boosting(b) => {
                 // Every row's scores, a round at a time (each tree's rows routed together),
                 // then each row's prediction as `predict` makes it.
-                let scores = b.scores_of(rows, range, b.rounds());
-                let mut p = Vec::with_capacity(k);
-                for (s, o) in scores
-                    .chunks_exact(b.outputs.max(1))
-                    .zip(out.chunks_exact_mut(k))
-                {
-                    b.predict(s, &mut p);
-                    for (o, v) in o.iter_mut().zip(&p) {
-                        *o = *v;
-                    }
-                }
+                boosting_rows(b, &b.scores_of(rows, range, b.rounds()), k, out);
             }
             _ => {
                 for (r, o) in range.zip(out.chunks_exact_mut(k)) {
@@ -1021,19 +1005,33 @@ fn boosting_staged(
         }
         curve.push(err / n as f64);
     }
-    // The last scores' predictions, as `Model::predict` makes them.
-    let outputs = outputs.max(1);
-    let mut predictions = vec![0.0; n * outputs];
+    let mut predictions = vec![0.0; n * outputs.max(1)];
+    boosting_rows(b, &scores, outputs, &mut predictions);
+    (curve, predictions)
+}
+
+/// Each row's predictions from its gradient-boosting scores (`b.outputs` a row), `k` a row
+/// into `out`, as [`Model::predict`] makes them.
+fn boosting_rows(b: &Boosting, scores: &[f64], k: usize, out: &mut [f64]) {
+    let mut p = Vec::with_capacity(k);
     for (s, o) in scores
-        .chunks_exact(m)
-        .zip(predictions.chunks_exact_mut(outputs))
+        .chunks_exact(b.outputs.max(1))
+        .zip(out.chunks_exact_mut(k.max(1)))
     {
         b.predict(s, &mut p);
         for (o, v) in o.iter_mut().zip(&p) {
             *o = *v;
         }
     }
-    (curve, predictions)
+}
+
+/// Each row's AdaBoost SAMME probabilities from its summed votes (`k` a row), into `out`, as
+/// [`Model::predict`] makes them.
+fn samme_rows(a: &AdaBoost, votes: &[f64], k: usize, out: &mut [f64]) {
+    let total = a.alphas.iter().sum();
+    for (v, o) in votes.chunks_exact(k).zip(out.chunks_exact_mut(k)) {
+        samme_probabilities(v, total, o);
+    }
 }
 
 /// The trees' walks of a model for rows of one kind ([`Model::walks`]).
@@ -1069,6 +1067,27 @@ mod tests {
         assert_eq!(curve.map(|c| c.len()), Some(25));
     }
 
+    /// Every row's predictions, each row on its own (`Model::predict`).
+    fn row_by_row(model: &super::Model, rows: Rows<'_>) -> Vec<f64> {
+        let k = model.outputs();
+        let mut out = vec![0.0; rows.len() * k];
+        for (r, o) in out.chunks_exact_mut(k).enumerate() {
+            model.predict(rows, r, o);
+        }
+        out
+    }
+
+    /// Every row's predictions, in blocks of 64 rows (`Model::predict_rows`).
+    fn in_blocks(model: &super::Model, rows: Rows<'_>) -> Vec<f64> {
+        let (k, n) = (model.outputs(), rows.len());
+        let mut out = vec![0.0; n * k];
+        for start in (0..n).step_by(64) {
+            let end = (start + 64).min(n);
+            model.predict_rows(rows, start..end, &mut out[start * k..end * k]);
+        }
+        out
+    }
+
     #[test]
     fn boosting_predicts_blocks_and_staged_rows_as_a_row_alone_does() {
         // Gradient boosting's rows routed down each round's trees together, against a row
@@ -1102,16 +1121,8 @@ mod tests {
             let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
             for rows in [Rows::Records(&records), Rows::Binned(&fitted.binned)] {
                 let n = rows.len();
-                let mut want = vec![0.0; n * k];
-                for (r, o) in want.chunks_exact_mut(k).enumerate() {
-                    model.predict(rows, r, o);
-                }
-                let mut got = vec![0.0; n * k];
-                for start in (0..n).step_by(64) {
-                    let end = (start + 64).min(n);
-                    model.predict_rows(rows, start..end, &mut got[start * k..end * k]);
-                }
-                assert_eq!(bits(&got), bits(&want), "{outcome}");
+                let want = row_by_row(model, rows);
+                assert_eq!(bits(&in_blocks(model, rows)), bits(&want), "{outcome}");
                 let y = &fitted.design.outcome;
                 let (curve, staged) = model.staged_errors_and_predictions(rows, y);
                 assert_eq!(staged.map(|p| bits(&p)), Some(bits(&want)), "{outcome}");
@@ -1158,21 +1169,12 @@ mod tests {
             let model = &fitted.model;
             let (records, _) = model.records(&table).unwrap();
             let rows = Rows::Records(&records);
-            let k = model.outputs();
-            let mut want = vec![0.0; records.rows * k];
-            for (r, o) in want.chunks_exact_mut(k).enumerate() {
-                model.predict(rows, r, o);
-            }
+            let want = row_by_row(model, rows);
             let (curve, staged) = model.staged_errors_and_predictions(rows, &fitted.design.outcome);
             let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
             assert_eq!(staged.map(|p| bits(&p)), Some(bits(&want)));
             assert_eq!(curve, model.staged_errors(rows, &fitted.design.outcome));
-            let mut blocks = vec![0.0; records.rows * k];
-            for start in (0..records.rows).step_by(64) {
-                let end = (start + 64).min(records.rows);
-                model.predict_rows(rows, start..end, &mut blocks[start * k..end * k]);
-            }
-            assert_eq!(bits(&blocks), bits(&want));
+            assert_eq!(bits(&in_blocks(model, rows)), bits(&want));
         }
     }
 
@@ -1198,10 +1200,7 @@ mod tests {
         let (records, _) = model.records(&table).unwrap();
         let rows = Rows::Records(&records);
         let k = model.outputs();
-        let mut want = vec![0.0; records.rows * k];
-        for (r, o) in want.chunks_exact_mut(k).enumerate() {
-            model.predict(rows, r, o);
-        }
+        let want = row_by_row(model, rows);
         let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
         for walks in [model.walks(rows), model.walks(Rows::Binned(&fitted.binned))] {
             let mut got = vec![0.0; records.rows * k];

@@ -557,19 +557,25 @@ mod tests {
     use crate::design::design_from_csv;
     use crate::progress::StopAfter;
 
-    fn noisy_problem() -> (BinnedMatrix, Outcome, Vec<f64>) {
+    /// `rows` rows of four numbers in [0, 1) in steps of `1 / steps`, the outcome "yes" when
+    /// the first two add up to more than 1, flipped one time in `flip`.
+    fn noisy_design(rows: usize, steps: usize, flip: usize) -> crate::design::Design {
         let mut rng = stream(99, Purpose::TreeRows, 0);
         let mut text = String::from("y,a,b,c,d\n");
-        for _ in 0..600 {
+        for _ in 0..rows {
             let x: Vec<f64> = (0..4)
-                .map(|_| below(&mut rng, 10_000) as f64 / 10_000.0)
+                .map(|_| below(&mut rng, steps) as f64 / steps as f64)
                 .collect();
             let signal = x[0] + x[1] > 1.0;
-            let flip = below(&mut rng, 10) == 0;
+            let flip = below(&mut rng, flip) == 0;
             let y = if signal != flip { "yes" } else { "no" };
             text += &format!("{y},{},{},{},{}\n", x[0], x[1], x[2], x[3]);
         }
-        let design = design_from_csv(&text, "y", &["a", "b", "c", "d"]);
+        design_from_csv(&text, "y", &["a", "b", "c", "d"])
+    }
+
+    fn noisy_problem() -> (BinnedMatrix, Outcome, Vec<f64>) {
+        let design = noisy_design(600, 10_000, 10);
         let (stats, _) = design.row_statistics(false);
         (
             bin_design(&design, BinSettings::default()).unwrap(),
@@ -826,21 +832,7 @@ mod tests {
         // midway between a node's values often fall inside a bin the node left empty. (Our
         // own consistency rule, no source; before the rule moved such thresholds, 501 of
         // these 60,000 row walks ended in another leaf.)
-        let mut rng = stream(99, Purpose::TreeRows, 0);
-        let mut text = String::from("y,a,b,c,d\n");
-        for _ in 0..3000 {
-            let x: Vec<f64> = (0..4)
-                .map(|_| below(&mut rng, 1_000_000) as f64 / 1e6)
-                .collect();
-            let flip = below(&mut rng, 4) == 0;
-            let y = if (x[0] + x[1] > 1.0) != flip {
-                "yes"
-            } else {
-                "no"
-            };
-            text += &format!("{y},{},{},{},{}\n", x[0], x[1], x[2], x[3]);
-        }
-        let design = design_from_csv(&text, "y", &["a", "b", "c", "d"]);
+        let design = noisy_design(3000, 1_000_000, 4);
         let (stats, _) = design.row_statistics(false);
         let m = bin_design(&design, BinSettings::default()).unwrap();
         let values = crate::validate::records_of(&design, &m.columns);
