@@ -14,7 +14,7 @@ use crate::data::values::yes_no_word;
 use crate::data::{Kind, Table, Values, MISSING_CODE};
 use crate::design::{Design, Outcome, PredictorValues};
 use crate::ensemble::adaboost::{AdaBoost, Stop};
-use crate::ensemble::boosting::Boosting;
+use crate::ensemble::boosting::{staged_error, Boosting};
 use crate::ensemble::forest::{argmax, Forest};
 use crate::error::{Error, ErrorKind, Result};
 use crate::tree::walk::{self, Walk};
@@ -490,6 +490,11 @@ impl Model {
                 if f.training_error.len() == f.trees.len() && !f.trees.is_empty() =>
             {
                 Some(f.training_error.clone())
+            }
+            Ensemble::Boosting(b)
+                if b.training_error.len() == b.rounds() && !b.trees.is_empty() =>
+            {
+                Some(b.training_error.clone())
             }
             _ => self.staged_errors(Rows::Binned(binned), outcome),
         }
@@ -992,18 +997,9 @@ fn boosting_staged(
     let mut scores = b.scores(rows, 0);
     let mut p = Vec::new();
     let mut curve = Vec::with_capacity(b.rounds());
-    let m = b.outputs.max(1);
     for round in 0..b.rounds() {
         b.add_round(rows, round, &mut scores);
-        let mut err = 0.0;
-        for (r, s) in scores.chunks_exact(m).enumerate() {
-            b.predict(s, &mut p);
-            err += match outcome {
-                Outcome::Classes { codes, .. } => (argmax(&p) != codes[r] as usize) as u8 as f64,
-                Outcome::Numbers(y) => (p[0] - y[r]).powi(2),
-            };
-        }
-        curve.push(err / n as f64);
+        curve.push(staged_error(b.loss, &scores, b.outputs, outcome, &mut p));
     }
     let mut predictions = vec![0.0; n * outputs.max(1)];
     boosting_rows(b, &scores, outputs, &mut predictions);
@@ -1093,11 +1089,29 @@ mod tests {
         // Gradient boosting's rows routed down each round's trees together, against a row
         // alone walking them (our own consistency rule, no source needed): predictions of
         // blocks, the last staged predictions and the staged errors, to the bit, for two
-        // and three classes and a number, on records and on the training bins.
+        // and three classes and a number, on records and on the training bins; the training
+        // error the fit tallied from its own scores (with every row a round, half of them,
+        // and early stopping) is the staged error on the training bins, to the bit.
         use crate::design::Outcome;
+        use crate::ensemble::boosting::Stopping;
         use crate::fit::model_from_csv;
-        use crate::model::Method;
-        for outcome in ["two", "three", "number"] {
+        use crate::model::{Ensemble, Method};
+        let set = |pairs: &[(&str, &str)]| -> Vec<(String, String)> {
+            pairs.iter().map(|&(k, v)| (k.into(), v.into())).collect()
+        };
+        let variants = [
+            set(&[("rounds", "12")]),
+            set(&[("rounds", "12"), ("row_fraction", "0.6")]),
+            set(&[
+                ("rounds", "60"),
+                ("learning_rate", "0.8"),
+                ("patience", "2"),
+            ]),
+        ];
+        for (outcome, sets) in ["two", "three", "number"]
+            .into_iter()
+            .flat_map(|o| variants.iter().map(move |s| (o, s)))
+        {
             let mut text = String::from("y,a,b,c\n");
             for i in 0..300u64 {
                 let (a, b) = ((i * 37) % 101, (i * 53) % 89);
@@ -1113,8 +1127,7 @@ mod tests {
                 let (a, b) = (a as f64 / 8.0 + 3.0, 1000.0 - 2.5 * b as f64);
                 text += &format!("{y},{a},{b},{c}\n");
             }
-            let sets = [("rounds".to_string(), "12".to_string())];
-            let (table, fitted) = model_from_csv(&text, Method::Boosting, &sets);
+            let (table, fitted) = model_from_csv(&text, Method::Boosting, sets);
             let model = &fitted.model;
             let (records, _) = model.records(&table).unwrap();
             let k = model.outputs();
@@ -1127,7 +1140,7 @@ mod tests {
                 let (curve, staged) = model.staged_errors_and_predictions(rows, y);
                 assert_eq!(staged.map(|p| bits(&p)), Some(bits(&want)), "{outcome}");
                 // The curve from each row's staged predictions, one by one.
-                let rounds = 12;
+                let rounds = model.members();
                 let mut err = vec![0.0; rounds];
                 for r in 0..n {
                     let p = model.staged_predict(rows, r);
@@ -1147,6 +1160,29 @@ mod tests {
                     curve.map(|c| bits(&c)),
                     Some(bits(&want_curve)),
                     "{outcome}"
+                );
+                if let Rows::Binned(binned) = rows {
+                    let Ensemble::Boosting(b) = &model.ensemble else {
+                        unreachable!()
+                    };
+                    assert_eq!(
+                        b.training_error.len(),
+                        rounds,
+                        "{outcome} {sets:?}: tallied"
+                    );
+                    let tallied = model.training_errors(binned, y).map(|c| bits(&c));
+                    assert_eq!(tallied, Some(bits(&want_curve)), "{outcome} {sets:?}");
+                }
+            }
+            if sets.iter().any(|(k, _)| k == "patience") {
+                let Ensemble::Boosting(b) = &model.ensemble else {
+                    unreachable!()
+                };
+                assert!(
+                    matches!(b.stopping, Stopping::Early { .. }),
+                    "{outcome}: {:?} after {} rounds",
+                    b.stopping,
+                    b.rounds()
                 );
             }
         }

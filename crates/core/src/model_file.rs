@@ -640,6 +640,7 @@ fn from_file(file: FileV1) -> Result<Model> {
                 training_loss: nan(b.training_loss),
                 validation_loss: nan(b.validation_loss),
                 held_out: b.held_out_rows,
+                training_error: Vec::new(),
                 stopping,
                 partial: file.partial,
             })

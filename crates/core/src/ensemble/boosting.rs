@@ -18,7 +18,8 @@ use std::ops::Range;
 
 use crate::binning::{BinRule, BinnedMatrix};
 use crate::design::{Design, Outcome};
-use crate::ensemble::loss::Loss;
+use crate::ensemble::forest::argmax;
+use crate::ensemble::loss::{logistic_gradients, Loss};
 use crate::error::{Error, ErrorKind, Result};
 use crate::progress::{Flow, Progress};
 use crate::random::{below, stream, Purpose};
@@ -108,6 +109,11 @@ pub struct Boosting {
     pub validation_loss: Vec<f64>,
     /// Rows held out for early stopping (design row order).
     pub held_out: Vec<u32>,
+    /// Error on every training row (held-out ones too) after each round kept, as
+    /// [`crate::model::Model::staged_errors`] gives it (to the last digit), tallied from the
+    /// fit's own scores as the rounds were fitted; empty when not known (a model read from a
+    /// file).
+    pub training_error: Vec<f64>,
     pub stopping: Stopping,
     /// Cancelled before the last round.
     pub partial: bool,
@@ -182,6 +188,31 @@ impl Boosting {
     pub fn predict(&self, scores: &[f64], out: &mut Vec<f64>) {
         self.loss.predict(scores, out);
     }
+}
+
+/// The error of rows whose scores after a round are `scores` (`outputs` a row, in row
+/// order) against `outcome`: the share misclassified, or the mean squared error of the
+/// predictions. The one sum behind [`Boosting::training_error`] and the staged errors of
+/// [`crate::model::Model::staged_errors`], so both give the same numbers. `p`: room for one
+/// row's predictions.
+pub fn staged_error(
+    loss: Loss,
+    scores: &[f64],
+    outputs: usize,
+    outcome: &Outcome,
+    p: &mut Vec<f64>,
+) -> f64 {
+    let mut err = 0.0;
+    let mut n = 0usize;
+    for (r, s) in scores.chunks_exact(outputs.max(1)).enumerate() {
+        loss.predict(s, p);
+        err += match outcome {
+            Outcome::Classes { codes, .. } => (argmax(p) != codes[r] as usize) as u8 as f64,
+            Outcome::Numbers(y) => (p[0] - y[r]).powi(2),
+        };
+        n += 1;
+    }
+    err / n as f64
 }
 
 /// The loss, outcome and constraints checked together; every refusal says what to change.
@@ -403,13 +434,21 @@ pub fn fit_boosting(
         training_loss: Vec::with_capacity(settings.rounds + 1),
         validation_loss: Vec::new(),
         held_out: held.clone(),
+        training_error: Vec::with_capacity(settings.rounds),
         stopping: Stopping::AllRounds,
         partial: false,
     };
     // Huber's δ for the curves: the one of the last round (at the start, of the first).
     let mut delta = loss.huber_delta(&y, &scores, weights, &fit_rows);
     let value = |s: &[f64], rows: &[u32], d: Option<f64>| loss.value(&y, s, weights, m, d, rows);
-    model.training_loss.push(value(&scores, &fit_rows, delta));
+    // Two classes: the training loss, error and next gradients from one pass (see
+    // `Loss::logistic_pass`), each row's probability kept between them.
+    let logistic = loss == Loss::Logistic;
+    let mut probs = vec![0.0; if logistic { n } else { 0 }];
+    model.training_loss.push(match logistic {
+        true => Loss::logistic_pass(&y, &scores, weights, &fit_rows, &mut probs).0,
+        false => value(&scores, &fit_rows, delta),
+    });
     if !held.is_empty() {
         model.validation_loss.push(value(&scores, &held, delta));
     }
@@ -420,6 +459,7 @@ pub fn fit_boosting(
     let mut stats = vec![0.0; 2 * n * m];
     let mut sample = fit_rows.clone();
     let mut in_sample = vec![false; if take < n { n } else { 0 }];
+    let mut predicted = Vec::with_capacity(m.max(2));
     // The lowest validation loss so far and its round (0: the starting constant).
     let mut best = (
         model.validation_loss.first().copied().unwrap_or(0.0),
@@ -444,7 +484,10 @@ pub fn fit_boosting(
         delta = loss.huber_delta(&y, &scores, weights, &sample);
         for k in 0..m {
             let out = &mut stats[2 * n * k..2 * n * (k + 1)];
-            loss.gradients(&y, &scores, weights, k, m, delta, &sample, out);
+            match logistic {
+                true => logistic_gradients(&y, &probs, weights, &sample, out),
+                false => loss.gradients(&y, &scores, weights, k, m, delta, &sample, out),
+            }
         }
         for k in 0..m {
             let index = (round * m + k) as u64;
@@ -523,7 +566,15 @@ pub fn fit_boosting(
             }
             model.trees.push(tree);
         }
-        model.training_loss.push(value(&scores, &fit_rows, delta));
+        let (training, error) = match logistic {
+            true => Loss::logistic_pass(&y, &scores, weights, &fit_rows, &mut probs),
+            false => (
+                value(&scores, &fit_rows, delta),
+                staged_error(loss, &scores, m, &design.outcome, &mut predicted),
+            ),
+        };
+        model.training_loss.push(training);
+        model.training_error.push(error);
         if !held.is_empty() {
             let v = value(&scores, &held, delta);
             model.validation_loss.push(v);
@@ -537,6 +588,7 @@ pub fn fit_boosting(
                         last: round + 1,
                     };
                     model.trees.truncate(best.1 * m);
+                    model.training_error.truncate(best.1);
                     break;
                 }
             }
@@ -619,6 +671,49 @@ mod tests {
                     assert!(b.training_loss[25] < b.training_loss[0]);
                 }
             }
+        }
+    }
+
+    #[test]
+    fn the_logistic_pass_gives_the_loss_error_and_gradients_each_alone_gives() {
+        // Our own consistency rule (no source needed): `Loss::logistic_pass` and
+        // `logistic_gradients` against `Loss::value`, `staged_error` and `Loss::gradients`, to
+        // the bit, on scores of both signs including ±0, ties at one half, tiny and huge ones
+        // (whose exponential underflows), with and without weights, the loss over a subset.
+        let mut rng = stream(4, Purpose::TreeRows, 0);
+        let mut scores = vec![
+            0.0, -0.0, 1e-300, -1e-300, 1e-17, -1e-17, 800.0, -800.0, 36.0,
+        ];
+        while scores.len() < 400 {
+            let u = below(&mut rng, 2_000_001) as f64 / 100_000.0 - 10.0;
+            scores.push(u);
+        }
+        let n = scores.len();
+        let codes: Vec<u32> = (0..n).map(|_| below(&mut rng, 2) as u32).collect();
+        let y: Vec<f64> = codes.iter().map(|&c| c as f64).collect();
+        let outcome = Outcome::Classes {
+            codes,
+            labels: vec!["no".into(), "yes".into()],
+        };
+        let weights: Vec<f64> = (0..n).map(|i| (i % 7) as f64 * 0.37).collect();
+        let some: Vec<u32> = (0..n as u32).filter(|r| r % 3 != 1).collect();
+        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        for w in [None, Some(&weights[..])] {
+            let mut probs = vec![0.0; n];
+            let (loss, error) = Loss::logistic_pass(&y, &scores, w, &some, &mut probs);
+            let want = Loss::Logistic.value(&y, &scores, w, 1, None, &some);
+            assert_eq!(
+                loss.to_bits(),
+                want.to_bits(),
+                "loss, weights {}",
+                w.is_some()
+            );
+            let want = staged_error(Loss::Logistic, &scores, 1, &outcome, &mut Vec::new());
+            assert_eq!(error.to_bits(), want.to_bits());
+            let (mut a, mut b) = (vec![0.0; 2 * n], vec![0.0; 2 * n]);
+            Loss::Logistic.gradients(&y, &scores, w, 0, 1, None, &some, &mut a);
+            logistic_gradients(&y, &probs, w, &some, &mut b);
+            assert_eq!(bits(&a), bits(&b), "gradients, weights {}", w.is_some());
         }
     }
 

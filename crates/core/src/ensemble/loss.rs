@@ -210,6 +210,41 @@ impl Loss {
         }
     }
 
+    /// Two classes under the logistic loss, after a round (scores `scores`, one a row): the
+    /// mean (weighted) loss over `rows` (ascending) as [`Loss::value`] gives it, the share of
+    /// every row misclassified as [`crate::ensemble::boosting::staged_error`] counts it, and
+    /// every row's probability as [`Loss::gradients`] computes it, kept in `probs` for the
+    /// next round's [`logistic_gradients`]: one exponential a row where the three took one
+    /// each (`e^−|x|` is the one [`sigmoid`] takes on either side of 0), the same numbers.
+    pub fn logistic_pass(
+        y: &[f64],
+        scores: &[f64],
+        w: Option<&[f64]>,
+        rows: &[u32],
+        probs: &mut [f64],
+    ) -> (f64, f64) {
+        let (mut sum, mut total, mut wrong) = (0.0, 0.0, 0.0);
+        let mut next = rows.iter().copied().peekable();
+        for (r, (&x, p)) in scores.iter().zip(probs.iter_mut()).enumerate() {
+            let e = (-x.abs()).exp();
+            *p = if x >= 0.0 {
+                1.0 / (1.0 + e)
+            } else {
+                e / (1.0 + e)
+            };
+            // Called an event when its share beats the other's (the first of equals wins).
+            wrong += (usize::from(*p > 1.0 - *p) != y[r] as usize) as u8 as f64;
+            if next.next_if_eq(&(r as u32)).is_some() {
+                let v = x.max(0.0) + e.ln_1p() - y[r] * x;
+                let wt = w.map_or(1.0, |w| w[r]);
+                sum += wt * v;
+                total += wt;
+            }
+        }
+        let loss = if total > 0.0 { sum / total } else { f64::NAN };
+        (loss, wrong / scores.len() as f64)
+    }
+
     /// The leaf value that replaces the Newton step, from the residuals `y − f` (and weights)
     /// of the rows in a leaf: their weighted median for absolute error; for Huber the median
     /// plus the mean of the residuals' clipped distances to it (Friedman 2001, algorithm 4;
@@ -264,6 +299,24 @@ fn sigmoid(x: f64) -> f64 {
     } else {
         let e = x.exp();
         e / (1.0 + e)
+    }
+}
+
+/// [`Loss::gradients`] of the logistic loss from each row's probability `probs` (kept by
+/// [`Loss::logistic_pass`] from the same scores): the same numbers without an exponential.
+pub fn logistic_gradients(
+    y: &[f64],
+    probs: &[f64],
+    w: Option<&[f64]>,
+    rows: &[u32],
+    stats: &mut [f64],
+) {
+    for &r in rows {
+        let r = r as usize;
+        let p = probs[r];
+        let wt = w.map_or(1.0, |w| w[r]);
+        stats[2 * r] = wt * (p - y[r]);
+        stats[2 * r + 1] = wt * (p * (1.0 - p));
     }
 }
 
