@@ -3290,10 +3290,14 @@ fn running_sums(
         .zip(o0.iter_mut().zip(o1.iter_mut()).zip(oc.iter_mut()));
     for (at, (n, ((o0, o1), oc))) in present.iter().zip(outs) {
         let c = at[2];
-        let present = c > 0.0;
-        s0 += if present { at[0] } else { 0.0 };
-        s1 += if present { at[1] } else { 0.0 };
-        sc += if present { c } else { 0.0 };
+        // An empty bin adds +0 (its sums may hold a subtraction's leftovers), chosen by a
+        // mask, not a branch: the compiler's branch on the bin being empty was mispredicted
+        // wherever empty and used bins alternate.
+        let keep = 0u64.wrapping_sub(u64::from(c > 0.0));
+        let pick = |x: f64| f64::from_bits(x.to_bits() & keep);
+        s0 += pick(at[0]);
+        s1 += pick(at[1]);
+        sc += pick(c);
         *n = c;
         (*o0, *o1, *oc) = (s0, s1, sc);
     }
