@@ -3,7 +3,9 @@
 cross-validation of a 300-tree random forest on generated data (ROWS x 30 numbers, a
 two-class outcome from a logistic model of 6 of them), on one thread and on every core,
 without and with bootstrap intervals of the metrics, and the largest run's peak resident
-memory; then a 60-tree forest's 5-fold CV of a number outcome on one thread. Target (tracker
+memory; then a 60-tree forest's 5-fold CV of a number outcome, and 5-fold CVs of the other
+methods (bagging, AdaBoost, gradient boosting, one tree) on the two-class data, one thread
+each (no targets: tracked, since a method no benchmark times can slow down unseen). Target (tracker
 issue 5): under 10 s on one core for 50,000 rows. Usage: bench_validation.py [ROWS] [RUNS]:
 each setting is run RUNS times (default 1), alternating, and the best and the median are
 printed, since one run on a shared machine can be 20% off either way."""
@@ -79,6 +81,20 @@ def main():
         spread = "" if runs == 1 else " (best of %d; median %.2f s)" % (runs, statistics.median(taken))
         print("number outcome, 5-fold CV, 60-tree forest, 1 thread: validation %.2f s%s; RMSE %.4f"
               % (min(taken), spread, rmse))
+        print("other methods, 5-fold CV, 1 thread, the two-class data:")
+        for method, sets in [("bagging", ["trees=30"]), ("adaboost", []), ("boosting", []), ("tree", [])]:
+            taken, auc = [], None
+            for _ in range(runs):
+                args = [BIN, "evaluate", path, "--outcome", "y", "--method", method,
+                        "--validate", "folds:5", "--threads", "1", "--resamples", "0", "--json"]
+                for s in sets:
+                    args += ["--set", s]
+                report = json.loads(subprocess.run(args, capture_output=True, text=True, check=True).stdout)
+                taken.append(report["seconds"])
+                auc = report["metrics"]["auc"]["value"]
+            spread = "" if runs == 1 else " (best of %d; median %.2f s)" % (runs, statistics.median(taken))
+            label = method + ("" if not sets else " (" + ", ".join(sets) + ")")
+            print("  %-20s validation %.2f s%s; AUC %.4f" % (label, min(taken), spread, auc))
 
 
 if __name__ == "__main__":
