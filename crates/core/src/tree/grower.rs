@@ -420,7 +420,9 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 let splittable = (self.settings.min_rows_split)
                     .max(2 * self.settings.min_rows_leaf)
                     .max(DENSE_MIN_ROWS);
-                if larger >= splittable {
+                // Children at the depth limit are leaves: their histograms would go unread.
+                let deeper = (self.settings.max_depth).is_none_or(|d| c.depth + 1 < d);
+                if larger >= splittable && deeper {
                     let small = if left_small {
                         self.dense_histograms(c.start, k)
                     } else {
