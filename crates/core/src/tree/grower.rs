@@ -370,7 +370,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
     fn run(mut self) -> Grown {
         let mut frontier: Vec<Candidate> = Vec::new();
         let n = self.work.len();
-        if let Some(c) = self.evaluate(0, 0, n, 0, FREE, None, None) {
+        if let Some(c) = self.evaluate(0, (0, n), 0, FREE, None, None, true) {
             frontier.push(c);
         }
         let mut leaves = 1usize;
@@ -393,6 +393,10 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             let c = frontier.remove(pick);
             let k = self.apply(&c);
             leaves += 1;
+            // Children at the depth limit, or made by the split that reaches the leaf limit,
+            // stay leaves: their split search and histograms would go unread.
+            let deeper = (self.settings.max_depth).is_none_or(|d| c.depth + 1 < d);
+            let grow_on = deeper && leaves < max_leaves;
             let (left, right) = (self.tree.nodes.len(), self.tree.nodes.len() + 1);
             self.tree.nodes.push(Node::leaf());
             self.tree.nodes.push(Node::leaf());
@@ -420,9 +424,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 let splittable = (self.settings.min_rows_split)
                     .max(2 * self.settings.min_rows_leaf)
                     .max(DENSE_MIN_ROWS);
-                // Children at the depth limit are leaves: their histograms would go unread.
-                let deeper = (self.settings.max_depth).is_none_or(|d| c.depth + 1 < d);
-                if larger >= splittable && deeper {
+                if larger >= splittable && grow_on {
                     let small = if left_small {
                         self.dense_histograms(c.start, k)
                     } else {
@@ -454,8 +456,8 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
                 (Some(t), Some(l)) => (Some(l), Some(t - l)),
                 _ => (None, None),
             };
-            let l = self.evaluate(left, c.start, k, c.depth + 1, lb, lh, lc);
-            let r = self.evaluate(right, k, c.end, c.depth + 1, rb, rh, rc);
+            let l = self.evaluate(left, (c.start, k), c.depth + 1, lb, lh, lc, grow_on);
+            let r = self.evaluate(right, (k, c.end), c.depth + 1, rb, rh, rc, grow_on);
             // Right pushed first so depth-first growth takes the left subtree first.
             frontier.extend(r);
             frontier.extend(l);
@@ -469,17 +471,18 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
 
     /// Fills node `id`'s values from its rows `work[start..end]` and finds its best split
     /// (`None`: the node stays a leaf). `bounds` hold the node's value (monotone constraints);
-    /// `counts`, its rows' packed counts summed, when the parent's scan knew them.
+    /// `counts`, its rows' packed counts summed, when the parent's scan knew them;
+    /// `may_split` false for a node that stays a leaf whatever it holds (its values only).
     #[allow(clippy::too_many_arguments)]
     fn evaluate(
         &mut self,
         id: usize,
-        start: usize,
-        end: usize,
+        (start, end): (usize, usize),
         depth: usize,
         bounds: (f64, f64),
         mut dense: Option<Vec<f64>>,
         counts: Option<u64>,
+        may_split: bool,
     ) -> Option<Candidate> {
         let settings = self.settings;
         let criterion = settings.criterion;
@@ -585,6 +588,7 @@ impl<'a, 'c, B: Bin> Grower<'a, 'c, B> {
             _ => parent_cost <= 1e-12 * weight.max(1.0),
         };
         if pure
+            || !may_split
             || n < settings.min_rows_split
             || n < 2 * settings.min_rows_leaf.max(1)
             || weight < 2.0 * settings.min_weight_leaf
