@@ -19,7 +19,7 @@ use std::ops::Range;
 use crate::binning::{BinRule, BinnedMatrix};
 use crate::design::{Design, Outcome};
 use crate::ensemble::forest::argmax;
-use crate::ensemble::loss::{logistic_gradients, Loss};
+use crate::ensemble::loss::{logistic_gradients, softmax_gradients, Loss};
 use crate::error::{Error, ErrorKind, Result};
 use crate::progress::{Flow, Progress};
 use crate::random::{below, stream, Purpose};
@@ -441,12 +441,16 @@ pub fn fit_boosting(
     // Huber's δ for the curves: the one of the last round (at the start, of the first).
     let mut delta = loss.huber_delta(&y, &scores, weights, &fit_rows);
     let value = |s: &[f64], rows: &[u32], d: Option<f64>| loss.value(&y, s, weights, m, d, rows);
-    // Two classes: the training loss, error and next gradients from one pass (see
-    // `Loss::logistic_pass`), each row's probability kept between them.
-    let logistic = loss == Loss::Logistic;
-    let mut probs = vec![0.0; if logistic { n } else { 0 }];
-    model.training_loss.push(match logistic {
-        true => Loss::logistic_pass(&y, &scores, weights, &fit_rows, &mut probs).0,
+    // Class losses: the training loss, error and next gradients from one pass (see
+    // `Loss::logistic_pass`, `Loss::softmax_pass`), each row's probabilities kept between.
+    let classed = matches!(loss, Loss::Logistic | Loss::Softmax);
+    let mut probs = vec![0.0; if classed { n * m } else { 0 }];
+    let class_pass = |scores: &[f64], probs: &mut [f64]| match loss {
+        Loss::Logistic => Loss::logistic_pass(&y, scores, weights, &fit_rows, probs),
+        _ => Loss::softmax_pass(&y, scores, m, weights, &fit_rows, probs),
+    };
+    model.training_loss.push(match classed {
+        true => class_pass(&scores, &mut probs).0,
         false => value(&scores, &fit_rows, delta),
     });
     if !held.is_empty() {
@@ -484,9 +488,10 @@ pub fn fit_boosting(
         delta = loss.huber_delta(&y, &scores, weights, &sample);
         for k in 0..m {
             let out = &mut stats[2 * n * k..2 * n * (k + 1)];
-            match logistic {
-                true => logistic_gradients(&y, &probs, weights, &sample, out),
-                false => loss.gradients(&y, &scores, weights, k, m, delta, &sample, out),
+            match loss {
+                Loss::Logistic => logistic_gradients(&y, &probs, weights, &sample, out),
+                Loss::Softmax => softmax_gradients(&y, &probs, (k, m), weights, &sample, out),
+                _ => loss.gradients(&y, &scores, weights, k, m, delta, &sample, out),
             }
         }
         for k in 0..m {
@@ -566,8 +571,8 @@ pub fn fit_boosting(
             }
             model.trees.push(tree);
         }
-        let (training, error) = match logistic {
-            true => Loss::logistic_pass(&y, &scores, weights, &fit_rows, &mut probs),
+        let (training, error) = match classed {
+            true => class_pass(&scores, &mut probs),
             false => (
                 value(&scores, &fit_rows, delta),
                 staged_error(loss, &scores, m, &design.outcome, &mut predicted),
@@ -714,6 +719,49 @@ mod tests {
             Loss::Logistic.gradients(&y, &scores, w, 0, 1, None, &some, &mut a);
             logistic_gradients(&y, &probs, w, &some, &mut b);
             assert_eq!(bits(&a), bits(&b), "gradients, weights {}", w.is_some());
+        }
+    }
+
+    #[test]
+    fn the_softmax_pass_gives_the_loss_error_and_gradients_each_alone_gives() {
+        // `Loss::softmax_pass` and `softmax_gradients` against `Loss::value`, `staged_error`
+        // and `Loss::gradients` (our own consistency rule, no source needed), to the bit, for
+        // three and five classes: scores with ties, equal rows, huge gaps (shares that
+        // underflow), with and without weights, the loss over a subset.
+        let mut rng = stream(6, Purpose::TreeRows, 0);
+        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        for m in [3usize, 5] {
+            let n = 300;
+            let mut scores: Vec<f64> = (0..n * m)
+                .map(|_| below(&mut rng, 2_000_001) as f64 / 100_000.0 - 10.0)
+                .collect();
+            scores[..m].fill(0.0);
+            scores[m..2 * m].fill(-3.5);
+            scores[2 * m] = 900.0;
+            scores[3 * m + 1] = -900.0;
+            scores[4 * m] = scores[4 * m + 1];
+            let codes: Vec<u32> = (0..n).map(|_| below(&mut rng, m) as u32).collect();
+            let y: Vec<f64> = codes.iter().map(|&c| c as f64).collect();
+            let outcome = Outcome::Classes {
+                codes,
+                labels: (0..m).map(|k| format!("c{k}")).collect(),
+            };
+            let weights: Vec<f64> = (0..n).map(|i| (i % 5) as f64 * 0.61).collect();
+            let some: Vec<u32> = (0..n as u32).filter(|r| r % 4 != 2).collect();
+            for w in [None, Some(&weights[..])] {
+                let mut shares = vec![0.0; n * m];
+                let (loss, error) = Loss::softmax_pass(&y, &scores, m, w, &some, &mut shares);
+                let want = Loss::Softmax.value(&y, &scores, w, m, None, &some);
+                assert_eq!(loss.to_bits(), want.to_bits(), "{m} classes");
+                let want = staged_error(Loss::Softmax, &scores, m, &outcome, &mut Vec::new());
+                assert_eq!(error.to_bits(), want.to_bits(), "{m} classes");
+                for k in 0..m {
+                    let (mut a, mut b) = (vec![0.0; 2 * n], vec![0.0; 2 * n]);
+                    Loss::Softmax.gradients(&y, &scores, w, k, m, None, &some, &mut a);
+                    softmax_gradients(&y, &shares, (k, m), w, &some, &mut b);
+                    assert_eq!(bits(&a), bits(&b), "{m} classes, output {k}");
+                }
+            }
         }
     }
 
