@@ -225,8 +225,7 @@ impl Loss {
         rows: &[u32],
         probs: &mut [f64],
     ) -> (f64, f64) {
-        let (mut sum, mut total, mut wrong) = (0.0, 0.0, 0.0);
-        let mut next = rows.iter().copied().peekable();
+        let (mut mean, mut wrong) = (RowMean::new(rows, w), 0.0);
         for (r, (&x, p)) in scores.iter().zip(probs.iter_mut()).enumerate() {
             let e = (-x.abs()).exp();
             *p = if x >= 0.0 {
@@ -236,15 +235,9 @@ impl Loss {
             };
             // Called an event when its share beats the other's (the first of equals wins).
             wrong += (usize::from(*p > 1.0 - *p) != y[r] as usize) as u8 as f64;
-            if next.next_if_eq(&(r as u32)).is_some() {
-                let v = x.max(0.0) + e.ln_1p() - y[r] * x;
-                let wt = w.map_or(1.0, |w| w[r]);
-                sum += wt * v;
-                total += wt;
-            }
+            mean.add(r, || x.max(0.0) + e.ln_1p() - y[r] * x);
         }
-        let loss = if total > 0.0 { sum / total } else { f64::NAN };
-        (loss, wrong / scores.len() as f64)
+        (mean.mean(), wrong / scores.len() as f64)
     }
 
     /// [`Loss::logistic_pass`] for several classes under the softmax loss (`m` scores a
@@ -260,8 +253,7 @@ impl Loss {
         rows: &[u32],
         shares: &mut [f64],
     ) -> (f64, f64) {
-        let (mut sum, mut total, mut wrong) = (0.0, 0.0, 0.0);
-        let mut next = rows.iter().copied().peekable();
+        let (mut mean, mut wrong) = (RowMean::new(rows, w), 0.0);
         let mut n = 0usize;
         for (r, (f, p)) in scores
             .chunks_exact(m)
@@ -275,16 +267,10 @@ impl Loss {
             let all: f64 = p.iter().sum();
             p.iter_mut().for_each(|p| *p /= all);
             wrong += (argmax(p) != y[r] as usize) as u8 as f64;
-            if next.next_if_eq(&(r as u32)).is_some() {
-                let v = -p[y[r] as usize].max(TINY).ln();
-                let wt = w.map_or(1.0, |w| w[r]);
-                sum += wt * v;
-                total += wt;
-            }
+            mean.add(r, || -p[y[r] as usize].max(TINY).ln());
             n += 1;
         }
-        let loss = if total > 0.0 { sum / total } else { f64::NAN };
-        (loss, wrong / n as f64)
+        (mean.mean(), wrong / n as f64)
     }
 
     /// The leaf value that replaces the Newton step, from the residuals `y − f` (and weights)
@@ -341,6 +327,47 @@ fn sigmoid(x: f64) -> f64 {
     } else {
         let e = x.exp();
         e / (1.0 + e)
+    }
+}
+
+/// The weighted mean of a loss over `rows` (ascending), as [`Loss::value`] sums it, for a
+/// pass that visits every row in order and adds only these ([`Loss::logistic_pass`],
+/// [`Loss::softmax_pass`]); a row's loss is computed only when it is one of them.
+struct RowMean<'a> {
+    rows: std::iter::Peekable<std::iter::Copied<std::slice::Iter<'a, u32>>>,
+    w: Option<&'a [f64]>,
+    sum: f64,
+    total: f64,
+}
+
+impl<'a> RowMean<'a> {
+    fn new(rows: &'a [u32], w: Option<&'a [f64]>) -> Self {
+        let rows = rows.iter().copied().peekable();
+        RowMean {
+            rows,
+            w,
+            sum: 0.0,
+            total: 0.0,
+        }
+    }
+
+    /// Row `r` (rows come in order) and its loss, when `r` is one of the rows.
+    #[inline(always)]
+    fn add(&mut self, r: usize, loss: impl FnOnce() -> f64) {
+        if self.rows.next_if_eq(&(r as u32)).is_some() {
+            let wt = self.w.map_or(1.0, |w| w[r]);
+            self.sum += wt * loss();
+            self.total += wt;
+        }
+    }
+
+    /// The mean (NaN without weight).
+    fn mean(&self) -> f64 {
+        if self.total > 0.0 {
+            self.sum / self.total
+        } else {
+            f64::NAN
+        }
     }
 }
 
