@@ -12,7 +12,7 @@ use crate::progress::{Flow, Progress, Silent};
 use crate::random::{below, stream, Purpose};
 use crate::tree::criterion::Criterion;
 use crate::tree::grower::{grow_rows, Constraints, GrowSettings};
-use crate::tree::{walk, Rows, Tree};
+use crate::tree::{rows_where, walk, Rows, Tree};
 
 /// Settings of a bagged ensemble.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -349,15 +349,8 @@ impl OobTally {
         }
         let value = |leaf: u32| &values[leaf as usize * outputs..][..outputs];
         // The rows whose leaves are not known, walked down the tree together.
-        // Every row written, the next place taken only by an unknown one: no branch on it
-        // (about one row in three, at random, is out of bag).
-        let mut unknown = vec![0u32; n + 1];
-        let mut k = 0;
-        for (r, &leaf) in leaves.iter().enumerate() {
-            unknown[k] = r as u32;
-            k += usize::from(matches!(leaf, OUT_OF_BAG | IN_BAG));
-        }
-        unknown.truncate(k);
+        // Listed without a branch a row (about one in three, at random, is out of bag).
+        let unknown = rows_where(n, |r| matches!(leaves[r], OUT_OF_BAG | IN_BAG));
         let mut walked = vec![0; unknown.len()];
         // Built once for the out-of-bag rows and held-out rows walked by their bins.
         let by_bins = walk::Walk::new(&tree, true);

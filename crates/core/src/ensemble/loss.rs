@@ -168,8 +168,7 @@ impl Loss {
         delta: Option<f64>,
         rows: &[u32],
     ) -> f64 {
-        let mut sum = 0.0;
-        let mut total = 0.0;
+        let mut mean = WeightedMean::default();
         for &r in rows {
             let r = r as usize;
             let f = &scores[r * outputs..(r + 1) * outputs];
@@ -201,15 +200,9 @@ impl Loss {
                 }
                 Loss::Softmax => -softmax_share(f, y[r] as usize).max(TINY).ln(),
             };
-            let wt = w.map_or(1.0, |w| w[r]);
-            sum += wt * v;
-            total += wt;
+            mean.add(w.map_or(1.0, |w| w[r]), v);
         }
-        if total > 0.0 {
-            sum / total
-        } else {
-            f64::NAN
-        }
+        mean.mean()
     }
 
     /// Two classes under the logistic loss, after a round (scores `scores`, one a row): the
@@ -330,44 +323,55 @@ fn sigmoid(x: f64) -> f64 {
     }
 }
 
-/// The weighted mean of a loss over `rows` (ascending), as [`Loss::value`] sums it, for a
-/// pass that visits every row in order and adds only these ([`Loss::logistic_pass`],
-/// [`Loss::softmax_pass`]); a row's loss is computed only when it is one of them.
-struct RowMean<'a> {
-    rows: std::iter::Peekable<std::iter::Copied<std::slice::Iter<'a, u32>>>,
-    w: Option<&'a [f64]>,
+/// A weighted mean of losses, summed in the order they are added (NaN without weight).
+#[derive(Default)]
+struct WeightedMean {
     sum: f64,
     total: f64,
 }
 
-impl<'a> RowMean<'a> {
-    fn new(rows: &'a [u32], w: Option<&'a [f64]>) -> Self {
-        let rows = rows.iter().copied().peekable();
-        RowMean {
-            rows,
-            w,
-            sum: 0.0,
-            total: 0.0,
-        }
-    }
-
-    /// Row `r` (rows come in order) and its loss, when `r` is one of the rows.
+impl WeightedMean {
     #[inline(always)]
-    fn add(&mut self, r: usize, loss: impl FnOnce() -> f64) {
-        if self.rows.next_if_eq(&(r as u32)).is_some() {
-            let wt = self.w.map_or(1.0, |w| w[r]);
-            self.sum += wt * loss();
-            self.total += wt;
-        }
+    fn add(&mut self, weight: f64, value: f64) {
+        self.sum += weight * value;
+        self.total += weight;
     }
 
-    /// The mean (NaN without weight).
     fn mean(&self) -> f64 {
         if self.total > 0.0 {
             self.sum / self.total
         } else {
             f64::NAN
         }
+    }
+}
+
+/// [`Loss::value`]'s weighted mean over `rows` (ascending), for a pass that visits every row
+/// in order and adds only these ([`Loss::logistic_pass`], [`Loss::softmax_pass`]); a row's
+/// loss is computed only when it is one of them.
+struct RowMean<'a> {
+    rows: std::iter::Peekable<std::iter::Copied<std::slice::Iter<'a, u32>>>,
+    w: Option<&'a [f64]>,
+    mean: WeightedMean,
+}
+
+impl<'a> RowMean<'a> {
+    fn new(rows: &'a [u32], w: Option<&'a [f64]>) -> Self {
+        let rows = rows.iter().copied().peekable();
+        let mean = WeightedMean::default();
+        RowMean { rows, w, mean }
+    }
+
+    /// Row `r` (rows come in order) and its loss, when `r` is one of the rows.
+    #[inline(always)]
+    fn add(&mut self, r: usize, loss: impl FnOnce() -> f64) {
+        if self.rows.next_if_eq(&(r as u32)).is_some() {
+            self.mean.add(self.w.map_or(1.0, |w| w[r]), loss());
+        }
+    }
+
+    fn mean(&self) -> f64 {
+        self.mean.mean()
     }
 }
 

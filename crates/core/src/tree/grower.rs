@@ -1198,18 +1198,7 @@ fn count_draws(rows: &[u32], n: usize) -> (Vec<u32>, Vec<u32>) {
     }
     let kept = match repeats {
         false => rows.to_vec(),
-        true => {
-            // Every row written, the next place taken only by a drawn one: no branch on
-            // whether it was drawn (random in a bootstrap).
-            let mut kept = vec![0u32; n + 1];
-            let mut k = 0;
-            for (r, &c) in draws.iter().enumerate() {
-                kept[k] = r as u32;
-                k += usize::from(c > 0);
-            }
-            kept.truncate(k);
-            kept
-        }
+        true => super::rows_where(n, |r| draws[r] > 0),
     };
     (kept, draws)
 }

@@ -217,3 +217,17 @@ impl Tree {
         deepest
     }
 }
+
+/// The numbers `0..n` for which `keep` holds, in order. Every number is written and the next
+/// place taken only by a kept one, so there is no branch on `keep`, which is random where it
+/// is used (the rows a bootstrap drew, the rows a tree left out of its bag).
+pub(crate) fn rows_where(n: usize, keep: impl Fn(usize) -> bool) -> Vec<u32> {
+    let mut kept = vec![0u32; n + 1];
+    let mut k = 0;
+    for r in 0..n {
+        kept[k] = r as u32;
+        k += usize::from(keep(r));
+    }
+    kept.truncate(k);
+    kept
+}
