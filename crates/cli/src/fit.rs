@@ -292,8 +292,7 @@ pub fn fit(args: FitArgs) -> anyhow::Result<()> {
             // The path costs time quadratic in the nodes (weakest links one by one): only
             // for the JSON output, its one reader.
             pruning_path: args.json && method == Method::Tree,
-            spread: None,
-            held_out: None,
+            ..FitOptions::default()
         },
         &mut Bar::new(),
     )?;

@@ -52,6 +52,9 @@ pub struct FitOptions<'a> {
     /// Rows held out of this fit (a validation split's test rows): bagging and forests judge
     /// them tree by tree and keep no trees ([`Forest::judged`]); other methods ignore them.
     pub held_out: Option<&'a Design>,
+    /// The design fitted is some rows of a design sorted beforehand: bins read from that sort
+    /// (validation sorts once for all its folds; the same bins as binning alone).
+    pub presorted: Option<crate::binning::Presorted<'a>>,
 }
 
 /// A fitted model with what it was fitted on.
@@ -77,7 +80,11 @@ struct Prepared {
 
 /// Checks the outcome against the settings, bins the predictors and frees their values
 /// (from here on the learners read the bins only), and computes the rows' statistics.
-fn prepare(design: &mut Design, settings: &FitSettings) -> Result<Prepared> {
+fn prepare(
+    design: &mut Design,
+    settings: &FitSettings,
+    presorted: Option<crate::binning::Presorted<'_>>,
+) -> Result<Prepared> {
     let regression = matches!(design.outcome, Outcome::Numbers(_));
     if regression != settings.regression {
         return Err(Error::new(ErrorKind::BadSetting {
@@ -94,7 +101,10 @@ fn prepare(design: &mut Design, settings: &FitSettings) -> Result<Prepared> {
             ),
         }));
     }
-    let binned = bin_design(design, settings.bins)?;
+    let binned = match presorted {
+        Some(presorted) => crate::binning::bin_design_presorted(design, settings.bins, presorted)?,
+        None => bin_design(design, settings.bins)?,
+    };
     let predictors = predictors_of(design, &binned);
     design.predictors = Vec::new();
     let (stats, width) = design.row_statistics(settings.balanced_classes);
@@ -124,7 +134,7 @@ pub fn fit_forest_part(
             ),
         }));
     }
-    let p = prepare(&mut design, settings)?;
+    let p = prepare(&mut design, settings, None)?;
     Ok(fit_trees(
         &p.binned,
         &p.stats,
@@ -173,7 +183,7 @@ pub fn fit_design(
         predictors,
         stats,
         width,
-    } = prepare(&mut design, settings)?;
+    } = prepare(&mut design, settings, options.presorted)?;
     let mut path = None;
     let ensemble = match settings.method {
         Method::Tree => {
