@@ -12,7 +12,7 @@ use std::ops::Range;
 use crate::binning::{bin_design, BinnedMatrix};
 use crate::design::{Design, Outcome};
 use crate::ensemble::adaboost::fit_adaboost;
-use crate::ensemble::boosting::fit_boosting;
+use crate::ensemble::boosting::fit_boosting_with;
 use crate::ensemble::forest::{
     fit_forest_judging, fit_trees, FittedTree, Forest, ForestSettings, HeldOut,
 };
@@ -55,6 +55,9 @@ pub struct FitOptions<'a> {
     /// The design fitted is some rows of a design sorted beforehand: bins read from that sort
     /// (validation sorts once for all its folds; the same bins as binning alone).
     pub presorted: Option<crate::binning::Presorted<'a>>,
+    /// The model is judged and then dropped (a validation split's fit): gradient boosting
+    /// leaves out its training loss by round, which only a kept model shows.
+    pub judged_only: bool,
 }
 
 /// A fitted model with what it was fitted on.
@@ -249,11 +252,12 @@ pub fn fit_design(
                 ),
                 _ => design.weights.clone(),
             };
-            Ensemble::Boosting(fit_boosting(
+            Ensemble::Boosting(fit_boosting_with(
                 &binned,
                 &design,
                 weights.as_deref(),
                 &boosting,
+                !options.judged_only,
                 progress,
             )?)
         }

@@ -426,6 +426,7 @@ pub fn run_split(
     let all_out = split.out_of_sample.iter().all(|&o| o);
     let options = FitOptions {
         held_out: (all_out && !bootstrap).then_some(&test),
+        judged_only: true,
         ..options
     };
     let fitted = fit_part(train, settings, options, progress)?;
