@@ -9,7 +9,7 @@
 
 use std::ops::Range;
 
-use crate::binning::{bin_design, BinnedMatrix};
+use crate::binning::{bin_design, bin_design_presorted, BinnedMatrix, Presorted};
 use crate::design::{Design, Outcome};
 use crate::ensemble::adaboost::fit_adaboost;
 use crate::ensemble::boosting::fit_boosting_with;
@@ -54,7 +54,7 @@ pub struct FitOptions<'a> {
     pub held_out: Option<&'a Design>,
     /// The design fitted is some rows of a design sorted beforehand: bins read from that sort
     /// (validation sorts once for all its folds; the same bins as binning alone).
-    pub presorted: Option<crate::binning::Presorted<'a>>,
+    pub presorted: Option<Presorted<'a>>,
     /// The model is judged and then dropped (a validation split's fit): gradient boosting
     /// leaves out its training loss by round, which only a kept model shows.
     pub judged_only: bool,
@@ -86,7 +86,7 @@ struct Prepared {
 fn prepare(
     design: &mut Design,
     settings: &FitSettings,
-    presorted: Option<crate::binning::Presorted<'_>>,
+    presorted: Option<Presorted<'_>>,
 ) -> Result<Prepared> {
     let regression = matches!(design.outcome, Outcome::Numbers(_));
     if regression != settings.regression {
@@ -105,7 +105,7 @@ fn prepare(
         }));
     }
     let binned = match presorted {
-        Some(presorted) => crate::binning::bin_design_presorted(design, settings.bins, presorted)?,
+        Some(presorted) => bin_design_presorted(design, settings.bins, presorted)?,
         None => bin_design(design, settings.bins)?,
     };
     let predictors = predictors_of(design, &binned);

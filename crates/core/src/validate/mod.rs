@@ -736,8 +736,13 @@ pub fn validate(
     progress: &mut dyn Progress,
 ) -> Result<Validation> {
     check_threshold(plan)?;
-    // Each fold's bins read from one sort of every number predictor, not sorted again.
-    let sorted = (plan.scheme != Scheme::OutOfBag).then(|| sort_columns(design));
+    // Each split's bins read from one sort of every number predictor, not sorted again (not
+    // for out-of-bag, one fit, nor bootstrap resamples, whose repeated rows are binned alone).
+    let sorted = matches!(
+        plan.scheme,
+        Scheme::Holdout { .. } | Scheme::Folds { .. } | Scheme::Groups { .. }
+    )
+    .then(|| sort_columns(design));
     let run_splits = |splits: &[Split], plan: &Plan, progress: &mut dyn Progress| {
         let job = |i: usize, options: FitOptions<'_>, progress: &mut dyn Progress| {
             let presorted = sorted.as_ref().map(|sorted| Presorted {
