@@ -252,8 +252,8 @@ fn thresholds_of_sorted(sorted: &[f64], max_bins: usize) -> Vec<f64> {
 /// their values; `None` for categories. Sorted once for a design and shared by every
 /// validation fit on some of its rows ([`bin_design_presorted`]), whose own sorts and
 /// searches of the thresholds it replaces (a fold's sort of 40,000 numbers a predictor,
-/// then a binary search a number, were a quarter of a one-tree 5-fold CV; with millions of
-/// rows, minutes).
+/// then a binary search a number, were a quarter of a one-tree 5-fold CV). Four bytes a
+/// number, for as long as the validation runs.
 pub struct SortedColumns {
     /// The rows of the design sorted.
     rows: usize,
