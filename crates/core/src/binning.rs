@@ -370,17 +370,20 @@ fn bin_columns<B: Bin>(
     let mut columns = Vec::with_capacity(design.predictors.len());
     for (j, p) in design.predictors.iter().enumerate() {
         let out = &mut cells[j * rows..(j + 1) * rows];
-        // This design's rows with a value, in the order of their values, from the shared sort.
-        let in_order: Option<Vec<u32>> = presorted.and_then(|(sorted, at)| {
-            let order = sorted.orders[j].as_ref()?;
-            Some(
-                order
-                    .iter()
-                    .map(|&r| at[r as usize])
-                    .filter(|&i| i != ABSENT)
-                    .collect(),
-            )
-        });
+        // This design's rows with a value and their values, in the order of their values, from
+        // the shared sort.
+        let in_order: Option<(Vec<u32>, Vec<f64>)> = match (&p.values, presorted) {
+            (PredictorValues::Numbers(v), Some((sorted, at))) => {
+                sorted.orders[j].as_ref().map(|order| {
+                    let places: Vec<u32> = (order.iter().map(|&r| at[r as usize]))
+                        .filter(|&i| i != ABSENT)
+                        .collect();
+                    let values = places.iter().map(|&i| v[i as usize]).collect();
+                    (places, values)
+                })
+            }
+            _ => None,
+        };
         let rule = match &p.values {
             PredictorValues::Numbers(v) => {
                 let limit = if settings.exact {
@@ -389,10 +392,7 @@ fn bin_columns<B: Bin>(
                     settings.max_bins
                 };
                 let thresholds = match &in_order {
-                    Some(order) => {
-                        let sorted: Vec<f64> = order.iter().map(|&i| v[i as usize]).collect();
-                        thresholds_of_sorted(&sorted, limit)
-                    }
+                    Some((_, sorted)) => thresholds_of_sorted(sorted, limit),
                     None => number_thresholds(v, limit),
                 };
                 if settings.exact && thresholds.len() + 1 >= limit {
@@ -418,14 +418,13 @@ fn bin_columns<B: Bin>(
         match &p.values {
             PredictorValues::Numbers(v) => {
                 match (&in_order, &rule) {
-                    (Some(order), BinRule::Numbers { thresholds, .. }) => {
+                    (Some((places, values)), BinRule::Numbers { thresholds, .. }) => {
                         // The values rise along the order, so a value's bin (the thresholds
                         // below it, as `bin_of_number` counts them) only moves up; NaN rows,
                         // left out of the order, stay missing.
                         out.fill(B::from_bin(None));
                         let mut k = 0;
-                        for &i in order {
-                            let x = v[i as usize];
+                        for (&i, &x) in places.iter().zip(values) {
                             while k < thresholds.len() && thresholds[k] < x {
                                 k += 1;
                             }
